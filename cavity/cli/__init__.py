@@ -1,0 +1,50 @@
+"""The ``cavity`` command line: one click group, each command in its own module of this package.
+
+Commands are imported only when invoked (click's documented lazy-group pattern), so ``cavity --help``
+stays fast and a command's heavy imports (numba, matplotlib, cartopy) cost nothing elsewhere.
+The commands are thin: they parse options, call the public Python API and turn the library's typed
+errors into one-line messages (exit 1).
+"""
+
+from __future__ import annotations
+
+import importlib
+
+import click
+
+from cavity import __version__
+
+#: command name -> (module in this package, short help shown by ``cavity --help``)
+COMMANDS: dict[str, tuple[str, str]] = {
+    "profile": ("profile", "Summarise and save an ionosphere altitude profile."),
+    "inspect": ("inspect", "Show what a run of a scenario would do, without running it."),
+}
+
+
+class LazyGroup(click.Group):
+    """A click group whose subcommands are imported on first use."""
+
+    def list_commands(self, ctx):
+        return sorted(COMMANDS)
+
+    def get_command(self, ctx, name):
+        if name not in COMMANDS:
+            return None
+        module = importlib.import_module(f"cavity.cli.{COMMANDS[name][0]}")
+        return getattr(module, "command")
+
+    def format_commands(self, ctx, formatter):
+        rows = [(name, COMMANDS[name][1]) for name in self.list_commands(ctx)]
+        with formatter.section("Commands"):
+            formatter.write_dl(rows)
+
+
+@click.group(cls=LazyGroup, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="cavity")
+def main():
+    """Predict VLF/ELF signal strength in the earth-ionosphere waveguide.
+
+    A planning aid, not a guarantee of service: see the cautions in the README.
+
+    Example: cavity inspect examples/northbay.toml
+    """

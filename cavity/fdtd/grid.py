@@ -1,0 +1,195 @@
+"""Grid sizing for the axisymmetric (r, z) Yee grid: cell sizes, time step, domain and memory.
+
+Layout (Taflove and Hagness 2005, ch. 12 body-of-revolution FDTD, m = 0):
+
+- ``ez[i, j]`` at (r = i dr, z = (j + 1/2) dz), i = 0..nr-1 (i = 0 is the axis);
+- ``er[i, j]`` at (r = (i + 1/2) dr, z = j dz), j = 0..nz (j = 0 is the ground, j = nz the top wall);
+- ``hphi[i, j]`` at (r = (i + 1/2) dr, z = (j + 1/2) dz).
+
+The stability limit of this scheme is below the 2-D Cartesian one because of the on-axis update
+(physics.md 2: c dt = 0.6728 d for dr = dz = d); it is found here by power iteration on the
+discrete curl-curl operator, so any aspect ratio dr/dz is handled.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from cavity.constants import C0
+from cavity.errors import ResourceError, SolverError
+
+#: Default resolution along range, cells per free-space wavelength at the highest frequency.
+DEFAULT_CELLS_PER_WAVELENGTH = 20.0
+#: Largest vertical cell: resolves the profile scale 1/beta (physics.md 2).
+MAX_DZ_M = 500.0
+#: Fraction of the stability limit used for the time step.
+COURANT_SAFETY = 0.95
+#: Default absorbing-layer thickness in cells (physics.md 4: 20 cells, m = 3).
+DEFAULT_PML_CELLS = 20
+#: Bytes per grid cell of the engine (float32 fields, coefficients and auxiliary arrays).
+BYTES_PER_CELL = 4 * 16
+
+
+@functools.lru_cache(maxsize=64)
+def stability_factor(aspect: float, size: int = 48, iterations: int = 2000) -> float:
+    """Largest stable ``c dt / dz`` for the axisymmetric Yee scheme with ``dr = aspect * dz``.
+
+    Power iteration on K = -curlH(curlE(.)) (fields in units with c = 1, dz = 1) gives its largest
+    eigenvalue lambda; the leapfrog scheme is stable for c dt <= 2 / sqrt(lambda).
+    """
+    dr, dz = float(aspect), 1.0
+    nr, nz = size, size
+    r_half = (np.arange(nr) + 0.5) * dr  # Er, Hphi radii
+    r_int = np.arange(nr) * dr  # Ez radii
+    rng = np.random.default_rng(1)
+    ez = rng.standard_normal((nr, nz))
+    er = rng.standard_normal((nr, nz + 1))
+    er[:, 0] = er[:, -1] = 0.0
+    lam = 0.0
+    for _ in range(iterations):
+        ez_pad = np.vstack([ez, np.zeros((1, nz))])  # PEC far wall: ez(nr) = 0
+        h = (ez_pad[1:] - ez_pad[:-1]) / dr - (er[:, 1:] - er[:, :-1]) / dz
+        rh = r_half[:, None] * h
+        new_ez = np.empty_like(ez)
+        new_ez[0] = 4.0 * h[0] / dr
+        new_ez[1:] = (rh[1:] - rh[:-1]) / (r_int[1:, None] * dr)
+        new_er = np.zeros_like(er)
+        new_er[:, 1:-1] = -(h[:, 1:] - h[:, :-1]) / dz
+        # K = -curlH curlE; power iteration on K
+        new_ez, new_er = -new_ez, -new_er
+        norm = math.sqrt(float(np.sum(new_ez**2) + np.sum(new_er**2)))
+        old = math.sqrt(float(np.sum(ez**2) + np.sum(er**2)))
+        lam = norm / old
+        ez, er = new_ez / norm, new_er / norm
+    return 2.0 / math.sqrt(lam)
+
+
+@dataclass(frozen=True)
+class GridPlan:
+    """Sizes of one solve. Lengths in m, times in s."""
+
+    dr_m: float
+    dz_m: float
+    dt_s: float
+    nr: int  # Ez columns including the axis and the far-end absorber
+    nz: int  # Ez rows including the top absorber (or up to a perfectly conducting ceiling)
+    pml_r_cells: int
+    pml_z_cells: int  # 0 under a perfectly conducting ceiling
+    max_range_m: float
+    top_m: float  # top of the physical domain (below the absorber)
+    n_steps: int  # planned number of time steps (the engine may stop earlier once converged)
+
+    @property
+    def cells(self) -> int:
+        return self.nr * self.nz
+
+    @property
+    def memory_bytes(self) -> int:
+        """Estimate of the engine's memory for this grid (fields, coefficients, auxiliaries)."""
+        return int(self.cells * BYTES_PER_CELL + 64 * 1024**2)
+
+    @property
+    def cell_updates(self) -> float:
+        return float(self.cells) * float(self.n_steps)
+
+
+def default_cells(
+    frequency_max_hz: float,
+    beta_max_per_m: float | None = None,
+    cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
+) -> tuple[float, float]:
+    """Default (dr, dz) in m: range resolves the shortest wavelength, height also the profile scale."""
+    if not frequency_max_hz > 0:
+        raise SolverError(f"frequency = {frequency_max_hz!r} Hz: must be > 0")
+    dr = C0 / frequency_max_hz / cells_per_wavelength
+    dz = min(dr, MAX_DZ_M)
+    if beta_max_per_m:
+        dz = min(dz, max(1.0 / (3.0 * beta_max_per_m), 100.0))
+    return dr, dz
+
+
+def plan_grid(
+    max_range_m: float,
+    frequency_max_hz: float,
+    top_m: float,
+    *,
+    duration_s: float,
+    dr_m: float | None = None,
+    dz_m: float | None = None,
+    beta_max_per_m: float | None = None,
+    ceiling: bool = False,
+    pml_cells: int = DEFAULT_PML_CELLS,
+    cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
+    courant_safety: float = COURANT_SAFETY,
+) -> GridPlan:
+    """Size the grid and the time step for one solve.
+
+    Parameters
+    ----------
+    max_range_m : farthest range that must be computed (the absorber starts beyond it).
+    frequency_max_hz : highest frequency of interest (sets dr).
+    top_m : top of the physical domain: a perfectly conducting ceiling if ``ceiling``, else the
+        bottom of the top absorber.
+    duration_s : simulated time the run needs.
+    dr_m, dz_m : user override of the cells; default from :func:`default_cells`.
+    """
+    dr_auto, dz_auto = default_cells(frequency_max_hz, beta_max_per_m, cells_per_wavelength)
+    dr = float(dr_m) if dr_m else dr_auto
+    dz = float(dz_m) if dz_m else (min(dz_auto, dr) if not dr_m else min(dr, dz_auto))
+    margin = 10  # cells between the farthest output and the absorber
+    nr = int(math.ceil(max_range_m / dr)) + margin + pml_cells + 1
+    pml_z = 0 if ceiling else pml_cells
+    nz = int(round(top_m / dz)) + pml_z
+    if ceiling and abs(nz * dz - top_m) > 1e-6 * top_m:
+        dz = top_m / nz  # the ceiling must sit exactly on an Er row
+    dt = courant_safety * stability_factor(round(dr / dz, 4)) * dz / C0
+    n_steps = int(math.ceil(duration_s / dt))
+    return GridPlan(
+        dr_m=dr,
+        dz_m=dz,
+        dt_s=dt,
+        nr=nr,
+        nz=nz,
+        pml_r_cells=pml_cells,
+        pml_z_cells=pml_z,
+        max_range_m=float(max_range_m),
+        top_m=float(top_m),
+        n_steps=n_steps,
+    )
+
+
+def check_memory(plan: GridPlan, available_bytes: int | None = None) -> None:
+    """Refuse a grid that will not fit in available memory, naming a coarser cell that would."""
+    if available_bytes is None:
+        available_bytes = available_memory_bytes()
+    need = plan.memory_bytes
+    if need <= 0.8 * available_bytes:
+        return
+    scale = math.sqrt(need / (0.8 * available_bytes))
+    raise ResourceError(
+        f"grid of {plan.nr} x {plan.nz} cells needs about {need / 1e9:.1f} GB but "
+        f"{available_bytes / 1e9:.1f} GB is available; use cell_m >= "
+        f"{math.ceil(max(plan.dr_m, plan.dz_m) * scale)} or a shorter max_range_km"
+    )
+
+
+def available_memory_bytes() -> int:
+    """Memory available to this process (Linux /proc/meminfo; psutil if present)."""
+    try:
+        import psutil
+
+        return int(psutil.virtual_memory().available)
+    except Exception:  # pragma: no cover - psutil is optional
+        pass
+    try:
+        with open("/proc/meminfo") as fh:
+            for line in fh:
+                if line.startswith("MemAvailable:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:  # pragma: no cover
+        pass
+    return 8 * 1024**3
