@@ -12,7 +12,6 @@ Heavy modules (numba kernels, matplotlib, cartopy) are imported on first use, so
 
 from cavity.errors import (
     CavityError,
-    ProfileError,
     ResourceError,
     ResultFileError,
     ScenarioError,
@@ -23,7 +22,6 @@ __version__ = "0.1.0"
 
 __all__ = [
     "CavityError",
-    "ProfileError",
     "ResourceError",
     "ResultFileError",
     "ScenarioError",

@@ -9,10 +9,6 @@ class ScenarioError(CavityError):
     """A scenario file or value is malformed, unknown or out of range."""
 
 
-class ProfileError(CavityError, ValueError):
-    """An ionosphere profile (parameters or a user file) is invalid."""
-
-
 class ResultFileError(CavityError):
     """A result file is missing, corrupt or not written by this tool."""
 

@@ -8,6 +8,7 @@ import sys
 import click
 
 from cavity.errors import CavityError
+from profiles.errors import ProfileError
 
 
 def one_line(exc: BaseException) -> str:
@@ -23,7 +24,7 @@ def friendly_errors(func):
     def wrapper(*args, **kwargs):
         try:
             return func(*args, **kwargs)
-        except CavityError as exc:
+        except (CavityError, ProfileError) as exc:
             raise click.ClickException(one_line(exc)) from None
         except KeyboardInterrupt:
             click.echo("Error: interrupted; no result file was written", err=True)
