@@ -1,0 +1,829 @@
+"""Scenario files: TOML in, a validated, frozen :class:`Scenario` in SI units out.
+
+A scenario is one transmitter, its receivers, one ionosphere description, one ground description and
+optional solver settings (the contract is the "Scenario file" section of the design conventions and
+the README's scenario reference). The loader is strict: an unknown key (with a "did you mean" hint),
+a value of the wrong type, a missing required key, NaN/inf or a value out of range raises
+:class:`cavity.errors.ScenarioError` with ONE line naming the key path (receivers and segments are
+numbered from 1 in file order: ``receiver[2].range_km``), the value and the allowed range. A file is
+never half-accepted.
+
+Units: the file speaks km, kHz, kW and degrees; the dataclasses hold m, Hz, W, S/m and degrees.
+:meth:`Scenario.to_toml` writes the file form back so that loading it gives an equal scenario.
+
+Extension point: a ``[source]`` section (an impulsive lightning source instead of the continuous
+transmitter) is planned. It will be parsed by a ``_parse_source`` function called from
+:func:`_parse_document` next to the other sections, stored in a ``source`` field of :class:`Scenario`
+and written back by :meth:`Scenario.to_toml`; until then ``source`` is an unknown key like any other.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import json
+import math
+import os
+import tomllib
+from dataclasses import dataclass, field
+from datetime import date, datetime, time, timezone
+from pathlib import Path
+from typing import Any
+
+from cavity.errors import ScenarioError
+from cavity.ground import GROUND_CLASSES
+
+# Allowed ranges, in the file's units (km, kHz, kW, degrees).
+FREQUENCY_RANGE_KHZ = (0.3, 60.0)
+POWER_MAX_KW = 5000.0
+LATITUDE_RANGE_DEG = (-90.0, 90.0)
+LONGITUDE_RANGE_DEG = (-180.0, 360.0)  # upper end excluded
+RANGE_LIMITS_KM = (1.0, 15000.0)
+MIN_RECEIVER_DISTANCE_KM = 1.0
+HPRIME_RANGE_KM = (50.0, 100.0)
+BETA_RANGE_PER_KM = (0.1, 1.5)
+CEILING_RANGE_KM = (20.0, 200.0)
+CELL_RANGE_M = (10.0, 5000.0)
+TOP_RANGE_KM = (60.0, 600.0)
+PML_CELLS_RANGE = (5, 100)
+CELLS_PER_WAVELENGTH_RANGE = (8.0, 200.0)
+CONDUCTIVITY_RANGE_S_PER_M = (1e-6, 1e3)
+PERMITTIVITY_RANGE = (1.0, 100.0)
+
+#: Top of the physical domain when the scenario does not set ``top_km`` (exponential, preset, utc
+#: and file forms; under a ceiling the ceiling is the top; with no ionosphere the open top is high).
+DEFAULT_TOP_KM = 120.0
+NO_IONOSPHERE_TOP_KM = 400.0
+#: Range computed beyond the farthest receiver when ``max_range_km`` is not set: 5 %, at least 100 km.
+RANGE_MARGIN_FRACTION = 0.05
+RANGE_MARGIN_MIN_KM = 100.0
+
+IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
+    "exponential": ("hprime_km", "beta_per_km"),
+    "preset": ("preset",),
+    "utc": ("utc",),
+    "ceiling": ("ceiling_km",),
+    "file": ("profile_file",),
+    "none": ("no_ionosphere",),
+}
+_FORM_TEXT = "hprime_km + beta_per_km, preset, utc, ceiling_km, profile_file or no_ionosphere = true"
+GROUND_KINDS: tuple[str, ...] = (*GROUND_CLASSES, "custom", "auto")
+
+_TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "solver")
+_TRANSMITTER_KEYS = ("name", "latitude_deg", "longitude_deg", "frequency_khz", "radiated_power_kw")
+_RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
+_IONOSPHERE_KEYS = ("hprime_km", "beta_per_km", "preset", "utc", "day_preset", "night_preset",
+                    "ceiling_km", "profile_file", "no_ionosphere")
+_GROUND_KEYS = ("kind", "conductivity_s_per_m", "relative_permittivity", "segment")
+_SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_permittivity")
+_SOLVER_KEYS = ("max_range_km", "cell_m", "top_km", "earth_curvature", "pml_cells",
+                "cells_per_wavelength", "receiver_time_series")
+
+
+# --------------------------------------------------------------------------------------------------
+# The data model (SI units)
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Transmitter:
+    """The continuous-wave transmitter: a short vertical monopole at the axis of the grid.
+
+    ``frequencies_hz`` is sorted and unique; ``radiated_power_w`` is the radiated power over
+    perfectly conducting ground (1 kW gives 300 mV/m at 1 km, ITU-R P.368 calibration). The position
+    is None when every receiver is given by range only.
+    """
+
+    name: str
+    latitude_deg: float | None
+    longitude_deg: float | None
+    frequencies_hz: tuple[float, ...]
+    radiated_power_w: float
+
+
+@dataclass(frozen=True)
+class Receiver:
+    """A receiving site: a position (latitude, longitude) or a ground range from the transmitter."""
+
+    name: str
+    latitude_deg: float | None = None
+    longitude_deg: float | None = None
+    range_m: float | None = None
+
+
+@dataclass(frozen=True)
+class Ionosphere:
+    """One ionosphere description; ``form`` says which fields are used.
+
+    ``"exponential"``: Wait-Spies h' (km) and beta (1/km); ``"preset"``: a named pair from
+    :data:`profiles.daynight.PRESETS`; ``"utc"``: the sun's position along each path at ``utc``
+    (tz-aware, UTC) picks between ``day_preset`` and ``night_preset``; ``"ceiling"``: a perfectly
+    conducting ceiling at ``ceiling_m`` (verification); ``"file"``: a user profile at
+    ``profile_path`` (absolute); ``"none"``: free space above the ground (verification).
+    """
+
+    form: str
+    hprime_km: float | None = None
+    beta_per_km: float | None = None
+    preset: str | None = None
+    utc: datetime | None = None
+    ceiling_m: float | None = None
+    profile_path: str | None = None
+    day_preset: str = "day"
+    night_preset: str = "night"
+
+
+@dataclass(frozen=True)
+class GroundSegment:
+    """A stretch of ground range ``from_m``..``to_m`` with its own electrical constants."""
+
+    from_m: float
+    to_m: float
+    kind: str
+    conductivity_s_per_m: float
+    relative_permittivity: float
+
+
+@dataclass(frozen=True)
+class Ground:
+    """Ground under every path.
+
+    Named kinds carry the class values of :data:`cavity.ground.GROUND_CLASSES` ("perfect" has an
+    infinite conductivity); ``"auto"`` leaves them None, to be filled along each path from a
+    land/sea mask. ``segments`` override the ground over ranges of every path.
+    """
+
+    kind: str
+    conductivity_s_per_m: float | None
+    relative_permittivity: float | None
+    segments: tuple[GroundSegment, ...] = ()
+
+
+@dataclass(frozen=True)
+class Solver:
+    """Solver settings; None means "choose from frequency and receivers"."""
+
+    max_range_m: float | None = None
+    cell_m: float | None = None
+    top_m: float | None = None
+    earth_curvature: bool = True
+    pml_cells: int = 20
+    cells_per_wavelength: float = 20.0
+    receiver_time_series: bool = False
+
+
+@dataclass(frozen=True)
+class ReceiverGeometry:
+    """Where a receiver lies as seen from the transmitter (bearing None for a range-only receiver)."""
+
+    name: str
+    range_m: float
+    bearing_deg: float | None
+
+
+@dataclass(frozen=True)
+class Scenario:
+    """A validated scenario. Immutable: change it with :meth:`replace`, which validates again.
+
+    ``text`` is the TOML as loaded (or as regenerated by :meth:`replace`) and ``path`` the file it
+    came from (None for text); neither takes part in equality.
+    """
+
+    title: str
+    transmitter: Transmitter
+    receivers: tuple[Receiver, ...]
+    ionosphere: Ionosphere
+    ground: Ground
+    solver: Solver
+    text: str = field(default="", compare=False, repr=False)
+    path: str | None = field(default=None, compare=False)
+
+    def replace(self, **changes) -> Scenario:
+        """A copy with some fields changed, validated like a file (ScenarioError on a bad value)."""
+        changed = dataclasses.replace(self, **changes)
+        loaded = load_scenario(changed.to_toml())
+        return dataclasses.replace(loaded, path=self.path)
+
+    def to_toml(self) -> str:
+        """The scenario as TOML text in the file's units; :func:`load_scenario` reads it back equal."""
+        return _to_toml(self)
+
+    def receiver_geometry(self) -> tuple[ReceiverGeometry, ...]:
+        """Range (m) and bearing (deg clockwise from true north) of each receiver, WGS84 geodesics."""
+        tx = self.transmitter
+        out = []
+        for rx in self.receivers:
+            if rx.range_m is not None:
+                out.append(ReceiverGeometry(rx.name, rx.range_m, None))
+            else:
+                distance_m, bearing = _geodesic(tx.latitude_deg, tx.longitude_deg, rx.latitude_deg, rx.longitude_deg)
+                out.append(ReceiverGeometry(rx.name, distance_m, bearing))
+        return tuple(out)
+
+    def planned_max_range_m(self) -> float:
+        """Farthest range to compute: ``solver.max_range_m``, else the farthest receiver plus a margin.
+
+        The margin (5 %, at least 100 km) keeps the farthest receiver clear of the far-end absorber's
+        neighbourhood.
+        """
+        if self.solver.max_range_m is not None:
+            return self.solver.max_range_m
+        farthest = max(g.range_m for g in self.receiver_geometry())
+        return farthest + max(RANGE_MARGIN_FRACTION * farthest, RANGE_MARGIN_MIN_KM * 1e3)
+
+    def planned_top_m(self) -> float:
+        """Top of the physical domain: ``solver.top_m``, the ceiling, or a default by ionosphere form."""
+        if self.ionosphere.form == "ceiling":
+            return self.ionosphere.ceiling_m
+        if self.solver.top_m is not None:
+            return self.solver.top_m
+        if self.ionosphere.form == "none":
+            return NO_IONOSPHERE_TOP_KM * 1e3
+        return DEFAULT_TOP_KM * 1e3
+
+
+# --------------------------------------------------------------------------------------------------
+# Loading
+# --------------------------------------------------------------------------------------------------
+
+
+def load_scenario(source: str | os.PathLike) -> Scenario:
+    """Load and validate a scenario.
+
+    Parameters
+    ----------
+    source : str or os.PathLike
+        A path to a ``.toml`` file, or TOML text (a string containing a newline or ``=``).
+
+    Returns
+    -------
+    Scenario
+        Validated, in SI units; relative ``profile_file`` paths are resolved against the scenario
+        file's folder (against the working folder for text).
+
+    Raises
+    ------
+    ScenarioError
+        One line naming the file, the key path, the value and the allowed range.
+    """
+    is_text = isinstance(source, str) and ("\n" in source or "=" in source)
+    if is_text:
+        text, path, label, base = source, None, None, Path.cwd()
+    else:
+        file = Path(os.fspath(source)).expanduser()
+        label = file.name or str(file)
+        try:
+            raw = file.read_bytes()
+        except FileNotFoundError:
+            raise ScenarioError(f"scenario file {str(file)!r} not found") from None
+        except IsADirectoryError:
+            raise ScenarioError(f"{str(file)!r} is a folder, not a scenario file") from None
+        except OSError as exc:
+            raise ScenarioError(f"cannot read scenario file {str(file)!r}: {exc.strerror or exc}") from None
+        try:
+            text = raw.decode("utf-8-sig")
+        except UnicodeDecodeError as exc:
+            raise ScenarioError(f"{label}: not UTF-8 text (bad byte at offset {exc.start})") from None
+        path, base = str(file.resolve()), file.resolve().parent
+    try:
+        try:
+            document = tomllib.loads(text)
+        except tomllib.TOMLDecodeError as exc:
+            raise ScenarioError(f"invalid TOML: {str(exc).splitlines()[0]}") from None
+        scenario = _parse_document(document, base)
+    except ScenarioError as exc:
+        if label:
+            raise ScenarioError(f"{label}: {exc}") from None
+        raise
+    return dataclasses.replace(scenario, text=text, path=path)
+
+
+def _parse_document(doc: dict, base: Path) -> Scenario:
+    top = _Table(doc, "")
+    top.finish(_TOP_KEYS)
+    title = top.string("title", required=True)
+    transmitter = _parse_transmitter(top.table("transmitter", required=True))
+    receivers = _parse_receivers(top)
+    ionosphere = _parse_ionosphere(top.table("ionosphere", required=True), base)
+    ground = _parse_ground(top.table("ground", required=True))
+    solver = _parse_solver(top.table("solver", required=False) or _Table({}, "solver"), ionosphere)
+    scenario = Scenario(title, transmitter, receivers, ionosphere, ground, solver)
+    _check_geometry(scenario)
+    return scenario
+
+
+def _show(value: Any) -> str:
+    """A value as the user wrote it in TOML, on one line."""
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return json.dumps(value, ensure_ascii=False)
+    if isinstance(value, float):
+        return repr(value)
+    if isinstance(value, (datetime, date, time)):
+        return value.isoformat()
+    if isinstance(value, dict):
+        return "a table"
+    if isinstance(value, list):
+        return "[" + ", ".join(_show(v) for v in value) + "]"
+    return str(value)
+
+
+def _number_text(x: float) -> str:
+    return f"{x:g}"
+
+
+class _Table:
+    """One TOML table and its key path, with typed, range-checked readers."""
+
+    def __init__(self, data: dict, prefix: str):
+        self.data = data
+        self.prefix = prefix
+
+    def key(self, name: str) -> str:
+        return f"{self.prefix}.{name}" if self.prefix else name
+
+    def has(self, name: str) -> bool:
+        return name in self.data
+
+    def fail(self, name: str, value: Any, problem: str) -> ScenarioError:
+        return ScenarioError(f"{self.key(name)} = {_show(value)} {problem}")
+
+    def missing(self, name: str, what: str) -> ScenarioError:
+        return ScenarioError(f"{self.key(name)} is missing ({what})")
+
+    def raw(self, name: str) -> Any:
+        return self.data.get(name)
+
+    def finish(self, allowed: tuple[str, ...]) -> None:
+        """Raise on the first key that is not in ``allowed``, with a "did you mean" hint."""
+        for name in self.data:
+            if name in allowed:
+                continue
+            close = difflib.get_close_matches(name, allowed, n=1, cutoff=0.6)
+            hint = f"; did you mean {close[0]!r}?" if close else f" (known keys: {', '.join(allowed)})"
+            raise ScenarioError(f"{self.key(name)}: unknown key{hint}")
+
+    def table(self, name: str, *, required: bool) -> _Table | None:
+        value = self.raw(name)
+        if value is None:
+            if required:
+                raise ScenarioError(f"[{self.key(name)}] section is missing")
+            return None
+        if not isinstance(value, dict):
+            raise self.fail(name, value, f"must be a table [{self.key(name)}]")
+        return _Table(value, self.key(name))
+
+    def string(self, name: str, *, required: bool = False, default: str | None = None) -> str | None:
+        value = self.raw(name)
+        if value is None:
+            if required:
+                raise self.missing(name, "a text in quotes")
+            return default
+        if not isinstance(value, str):
+            raise self.fail(name, value, "must be a text in quotes")
+        if not value.strip():
+            raise self.fail(name, value, "must not be empty")
+        return value.strip()
+
+    def boolean(self, name: str, default: bool) -> bool:
+        value = self.raw(name)
+        if value is None:
+            return default
+        if not isinstance(value, bool):
+            raise self.fail(name, value, "must be true or false")
+        return value
+
+    def number(
+        self,
+        name: str,
+        low: float,
+        high: float,
+        unit: str,
+        *,
+        required: bool = False,
+        low_open: bool = False,
+        high_open: bool = False,
+        allowed: str | None = None,
+        integer: bool = False,
+        value: Any = None,
+        label: str | None = None,
+    ) -> float | int | None:
+        """Check a number (never a boolean) is finite and within [low, high] (ends open if asked)."""
+        if value is None:
+            value = self.raw(name)
+        label = label or name
+        if allowed is None:
+            lo = f"> {_number_text(low)}" if low_open else _number_text(low)
+            hi = f"< {_number_text(high)}" if high_open else _number_text(high)
+            allowed = f"allowed range {lo} to {hi} {unit}".rstrip()
+        if value is None:
+            if required:
+                raise self.missing(label, allowed)
+            return None
+        kind = "an integer" if integer else "a number"
+        if isinstance(value, bool):
+            raise self.fail(label, value, f"must be {kind}, not true/false ({allowed})")
+        if integer and not isinstance(value, int):
+            raise self.fail(label, value, f"must be {kind} ({allowed})")
+        if not isinstance(value, (int, float)):
+            raise self.fail(label, value, f"must be {kind} ({allowed})")
+        if not math.isfinite(value):
+            raise self.fail(label, value, f"must be a finite number ({allowed})")
+        too_low = value <= low if low_open else value < low
+        too_high = value >= high if high_open else value > high
+        if too_low or too_high:
+            raise self.fail(label, value, f"is outside the {allowed}")
+        return int(value) if integer else float(value)
+
+
+def _km(x: float | None) -> float | None:
+    return None if x is None else x * 1e3
+
+
+def _parse_transmitter(t: _Table) -> Transmitter:
+    t.finish(_TRANSMITTER_KEYS)
+    name = t.string("name", required=True)
+    lat = t.number("latitude_deg", *LATITUDE_RANGE_DEG, "deg")
+    lon = t.number("longitude_deg", *LONGITUDE_RANGE_DEG, "deg", high_open=True)
+    if (lat is None) != (lon is None):
+        given, other = ("latitude_deg", "longitude_deg") if lat is not None else ("longitude_deg", "latitude_deg")
+        raise ScenarioError(f"{t.key(other)} is missing (needed with {t.key(given)})")
+    band = f"supported band {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+    raw = t.raw("frequency_khz")
+    if raw is None:
+        raise t.missing("frequency_khz", f"a number or a list of numbers in the {band}")
+    if isinstance(raw, list):
+        if not raw:
+            raise t.fail("frequency_khz", raw, f"must list at least one frequency ({band})")
+        values = [
+            t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=v, label=f"frequency_khz[{i}]")
+            for i, v in enumerate(raw, 1)
+        ]
+    else:
+        values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=raw)]
+    frequencies = tuple(sorted({v * 1e3 for v in values}))
+    power_kw = t.number(
+        "radiated_power_kw", 0.0, POWER_MAX_KW, "kW", required=True, low_open=True,
+        allowed=f"allowed range > 0 to {_number_text(POWER_MAX_KW)} kW",
+    )
+    return Transmitter(name, lat, lon, frequencies, power_kw * 1e3)
+
+
+def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
+    raw = top.raw("receiver")
+    if raw is None:
+        raise ScenarioError("receiver is missing (at least one [[receiver]] table)")
+    if isinstance(raw, dict):
+        raise ScenarioError("receiver: write each receiver as a [[receiver]] table (double brackets)")
+    if not isinstance(raw, list) or not raw:
+        raise top.fail("receiver", raw, "must be one or more [[receiver]] tables")
+    receivers: list[Receiver] = []
+    first_index: dict[str, int] = {}
+    for i, item in enumerate(raw, 1):
+        prefix = f"receiver[{i}]"
+        if not isinstance(item, dict):
+            raise ScenarioError(f"{prefix} = {_show(item)} must be a [[receiver]] table")
+        t = _Table(item, prefix)
+        t.finish(_RECEIVER_KEYS)
+        name = t.string("name", required=True)
+        if name in first_index:
+            raise t.fail("name", name, f"is already used by receiver[{first_index[name]}]; names must be unique")
+        first_index[name] = i
+        lat = t.number("latitude_deg", *LATITUDE_RANGE_DEG, "deg")
+        lon = t.number("longitude_deg", *LONGITUDE_RANGE_DEG, "deg", high_open=True)
+        range_km = t.number("range_km", *RANGE_LIMITS_KM, "km")
+        if (lat is None) != (lon is None):
+            given, other = ("latitude_deg", "longitude_deg") if lat is not None else ("longitude_deg", "latitude_deg")
+            raise ScenarioError(f"{t.key(other)} is missing (needed with {t.key(given)})")
+        if range_km is not None and lat is not None:
+            raise t.fail("range_km", item["range_km"], "given together with a position; give either latitude_deg and longitude_deg or range_km")
+        if range_km is None and lat is None:
+            raise ScenarioError(f"{prefix} has no location: give latitude_deg and longitude_deg, or range_km")
+        receivers.append(Receiver(name, lat, lon, _km(range_km)))
+    return tuple(receivers)
+
+
+def _known_presets() -> tuple[str, ...]:
+    from profiles.daynight import PRESETS
+
+    return tuple(PRESETS)
+
+
+def _preset_name(t: _Table, name: str, *, required: bool, default: str | None = None) -> str | None:
+    value = t.string(name, required=required, default=default)
+    if value is None or not t.has(name):
+        return value
+    known = _known_presets()
+    if value not in known:
+        close = difflib.get_close_matches(value, known, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise t.fail(name, value, f"is not a known preset (choose from {', '.join(known)}){hint}")
+    return value
+
+
+def _parse_ionosphere(t: _Table, base: Path) -> Ionosphere:
+    t.finish(_IONOSPHERE_KEYS)
+    forms = [form for form, keys in IONOSPHERE_FORMS.items() if any(t.has(k) for k in keys)]
+    if not forms:
+        raise ScenarioError(f"[ionosphere] gives no form; give exactly one of {_FORM_TEXT}")
+    if len(forms) > 1:
+        keys = [next(k for k in IONOSPHERE_FORMS[f] if t.has(k)) for f in forms]
+        raise ScenarioError(
+            f"{t.key(keys[1])}: [ionosphere] mixes {keys[0]} and {keys[1]}; give exactly one of {_FORM_TEXT}"
+        )
+    form = forms[0]
+    for extra in ("day_preset", "night_preset"):
+        if t.has(extra) and form != "utc":
+            raise t.fail(extra, t.data[extra], "is only used with utc = ...")
+    if form == "exponential":
+        hprime = t.number("hprime_km", *HPRIME_RANGE_KM, "km", required=True)
+        beta = t.number("beta_per_km", *BETA_RANGE_PER_KM, "per km", required=True)
+        return Ionosphere("exponential", hprime_km=hprime, beta_per_km=beta)
+    if form == "preset":
+        return Ionosphere("preset", preset=_preset_name(t, "preset", required=True))
+    if form == "utc":
+        value = t.raw("utc")
+        example = "e.g. utc = 2026-06-21T12:00:00Z, no quotes"
+        if isinstance(value, datetime):
+            if value.tzinfo is None:
+                raise t.fail("utc", value, f"has no UTC offset ({example})")
+            utc = value.astimezone(timezone.utc)
+        else:
+            raise t.fail("utc", value, f"must be a date and time with offset ({example})")
+        day = _preset_name(t, "day_preset", required=False, default="day")
+        night = _preset_name(t, "night_preset", required=False, default="night")
+        return Ionosphere("utc", utc=utc, day_preset=day, night_preset=night)
+    if form == "ceiling":
+        ceiling = t.number("ceiling_km", *CEILING_RANGE_KM, "km", required=True)
+        return Ionosphere("ceiling", ceiling_m=ceiling * 1e3)
+    if form == "file":
+        name = t.string("profile_file", required=True)
+        resolved = (base / Path(name).expanduser()).resolve()
+        if not resolved.is_file():
+            raise t.fail("profile_file", name, f"is not an existing file (looked for {resolved})")
+        return Ionosphere("file", profile_path=str(resolved))
+    value = t.raw("no_ionosphere")
+    if value is not True:
+        raise t.fail("no_ionosphere", value, "must be true when given (remove it to use an ionosphere)")
+    return Ionosphere("none")
+
+
+def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, float | None]:
+    """Conductivity and permittivity: given for custom, from the class table for named kinds."""
+    sigma_given, eps_given = t.has("conductivity_s_per_m"), t.has("relative_permittivity")
+    if kind == "custom":
+        sigma = t.number("conductivity_s_per_m", *CONDUCTIVITY_RANGE_S_PER_M, "S/m", required=True)
+        eps = t.number("relative_permittivity", *PERMITTIVITY_RANGE, "", required=True)
+        return sigma, eps
+    if sigma_given or eps_given:
+        name = "conductivity_s_per_m" if sigma_given else "relative_permittivity"
+        raise t.fail(name, t.data[name], f"is only allowed {what}; kind {_show(kind)} fixes it")
+    if kind == "auto":
+        return None, None
+    cls = GROUND_CLASSES[kind]
+    return cls.conductivity_s_per_m, cls.relative_permittivity
+
+
+def _parse_ground(t: _Table) -> Ground:
+    t.finish(_GROUND_KEYS)
+    kind = t.string("kind", required=True)
+    if kind not in GROUND_KINDS:
+        close = difflib.get_close_matches(kind, GROUND_KINDS, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise t.fail("kind", kind, f"is not a ground kind (choose from {', '.join(GROUND_KINDS)}){hint}")
+    sigma, eps = _ground_constants(t, kind, 'with kind = "custom"')
+    raw = t.raw("segment")
+    segments: list[GroundSegment] = []
+    if raw is not None:
+        if isinstance(raw, dict):
+            raise ScenarioError(f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)")
+        if not isinstance(raw, list):
+            raise t.fail("segment", raw, "must be [[ground.segment]] tables")
+        for i, item in enumerate(raw, 1):
+            prefix = f"ground.segment[{i}]"
+            if not isinstance(item, dict):
+                raise ScenarioError(f"{prefix} = {_show(item)} must be a [[ground.segment]] table")
+            s = _Table(item, prefix)
+            s.finish(_SEGMENT_KEYS)
+            from_km = s.number("from_km", 0.0, RANGE_LIMITS_KM[1], "km", required=True, high_open=True)
+            to_km = s.number("to_km", 0.0, RANGE_LIMITS_KM[1], "km", required=True, low_open=True)
+            if to_km <= from_km:
+                raise s.fail("to_km", item["to_km"], f"must be greater than from_km = {_show(item['from_km'])}")
+            if segments and from_km * 1e3 < segments[-1].to_m:
+                raise s.fail(
+                    "from_km", item["from_km"],
+                    f"overlaps ground.segment[{i - 1}], which ends at {_number_text(segments[-1].to_m / 1e3)} km; "
+                    "segments must be in order of range and must not overlap",
+                )
+            if s.has("kind"):
+                seg_kind = s.string("kind")
+                named = tuple(GROUND_CLASSES)
+                if seg_kind not in named:
+                    close = difflib.get_close_matches(seg_kind, named, n=1)
+                    hint = f"; did you mean {close[0]!r}?" if close else ""
+                    raise s.fail(
+                        "kind", seg_kind,
+                        f"is not a ground class (choose from {', '.join(named)}, or give "
+                        f"conductivity_s_per_m and relative_permittivity instead){hint}",
+                    )
+                seg_sigma, seg_eps = _ground_constants(s, seg_kind, "without kind")
+            else:
+                seg_kind = "custom"
+                seg_sigma, seg_eps = _ground_constants(s, "custom", "without kind")
+            segments.append(GroundSegment(from_km * 1e3, to_km * 1e3, seg_kind, seg_sigma, seg_eps))
+    return Ground(kind, sigma, eps, tuple(segments))
+
+
+def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
+    t.finish(_SOLVER_KEYS)
+    max_range = t.number("max_range_km", *RANGE_LIMITS_KM, "km")
+    raw_cell = t.raw("cell_m")
+    cell = None
+    if raw_cell is not None and raw_cell != "auto":
+        allowed = f"allowed range {_number_text(CELL_RANGE_M[0])} to {_number_text(CELL_RANGE_M[1])} m, or \"auto\""
+        if isinstance(raw_cell, str):
+            raise t.fail("cell_m", raw_cell, f"must be a number or \"auto\" ({allowed})")
+        cell = t.number("cell_m", *CELL_RANGE_M, "m", allowed=allowed)
+    top = t.number("top_km", *TOP_RANGE_KM, "km")
+    if top is not None and ionosphere.form == "ceiling":
+        raise t.fail("top_km", t.data["top_km"], "cannot be set with ceiling_km (the ceiling is the top)")
+    earth_curvature = t.boolean("earth_curvature", True)
+    pml = t.number("pml_cells", *PML_CELLS_RANGE, "cells", integer=True)
+    cpw = t.number("cells_per_wavelength", *CELLS_PER_WAVELENGTH_RANGE, "")
+    time_series = t.boolean("receiver_time_series", False)
+    defaults = Solver()
+    return Solver(
+        max_range_m=_km(max_range),
+        cell_m=cell,
+        top_m=_km(top),
+        earth_curvature=earth_curvature,
+        pml_cells=defaults.pml_cells if pml is None else pml,
+        cells_per_wavelength=defaults.cells_per_wavelength if cpw is None else cpw,
+        receiver_time_series=time_series,
+    )
+
+
+def _geodesic(lat1, lon1, lat2, lon2) -> tuple[float, float]:
+    """WGS84 geodesic distance (m) and forward bearing (deg, 0-360) from point 1 to point 2."""
+    from pyproj import Geod
+
+    azimuth, _, distance = Geod(ellps="WGS84").inv(lon1, lat1, lon2, lat2)
+    return float(distance), float(azimuth) % 360.0
+
+
+def _check_geometry(s: Scenario) -> None:
+    """Checks that need several sections: positions, distances, and what needs a position."""
+    tx = s.transmitter
+    has_tx = tx.latitude_deg is not None
+    for i, rx in enumerate(s.receivers, 1):
+        if rx.range_m is None and not has_tx:
+            raise ScenarioError(
+                f"transmitter.latitude_deg is missing (receiver[{i}] is given by position, so the "
+                "transmitter needs latitude_deg and longitude_deg)"
+            )
+    if not has_tx:
+        if s.ionosphere.form == "utc":
+            raise ScenarioError("transmitter.latitude_deg is missing (ionosphere utc = ... needs positions to place the sun)")
+        if s.ground.kind == "auto":
+            raise ScenarioError('transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)')
+    farthest_km, farthest_name = 0.0, ""
+    for i, (rx, geometry) in enumerate(zip(s.receivers, s.receiver_geometry()), 1):
+        d_km = geometry.range_m / 1e3
+        if rx.range_m is None:
+            where = f"receiver[{i}].latitude_deg = {_show(rx.latitude_deg)}, longitude_deg = {_show(rx.longitude_deg)}"
+            if d_km < MIN_RECEIVER_DISTANCE_KM:
+                raise ScenarioError(
+                    f"{where} is {d_km:.3f} km from the transmitter; receivers must be at least "
+                    f"{_number_text(MIN_RECEIVER_DISTANCE_KM)} km away (allowed range 1 to 15000 km)"
+                )
+            if d_km > RANGE_LIMITS_KM[1]:
+                raise ScenarioError(
+                    f"{where} is {d_km:.0f} km from the transmitter, too near its antipode "
+                    "(allowed range 1 to 15000 km)"
+                )
+        if d_km > farthest_km:
+            farthest_km, farthest_name = d_km, rx.name
+    if s.solver.max_range_m is not None and s.solver.max_range_m / 1e3 < farthest_km:
+        raise ScenarioError(
+            f"solver.max_range_km = {_show(_edge(s.solver.max_range_m, 1e3))} is shorter than the farthest "
+            f"receiver ({farthest_name!r} at {farthest_km:.1f} km); allowed range {farthest_km:.1f} to 15000 km"
+        )
+
+
+# --------------------------------------------------------------------------------------------------
+# Writing back
+# --------------------------------------------------------------------------------------------------
+
+
+def _edge(value_si: float, scale: float) -> float:
+    """``value_si / scale`` chosen so that multiplying it by ``scale`` gives ``value_si`` back exactly."""
+    q = value_si / scale
+    if not math.isfinite(q) or q * scale == value_si:
+        return q
+    up = down = q
+    for _ in range(4):
+        up, down = math.nextafter(up, math.inf), math.nextafter(down, -math.inf)
+        for candidate in (up, down):
+            if candidate * scale == value_si:
+                return candidate
+    return q
+
+
+def _toml_value(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        return repr(value)
+    if isinstance(value, str):
+        return json.dumps(value, ensure_ascii=False)
+    if isinstance(value, datetime):
+        return value.astimezone(timezone.utc).isoformat().replace("+00:00", "Z")
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    raise TypeError(f"cannot write {value!r} as TOML")
+
+
+def _lines(items: list[tuple[str, Any]]) -> list[str]:
+    return [f"{key} = {_toml_value(value)}" for key, value in items if value is not None]
+
+
+def _named_constants_match(kind: str, sigma, eps, where: str) -> None:
+    if kind in ("custom", "auto"):
+        return
+    cls = GROUND_CLASSES.get(kind)
+    if cls is None:
+        raise ScenarioError(f"{where}.kind = {_show(kind)} is not a ground kind (choose from {', '.join(GROUND_KINDS)})")
+    for name, given, fixed in (
+        ("conductivity_s_per_m", sigma, cls.conductivity_s_per_m),
+        ("relative_permittivity", eps, cls.relative_permittivity),
+    ):
+        if given is not None and given != fixed:
+            raise ScenarioError(
+                f"{where}.{name} = {_show(given)} differs from kind {_show(kind)} ({_number_text(fixed)}); "
+                'use kind = "custom" for other values'
+            )
+
+
+def _to_toml(s: Scenario) -> str:
+    tx = s.transmitter
+    freqs = [_edge(f, 1e3) for f in tx.frequencies_hz]
+    out = [f"title = {_toml_value(s.title)}", "", "[transmitter]"]
+    out += _lines([
+        ("name", tx.name),
+        ("latitude_deg", tx.latitude_deg),
+        ("longitude_deg", tx.longitude_deg),
+        ("frequency_khz", freqs[0] if len(freqs) == 1 else freqs),
+        ("radiated_power_kw", _edge(tx.radiated_power_w, 1e3)),
+    ])
+    for rx in s.receivers:
+        out += ["", "[[receiver]]"]
+        out += _lines([
+            ("name", rx.name),
+            ("latitude_deg", rx.latitude_deg),
+            ("longitude_deg", rx.longitude_deg),
+            ("range_km", None if rx.range_m is None else _edge(rx.range_m, 1e3)),
+        ])
+    ion = s.ionosphere
+    out += ["", "[ionosphere]"]
+    if ion.form == "exponential":
+        out += _lines([("hprime_km", ion.hprime_km), ("beta_per_km", ion.beta_per_km)])
+    elif ion.form == "preset":
+        out += _lines([("preset", ion.preset)])
+    elif ion.form == "utc":
+        out += _lines([("utc", ion.utc), ("day_preset", ion.day_preset), ("night_preset", ion.night_preset)])
+    elif ion.form == "ceiling":
+        out += _lines([("ceiling_km", None if ion.ceiling_m is None else _edge(ion.ceiling_m, 1e3))])
+    elif ion.form == "file":
+        out += _lines([("profile_file", ion.profile_path)])
+    elif ion.form == "none":
+        out += _lines([("no_ionosphere", True)])
+    else:
+        raise ScenarioError(f"ionosphere.form = {_show(ion.form)} is not a form (choose from {', '.join(IONOSPHERE_FORMS)})")
+    g = s.ground
+    out += ["", "[ground]", f"kind = {_toml_value(g.kind)}"]
+    _named_constants_match(g.kind, g.conductivity_s_per_m, g.relative_permittivity, "ground")
+    if g.kind == "custom":
+        out += _lines([("conductivity_s_per_m", g.conductivity_s_per_m), ("relative_permittivity", g.relative_permittivity)])
+    for i, seg in enumerate(g.segments, 1):
+        out += ["", "[[ground.segment]]"]
+        out += _lines([("from_km", _edge(seg.from_m, 1e3)), ("to_km", _edge(seg.to_m, 1e3))])
+        _named_constants_match(seg.kind, seg.conductivity_s_per_m, seg.relative_permittivity, f"ground.segment[{i}]")
+        if seg.kind == "custom":
+            out += _lines([("conductivity_s_per_m", seg.conductivity_s_per_m), ("relative_permittivity", seg.relative_permittivity)])
+        else:
+            out += _lines([("kind", seg.kind)])
+    sv = s.solver
+    out += ["", "[solver]"]
+    out += _lines([
+        ("max_range_km", None if sv.max_range_m is None else _edge(sv.max_range_m, 1e3)),
+        ("cell_m", "auto" if sv.cell_m is None else sv.cell_m),
+        ("top_km", None if sv.top_m is None else _edge(sv.top_m, 1e3)),
+        ("earth_curvature", sv.earth_curvature),
+        ("pml_cells", sv.pml_cells),
+        ("cells_per_wavelength", sv.cells_per_wavelength),
+        ("receiver_time_series", sv.receiver_time_series),
+    ])
+    return "\n".join(out) + "\n"
