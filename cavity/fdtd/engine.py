@@ -1,0 +1,454 @@
+"""The time-domain engine: builds one (r, z) solve from a medium description and steps it.
+
+Orchestration only: grid sizing (:mod:`.grid`), coefficients (:mod:`.media`), waveforms
+(:mod:`.source`) and the compiled loops (:mod:`.kernels`) meet here. The engine works per unit
+current moment; :mod:`cavity.simulate` scales to the transmitter's radiated power.
+
+Outputs are running DFTs of Ez and H_phi along the ground row, divided by the DFT of the source
+current at the same instants: the transfer function of the waveguide at each requested frequency.
+"""
+
+from __future__ import annotations
+
+import logging
+import math
+import time
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+
+from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
+from cavity.errors import SolverError
+from cavity.fdtd import grid as gridmod
+from cavity.fdtd import media
+from cavity.fdtd.source import GaussianPulse, ToneBursts
+
+log = logging.getLogger(__name__)
+
+#: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (physics.md 1: 3182.6)
+WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
+
+
+@dataclass(frozen=True)
+class Medium:
+    """The waveguide along one path, sampled at ``range_m`` (SI units).
+
+    ``electron_density`` and ``collision_frequency`` have shape (len(range_m), len(altitude_m));
+    ``None`` means no ionosphere (free space above the ground). The ground arrays hold one value
+    per range sample, valid from that sample to the next (``inf`` conductivity: perfect ground).
+    ``ceiling_m`` puts a perfectly conducting ceiling there instead of the top absorber.
+    """
+
+    range_m: np.ndarray
+    ground_conductivity: np.ndarray
+    ground_permittivity: np.ndarray
+    altitude_m: np.ndarray | None = None
+    electron_density: np.ndarray | None = None
+    collision_frequency: np.ndarray | None = None
+    ceiling_m: float | None = None
+
+    @classmethod
+    def uniform(cls, conductivity=math.inf, permittivity=1.0, altitude_m=None, electron_density=None,
+                collision_frequency=None, ceiling_m=None):
+        """A range-independent medium from one profile (1-D arrays) and one ground."""
+        ne = None if electron_density is None else np.asarray(electron_density, float)[None, :]
+        nu = None if collision_frequency is None else np.asarray(collision_frequency, float)[None, :]
+        return cls(
+            range_m=np.array([0.0]),
+            ground_conductivity=np.array([float(conductivity)]),
+            ground_permittivity=np.array([float(permittivity)]),
+            altitude_m=None if altitude_m is None else np.asarray(altitude_m, float),
+            electron_density=ne,
+            collision_frequency=nu,
+            ceiling_m=ceiling_m,
+        )
+
+
+@dataclass(frozen=True)
+class Settings:
+    """What to compute and how finely. Lengths in m, frequencies in Hz, times in s."""
+
+    frequencies_hz: tuple[float, ...]
+    max_range_m: float
+    top_m: float = 120e3
+    dr_m: float | None = None
+    dz_m: float | None = None
+    cells_per_wavelength: float = gridmod.DEFAULT_CELLS_PER_WAVELENGTH
+    earth_curvature: bool = True
+    pml_cells: int = gridmod.DEFAULT_PML_CELLS
+    pml_order: float = 3.0
+    pml_sigma_scale: float = 1.0
+    pml_kappa_max: float = 1.0
+    courant_safety: float = gridmod.COURANT_SAFETY
+    waveform: Callable | None = None  # default: ToneBursts(frequencies) or a pulse for many
+    probe_ranges_m: tuple[float, ...] = ()
+    record_time_series: bool = False
+    time_series_rate_hz: float | None = None
+    convergence_db: float = 0.002
+    max_duration_s: float | None = None
+
+
+@dataclass
+class EngineResult:
+    """Transfer functions per unit current moment (1 A m peak phasor) along the ground."""
+
+    range_m: np.ndarray  # output ranges (Ez columns, axis excluded), m
+    frequencies_hz: np.ndarray
+    ez: np.ndarray  # (nf, nrange) complex, V/m per A m
+    hphi: np.ndarray  # (nf, nrange) complex, A/m per A m
+    plan: gridmod.GridPlan
+    steps: int
+    wall_time_s: float
+    converged: bool
+    probe_ranges_m: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    time_s: np.ndarray | None = None  # (nt,) sample times of the probe series
+    ez_series: np.ndarray | None = None  # (nt, nprobe) V/m for the source waveform as run
+    hphi_series: np.ndarray | None = None
+    source_current: np.ndarray | None = None  # (nt,) A at the series times
+    notes: list[str] = field(default_factory=list)
+
+
+def default_waveform(frequencies_hz) -> Callable:
+    """Narrow tone bursts for a few carriers, one broadband pulse for a dense set."""
+    f = sorted(frequencies_hz)
+    if len(f) > 4:
+        return GaussianPulse(f[0], f[-1])
+    return ToneBursts(tuple(f))
+
+
+def _log_interp_columns(z_out, z_in, values):
+    """Interpolate positive profiles (ncol, nz_in) to heights z_out, linearly in log; held beyond."""
+    floor = 1e-30
+    logv = np.log(np.maximum(values, floor))
+    out = np.empty((values.shape[0], len(z_out)))
+    for c in range(values.shape[0]):
+        out[c] = np.interp(z_out, z_in, logv[c])
+    res = np.exp(out)
+    res[res < 1e-20] = 0.0
+    return res
+
+
+def _on_grid(medium: Medium, r_nodes, z_nodes):
+    """(omega_p^2, nu) of the medium at grid nodes (r_nodes x z_nodes); None without plasma."""
+    if medium.electron_density is None:
+        return None, None
+    ne_cols = _log_interp_columns(z_nodes, medium.altitude_m, medium.electron_density)
+    nu_cols = _log_interp_columns(z_nodes, medium.altitude_m, medium.collision_frequency)
+    rs = np.asarray(medium.range_m, float)
+    if len(rs) == 1:
+        ne = np.broadcast_to(ne_cols[0], (len(r_nodes), len(z_nodes)))
+        nu = np.broadcast_to(nu_cols[0], (len(r_nodes), len(z_nodes)))
+    else:
+        # linear in log along range between sample columns (smooth day/night transition)
+        idx = np.clip(np.searchsorted(rs, r_nodes) - 1, 0, len(rs) - 2)
+        w = np.clip((r_nodes - rs[idx]) / (rs[idx + 1] - rs[idx]), 0.0, 1.0)[:, None]
+        lne = np.log(np.maximum(ne_cols, 1e-30))
+        lnu = np.log(np.maximum(nu_cols, 1e-30))
+        ne = np.exp((1 - w) * lne[idx] + w * lne[idx + 1])
+        nu = np.exp((1 - w) * lnu[idx] + w * lnu[idx + 1])
+        ne[ne < 1e-20] = 0.0
+    return WP2_PER_NE * ne, nu
+
+
+def _ground_on_columns(medium: Medium, r_cols):
+    """Ground conductivity and permittivity per column: the sample whose interval holds r."""
+    rs = np.asarray(medium.range_m, float)
+    idx = np.clip(np.searchsorted(rs, r_cols, side="right") - 1, 0, len(rs) - 1)
+    return np.asarray(medium.ground_conductivity, float)[idx], np.asarray(medium.ground_permittivity, float)[idx]
+
+
+class Simulation:
+    """One solve: allocated fields and coefficients, stepped by :meth:`run`."""
+
+    def __init__(self, medium: Medium, settings: Settings):
+        from cavity.fdtd import kernels  # noqa: F401  (compile lazily; import here keeps startup fast)
+
+        self.medium = medium
+        self.settings = s = settings
+        f = np.asarray(sorted(s.frequencies_hz), float)
+        if f.size == 0 or not np.all(f > 0):
+            raise SolverError("frequencies: need at least one frequency > 0 Hz")
+        self.frequencies_hz = f
+        self.waveform = s.waveform or default_waveform(f)
+        ceiling = medium.ceiling_m is not None
+        top = float(medium.ceiling_m) if ceiling else float(s.top_m)
+        beta_max = None
+        if medium.electron_density is not None:
+            beta_max = self._max_log_slope(medium)
+        self.t_min, self.t_max = self._durations(f, s.max_range_m)
+        self.plan = gridmod.plan_grid(
+            s.max_range_m, float(f.max()), top,
+            duration_s=self.t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=beta_max, ceiling=ceiling,
+            pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength,
+            courant_safety=s.courant_safety,
+        )
+        gridmod.check_memory(self.plan)
+        self._build()
+
+    # ------------------------------------------------------------------ set-up
+    @staticmethod
+    def _max_log_slope(medium: Medium) -> float | None:
+        """Largest d(ln omega_r)/dz (beta for an exponential profile) where the plasma matters."""
+        z = medium.altitude_m
+        ne = np.maximum(medium.electron_density, 1e-30)
+        omega_r = ne / np.maximum(medium.collision_frequency, 1e-30)
+        slope = np.diff(np.log(omega_r), axis=1) / np.diff(z)[None, :]
+        relevant = (ne[:, 1:] > 1e5) & (ne[:, 1:] < 1e12)
+        if not relevant.any():
+            return None
+        return float(np.max(slope[relevant]))
+
+    def _durations(self, f, max_range_m):
+        """Shortest simulated time (source + travel + settling) and the cap if not converged."""
+        s = self.settings
+        end = float(self.waveform.end_s)
+        travel = max_range_m / C0
+        t_min = end + 1.1 * travel + 3.0 / f.min()
+        t_max = s.max_duration_s or (end + 3.0 * travel + 40.0 / f.min())
+        return t_min, max(t_max, t_min)
+
+    def _build(self):
+        p, s, m = self.plan, self.settings, self.medium
+        nr, nz = p.nr, p.nz
+        dr, dz, dt = p.dr_m, p.dz_m, p.dt_s
+        f32 = np.float32
+        self.r_ez = np.arange(nr) * dr
+        self.r_h = (np.arange(nr) + 0.5) * dr
+        self.z_ez = (np.arange(nz) + 0.5) * dz
+        self.z_er = np.arange(nz + 1) * dz
+
+        # fields
+        self.ez = np.zeros((nr, nz), f32)
+        self.er = np.zeros((nr, nz + 1), f32)
+        self.hp = np.zeros((nr, nz), f32)
+
+        # vacuum (flattened) coefficients
+        eps_ez = EPS0 * media.flattening_factor(self.z_ez, s.earth_curvature)
+        eps_er = EPS0 * media.flattening_factor(self.z_er, s.earth_curvature)
+        self.cez = (dt / eps_ez).astype(f32)
+        self.cer = (dt / eps_er).astype(f32)
+        self.ch = f32(dt / MU0)
+        self.inv_dr, self.inv_dz = f32(1.0 / dr), f32(1.0 / dz)
+        rp = np.empty(nr)
+        rm = np.empty(nr)
+        rp[0], rm[0] = 4.0 / dr, 0.0
+        rp[1:] = self.r_h[1:] / (self.r_ez[1:] * dr)
+        rm[1:] = self.r_h[:-1] / (self.r_ez[1:] * dr)
+        self.rp, self.rm = rp.astype(f32), rm.astype(f32)
+
+        # plasma
+        wp2_z, nu_z = _on_grid(m, self.r_ez, self.z_ez)
+        wp2_r, nu_r = _on_grid(m, self.r_h, self.z_er[:nz])
+        self.jp0 = nz
+        if wp2_z is not None:
+            w_min = 2 * math.pi * self.frequencies_hz.min()
+            weight_z = wp2_z / (w_min * np.maximum(nu_z, w_min))
+            weight_r = wp2_r / (w_min * np.maximum(nu_r, w_min))
+            rows = np.nonzero((weight_z.max(axis=0) > 1e-7) | (weight_r.max(axis=0) > 1e-7))[0]
+            if rows.size:
+                self.jp0 = max(int(rows[0]), 1)
+        n_pl = nz - self.jp0
+        sl = slice(self.jp0, nz)
+        if n_pl > 0:
+            cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
+            cr = media.plasma_coefficients(eps_er[None, sl], wp2_r[:, sl], nu_r[:, sl], dt)
+            self.plasma_z = [np.ascontiguousarray(np.broadcast_to(a, (nr, n_pl)), dtype=f32) for a in cz]
+            self.plasma_r = [np.ascontiguousarray(np.broadcast_to(a, (nr, n_pl)), dtype=f32) for a in cr]
+        else:
+            self.plasma_z = [np.zeros((nr, 0), f32) for _ in range(5)]
+            self.plasma_r = [np.zeros((nr, 0), f32) for _ in range(5)]
+        self.jz = np.zeros((nr, n_pl), f32)
+        self.jr = np.zeros((nr, n_pl), f32)
+        self.wp2_max = 0.0 if wp2_z is None else float(np.max(wp2_z))
+
+        # ground: recursive surface impedance per column
+        sig, epr = _ground_on_columns(m, self.r_h)
+        f_lo, f_hi = float(self.frequencies_hz.min()), float(self.frequencies_hz.max())
+        eta = np.zeros(nr)
+        fits = {}
+        for key in set(zip(sig.tolist(), epr.tolist())):
+            fits[key] = media.impedance_fit(key[0], key[1], dt, f_lo, f_hi)
+        poles = next((fit[1] for fit in fits.values() if fit[1].size), np.zeros(0))
+        self.sib_q = poles.astype(np.float64)
+        self.sib_w = np.zeros((poles.size, nr))
+        self.impedance_fit_error = max((fit[3] for fit in fits.values()), default=0.0)
+        for key, fit in fits.items():
+            cols = (sig == key[0]) & (epr == key[1])
+            eta[cols] = fit[0]
+            if fit[1].size:
+                self.sib_w[:, cols] = fit[2][:, None]
+        self.sib_psi = np.zeros_like(self.sib_w)
+        denom = MU0 / dt + eta / (2 * dz)
+        self.ha = ((MU0 / dt - eta / (2 * dz)) / denom).astype(f32)
+        self.hb = (1.0 / denom).astype(f32)
+
+        # absorbers
+        kw = dict(grading_order=s.pml_order, sigma_scale=s.pml_sigma_scale, kappa_max=s.pml_kappa_max)
+        nzp, nrp = p.pml_z_cells, p.pml_r_cells
+        self.jz0 = nz - nzp
+        self.ir0 = nr - nrp
+        zh = media.cpml_coefficients(nzp, dz, dt, offset=0.5, **kw)
+        ze = media.cpml_coefficients(nzp, dz, dt, offset=0.0, **kw)
+        rh = media.cpml_coefficients(nrp, dr, dt, offset=0.5, **kw)
+        re = media.cpml_coefficients(nrp, dr, dt, offset=0.0, **kw)
+        self.pz_h = [a.astype(f32) for a in zh]
+        self.pz_e = [a.astype(f32) for a in ze]
+        self.pr_h = [a.astype(f32) for a in rh]
+        self.pr_e = [a.astype(f32) for a in re]
+        self.psi_zh = np.zeros((nr, nzp), f32)
+        self.psi_ze = np.zeros((nr, nzp), f32)
+        self.psi_rh = np.zeros((nrp, nz), f32)
+        self.psi_re = np.zeros((nrp, nz), f32)
+        # curl coefficient of each absorber cell (vacuum dt/eps, or the plasma pb)
+        ce_top = np.broadcast_to(self.cer[self.jz0:nz][None, :], (nr, nzp)).copy()
+        ce_far = np.broadcast_to(self.cez[None, :], (nrp, nz)).copy()
+        if n_pl > 0:
+            for k, j in enumerate(range(self.jz0, nz)):
+                if j >= self.jp0:
+                    ce_top[:, k] = self.plasma_r[1][:, j - self.jp0]
+            ce_far[:, self.jp0:] = self.plasma_z[1][self.ir0:, :]
+        self.ce_top = ce_top.astype(f32)
+        self.ce_far = ce_far.astype(f32)
+        ch_far = np.full((nrp, nz), self.ch, f32)
+        ch_far[:, 0] = self.hb[self.ir0:]
+        self.ch_far = ch_far
+
+        # source: current element I in the axis cell of radius dr/2 and height dz (moment I dz)
+        self.src_coef = float(self.cez[0]) / (math.pi * (dr / 2) ** 2)
+
+    # ------------------------------------------------------------------ stepping
+    def run(self, progress: Callable[[float, str], None] | None = None) -> EngineResult:
+        """Step until the DFTs have converged (or the time cap), then return transfer functions."""
+        from cavity.fdtd import kernels as K
+
+        p, s = self.plan, self.settings
+        dt, nr = p.dt_s, p.nr
+        w = 2 * math.pi * self.frequencies_hz
+        nf = w.size
+        acc_e = [np.zeros((nf, nr)), np.zeros((nf, nr))]
+        acc_h = [np.zeros((nf, nr)), np.zeros((nf, nr))]
+        acc_i = np.zeros(nf, complex)
+        n_min = int(math.ceil(self.t_min / dt))
+        n_max = int(math.ceil(self.t_max / dt))
+        check_every = max(50, int(round(max(0.5e-3, 2.0 / self.frequencies_hz.min()) / dt)))
+        guard_every = 100
+        n_out = self.ir0  # physical columns
+        tol = 10 ** (s.convergence_db / 20) - 1
+        probes = np.asarray(s.probe_ranges_m, float)
+        probe_cols = np.clip(np.rint(probes / p.dr_m).astype(int), 1, n_out - 1) if probes.size else np.zeros(0, int)
+        series_every = 1
+        if s.time_series_rate_hz:
+            series_every = max(1, int(1.0 / (s.time_series_rate_hz * dt)))
+        ez_series, h_series, t_series, i_series = [], [], [], []
+        src_peak = 0.0
+        last = None
+        converged = False
+        wave = self.waveform
+        t0 = time.perf_counter()
+        step = 0
+        plasma_z, plasma_r = self.plasma_z, self.plasma_r
+        while step < n_max:
+            t_h = (step + 0.5) * dt
+            t_e = (step + 1) * dt
+            K.update_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
+                       self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi)
+            if self.psi_zh.shape[1]:
+                K.pml_z_h(self.hp, self.er, self.jz0, self.inv_dz, self.ch, *self.pz_h, self.psi_zh)
+            if self.psi_rh.shape[0]:
+                K.pml_r_h(self.hp, self.ez, self.ir0, self.inv_dr, self.ch_far, *self.pr_h, self.psi_rh)
+            K.update_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
+                       *plasma_z, self.jz, *plasma_r, self.jr)
+            if self.psi_ze.shape[1]:
+                K.pml_z_e(self.er, self.hp, self.jz0, self.inv_dz, self.ce_top, *self.pz_e, self.psi_ze,
+                          self.jp0, self.jr, plasma_r[4])
+            if self.psi_re.shape[0]:
+                K.pml_r_e(self.ez, self.hp, self.ir0, self.rp, self.rm, self.ce_far, *self.pr_e, self.psi_re,
+                          self.jp0, self.jz, plasma_z[4])
+            current = float(wave(t_h))
+            self.ez[0, 0] -= np.float32(self.src_coef * current)
+            acc_i += current * np.exp(-1j * w * t_h)
+            K.accumulate_dft(acc_e[0], acc_e[1], self.ez, 0, np.cos(w * t_e), np.sin(w * t_e))
+            K.accumulate_dft(acc_h[0], acc_h[1], self.hp, 0, np.cos(w * t_h), np.sin(w * t_h))
+            if probe_cols.size and step % series_every == 0:
+                t_series.append(t_e)
+                ez_series.append(self.ez[probe_cols, 0].copy())
+                h_series.append(0.5 * (self.hp[probe_cols, 0] + self.hp[probe_cols - 1, 0]))
+                i_series.append(float(wave(t_e)))
+            step += 1
+
+            if step % guard_every == 0:
+                src_peak = self._guard(step, t_e, src_peak, wave.end_s)
+            if step >= n_min and step % check_every == 0:
+                now = (acc_e[0][:, 1:n_out] + 1j * acc_e[1][:, 1:n_out]) / acc_i[:, None]
+                if last is not None and self._converged(now, last, tol):
+                    converged = True
+                    break
+                last = now
+            if progress is not None and step % 200 == 0:
+                frac = step / n_min if step < n_min else 0.9 + 0.1 * (step - n_min) / max(1, n_max - n_min)
+                progress(min(frac, 0.999), f"step {step}")
+        wall = time.perf_counter() - t0
+        if progress is not None:
+            progress(1.0, "done")
+
+        moment = acc_i * self.plan.dz_m  # DFT of the current moment I dz
+        ez = (acc_e[0] + 1j * acc_e[1])[:, 1:n_out] / moment[:, None]
+        h_c = (acc_h[0] + 1j * acc_h[1]) / moment[:, None]
+        hphi = 0.5 * (h_c[:, 0:n_out - 1] + h_c[:, 1:n_out])  # H at r_i from r_(i-1/2), r_(i+1/2)
+        notes = []
+        if not converged:
+            notes.append(f"DFTs still changing by more than {s.convergence_db} dB at the time cap "
+                         f"({self.t_max * 1e3:.1f} ms)")
+        res = EngineResult(
+            range_m=self.r_ez[1:n_out].copy(), frequencies_hz=self.frequencies_hz.copy(), ez=ez, hphi=hphi,
+            plan=self.plan, steps=step, wall_time_s=wall, converged=converged, notes=notes,
+            probe_ranges_m=self.r_ez[probe_cols] if probe_cols.size else np.zeros(0),
+        )
+        if t_series:
+            res.time_s = np.asarray(t_series)
+            res.ez_series = np.asarray(ez_series, float)
+            res.hphi_series = np.asarray(h_series, float)
+            res.source_current = np.asarray(i_series)
+        return res
+
+    @staticmethod
+    def _converged(now, last, tol):
+        """Relative change of the transfer functions, against their local envelope (nulls excluded)."""
+        from scipy.ndimage import maximum_filter1d
+
+        env = maximum_filter1d(np.abs(now), size=51, axis=1)
+        ok = env > 1e-12 * np.max(env)
+        change = np.abs(now - last)[ok] / env[ok]
+        return bool(change.size == 0 or change.max() < tol)
+
+    def _guard(self, step, t, src_peak, src_end):
+        """Stop a run whose fields are non-finite or grow without bound after the source ended."""
+        from cavity.fdtd import kernels as K
+
+        peak, flat = K.max_abs(self.ez)
+        if not math.isfinite(peak) or (t > src_end and src_peak > 0 and peak > 1e4 * src_peak):
+            i, j = divmod(int(flat), self.plan.nz)
+            r_km, z_km = self.r_ez[i] / 1e3, self.z_ez[j] / 1e3
+            region = self._region(i, j)
+            raise SolverError(
+                f"solver became unstable at step {step} (t = {t * 1e3:.3f} ms): |Ez| = {peak:.3g} V/m "
+                f"at r = {r_km:.1f} km, z = {z_km:.1f} km ({region}); no result written"
+            )
+        return max(src_peak, peak) if t <= src_end * 1.5 else src_peak
+
+    def _region(self, i, j):
+        if j >= self.jz0:
+            return "top absorber"
+        if i >= self.ir0:
+            return "far-end absorber"
+        if j >= self.jp0:
+            return "ionosphere"
+        if j <= 1:
+            return "ground"
+        return "free space below the ionosphere"
+
+
+def run(medium: Medium, settings: Settings, progress=None) -> EngineResult:
+    """Build and run one solve (see :class:`Simulation`)."""
+    return Simulation(medium, settings).run(progress)

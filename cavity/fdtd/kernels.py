@@ -1,0 +1,215 @@
+"""Compiled time-stepping kernels of the axisymmetric (r, z) Yee scheme. Hot loops only.
+
+Every kernel takes plain arrays and coefficient tables, updates in place and returns nothing; all
+physics decisions (plasma, earth flattening, absorber grading, ground impedance) are folded into the
+coefficients by :mod:`cavity.fdtd.media` before the loop. Nothing here imports from the project.
+Kernels are compiled on first call (numba ``cache=True``), never at import.
+
+Field layout (see :mod:`cavity.fdtd.grid`): ``ez[i, j]`` at (i dr, (j+1/2) dz); ``er[i, j]`` at
+((i+1/2) dr, j dz) with rows 0 (ground) and nz (top wall) never stepped; ``hp[i, j]`` (H_phi) at
+((i+1/2) dr, (j+1/2) dz). Beyond the last column Ez = 0 (conducting end wall behind the absorber).
+
+Names: ``dt`` time step, ``dr``/``dz`` cells, ``psi`` CPML auxiliary (Roden and Gedney 2000),
+``jz``/``jr`` plasma polarisation current densities (Yu and Simpson 2010), ``sib`` the recursive
+surface-impedance ground (Maloney and Smith 1992).
+"""
+
+from __future__ import annotations
+
+import numba as nb
+import numpy as np
+from numba import prange
+
+_OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
+
+
+@nb.njit(parallel=True, **_OPTS)
+def update_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi):
+    """H_phi from Faraday's law, mu0 dH/dt = dEz/dr - dEr/dz, bottom row with the impedance ground.
+
+    ``ch`` = dt/mu0. Row 0 (z = dz/2) takes the ground's tangential field
+    Er(0) = -eta (H(n+1/2) + H(n-1/2))/2 + sum_k psi_k: the instantaneous part averaged in time
+    (semi-implicit, unconditionally stable) and the memory part as a sum of recursively updated
+    exponentials ``psi_k(n) = q_k psi_k(n-1) + w_k H(n-1/2)``; ``ha``/``hb`` per column fold eta in.
+    Perfect ground: eta = 0, w = 0 (ha = 1, hb = dt/mu0).
+    """
+    nr, nz = hp.shape
+    nk = sib_q.shape[0]
+    for i in prange(nr):
+        has_next = i + 1 < nr
+        # ground row: update the impedance memory with H(n-1/2) first
+        h_old = hp[i, 0]
+        psi_sum = 0.0
+        for k in range(nk):
+            p = sib_q[k] * sib_psi[k, i] + sib_w[k, i] * h_old
+            sib_psi[k, i] = p
+            psi_sum += p
+        ezn = ez[i + 1, 0] if has_next else np.float32(0.0)
+        curl = (ezn - ez[i, 0]) * inv_dr - er[i, 1] * inv_dz + psi_sum * inv_dz
+        hp[i, 0] = ha[i] * h_old + hb[i] * curl
+        if has_next:
+            for j in range(1, nz):
+                hp[i, j] += ch * ((ez[i + 1, j] - ez[i, j]) * inv_dr - (er[i, j + 1] - er[i, j]) * inv_dz)
+        else:
+            for j in range(1, nz):
+                hp[i, j] += ch * (-ez[i, j] * inv_dr - (er[i, j + 1] - er[i, j]) * inv_dz)
+
+
+@nb.njit(parallel=True, **_OPTS)
+def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0,
+             pa_z, pb_z, pc_z, qa_z, qb_z, jz,
+             pa_r, pb_r, pc_r, qa_r, qb_r, jr):
+    """Ez and Er from Ampere's law, with the collisional-plasma current above row ``jp0``.
+
+    Vacuum rows (j < jp0): E += c * curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
+    earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
+    2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt:
+
+        E(n+1) = pa E(n) + pb curlH(n+1/2) - pc J(n)
+        J(n+1) = qa J(n) + qb (E(n+1) + E(n))
+
+    Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
+    on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2).
+    Er curl: -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (ground handled in :func:`update_h`).
+    The plasma never reaches row 0 (``jp0 >= 1``).
+    """
+    nr, nz = ez.shape
+    for i in prange(nr):
+        im = i - 1 if i > 0 else 0
+        a = rp[i]
+        b = rm[i]
+        # vacuum rows
+        ez[i, 0] += cez[0] * (a * hp[i, 0] - b * hp[im, 0])
+        for j in range(1, jp0):
+            ez[i, j] += cez[j] * (a * hp[i, j] - b * hp[im, j])
+            er[i, j] -= cer[j] * (hp[i, j] - hp[i, j - 1]) * inv_dz
+        # plasma rows
+        for j in range(max(jp0, 1), nz):
+            k = j - jp0
+            e_old = ez[i, j]
+            curl = a * hp[i, j] - b * hp[im, j]
+            e_new = pa_z[i, k] * e_old + pb_z[i, k] * curl - pc_z[i, k] * jz[i, k]
+            jz[i, k] = qa_z[i, k] * jz[i, k] + qb_z[i, k] * (e_new + e_old)
+            ez[i, j] = e_new
+            e_old = er[i, j]
+            curl = -(hp[i, j] - hp[i, j - 1]) * inv_dz
+            e_new = pa_r[i, k] * e_old + pb_r[i, k] * curl - pc_r[i, k] * jr[i, k]
+            jr[i, k] = qa_r[i, k] * jr[i, k] + qb_r[i, k] * (e_new + e_old)
+            er[i, j] = e_new
+
+
+@nb.njit(parallel=True, **_OPTS)
+def pml_z_h(hp, er, jz0, inv_dz, ch, b, c, kap, psi):
+    """Top convolutional PML (Roden and Gedney 2000, MOTL 27(5) 334): dEr/dz in the H update.
+
+    Called after the ordinary update. For a derivative d the absorber needs (1/kappa) d + psi with
+    psi(n) = b psi(n-1) + c d; the ordinary update already applied d, so the correction adds
+    coef * ((1/kappa - 1) d + psi). Rows j >= jz0, all columns; ``ch`` = dt/mu0.
+    """
+    nr = hp.shape[0]
+    nrow = psi.shape[1]
+    for i in prange(nr):
+        for k in range(nrow):
+            j = jz0 + k
+            d = -(er[i, j + 1] - er[i, j]) * inv_dz
+            p = b[k] * psi[i, k] + c[k] * d
+            psi[i, k] = p
+            hp[i, j] += ch * ((1.0 / kap[k] - 1.0) * d + p)
+
+
+@nb.njit(parallel=True, **_OPTS)
+def pml_z_e(er, hp, jz0, inv_dz, ce, b, c, kap, psi, jp0, jr, qb_r):
+    """Top CPML correction of dH/dz in the Er update, rows j >= jz0 (all >= 1).
+
+    ``ce[i, k]`` is the curl coefficient of each absorber cell (dt/eps in vacuum, pb in plasma).
+    In plasma cells the current J(n+1) was computed from the uncorrected E(n+1); it receives
+    qb * dE so that the pair stays the trapezoidal E-J update of the stretched equations.
+    """
+    nr = er.shape[0]
+    nrow = psi.shape[1]
+    for i in prange(nr):
+        for k in range(nrow):
+            j = jz0 + k
+            d = -(hp[i, j] - hp[i, j - 1]) * inv_dz
+            p = b[k] * psi[i, k] + c[k] * d
+            psi[i, k] = p
+            de = ce[i, k] * ((1.0 / kap[k] - 1.0) * d + p)
+            er[i, j] += de
+            if j >= jp0:
+                jr[i, j - jp0] += qb_r[i, j - jp0] * de
+
+
+@nb.njit(parallel=True, **_OPTS)
+def pml_r_h(hp, ez, ir0, inv_dr, ch_col, b, c, kap, psi):
+    """Far-end PML correction of dEz/dr in the H_phi update, columns i >= ir0 (all rows).
+
+    ``ch_col[k, j]`` is the H curl coefficient of each cell (dt/mu0, or the ground row's ``hb``).
+    """
+    nr, nz = hp.shape
+    ncol = psi.shape[0]
+    for k in prange(ncol):
+        i = ir0 + k
+        for j in range(nz):
+            ezn = ez[i + 1, j] if i + 1 < nr else np.float32(0.0)
+            d = (ezn - ez[i, j]) * inv_dr
+            p = b[k] * psi[k, j] + c[k] * d
+            psi[k, j] = p
+            hp[i, j] += ch_col[k, j] * ((1.0 / kap[k] - 1.0) * d + p)
+
+
+@nb.njit(parallel=True, **_OPTS)
+def pml_r_e(ez, hp, ir0, rp, rm, ce, b, c, kap, psi, jp0, jz, qb_z):
+    """Far-end PML correction of (1/r) d(r H)/dr in the Ez update, columns i >= ir0 (all rows).
+
+    The radial derivative is stretched as a Cartesian one (error of order layer depth / r,
+    negligible at the ranges where the layer sits). ``ce[k, j]`` = Ez curl coefficient; plasma
+    currents are kept consistent as in :func:`pml_z_e`.
+    """
+    nz = ez.shape[1]
+    ncol = psi.shape[0]
+    for k in prange(ncol):
+        i = ir0 + k
+        for j in range(nz):
+            d = rp[i] * hp[i, j] - rm[i] * hp[i - 1, j]
+            p = b[k] * psi[k, j] + c[k] * d
+            psi[k, j] = p
+            de = ce[k, j] * ((1.0 / kap[k] - 1.0) * d + p)
+            ez[i, j] += de
+            if j >= jp0:
+                jz[i, j - jp0] += qb_z[i, j - jp0] * de
+
+
+@nb.njit(parallel=True, **_OPTS)
+def accumulate_dft(acc_re, acc_im, field, row, cos_k, sin_k):
+    """Running DFT of one field row: acc[f, i] += field[i, row] * exp(-j omega_f t)."""
+    nf, n = acc_re.shape
+    for i in prange(n):
+        v = np.float64(field[i, row])
+        for f in range(nf):
+            acc_re[f, i] += v * cos_k[f]
+            acc_im[f, i] -= v * sin_k[f]
+
+
+@nb.njit(parallel=True, **_OPTS)
+def max_abs(a):
+    """Largest |a| and its flat index (NaN propagates as the largest)."""
+    nr, nz = a.shape
+    best = np.zeros(nr)
+    where = np.zeros(nr, dtype=np.int64)
+    for i in prange(nr):
+        m = 0.0
+        w = 0
+        for j in range(nz):
+            v = abs(np.float64(a[i, j]))
+            if not (v <= m):  # also true for NaN
+                m = v
+                w = j
+                if v != v:
+                    break
+        best[i] = m
+        where[i] = i * nz + w
+    k = 0
+    for i in range(nr):
+        if not (best[i] <= best[k]):
+            k = i
+    return best[k], where[k]
