@@ -361,6 +361,7 @@ class _Table:
             if name in allowed:
                 continue
             close = difflib.get_close_matches(name, allowed, n=1, cutoff=0.6)
+            close = close or [k for k in allowed if k.startswith(f"{name}_")][:1]  # unit suffix left off
             hint = f"; did you mean {close[0]!r}?" if close else f" (known keys: {', '.join(allowed)})"
             raise ScenarioError(f"{self.key(name)}: unknown key{hint}")
 
@@ -374,11 +375,11 @@ class _Table:
             raise self.fail(name, value, f"must be a table [{self.key(name)}]")
         return _Table(value, self.key(name))
 
-    def string(self, name: str, *, required: bool = False, default: str | None = None) -> str | None:
+    def string(self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes") -> str | None:
         value = self.raw(name)
         if value is None:
             if required:
-                raise self.missing(name, "a text in quotes")
+                raise self.missing(name, what)
             return default
         if not isinstance(value, str):
             raise self.fail(name, value, "must be a text in quotes")
@@ -587,7 +588,7 @@ def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, fl
 
 def _parse_ground(t: _Table) -> Ground:
     t.finish(_GROUND_KEYS)
-    kind = t.string("kind", required=True)
+    kind = t.string("kind", required=True, what=f"choose from {', '.join(GROUND_KINDS)}")
     if kind not in GROUND_KINDS:
         close = difflib.get_close_matches(kind, GROUND_KINDS, n=1)
         hint = f"; did you mean {close[0]!r}?" if close else ""
