@@ -38,7 +38,7 @@ from profiles.exponential import (
     relative_permittivity,
     wait_spies_profile,
 )
-from profiles.userfile import read_profile, sample_profile, write_profile
+from profiles.userfile import read_profile, sample_profile, sampled_reflection_height_m, write_profile
 
 __all__ = [
     "PRESETS",
@@ -57,6 +57,7 @@ __all__ = [
     "reflection_height_m",
     "relative_permittivity",
     "sample_profile",
+    "sampled_reflection_height_m",
     "terminator_zenith_deg",
     "wait_spies_profile",
     "write_profile",

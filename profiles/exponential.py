@@ -51,6 +51,16 @@ ALTITUDE_RANGE_M = (0.0, 500e3)
 #: Default altitude grid of :func:`wait_spies_profile`: 40-120 km every 0.25 km.
 DEFAULT_ALTITUDE_KM = np.linspace(40.0, 120.0, 321)
 
+#: Attributes of the altitude coordinate of every profile Dataset. CF "height" is height above the
+#: surface, which is what the model's z is.
+ALTITUDE_ATTRS = {
+    "units": "km",
+    "positive": "up",
+    "standard_name": "height",
+    "long_name": "altitude above ground",
+    "axis": "Z",
+}
+
 SOURCE = "Wait and Spies (1964), NBS Technical Note 300: exponential electron density and collision frequency"
 
 
@@ -234,17 +244,7 @@ def profile_dataset(altitude_km, ne_m3, nu_s, attrs: dict) -> xr.Dataset:
     profile looks the same: coordinate ``altitude`` in km (CF ``height``, positive up) and the
     variables ``electron_density`` (m-3) and ``collision_frequency`` (s-1).
     """
-    altitude = xr.Variable(
-        "altitude",
-        np.asarray(altitude_km, dtype=float),
-        attrs={
-            "units": "km",
-            "positive": "up",
-            "standard_name": "height",
-            "long_name": "altitude above ground",
-            "axis": "Z",
-        },
-    )
+    altitude = xr.Variable("altitude", np.asarray(altitude_km, dtype=float), attrs=dict(ALTITUDE_ATTRS))
     return xr.Dataset(
         {
             "electron_density": (

@@ -287,6 +287,7 @@ def sample_profile(profile: xr.Dataset, altitude_m) -> tuple[np.ndarray, np.ndar
 
     log_nu = np.log(nu_levels)
     nu = np.exp(log_nu[idx] + np.minimum(t, 1.0) * (log_nu[idx + 1] - log_nu[idx]))
+    nu = np.where(t >= 1.0, nu_levels[idx + 1], np.where(t == 0.0, nu_levels[idx], nu))
 
     a, b = ne_levels[idx], ne_levels[idx + 1]
     t_in = np.clip(t, 0.0, 1.0)
@@ -295,8 +296,57 @@ def sample_profile(profile: xr.Dataset, altitude_m) -> tuple[np.ndarray, np.ndar
         log_a = np.log(np.where(positive, a, 1.0))
         log_b = np.log(np.where(positive, b, 1.0))
     ne = np.where(positive, np.exp(log_a + t_in * (log_b - log_a)), a + t_in * (b - a))
+    ne = np.where(t_in >= 1.0, b, np.where(t_in <= 0.0, a, ne))  # level values exactly at levels
     ne = np.where(q < z[0], 0.0, ne)
     return ne, nu
+
+
+def sampled_reflection_height_m(profile: xr.Dataset, frequency_hz) -> np.ndarray:
+    """Lowest altitude where a profile's conductivity parameter omega_p^2 / nu reaches 2 pi f, in m.
+
+    The same criterion as :func:`profiles.reflection_height_m` (Wait and Spies 1964), found
+    numerically for any profile: omega_r is evaluated with :func:`sample_profile` on the profile's
+    levels refined to 10 m steps and interpolated log-linearly at the first upward crossing (exact
+    for an exponential profile). If omega_r already exceeds 2 pi f at the bottom level, the bottom
+    level is returned (the density is taken as zero below it); if it never reaches 2 pi f, NaN.
+
+    Parameters
+    ----------
+    profile : xarray.Dataset
+        A profile in the layout of :func:`profiles.wait_spies_profile`.
+    frequency_hz : array_like
+        Wave frequencies, Hz (> 0).
+
+    Returns
+    -------
+    numpy.ndarray
+        Heights, m, with the shape of ``frequency_hz``.
+    """
+    from profiles.exponential import plasma_frequency_squared
+
+    frequency = check_range("frequency_hz", frequency_hz, 0.0, np.inf, "Hz", low_open=True)
+    z_levels = _profile_altitude_km(profile)
+    steps = [np.arange(lo, hi, 0.01) for lo, hi in zip(z_levels[:-1], z_levels[1:])]
+    z_km = np.concatenate(steps + [z_levels[-1:]])
+    ne, nu = sample_profile(profile, z_km * 1e3)
+    omega_r = plasma_frequency_squared(ne) / nu
+    heights = np.full(frequency.shape, np.nan)
+    for i, f in np.ndenumerate(frequency):
+        omega = 2.0 * np.pi * f
+        above = np.flatnonzero(omega_r >= omega)
+        if above.size == 0:
+            continue
+        k = above[0]
+        if k == 0:
+            heights[i] = z_km[0]
+            continue
+        lo, hi = omega_r[k - 1], omega_r[k]
+        if lo > 0:
+            t = np.log(omega / lo) / np.log(hi / lo)
+        else:
+            t = (omega - lo) / (hi - lo)
+        heights[i] = z_km[k - 1] + t * (z_km[k] - z_km[k - 1])
+    return heights * 1e3
 
 
 def write_profile(profile: xr.Dataset, path, overwrite: bool = False) -> Path:
