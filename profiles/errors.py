@@ -19,7 +19,7 @@ def _first_bad(values: np.ndarray, bad: np.ndarray) -> str:
     flat_bad = bad.reshape(-1)
     index = int(np.argmax(flat_bad))
     count = int(flat_bad.sum())
-    text = f"{flat_values[index]!r}" if flat_values.dtype == object else f"{flat_values[index]:g}"
+    text = f"{flat_values[index]:g}"
     if values.ndim == 0:
         return f"= {text}"
     return f"contains {text}" + (f" ({count} such values)" if count > 1 else "")
