@@ -54,9 +54,6 @@ PERMITTIVITY_RANGE = (1.0, 100.0)
 #: and file forms; under a ceiling the ceiling is the top; with no ionosphere the open top is high).
 DEFAULT_TOP_KM = 120.0
 NO_IONOSPHERE_TOP_KM = 400.0
-#: Range computed beyond the farthest receiver when ``max_range_km`` is not set: 5 %, at least 100 km.
-RANGE_MARGIN_FRACTION = 0.05
-RANGE_MARGIN_MIN_KM = 100.0
 
 IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
     "exponential": ("hprime_km", "beta_per_km"),
@@ -219,17 +216,6 @@ class Scenario:
                 distance_m, bearing = _geodesic(tx.latitude_deg, tx.longitude_deg, rx.latitude_deg, rx.longitude_deg)
                 out.append(ReceiverGeometry(rx.name, distance_m, bearing))
         return tuple(out)
-
-    def planned_max_range_m(self) -> float:
-        """Farthest range to compute: ``solver.max_range_m``, else the farthest receiver plus a margin.
-
-        The margin (5 %, at least 100 km) keeps the farthest receiver clear of the far-end absorber's
-        neighbourhood.
-        """
-        if self.solver.max_range_m is not None:
-            return self.solver.max_range_m
-        farthest = max(g.range_m for g in self.receiver_geometry())
-        return farthest + max(RANGE_MARGIN_FRACTION * farthest, RANGE_MARGIN_MIN_KM * 1e3)
 
     def planned_top_m(self) -> float:
         """Top of the physical domain: ``solver.top_m``, the ceiling, or a default by ionosphere form."""
@@ -688,6 +674,18 @@ def _check_geometry(s: Scenario) -> None:
             raise ScenarioError("transmitter.latitude_deg is missing (ionosphere utc = ... needs positions to place the sun)")
         if s.ground.kind == "auto":
             raise ScenarioError('transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)')
+    direction = None
+    if s.ground.kind == "auto":
+        direction = 'ground kind = "auto" (land/sea along each path)'
+    elif s.ionosphere.form == "utc":
+        direction = "ionosphere utc = ... (the sun along each path)"
+    if direction:
+        for i, rx in enumerate(s.receivers, 1):
+            if rx.range_m is not None:
+                raise ScenarioError(
+                    f"receiver[{i}].range_km = {_show(_edge(rx.range_m, 1e3))} gives no direction, but {direction} "
+                    "needs one; give latitude_deg and longitude_deg instead"
+                )
     farthest_km, farthest_name = 0.0, ""
     for i, (rx, geometry) in enumerate(zip(s.receivers, s.receiver_geometry()), 1):
         d_km = geometry.range_m / 1e3

@@ -14,7 +14,7 @@ from hypothesis import strategies as st
 
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
-from cavity.scenario import Ground, GroundSegment, Ionosphere, Scenario, Solver, load_scenario
+from cavity.scenario import Ground, GroundSegment, Ionosphere, Receiver, Scenario, Solver, load_scenario
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
@@ -80,6 +80,8 @@ def rx(*receivers: dict) -> str:
     return "\n".join("[[receiver]]\n" + "\n".join(f"{k} = {v}" for k, v in r.items()) for r in receivers)
 
 
+POSITIONED = rx({"name": '"A"', "latitude_deg": "50.0", "longitude_deg": "7.0"}, {"name": '"B"', "latitude_deg": "45.0", "longitude_deg": "-10.0"})
+
 # (id, scenario text, fragments that must all appear in the one-line message)
 BAD = [
     ("freq-high", make(transmitter=tx(frequency_khz="75.0")), ["transmitter.frequency_khz", "75.0", "0.3-60 kHz"]),
@@ -134,6 +136,8 @@ BAD = [
     ("ground-custom-missing-sigma", make(ground='[ground]\nkind = "custom"\nrelative_permittivity = 10.0'), ["ground.conductivity_s_per_m", "missing", "S/m"]),
     ("ground-custom-negative-sigma", make(ground='[ground]\nkind = "custom"\nconductivity_s_per_m = -1e-3\nrelative_permittivity = 10.0'), ["ground.conductivity_s_per_m", "-0.001", "1e-06 to 1000 S/m"]),
     ("ground-sigma-with-named-kind", make(ground='[ground]\nkind = "sea"\nconductivity_s_per_m = 4.0'), ["ground.conductivity_s_per_m", "4.0", "custom"]),
+    ("ground-auto-range-receiver", make(ground='[ground]\nkind = "auto"'), ["receiver[1].range_km", "500.0", "no direction", "auto"]),
+    ("utc-range-receiver", make(ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z"), ["receiver[1].range_km", "500.0", "no direction", "utc"]),
     ("ground-auto-no-tx-position", make(transmitter=TX_NO_POSITION, ground='[ground]\nkind = "auto"'), ["transmitter.latitude_deg", "missing", "auto"]),
     ("segment-overlap", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto_km = 300.0\nkind = "land"\n[[ground.segment]]\nfrom_km = 250.0\nto_km = 400.0\nkind = "ice"'), ["ground.segment[2].from_km", "250.0", "overlap"]),
     ("segment-reversed", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 300.0\nto_km = 100.0\nkind = "land"'), ["ground.segment[1].to_km", "100.0", "greater than from_km = 300.0"]),
@@ -199,17 +203,18 @@ def test_text_errors_have_no_file_prefix():
 def test_good_values_in_si(write_scenario):
     text = make(
         transmitter=tx(frequency_khz="[24.8, 16.0, 21.4, 16.0]", radiated_power_kw="250"),
+        receivers=POSITIONED,
         ionosphere="[ionosphere]\nutc = 2026-06-21T14:00:00+02:00\nnight_preset = \"textbook-night\"",
         ground='[ground]\nkind = "custom"\nconductivity_s_per_m = 3e-3\nrelative_permittivity = 15\n'
         '[[ground.segment]]\nfrom_km = 0\nto_km = 40.5\nkind = "sea"\n'
         '[[ground.segment]]\nfrom_km = 100\nto_km = 200\nconductivity_s_per_m = 1e-4\nrelative_permittivity = 3.0',
-        solver="[solver]\nmax_range_km = 1200\ncell_m = 250\ntop_km = 150\nearth_curvature = false\npml_cells = 30\n"
+        solver="[solver]\nmax_range_km = 1600\ncell_m = 250\ntop_km = 150\nearth_curvature = false\npml_cells = 30\n"
         "cells_per_wavelength = 40\nreceiver_time_series = true",
     )
     s = load_scenario(write_scenario(text))
     assert s.transmitter.frequencies_hz == (16000.0, 21400.0, 24800.0)
     assert s.transmitter.radiated_power_w == 250e3
-    assert s.receivers[0].range_m == 500e3 and s.receivers[1].range_m == 1000e3
+    assert s.receivers[1] == Receiver("B", 45.0, -10.0, None)
     assert s.ionosphere.form == "utc"
     assert s.ionosphere.utc == datetime(2026, 6, 21, 12, 0, tzinfo=timezone.utc)
     assert s.ionosphere.utc.tzinfo == timezone.utc
@@ -218,13 +223,13 @@ def test_good_values_in_si(write_scenario):
         "custom", 3e-3, 15.0,
         (GroundSegment(0.0, 40.5e3, "sea", 5.0, 70.0), GroundSegment(100e3, 200e3, "custom", 1e-4, 3.0)),
     )
-    assert s.solver == Solver(1200e3, 250.0, 150e3, False, 30, 40.0, True)
+    assert s.solver == Solver(1600e3, 250.0, 150e3, False, 30, 40.0, True)
     assert isinstance(s.solver.cell_m, float) and isinstance(s.solver.pml_cells, int)
 
 
 @pytest.mark.parametrize("kind", sorted(GROUND_CLASSES) + ["auto"])
 def test_named_ground_kinds(kind, write_scenario):
-    s = load_scenario(write_scenario(make(ground=f'[ground]\nkind = "{kind}"')))
+    s = load_scenario(write_scenario(make(ground=f'[ground]\nkind = "{kind}"', receivers=POSITIONED)))
     if kind == "auto":
         assert s.ground.conductivity_s_per_m is None and s.ground.relative_permittivity is None
     else:
@@ -258,8 +263,6 @@ def test_cell_auto_and_defaults(write_scenario):
     s = load_scenario(write_scenario(make(solver='[solver]\ncell_m = "auto"')))
     assert s.solver == Solver()
     assert s.solver.max_range_m is None
-    # farthest receiver 1000 km plus the 100 km minimum margin
-    assert s.planned_max_range_m() == pytest.approx(1100e3)
 
 
 def test_receiver_geometry_against_spherical_formula(write_scenario):
@@ -303,7 +306,7 @@ def test_round_trip_every_feature(write_scenario):
     text = make(
         transmitter=tx(frequency_khz="[16.0, 21.4, 24.8]", longitude_deg="359.5"),
         receivers=rx({"name": '"Far \\"quoted\\" site"', "latitude_deg": "40.0", "longitude_deg": "20.0"},
-                     {"name": '"Marker"', "range_km": "777.7"}),
+                     {"name": '"Marker"', "latitude_deg": "44.4", "longitude_deg": "10.1"}),
         ionosphere="[ionosphere]\nutc = 2026-12-21T23:59:59.5Z\nday_preset = \"day-2017\"",
         ground='[ground]\nkind = "auto"\n[[ground.segment]]\nfrom_km = 0.1\nto_km = 33.3\nkind = "ice"\n'
         '[[ground.segment]]\nfrom_km = 33.3\nto_km = 99.9\nconductivity_s_per_m = 2e-5\nrelative_permittivity = 4.5',
