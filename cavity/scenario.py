@@ -652,11 +652,11 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
 
 
 def _geodesic(lat1, lon1, lat2, lon2) -> tuple[float, float]:
-    """WGS84 geodesic distance (m) and forward bearing (deg, 0-360) from point 1 to point 2."""
-    from pyproj import Geod
+    """WGS84 geodesic distance (m) and forward bearing (deg, 0-360) from point 1 to point 2 (pyproj)."""
+    from cavity.geo import distance_bearing
 
-    azimuth, _, distance = Geod(ellps="WGS84").inv(lon1, lat1, lon2, lat2)
-    return float(distance), float(azimuth) % 360.0
+    distance, bearing = distance_bearing(lat1, lon1, lat2, lon2)
+    return float(distance), float(bearing)
 
 
 def _check_geometry(s: Scenario) -> None:

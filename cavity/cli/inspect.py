@@ -1,0 +1,175 @@
+"""``cavity inspect``: what a run of a scenario would do (receivers, media, grid), without running it."""
+
+from __future__ import annotations
+
+import click
+
+from cavity.cli.common import friendly_errors
+
+#: Simulated time used for the plan until the engine publishes its own estimate: the signal must
+#: cross the farthest range at about the guide's group velocity (taken as 0.9 c), then settle.
+DURATION_SPEED_FRACTION = 0.9
+DURATION_SETTLE_S = 2e-3
+
+
+def _latlon(lat: float, lon: float) -> str:
+    lon = (lon + 180.0) % 360.0 - 180.0
+    return f"{abs(lat):.3f} {'N' if lat >= 0 else 'S'}, {abs(lon):.3f} {'E' if lon >= 0 else 'W'}"
+
+
+def _table(header: list[str], rows: list[list[str]], indent: str = "  ") -> list[str]:
+    """Columns as wide as their widest cell; the first column left-aligned, the others right-aligned."""
+    widths = [max(len(cell) for cell in column) for column in zip(header, *rows)]
+    lines = []
+    for row in [header, *rows]:
+        cells = [row[0].ljust(widths[0])] + [cell.rjust(w) for cell, w in zip(row[1:], widths[1:])]
+        lines.append(indent + "  ".join(cells).rstrip())
+    return lines
+
+
+def _runs(labels, range_m) -> str:
+    """Share of a path's length in each label ("sea 62 %, land 38 %"), in order of first appearance."""
+    import numpy as np
+
+    labels = np.asarray(labels).astype(str)
+    r = np.asarray(range_m, dtype=float)
+    widths = np.diff(r)
+    total = float(r[-1] - r[0]) or 1.0
+    order = list(dict.fromkeys(labels[:-1].tolist()))
+    shares = [(name, float(widths[labels[:-1] == name].sum()) / total) for name in order]
+    changes = int(np.count_nonzero(labels[1:] != labels[:-1]))
+    text = ", ".join(f"{name} {100 * share:.0f} %" for name, share in shares)
+    return text + (f" ({changes} changes)" if changes > 1 else "")
+
+
+def _ionosphere_lines(ion) -> tuple[list[str], float | None]:
+    """Description of the ionosphere and the largest beta (1/m) the grid must resolve (None if unknown)."""
+    from profiles.daynight import PRESETS
+
+    if ion.form == "exponential":
+        return [f"exponential (Wait-Spies): h' = {ion.hprime_km:g} km, beta = {ion.beta_per_km:g} per km"], ion.beta_per_km / 1e3
+    if ion.form == "preset":
+        p = PRESETS[ion.preset]
+        return [f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
+                f"reference: {p.reference}"], p.beta_per_km / 1e3
+    if ion.form == "utc":
+        day, night = PRESETS[ion.day_preset], PRESETS[ion.night_preset]
+        return [
+            f"sun along each path at {ion.utc:%Y-%m-%d %H:%M:%S} UTC",
+            f"day   {ion.day_preset!r}: h' = {day.hprime_km:g} km, beta = {day.beta_per_km:g} per km",
+            f"night {ion.night_preset!r}: h' = {night.hprime_km:g} km, beta = {night.beta_per_km:g} per km",
+            "day for solar zenith <= 90 deg, night for >= 99 deg, linear between (common practice)",
+        ], max(day.beta_per_km, night.beta_per_km) / 1e3
+    if ion.form == "ceiling":
+        return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"], None
+    if ion.form == "file":
+        return [f"profile file {ion.profile_path}"], None
+    return ["none: free space above the ground (verification)"], None
+
+
+def _ground_line(ground) -> str:
+    if ground.kind == "auto":
+        text = "auto: sea or land along each path from the land/sea mask"
+    elif ground.kind == "perfect":
+        text = "perfect: perfectly conducting (verification)"
+    else:
+        text = f"{ground.kind}: conductivity {ground.conductivity_s_per_m:g} S/m, relative permittivity {ground.relative_permittivity:g}"
+    for seg in ground.segments:
+        text += (f"; {seg.from_m / 1e3:g}-{seg.to_m / 1e3:g} km {seg.kind} "
+                 f"({seg.conductivity_s_per_m:g} S/m, eps_r {seg.relative_permittivity:g})")
+    return text
+
+
+def describe(scenario) -> list[str]:
+    """Lines that say what a run of ``scenario`` would compute and how big its grid is."""
+    from cavity.constants import C0
+    from cavity.errors import ResourceError
+    from cavity.fdtd.grid import check_memory, plan_grid
+    from cavity.paths import build_paths, direction_dependent
+
+    s = scenario
+    tx = s.transmitter
+    lines = [f"Scenario     {s.title}"]
+    if s.path:
+        lines.append(f"File         {s.path}")
+    where = f" at {_latlon(tx.latitude_deg, tx.longitude_deg)}" if tx.latitude_deg is not None else ""
+    lines.append(f"Transmitter  {tx.name}{where}, {tx.radiated_power_w / 1e3:g} kW radiated")
+    lines.append("Frequencies  " + ", ".join(f"{f / 1e3:g}" for f in tx.frequencies_hz) + " kHz")
+
+    lines.append(f"Receivers    {len(s.receivers)}")
+    rows = []
+    for rx, geo in zip(s.receivers, s.receiver_geometry()):
+        bearing = "-" if geo.bearing_deg is None else f"{geo.bearing_deg:.1f}"
+        position = "by range" if rx.range_m is not None else _latlon(rx.latitude_deg, rx.longitude_deg)
+        rows.append([rx.name, f"{geo.range_m / 1e3:.1f}", bearing, position])
+    lines += _table(["name", "range_km", "bearing_deg", "position"], rows)
+
+    ion_lines, beta_max_per_m = _ionosphere_lines(s.ionosphere)
+    lines.append(f"Ionosphere   {ion_lines[0]}")
+    lines += [f"             {line}" for line in ion_lines[1:]]
+    lines.append(f"Ground       {_ground_line(s.ground)}")
+
+    paths = build_paths(s)
+    why = direction_dependent(s)
+    lines.append(f"Paths        {len(paths)}" + (f", one per bearing: {why}" if why else ", one serves every receiver"))
+    for path in paths:
+        names = ", ".join(s.receivers[i].name for i in path.receiver_indices)
+        lines.append(f"  {path.label}: {names}")
+        if s.ground.kind == "auto" or s.ground.segments:
+            lines.append(f"    ground: {_runs(path.ground_kind, path.range_m)}")
+        if path.daylight is not None:
+            lines.append(f"    ionosphere: {_runs(path.daylight, path.range_m)}")
+
+    sv = s.solver
+    ceiling = s.ionosphere.form == "ceiling"
+    top_m = s.planned_top_m()
+    rows, plans = [], []
+    for path in paths:
+        duration_s = path.max_range_m / (DURATION_SPEED_FRACTION * C0) + DURATION_SETTLE_S
+        plan = plan_grid(
+            path.max_range_m, max(tx.frequencies_hz), top_m, duration_s=duration_s, dr_m=sv.cell_m, dz_m=sv.cell_m,
+            beta_max_per_m=beta_max_per_m, ceiling=ceiling, pml_cells=sv.pml_cells,
+            cells_per_wavelength=sv.cells_per_wavelength,
+        )
+        plans.append(plan)
+        rows.append([
+            path.label, f"{path.max_range_m / 1e3:.0f}", f"{plan.dr_m:.0f}", f"{plan.dz_m:.0f}",
+            f"{plan.dt_s * 1e6:.3f}", f"{plan.nr} x {plan.nz}", f"{plan.cells / 1e6:.2f}",
+            f"{plan.n_steps:,}", f"{plan.memory_bytes / 1e9:.2f}",
+        ])
+    top_text = f"{top_m / 1e3:g} km, perfectly conducting ceiling" if ceiling else (
+        f"{top_m / 1e3:g} km, then a {sv.pml_cells}-cell absorber")
+    lines.append("Grid         axisymmetric (r, z) Yee cells, one solve per path")
+    lines.append(f"  top {top_text}; far-end absorber {sv.pml_cells} cells; "
+                 f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}")
+    lines += _table(["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows)
+    updates = sum(p.cell_updates for p in plans)
+    lines.append(f"  total {updates:.3g} cell updates (time steps planned for the farthest range at "
+                 f"{DURATION_SPEED_FRACTION:g} c plus {DURATION_SETTLE_S * 1e3:g} ms; the engine may stop earlier once converged)")
+    biggest = max(plans, key=lambda p: p.memory_bytes)
+    try:
+        check_memory(biggest)
+        lines.append(f"  memory: fits ({biggest.memory_bytes / 1e9:.2f} GB for the largest path)")
+    except ResourceError as exc:
+        lines.append(f"  memory: would not fit: {exc}")
+    return lines
+
+
+@click.command("inspect")
+@click.argument("scenario", metavar="SCENARIO.toml")
+@friendly_errors
+def command(scenario: str) -> None:
+    """Show what a run of SCENARIO.toml would do, without running it.
+
+    Prints the transmitter, the receivers with range (km) and bearing (deg) from the transmitter,
+    the ionosphere and ground, the paths to solve, and the grid of each solve: cell sizes, time
+    step, cells, time steps and memory.
+
+    Example: cavity inspect examples/northbay.toml
+    """
+    from cavity import load_scenario
+
+    loaded = load_scenario(scenario)
+    for line in describe(loaded):
+        click.echo(line)
+

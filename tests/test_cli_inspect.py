@@ -1,0 +1,104 @@
+"""``cavity inspect``: prints the plan of a run; bad input gives one line and exit code 1."""
+
+from __future__ import annotations
+
+import re
+from importlib import resources
+from pathlib import Path
+
+import pytest
+from click.testing import CliRunner
+from pyproj import Geod
+
+from cavity.cli import main
+from cavity.fdtd.grid import plan_grid
+
+EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
+
+
+def run(*args):
+    return CliRunner().invoke(main, ["inspect", *map(str, args)])
+
+
+def test_bundled_example_prints_receivers_and_grid():
+    with resources.as_file(resources.files("cavity") / "data" / "northbay.toml") as path:
+        result = run(path)
+    assert result.exit_code == 0, result.output
+    out = result.stdout
+    assert "Northbay" in out and "19.6 kHz" in out and "200 kW radiated" in out
+    # ranges and bearings against pyproj's WGS84 geodesic (reference library)
+    geod = Geod(ellps="WGS84")
+    for name, lat, lon in (("Kestrel Point", 53.6, -3.0), ("Harrow Fen", 50.5, 13.0), ("Gannet Reach", 49.3, -50.9)):
+        azimuth, _, distance = geod.inv(-6.5, 57.5, lon, lat)
+        row = next(line for line in out.splitlines() if line.strip().startswith(name))
+        assert f"{distance / 1e3:.1f}" in row and f"{azimuth % 360:.1f}" in row
+    assert "Paths        3, one per bearing" in out
+    for word in ("dr_m", "dz_m", "dt_us", "nr x nz", "time_steps", "memory_GB"):
+        assert word in out
+    grid_rows = [line for line in out.splitlines() if re.match(r"\s+bearing [\d.]+ deg\s+\d+\s+\d+", line)]
+    assert len(grid_rows) == 3
+    assert "memory: fits" in out
+    assert result.stderr == ""
+
+
+def test_uniform_grid_matches_plan_grid():
+    result = run(EXAMPLES / "uniform_day.toml")
+    assert result.exit_code == 0, result.output
+    row = next(line for line in result.stdout.splitlines() if line.strip().startswith("uniform "))
+    cells = row.split()
+    # max range 3200 km (solver.max_range_km), top 120 km, 19.6 kHz, day preset beta 0.335 /km
+    plan = plan_grid(3200e3, 19.6e3, 120e3, duration_s=3200e3 / (0.9 * 299_792_458.0) + 2e-3,
+                     beta_max_per_m=0.335e-3)
+    assert cells[1] == "3200"
+    assert cells[2] == f"{plan.dr_m:.0f}" and cells[3] == f"{plan.dz_m:.0f}"
+    assert cells[5:8] == [str(plan.nr), "x", str(plan.nz)]
+    assert cells[9] == f"{plan.n_steps:,}"
+    # 20 cells per wavelength at 19.6 kHz: dr = c / f / 20 = 764.8 m (common practice)
+    assert cells[2] == "765"
+    assert "Marker 3000" in result.stdout and "by range" in result.stdout
+
+
+def test_ceiling_and_free_space_tops(write_scenario):
+    base = """
+        title = "t"
+        [transmitter]
+        name = "T"
+        frequency_khz = 10.0
+        radiated_power_kw = 1.0
+        [[receiver]]
+        name = "R"
+        range_km = 300.0
+        [ground]
+        kind = "perfect"
+    """
+    out = run(write_scenario(base + "[ionosphere]\nceiling_km = 70.0\n")).stdout
+    assert "top 70 km, perfectly conducting ceiling" in out
+    out = run(write_scenario(base + "[ionosphere]\nno_ionosphere = true\n")).stdout
+    assert "top 400 km, then a 20-cell absorber" in out
+
+
+@pytest.mark.parametrize(
+    "text, fragment",
+    [
+        ('title = "t"\n[transmitter]\nname = "T"\nfrequency_khz = 75.0\n', "transmitter.frequency_khz = 75.0 is outside the supported band 0.3-60 kHz"),
+        ('title = "t"\n[transmitter\n', "invalid TOML"),
+    ],
+)
+def test_bad_scenario_one_line_exit_1(text, fragment, write_scenario):
+    result = run(write_scenario(text, "bad.toml"))
+    assert result.exit_code == 1
+    assert result.stdout == ""
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("Error: bad.toml: ") and fragment in lines[0]
+    assert "Traceback" not in result.output
+
+
+def test_missing_file_one_line(tmp_path):
+    result = run(tmp_path / "absent.toml")
+    assert result.exit_code == 1
+    assert result.stderr.strip().splitlines() == [f"Error: scenario file '{tmp_path / 'absent.toml'}' not found"]
+
+
+def test_help_has_example():
+    result = CliRunner().invoke(main, ["inspect", "--help"])
+    assert result.exit_code == 0 and "Example: cavity inspect examples/northbay.toml" in result.output
