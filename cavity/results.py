@@ -67,7 +67,7 @@ VARIABLES: dict[str, dict[str, str]] = {
     "elapsed_time": {"units": "s", "long_name": "time since the transmitter was switched on"},
     # per path
     "path_label": {"long_name": "path label"},
-    "path_bearing": {"units": "degree", "long_name": "bearing of the path at the transmitter, clockwise from true north"},
+    "path_bearing": {"units": "degree", "long_name": "bearing of the path at the transmitter, clockwise from true north (NaN: the path serves every bearing)"},
     # fields along each path
     "ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the ground, {_DB_E}"},
     "ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the ground, {_PHASE}, unwrapped along range"},
@@ -149,7 +149,7 @@ def phasor_to_db_phase(phasor, reference: float, *, unwrap_axis: int | None = No
     Parameters
     ----------
     phasor : array_like of complex
-        RMS phasors, relative to the transmitter current's phase.
+        RMS phasors, relative to the transmitter current's phase; NaN where not computed.
     reference : float
         Amplitude of 0 dB in the phasor's unit (1e-6 V/m for dB re 1 uV/m, 1e-15 T for dB re 1 fT).
     unwrap_axis : int, optional
@@ -162,12 +162,20 @@ def phasor_to_db_phase(phasor, reference: float, *, unwrap_axis: int | None = No
         ``20 log10(|phasor| / reference)`` (-inf where the phasor is 0) and the phase in degrees.
     """
     z = np.asarray(phasor, dtype=complex)
-    with np.errstate(divide="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore"):
         db = 20.0 * np.log10(np.abs(z) / reference)
     phase = np.angle(z)
     if unwrap_axis is not None:
-        phase = np.unwrap(phase, axis=unwrap_axis)
+        phase = np.apply_along_axis(_unwrap_finite, unwrap_axis, phase)
     return db, np.degrees(phase)
+
+
+def _unwrap_finite(phase_rad: np.ndarray) -> np.ndarray:
+    """np.unwrap over the finite values of a 1-D array; NaN (not computed) stays NaN in place."""
+    out = phase_rad.copy()
+    finite = np.isfinite(phase_rad)
+    out[finite] = np.unwrap(phase_rad[finite])
+    return out
 
 
 def db_phase_to_phasor(db, phase_deg, reference: float) -> np.ndarray:
@@ -185,12 +193,15 @@ def _nearest_branch(phase_deg: np.ndarray, target_deg: np.ndarray) -> np.ndarray
 # --------------------------------------------------------------------------------------------------
 
 
-def _array(name: str, value, shape: tuple[int, ...], dtype=float) -> np.ndarray:
+def _array(name: str, value, shape: tuple[int, ...], dtype=float, *, allow_nan: bool = False) -> np.ndarray:
+    """``value`` as an array of ``shape``; inf is refused, NaN too unless it means "not computed"."""
     array = np.asarray(value, dtype=dtype)
     if array.shape != shape:
         raise ValueError(f"{name} has shape {array.shape}; expected {shape}")
-    if np.issubdtype(array.dtype, np.number) and not np.all(np.isfinite(array)):
-        raise ValueError(f"{name} contains NaN or inf values")
+    if np.issubdtype(array.dtype, np.number):
+        bad = np.isinf(array) if allow_nan else ~np.isfinite(array)
+        if np.any(bad):
+            raise ValueError(f"{name} contains {'inf' if allow_nan else 'NaN or inf'} values")
     return array
 
 
@@ -243,7 +254,7 @@ def assemble_dataset(
         One label per path (e.g. "bearing 113.2 deg" or "uniform").
     ez_v_per_m, b_t : (P, F, R) complex arrays
         RMS phasors of Ez (V/m) and of the horizontal flux density B = mu0 Hphi (T) at the ground,
-        phase relative to the transmitter current (exp(+j omega t)).
+        phase relative to the transmitter current (exp(+j omega t)); NaN beyond a path's own range.
     receiver_names : (N,) sequence of str
     receiver_range_m : (N,) array
         Ground range of each receiver, m.
@@ -261,7 +272,9 @@ def assemble_dataset(
     receiver_bearing_deg, receiver_latitude_deg, receiver_longitude_deg : (N,) arrays, optional
         NaN where a receiver is given by range only.
     path_bearing_deg : (P,) array, optional
+        NaN for a path that serves every bearing.
     ground_relative_permittivity, solar_zenith_angle_deg, hprime_km, beta_per_km : (P, R) arrays, optional
+        NaN allowed (not defined there).
     time_s : (T,) array, optional
         Sample times of ``receiver_ez_time_series_v_per_m`` ((N, T) array, V/m), given together.
 
@@ -280,8 +293,8 @@ def assemble_dataset(
     labels = [str(x) for x in path_labels]
     names = [str(x) for x in receiver_names]
     P, F, R, Z, N = len(labels), f.size, r.size, z.size, len(names)
-    ez = _array("ez_v_per_m", ez_v_per_m, (P, F, R), complex)
-    b = _array("b_t", b_t, (P, F, R), complex)
+    ez = _array("ez_v_per_m", ez_v_per_m, (P, F, R), complex, allow_nan=True)
+    b = _array("b_t", b_t, (P, F, R), complex, allow_nan=True)
     rx_ez = _array("receiver_ez_v_per_m", receiver_ez_v_per_m, (N, F), complex)
     rx_b = _array("receiver_b_t", receiver_b_t, (N, F), complex)
     rx_range = _array("receiver_range_m", receiver_range_m, (N,))
@@ -337,7 +350,7 @@ def assemble_dataset(
                 raise ValueError(f"{name} has shape {array.shape}; expected {(N,)}")
             data_vars[name] = (("receiver",), array)
     if path_bearing_deg is not None:
-        data_vars["path_bearing"] = (("path",), _array("path_bearing_deg", path_bearing_deg, (P,)))
+        data_vars["path_bearing"] = (("path",), _array("path_bearing_deg", path_bearing_deg, (P,), allow_nan=True))
     optional_path = {
         "ground_relative_permittivity": ground_relative_permittivity,
         "solar_zenith_angle": solar_zenith_angle_deg,
@@ -346,7 +359,7 @@ def assemble_dataset(
     }
     for name, value in optional_path.items():
         if value is not None:
-            data_vars[name] = (("path", "range"), _array(name, value, (P, R)))
+            data_vars[name] = (("path", "range"), _array(name, value, (P, R), allow_nan=True))
     coords = {
         "path": ("path", np.arange(P, dtype=np.int32)),
         "frequency": ("frequency", f / 1e3),

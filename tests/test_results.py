@@ -53,7 +53,9 @@ def build(scenario_name="northbay.toml", paths=3, ground=5.0, **extra):
     r = np.linspace(1e3, 3200e3, 6400)  # 500 m spacing: less than half a wavelength at 24 kHz
     f = np.array([19.6e3, 24.0e3])
     z = np.linspace(0.0, 120e3, 61)
-    ez = np.broadcast_to(far_field(r, f), (paths, f.size, r.size))
+    ez = np.broadcast_to(far_field(r, f), (paths, f.size, r.size)).copy()
+    if paths > 1:
+        ez[0, :, r > 600e3] = np.nan  # a shorter path: not computed beyond its own range
     rx_range = np.array([g.range_m for g in s.receiver_geometry()])
     rx_ez = far_field(rx_range, f).T
     ne = np.broadcast_to(1e8 * np.exp(0.3 * (z / 1e3 - 74.0)), (paths, r.size, z.size))
@@ -111,6 +113,27 @@ def test_receiver_phase_on_path_branch(dataset):
     assert np.allclose(ds.receiver_ez_amplitude, 20 * np.log10(math.sqrt(90e3) / (ds.receiver_range.values[:, None] * 1e3) / 1e-6))
 
 
+def test_shorter_path_is_nan_beyond_its_range(dataset):
+    _, ds = dataset
+    beyond = ds.range.values > 600.0
+    for name in ("ez_amplitude", "ez_phase", "b_amplitude", "b_phase"):
+        values = ds[name].isel(path=0).values
+        assert np.all(np.isnan(values[:, beyond])) and np.all(np.isfinite(values[:, ~beyond]))
+    assert np.array_equal(ds.ez_phase.values[0][:, ~beyond], ds.ez_phase.values[1][:, ~beyond])
+
+
+def test_unwrap_skips_missing_values():
+    # a phase falling 40 deg per sample, with a gap narrower than half a turn: the unwrapped line
+    # continues across the gap
+    true = -np.radians(40.0) * np.arange(24)
+    z = np.exp(1j * true)
+    z[5:7] = np.nan
+    _, deg = phasor_to_db_phase(z, 1.0, unwrap_axis=-1)
+    assert np.all(np.isnan(deg[5:7]))
+    keep = np.isfinite(deg)
+    assert np.allclose(deg[keep], np.degrees(true[keep]))
+
+
 def test_conversion_round_trip():
     rng = np.random.default_rng(3)
     z = (rng.standard_normal((4, 5)) + 1j * rng.standard_normal((4, 5))) * 1e-4
@@ -154,7 +177,7 @@ def test_write_and_read_round_trip(dataset, tmp_path):
     back = open_result(written)
     xr.testing.assert_equal(back, ds)  # values, dims and coordinates
     for name in ds.variables:
-        assert np.array_equal(back[name].values, ds[name].values) or back[name].dtype.kind == "O"
+        assert np.array_equal(back[name].values, ds[name].values, equal_nan=back[name].dtype.kind == "f") or back[name].dtype.kind == "O"
         for key, value in ds[name].attrs.items():
             assert back[name].attrs[key] == value
     assert list(back.receiver_name.values) == list(ds.receiver_name.values)
