@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import numpy as np
@@ -11,7 +12,7 @@ from cavity.errors import ScenarioError
 from cavity.geo import points_along
 from cavity.ground import GROUND_CLASSES
 from cavity.paths import build_paths, circular_mean_deg, group_bearings, sample_ranges_m
-from cavity.scenario import load_scenario
+from cavity.scenario import Receiver, load_scenario
 from profiles.daynight import PRESETS
 
 
@@ -135,8 +136,12 @@ def test_preset_and_ceiling_forms():
 
 
 def test_range_only_receiver_rejected_when_direction_matters():
+    # The loader refuses such a file; build_paths refuses such a scenario built in code.
     rx = [receiver_at(30.0, 900.0), {"range_km": 1500.0}]
-    s = load_scenario(scenario_text(rx))
+    with pytest.raises(ScenarioError, match=r"receiver\[2\]\.range_km"):
+        load_scenario(scenario_text(rx))
+    s = load_scenario(scenario_text(rx[:1]))
+    s = dataclasses.replace(s, receivers=(*s.receivers, Receiver("Site 2", range_m=1500e3)))
     with pytest.raises(ScenarioError, match=r"receiver\[2\]\.range_km = 1500 .*utc"):
         build_paths(s)
 
