@@ -203,8 +203,10 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
                         linewidth=2.4, solid_capstyle="butt", zorder=5)
                 kinds_drawn.add(str(kind))
         else:
-            kind = str(p.ground_kind[0]) if len(set(p.ground_kind.tolist())) == 1 else "custom"
+            uniform_kind = len(set(p.ground_kind.tolist())) == 1
+            kind = str(p.ground_kind[0]) if uniform_kind else "ground varying with range"
             colour = GROUND_COLOURS.get(kind, "#000000")
+            drawn = False
             for i in p.receiver_indices:
                 rx = scenario.receivers[i]
                 if rx.latitude_deg is None:
@@ -213,8 +215,9 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
                         transform=geodetic, color="white", linewidth=4.0, zorder=4)
                 ax.plot([tx.longitude_deg, rx.longitude_deg], [tx.latitude_deg, rx.latitude_deg],
                         transform=geodetic, color=colour, linewidth=2.4, zorder=5)
-            if p.receiver_indices:
-                kinds_drawn.add(kind if len(set(p.ground_kind.tolist())) == 1 else "ground segments")
+                drawn = True
+            if drawn:
+                kinds_drawn.add(kind)
     for kind in sorted(kinds_drawn):
         legend.append(Line2D([], [], color=GROUND_COLOURS.get(kind, "#000000"), linewidth=2.4,
                              label=f"path over {kind.replace('_', ' ')}"))
