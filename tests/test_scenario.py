@@ -317,6 +317,16 @@ def test_round_trip_every_feature(write_scenario):
     assert load_scenario(s.to_toml()) == s
 
 
+@settings(max_examples=40, deadline=None)
+@given(name=st.text(min_size=1, max_size=20).filter(lambda t: t.strip()))
+def test_round_trip_any_name(name):
+    # TOML basic strings must escape quotes, backslashes and control characters (TOML 1.0 spec)
+    s = load_scenario(make())
+    renamed = s.replace(title=name, transmitter=dataclasses.replace(s.transmitter, name=name))
+    assert renamed.title == name.strip() == renamed.transmitter.name
+    assert load_scenario(renamed.to_toml()) == renamed
+
+
 @settings(max_examples=60, deadline=None)
 @given(
     freqs=st.lists(st.floats(0.3, 60.0), min_size=1, max_size=4),
