@@ -91,6 +91,11 @@ def path_medium(scenario, path) -> eng.Medium:
     )
 
 
+def plan_path(scenario, path, *, waveform=None) -> eng.RunPlan:
+    """The solve a path would need (grid, time step, steps, memory), without allocating it."""
+    return eng.make_plan(path_medium(scenario, path), engine_settings(scenario, path, waveform=waveform))
+
+
 def solve_path(scenario, path, *, progress=None, waveform=None) -> PathSolution:
     """Run the engine on one path and calibrate its output to the transmitter's power."""
     medium = path_medium(scenario, path)

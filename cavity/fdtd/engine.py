@@ -158,56 +158,67 @@ def _ground_on_columns(medium: Medium, r_cols):
     return np.asarray(medium.ground_conductivity, float)[idx], np.asarray(medium.ground_permittivity, float)[idx]
 
 
+def _max_log_slope(medium: Medium) -> float | None:
+    """Largest d(ln omega_r)/dz (beta for an exponential profile) where the plasma matters."""
+    if medium.electron_density is None:
+        return None
+    z = medium.altitude_m
+    ne = np.maximum(medium.electron_density, 1e-30)
+    omega_r = ne / np.maximum(medium.collision_frequency, 1e-30)
+    slope = np.diff(np.log(omega_r), axis=1) / np.diff(z)[None, :]
+    relevant = (ne[:, 1:] > 1e5) & (ne[:, 1:] < 1e12)
+    if not relevant.any():
+        return None
+    return float(np.max(slope[relevant]))
+
+
+@dataclass(frozen=True)
+class RunPlan:
+    """Everything fixed before allocation: grid, waveform and the simulated-time window."""
+
+    grid: gridmod.GridPlan
+    waveform: Callable
+    frequencies_hz: np.ndarray
+    t_min_s: float  # shortest run: source, travel to the far end, settling
+    t_max_s: float  # cap when the DFTs have not converged by then
+
+
+def make_plan(medium: Medium, settings: Settings) -> RunPlan:
+    """Size one solve without allocating it (what ``cavity inspect`` reports)."""
+    s = settings
+    f = np.asarray(sorted(s.frequencies_hz), float)
+    if f.size == 0 or not np.all(f > 0):
+        raise SolverError("frequencies: need at least one frequency > 0 Hz")
+    waveform = s.waveform or default_waveform(f)
+    end = float(waveform.end_s)
+    travel = s.max_range_m / C0
+    t_min = end + 1.1 * travel + 3.0 / f.min()
+    t_max = max(s.max_duration_s or (end + 3.0 * travel + 40.0 / f.min()), t_min)
+    ceiling = medium.ceiling_m is not None
+    top = float(medium.ceiling_m) if ceiling else float(s.top_m)
+    grid = gridmod.plan_grid(
+        s.max_range_m, float(f.max()), top,
+        duration_s=t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=_max_log_slope(medium), ceiling=ceiling,
+        pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength, courant_safety=s.courant_safety,
+    )
+    return RunPlan(grid, waveform, f, t_min, t_max)
+
+
 class Simulation:
     """One solve: allocated fields and coefficients, stepped by :meth:`run`."""
 
     def __init__(self, medium: Medium, settings: Settings):
-        from cavity.fdtd import kernels  # noqa: F401  (compile lazily; import here keeps startup fast)
-
         self.medium = medium
-        self.settings = s = settings
-        f = np.asarray(sorted(s.frequencies_hz), float)
-        if f.size == 0 or not np.all(f > 0):
-            raise SolverError("frequencies: need at least one frequency > 0 Hz")
-        self.frequencies_hz = f
-        self.waveform = s.waveform or default_waveform(f)
-        ceiling = medium.ceiling_m is not None
-        top = float(medium.ceiling_m) if ceiling else float(s.top_m)
-        beta_max = None
-        if medium.electron_density is not None:
-            beta_max = self._max_log_slope(medium)
-        self.t_min, self.t_max = self._durations(f, s.max_range_m)
-        self.plan = gridmod.plan_grid(
-            s.max_range_m, float(f.max()), top,
-            duration_s=self.t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=beta_max, ceiling=ceiling,
-            pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength,
-            courant_safety=s.courant_safety,
-        )
+        self.settings = settings
+        run_plan = make_plan(medium, settings)
+        self.plan = run_plan.grid
+        self.waveform = run_plan.waveform
+        self.frequencies_hz = run_plan.frequencies_hz
+        self.t_min, self.t_max = run_plan.t_min_s, run_plan.t_max_s
         gridmod.check_memory(self.plan)
         self._build()
 
     # ------------------------------------------------------------------ set-up
-    @staticmethod
-    def _max_log_slope(medium: Medium) -> float | None:
-        """Largest d(ln omega_r)/dz (beta for an exponential profile) where the plasma matters."""
-        z = medium.altitude_m
-        ne = np.maximum(medium.electron_density, 1e-30)
-        omega_r = ne / np.maximum(medium.collision_frequency, 1e-30)
-        slope = np.diff(np.log(omega_r), axis=1) / np.diff(z)[None, :]
-        relevant = (ne[:, 1:] > 1e5) & (ne[:, 1:] < 1e12)
-        if not relevant.any():
-            return None
-        return float(np.max(slope[relevant]))
-
-    def _durations(self, f, max_range_m):
-        """Shortest simulated time (source + travel + settling) and the cap if not converged."""
-        s = self.settings
-        end = float(self.waveform.end_s)
-        travel = max_range_m / C0
-        t_min = end + 1.1 * travel + 3.0 / f.min()
-        t_max = s.max_duration_s or (end + 3.0 * travel + 40.0 / f.min())
-        return t_min, max(t_max, t_min)
-
     def _build(self):
         p, s, m = self.plan, self.settings, self.medium
         nr, nz = p.nr, p.nz
