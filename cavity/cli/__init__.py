@@ -18,6 +18,7 @@ from cavity import __version__
 COMMANDS: dict[str, tuple[str, str]] = {
     "profile": ("profile", "Summarise and save an ionosphere altitude profile."),
     "inspect": ("inspect", "Show what a run of a scenario would do, without running it."),
+    "run": ("run", "Solve a scenario and write its netCDF result file."),
     "map": ("map", "Draw the transmitter, receivers and paths on a map, with day/night shading."),
 }
 

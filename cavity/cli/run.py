@@ -1,0 +1,49 @@
+"""``cavity run``: solve a scenario and write its result file."""
+
+from __future__ import annotations
+
+import logging
+import sys
+
+import click
+
+from cavity.cli.common import friendly_errors, progress_callback
+
+
+@click.command("run")
+@click.argument("scenario", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), required=True,
+              help="Result file to write (netCDF).")
+@click.option("--overwrite", is_flag=True, help="Replace an existing result file (otherwise refused).")
+@click.option("-q", "--quiet", is_flag=True, help="No progress bar or grid summary.")
+@friendly_errors
+def command(scenario, output, overwrite, quiet):
+    """Solve SCENARIO with the time-domain waveguide solver and write a netCDF result.
+
+    The grid, time step and memory are printed before stepping starts; a progress bar shows the
+    steps (off with --quiet). An existing OUTPUT is replaced only with --overwrite, and nothing is
+    written if the run fails or is interrupted.
+
+    Example: cavity run examples/uniform_day.toml -o day.nc
+    """
+    import cavity
+    from cavity.results import write_result
+
+    sc = cavity.load_scenario(scenario)
+    from pathlib import Path
+
+    target = Path(output)
+    if target.exists() and not overwrite:
+        raise click.ClickException(f"{target} exists; use --overwrite to replace it")
+    if not quiet:
+        handler = logging.StreamHandler(sys.stderr)
+        handler.setFormatter(logging.Formatter("%(message)s"))
+        logger = logging.getLogger("cavity.simulate")
+        logger.addHandler(handler)
+        logger.setLevel(logging.INFO)
+    with progress_callback(quiet, "solving") as update:
+        ds = cavity.simulate(sc, progress=update)
+    path = write_result(ds, target, overwrite=overwrite)
+    if ds.attrs.get("solver_converged") == "no":
+        click.echo(f"warning: {ds.attrs.get('solver_notes', 'the run did not converge')}", err=True)
+    click.echo(f"wrote {path}")
