@@ -327,6 +327,7 @@ class Simulation:
 
         # source: current element I in the axis cell of radius dr/2 and height dz (moment I dz)
         self.src_coef = float(self.cez[0]) / (math.pi * (dr / 2) ** 2)
+        self.src_coef_rows = self.cez.astype(float) / (math.pi * (dr / 2) ** 2)
 
     # ------------------------------------------------------------------ stepping
     def run(self, progress: Callable[[float, str], None] | None = None) -> EngineResult:
@@ -356,6 +357,11 @@ class Simulation:
         last = None
         converged = False
         wave = self.waveform
+        line_source = hasattr(wave, "axis_currents")
+        n_line = 0
+        if line_source:
+            height = float(getattr(wave, "channel_height_m", self.plan.dz_m))
+            n_line = int(min(self.jz0, max(1, math.ceil(height / self.plan.dz_m))))
         t0 = time.perf_counter()
         step = 0
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
@@ -376,8 +382,14 @@ class Simulation:
             if self.psi_re.shape[0]:
                 K.pml_r_e(self.ez, self.hp, self.ir0, self.rp, self.rm, self.ce_far, *self.pr_e, self.psi_re,
                           self.jp0, self.jz, plasma_z[4])
-            current = float(wave(t_h))
-            self.ez[0, 0] -= np.float32(self.src_coef * current)
+            if line_source:
+                # a vertical channel: currents in the axis cells, moment = sum I_j dz
+                currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
+                self.ez[0, :n_line] -= (self.src_coef_rows[:n_line] * currents).astype(np.float32)
+                current = float(currents.sum())
+            else:
+                current = float(wave(t_h))
+                self.ez[0, 0] -= np.float32(self.src_coef * current)
             acc_i += current * np.exp(-1j * w * t_h)
             K.accumulate_dft(acc_e[0], acc_e[1], self.ez, 0, np.cos(w * t_e), np.sin(w * t_e))
             K.accumulate_dft(acc_h[0], acc_h[1], self.hp, 0, np.cos(w * t_h), np.sin(w * t_h))

@@ -20,7 +20,13 @@ from cavity.constants import C0
 
 
 class Waveform(Protocol):
-    """A source current I(t) in A; ``end_s`` is when it has died away (no energy after that)."""
+    """A source current I(t) in A; ``end_s`` is when it has died away (no energy after that).
+
+    A source spread along the axis (a lightning channel) also provides
+    ``axis_currents(t_s, z_m) -> array`` (A in each axis cell of height dz centred at ``z_m``) and
+    ``channel_height_m``; the engine then drives every axis cell up to that height and normalises by
+    the total moment sum(I_j) dz.
+    """
 
     end_s: float
 
