@@ -46,7 +46,7 @@ def test_calibration_1kw_gives_300mv_per_m_at_1km():
     e = dipole.ground_level_field(2000e3, 20e3, p20)
     assert abs(db(e * 2000e3) - db(300.0)) < 0.01
     # P = 160 pi^2 (I l / lambda)^2 (short monopole over perfect ground, radiation resistance
-    # 160 pi^2 (l / lambda)^2; Balanis 2016, 4.7) inverted.
+    # 160 pi^2 (l / lambda)^2, half that of the dipole of length 2l; Balanis 2016, ch. 4) inverted.
     lam = C0 / 20e3
     assert math.isclose(160 * math.pi**2 * (p20 / lam) ** 2, 1e3, rel_tol=1e-12)
 
@@ -54,7 +54,7 @@ def test_calibration_1kw_gives_300mv_per_m_at_1km():
 def test_near_field_formula_limits():
     f, p = 20e3, 1.0
     k = 2 * math.pi * f / C0
-    # Far zone: the 1/d term alone (Balanis 2016, 4.2.4), phase -j exp(-jkd).
+    # Far zone: the 1/d term alone (Balanis 2016, eq. 4-10), phase -j exp(-jkd).
     d = np.array([3e5, 1e6, 3e6])
     far = -1j * ETA0 * k * p / (2 * math.pi * d) * np.exp(-1j * k * d)
     ratio = dipole.ground_level_field(d, f, p) / far
@@ -79,7 +79,7 @@ def test_free_space_dipole_on_axis():
 
 
 def test_surface_impedance_good_conductor_and_index():
-    # Good conductor: Zs = (1 + j) sqrt(omega mu0 / (2 sigma)) (Senior and Volakis 1995, ch. 2).
+    # Good conductor: Zs = (1 + j) sqrt(omega mu0 / (2 sigma)) (Senior and Volakis 1995).
     f, sigma = 20e3, 5.0
     omega = 2 * math.pi * f
     zs = dipole.surface_impedance(f, sigma, 70.0)
@@ -150,8 +150,9 @@ def test_ql_eigensolver_matches_lapack():
     n = 120
     d = rng.standard_normal(n) + 0.3j * rng.standard_normal(n)
     e = rng.standard_normal(n - 1) + 0.1j * rng.standard_normal(n - 1)
-    lam_ql, q_ql = modes.tridiagonal_eigen(d, e, method="ql")
-    lam_la, q_la = modes.tridiagonal_eigen(d, e, method="lapack")
+    lam_ql, q_ql, used = modes.tridiagonal_eigen(d, e, method="ql")
+    assert used == "ql"
+    lam_la, q_la, _ = modes.tridiagonal_eigen(d, e, method="lapack")
     i = np.argsort(lam_ql.real + 1e-3 * lam_ql.imag)
     j = np.argsort(lam_la.real + 1e-3 * lam_la.imag)
     assert np.allclose(lam_ql[i], lam_la[j], atol=1e-10)
@@ -161,7 +162,7 @@ def test_ql_eigensolver_matches_lapack():
     z = np.zeros((1, 30), complex)
     z[0, 0] = 1
     assert modes._ql_tridiagonal(dd, ee, z, 1e-15, 200, 1e-10) == 0
-    lam_small, q_small = modes.tridiagonal_eigen(d[:30], e[:29])
+    lam_small, _, _ = modes.tridiagonal_eigen(d[:30], e[:29])
     assert np.allclose(np.sort_complex(dd), np.sort_complex(lam_small), atol=1e-12)
 
 
@@ -219,7 +220,7 @@ def _impedance_ceiling_roots(k, h, delta, orders):
 
 def test_modes_impedance_ground_modal_equation():
     # Ceiling at h over a Leontovich ground: the exact modal equation kz tan(kz h) = j k Zs/eta0
-    # (derived from the boundary conditions in modes.py; Wait 1970, ch. 8 form) and the exact
+    # (derived from the boundary conditions in modes.py; the form of Wait 1970) and the exact
     # excitation U(0)^2 / Int U^2 dz, against the discrete solver.
     f, h = 10e3, 80e3
     k = 2 * math.pi * f / C0
@@ -243,7 +244,7 @@ def test_modes_impedance_ground_modal_equation():
 def test_modes_open_top_reproduce_sommerfeld_ground_wave():
     # No ionosphere: eps = 1 with a complex-stretching absorber below the top wall, over dry ground
     # (20 kHz, 1e-4 S/m, eps_r 3). Against the exact Sommerfeld integral of the impedance plane
-    # (Wait 1970 ch. 2; groundwave.impedance_plane_field), within 0.1 dB and 1 degree.
+    # (Wait 1970; groundwave.impedance_plane_field), within 0.1 dB and 1 degree.
     f = 20e3
     zs = dipole.surface_impedance(f, 1e-4, 3.0)
     z = np.arange(0.0, 100e3 + 1, 100.0)

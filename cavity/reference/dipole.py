@@ -9,10 +9,10 @@ References
 ITU-R Recommendation P.368-9 (2007), Ground-wave propagation curves for frequencies between 10 kHz
 and 30 MHz: a short monopole on perfect ground radiating 1 kW gives 300 mV/m at 1 km (cymomotive
 force 300 V).
-Balanis, C. A. (2016), Antenna Theory, 4th ed., Wiley, section 4.2 (fields of the infinitesimal
+Balanis, C. A. (2016), Antenna Theory, 4th ed., Wiley, chapter 4 (fields of the infinitesimal
 dipole, all distance terms).
 Leontovich surface impedance: Senior, T. B. A., and Volakis, J. L. (1995), Approximate Boundary
-Conditions in Electromagnetics, IEE, chapter 2.
+Conditions in Electromagnetics, IEE.
 """
 
 from __future__ import annotations

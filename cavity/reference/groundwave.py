@@ -30,7 +30,7 @@ atmosphere, Part II, Proc. IRE 25(9), 1203-1236.
 Wait, J. R. (1998), The ancient and modern history of EM ground-wave propagation, IEEE Antennas
 Propag. Mag. 40(5), 7-24.
 Sommerfeld integral for a vertical dipole over an impedance plane: Wait, J. R. (1970),
-Electromagnetic Waves in Stratified Media, 2nd ed., Pergamon, chapter 2.
+Electromagnetic Waves in Stratified Media, 2nd ed., Pergamon.
 """
 
 from __future__ import annotations

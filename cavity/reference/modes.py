@@ -38,7 +38,7 @@ orthogonality and excitation in stratified guides).
 Cullum, J. K., and Willoughby, R. A. (1996), A QL procedure for computing the eigenvalues of complex
 symmetric tridiagonal matrices, SIAM J. Matrix Anal. Appl. 17(1), 83-109.
 Richter, J. H. (1966), Application of conformal mapping to earth-flattening procedures in radio
-propagation problems, Radio Science 1(12), 1435-1438 (earth flattening).
+propagation problems, Radio Science 1(12) (earth flattening).
 Chew, W. C., and Weedon, W. H. (1994), A 3D perfectly matched medium from modified Maxwell's
 equations with stretched coordinates, Microwave Opt. Technol. Lett. 7(13), 599-604 (absorber).
 """
@@ -245,6 +245,8 @@ def tridiagonal_eigen(diagonal, offdiagonal, method: str = "ql"):
     eigenvalues : ndarray, complex, (n,)
     first_row : ndarray, complex, (n,)
         Q[0, m] with the eigenvector columns normalised by w^T w = 1 (non-conjugate).
+    method : str
+        The method that produced the result.
     """
     d = np.array(diagonal, dtype=complex)
     off = np.asarray(offdiagonal, dtype=complex)
@@ -263,7 +265,7 @@ def tridiagonal_eigen(diagonal, offdiagonal, method: str = "ql"):
             norm = abs(np.sum(q0 * q0) - 1.0)
             t00 = abs(np.sum(d * q0 * q0) - diagonal[0]) / max(np.abs(diagonal).max(), np.abs(off).max(initial=0.0))
             if norm < _QL_CHECK and t00 < _QL_CHECK and np.all(np.isfinite(d)):
-                return d, q0
+                return d, q0, "ql"
         method = "lapack"
     if method == "lapack":
         t = np.diag(np.asarray(diagonal, dtype=complex)) + np.diag(off, 1) + np.diag(off, -1)
@@ -271,7 +273,7 @@ def tridiagonal_eigen(diagonal, offdiagonal, method: str = "ql"):
         norms = np.sqrt(np.sum(vec * vec, axis=0))
         if np.any(np.abs(norms) < 1e-12):
             raise SolverError("mode solver: a self-orthogonal eigenvector (w^T w = 0); the mode sum is undefined")
-        return lam, vec[0] / norms
+        return lam, vec[0] / norms, "lapack"
     raise ScenarioError(f"method = {method!r} is not known; allowed: 'ql', 'lapack'")
 
 
@@ -294,9 +296,11 @@ class ModeSet:
         Ground-to-ground excitation Lambda_m = U_m(0)^2 / (eps(0)^2 N_m) (1/m), so that
         Ez(r, 0) = -(p / (4 omega eps0)) sum_m Lambda_m k_m^2 H0^(2)(k_m r).
     functions : ndarray, complex (n_functions, levels)
-        Height functions U_m(z) (Hphi of the mode) of the first ``n_functions`` modes, normalised by
-        the discrete form sum_i b_i U_m(z_i)^2 = 1 (b_i = cell length / eps). Ez of a mode is
-        proportional to U_m / eps.
+        Height functions U_m(z) (Hphi of the mode) of the first ``n_functions`` modes, normalised
+        so that Int U_m^2 / eps dz = 1 (trapezoid rule, end-corrected for refined modes), with
+        Re U_m(0) >= 0. Ez of a mode is proportional to U_m / eps.
+    method : str
+        Eigensolver actually used ("ql", or "lapack" when the QL fell back or was asked for).
     permittivity : ndarray, complex (levels,)
     surface_impedance_ohm : complex
     """
@@ -489,7 +493,7 @@ def solve_modes(
     scale = 1.0 / np.sqrt(b_diag)  # any consistent branch keeps T symmetric
     t_diag = a_diag * scale * scale
     t_off = a_off * scale[:-1] * scale[1:]
-    lam, q0 = tridiagonal_eigen(t_diag, t_off, method=method)
+    lam, q0, used = tridiagonal_eigen(t_diag, t_off, method=method)
     excitation = q0 * q0 / (b_diag[0] * eps[0] ** 2)
     order = _attenuation_order(_outgoing(lam), k0)
     lam, excitation = lam[order], excitation[order]
@@ -512,12 +516,11 @@ def solve_modes(
             norm = _mode_norm(u, b_diag, eps, steps, stretch, omega, zs)
             excitation[m] = u[0] * u[0] / (norm * eps[0] ** 2)
             if m < n_keep:
-                functions[m] = u / np.sqrt(norm)
+                u = u / np.sqrt(norm)
+                functions[m] = -u if u[0].real < 0 else u
     k = _outgoing(lam)
     order = _attenuation_order(k, k0)
     k, excitation = k[order], excitation[order]
-    rank = np.empty_like(order)
-    rank[order] = np.arange(order.size)
     kept = {}
     for m in range(n_keep):
         old = order[m]
@@ -534,7 +537,7 @@ def solve_modes(
         functions=table,
         permittivity=eps,
         surface_impedance_ohm=zs,
-        method=method,
+        method=used,
     )
 
 
