@@ -1,14 +1,66 @@
-"""Shared pieces of the commands: error translation, progress bars, output paths."""
+"""Shared pieces of the commands: error translation, signals, output paths, progress bars.
+
+Every command's callback is wrapped in :func:`friendly_errors`, which is where a failure becomes ONE
+line on stderr and a non-zero exit code:
+
+============================================  =========  ==========================================
+what happened                                 exit code  message
+============================================  =========  ==========================================
+the library refused an input or a run         1          the library's one-line message
+(CavityError, ProfileError)
+a file could not be read or written (OSError)  1          the system's reason and the file name
+out of memory (MemoryError)                   1          a hint to use a coarser cell
+Ctrl-C (SIGINT)                               130        "interrupted by SIGINT (Ctrl-C) ..."
+SIGTERM (kill, a batch system's time limit)   143        "interrupted by SIGTERM ..."
+a bug (any other exception)                   1          "internal error (Type: text) ..."; the full
+                                                         traceback with CAVITY_TRACEBACK=1
+============================================  =========  ==========================================
+
+Results are written under a temporary name and renamed (:func:`cavity.results.write_result`), so an
+interrupted command leaves either the complete new file or the old one, never a part of either.
+While the command unwinds after the first signal, further SIGINT/SIGTERM are held back so that the
+clean-up (removing the temporary file) is not itself interrupted; a third one ends the process at
+once.
+"""
 
 from __future__ import annotations
 
+import contextlib
 import functools
+import os
+import signal
 import sys
+import threading
+from pathlib import Path
 
 import click
 
 from cavity.errors import CavityError
 from profiles.errors import ProfileError
+
+#: Exit codes after a signal, the shell's convention 128 + signal number.
+EXIT_SIGINT = 128 + int(signal.SIGINT)  # 130
+EXIT_SIGTERM = 128 + int(signal.SIGTERM)  # 143
+
+#: Set this environment variable to 1 to see the traceback of an internal error.
+TRACEBACK_VARIABLE = "CAVITY_TRACEBACK"
+
+#: Help text of every command's ``--overwrite`` flag (the wording the tests look for).
+OVERWRITE_HELP = "Replace an existing output file; without it an existing file is refused and left untouched."
+
+_SIGNAL_TEXT = {int(signal.SIGINT): "SIGINT (Ctrl-C)", int(signal.SIGTERM): "SIGTERM"}
+
+
+class Interrupted(KeyboardInterrupt):
+    """Raised in the main thread by SIGINT or SIGTERM while a command runs.
+
+    A subclass of KeyboardInterrupt, so library code that catches ``Exception`` lets it through and
+    ``finally`` blocks (temporary-file removal) run on the way out.
+    """
+
+    def __init__(self, signum: int):
+        super().__init__(f"interrupted by {_SIGNAL_TEXT.get(signum, f'signal {signum}')}")
+        self.signum = signum
 
 
 def one_line(exc: BaseException) -> str:
@@ -17,28 +69,115 @@ def one_line(exc: BaseException) -> str:
     return text.splitlines()[0]
 
 
+@contextlib.contextmanager
+def _signals_as_exceptions():
+    """Turn SIGTERM (and SIGINT, unless the caller ignores it) into :class:`Interrupted` meanwhile.
+
+    Handlers can only be installed from the main thread; elsewhere (a command called from a worker
+    thread) this does nothing. The previous handlers come back on exit.
+    """
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    received: list[int] = []
+
+    def handler(signum, frame):
+        received.append(signum)
+        if len(received) == 1:
+            raise Interrupted(signum)
+        if len(received) >= 3:  # the user insists: stop without further clean-up
+            os._exit(128 + received[0])
+        # the second signal arrives while unwinding: let the clean-up finish
+
+    previous = {}
+    for sig in (signal.SIGINT, signal.SIGTERM):
+        current = signal.getsignal(sig)
+        if current is signal.SIG_IGN:  # e.g. SIGINT under nohup or '&': respect it
+            continue
+        previous[sig] = current
+        signal.signal(sig, handler)
+    try:
+        yield
+    finally:
+        for sig, old in previous.items():
+            signal.signal(sig, old if old is not None else signal.SIG_DFL)
+
+
 def friendly_errors(func):
-    """Turn the library's typed errors (and Ctrl-C) into one-line messages with exit code 1."""
+    """Run a command's callback; turn failures into one line on stderr and a non-zero exit code.
+
+    The table in this module's docstring lists the cases. ``click`` exceptions (usage errors,
+    ``ClickException`` raised by the command itself) pass through unchanged.
+    """
 
     @functools.wraps(func)
     def wrapper(*args, **kwargs):
         try:
-            return func(*args, **kwargs)
+            with _signals_as_exceptions():
+                return func(*args, **kwargs)
+        except (click.exceptions.ClickException, click.exceptions.Exit, click.exceptions.Abort):
+            raise
         except (CavityError, ProfileError) as exc:
             raise click.ClickException(one_line(exc)) from None
-        except KeyboardInterrupt:
-            click.echo("Error: interrupted; no result file was written", err=True)
-            sys.exit(130)
+        except KeyboardInterrupt as exc:
+            signum = getattr(exc, "signum", int(signal.SIGINT))
+            what = _SIGNAL_TEXT.get(signum, f"signal {signum}")
+            click.echo(
+                f"Error: interrupted by {what}; the command did not finish "
+                "(files are written whole or not at all: nothing partial was left)",
+                err=True,
+            )
+            sys.exit(128 + signum)
+        except MemoryError:
+            raise click.ClickException(
+                "out of memory; use a coarser solver.cell_m or a shorter solver.max_range_km "
+                "(cavity inspect shows the memory a run needs)"
+            ) from None
         except OSError as exc:
             where = f" ({exc.filename})" if getattr(exc, "filename", None) else ""
             raise click.ClickException(f"{exc.strerror or one_line(exc)}{where}") from None
+        except Exception as exc:  # a bug: one line for the user, the traceback on request
+            if os.environ.get(TRACEBACK_VARIABLE, "") not in ("", "0"):
+                raise
+            raise click.ClickException(
+                f"internal error ({exc.__class__.__name__}: {one_line(exc)}); please report it with "
+                f"the command and scenario (set {TRACEBACK_VARIABLE}=1 to see the traceback)"
+            ) from None
 
     return wrapper
 
 
+def check_output_file(path, overwrite: bool, *, what: str = "output file") -> Path:
+    """Refuse an output path BEFORE the work that fills it starts; return it as a Path.
+
+    Raises ``click.ClickException`` (one line) when ``path`` is a folder, exists and ``overwrite`` is
+    false, its folder does not exist, or its folder is not writable (tested by creating and removing
+    a temporary file there, which also catches read-only file systems and root-owned folders).
+    """
+    target = Path(os.fspath(path)).expanduser()
+    folder = target.parent
+    if target.is_dir():
+        raise click.ClickException(f"{what} {target} is a folder; give a file name such as {target / 'result.nc'}")
+    if target.exists() and not overwrite:
+        raise click.ClickException(f"{what} {target} already exists; use --overwrite to replace it")
+    if not folder.exists():
+        raise click.ClickException(f"cannot write {what} {target}: folder {folder} does not exist")
+    if not folder.is_dir():
+        raise click.ClickException(f"cannot write {what} {target}: {folder} is a file, not a folder")
+    import tempfile
+
+    try:
+        with tempfile.NamedTemporaryFile(dir=folder, prefix=f".{target.name}.", suffix=".probe"):
+            pass
+    except OSError as exc:
+        raise click.ClickException(
+            f"cannot write {what} {target}: folder {folder} is not writable ({exc.strerror or one_line(exc)})"
+        ) from None
+    return target
+
+
 def progress_callback(quiet: bool, label: str):
     """A context manager yielding ``update(fraction, text)`` that drives a click progress bar on stderr."""
-    import contextlib
 
     @contextlib.contextmanager
     def manager():
