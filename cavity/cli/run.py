@@ -7,7 +7,7 @@ import sys
 
 import click
 
-from cavity.cli.common import friendly_errors, progress_callback
+from cavity.cli.common import check_output_file, friendly_errors, progress_callback
 
 
 @click.command("run")
@@ -30,11 +30,7 @@ def command(scenario, output, overwrite, quiet):
     from cavity.results import write_result
 
     sc = cavity.load_scenario(scenario)
-    from pathlib import Path
-
-    target = Path(output)
-    if target.exists() and not overwrite:
-        raise click.ClickException(f"{target} exists; use --overwrite to replace it")
+    target = check_output_file(output, overwrite, what="result file")  # refused before the run, not after
     if not quiet:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
