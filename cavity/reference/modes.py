@@ -442,18 +442,23 @@ def solve_modes(
     n_functions: int = 10,
     absorber_thickness_m: float = 0.0,
     absorber_strength: float = 4.0,
-    refine: bool = True,
+    refine: bool = False,
     refine_beyond_m: float = 5e3,
     method: str = "ql",
 ) -> ModeSet:
     """All discrete TM modes of a stratified guide between a Leontovich ground and a top wall.
 
-    The full spectrum comes from the lumped-mass scheme (second order in the cell). With ``refine``
+    The full spectrum comes from the lumped-mass scheme, second order in the cell: the complex field
+    error quarters when the cell is halved (measured between perfect plates). With ``refine``
     each mode whose eigenvector is well resolved is then moved to the eigenpair of the
     averaged-mass pencil (fourth order in a homogeneous layer) by Rayleigh-quotient iteration; a
     mode is refined only if its eigenvalue moves by less than a fifth of the distance to its nearest
-    neighbour, so the iteration cannot jump to another mode. The refinement matters for modes near
-    cutoff, whose wavenumbers are the most sensitive to the discretisation.
+    neighbour, so the iteration cannot jump to another mode. Refinement is for lossless guides with
+    a mode near cutoff, whose real wavenumber is very sensitive to the cell and whose phase error
+    grows with range unchecked (20 kHz between plates 70 km apart: 0.9 dB error at 50 m cells
+    without it, 0.0003 dB at 100 m with it). Leave it off otherwise: with a stratified lossy
+    profile it brings nothing (both converge to < 0.01 dB by day at 100 m), and with the absorber it
+    spoils the sampled radiation continuum, which the lumped modes represent consistently.
 
     Parameters
     ----------
@@ -474,7 +479,7 @@ def solve_modes(
         wall, s(z) = 1 - j S x^2 over its thickness; 0 thickness means none. With it the guide is
         open upward (the discrete modes then sample the radiation continuum).
     refine : bool
-        Rayleigh-quotient refinement on the averaged-mass pencil (see above).
+        Rayleigh-quotient refinement on the averaged-mass pencil (see above; off by default).
     refine_beyond_m : float
         Only modes still above exp(-30) of their size at this range (m) are refined; the others
         matter only closer to the source, where the lumped values serve.
