@@ -239,7 +239,8 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     Parameters
     ----------
     source : str or os.PathLike
-        A path to a ``.toml`` file, or TOML text (a string containing a newline or ``=``).
+        A path to a ``.toml`` file, or TOML text (a string containing a newline, or an ``=`` while
+        naming neither a ``.toml`` file nor an existing file: ``h=74.toml`` is a path).
 
     Returns
     -------
@@ -252,7 +253,8 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     ScenarioError
         One line naming the file, the key path, the value and the allowed range.
     """
-    is_text = isinstance(source, str) and ("\n" in source or "=" in source)
+    is_text = isinstance(source, str) and ("\n" in source or (
+        "=" in source and not source.rstrip().lower().endswith(".toml") and not os.path.isfile(os.path.expanduser(source))))
     if is_text:
         text, path, label, base = source, None, None, Path.cwd()
     else:
@@ -274,7 +276,7 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     try:
         try:
             document = tomllib.loads(text)
-        except tomllib.TOMLDecodeError as exc:
+        except ValueError as exc:  # TOMLDecodeError, or an integer of more than 4300 digits
             raise ScenarioError(f"invalid TOML: {str(exc).splitlines()[0]}") from None
         scenario = _parse_document(document, base)
     except ScenarioError as exc:
@@ -415,7 +417,7 @@ class _Table:
             raise self.fail(label, value, f"must be {kind} ({allowed})")
         if not isinstance(value, (int, float)):
             raise self.fail(label, value, f"must be {kind} ({allowed})")
-        if not math.isfinite(value):
+        if isinstance(value, float) and not math.isfinite(value):  # ints are finite (and may exceed float)
             raise self.fail(label, value, f"must be a finite number ({allowed})")
         too_low = value <= low if low_open else value < low
         too_high = value >= high if high_open else value > high
