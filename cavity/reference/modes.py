@@ -28,7 +28,9 @@ generalised problem A u = kappa^2 B u becomes the complex-symmetric tridiagonal 
 whose full spectrum is found by the implicit QL algorithm with complex-orthogonal rotations
 (Cullum and Willoughby 1996), accumulating only the first row of the eigenvector matrix (the
 ground-level mode amplitudes, normalised with w^T w = 1 as the orthogonality requires). LAPACK
-(dense, O(n^3)) is the fallback and the check.
+(dense, O(n^3)) is the fallback and the check. The scheme is second order in the cell; an optional
+Rayleigh-quotient refinement on the averaged (Numerov-weighted) mass makes lossless modes near
+cutoff fourth order (see :func:`solve_modes`).
 
 References
 ----------
