@@ -258,9 +258,10 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     if is_text:
         text, path, label, base = source, None, None, Path.cwd()
     else:
-        file = Path(os.fspath(source)).expanduser()
+        file = Path(os.fspath(source))
         label = file.name or str(file)
         try:
+            file = file.expanduser()
             raw = file.read_bytes()
         except FileNotFoundError:
             raise ScenarioError(f"scenario file {str(file)!r} not found") from None
@@ -268,6 +269,8 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
             raise ScenarioError(f"{str(file)!r} is a folder, not a scenario file") from None
         except OSError as exc:
             raise ScenarioError(f"cannot read scenario file {str(file)!r}: {exc.strerror or exc}") from None
+        except (ValueError, RuntimeError) as exc:  # a NUL character; ~user of an unknown user
+            raise ScenarioError(f"scenario file name {str(file)!r} is not usable ({exc})") from None
         try:
             text = raw.decode("utf-8-sig")
         except UnicodeDecodeError as exc:
@@ -548,7 +551,10 @@ def _parse_ionosphere(t: _Table, base: Path) -> Ionosphere:
         return Ionosphere("ceiling", ceiling_m=ceiling * 1e3)
     if form == "file":
         name = t.string("profile_file", required=True)
-        resolved = (base / Path(name).expanduser()).resolve()
+        try:
+            resolved = (base / Path(name).expanduser()).resolve()
+        except (ValueError, RuntimeError, OSError) as exc:  # NUL, ~unknown-user, name too long
+            raise t.fail("profile_file", name, f"is not a usable file name ({exc})") from None
         if not resolved.is_file():
             raise t.fail("profile_file", name, f"is not an existing file (looked for {resolved})")
         return Ionosphere("file", profile_path=str(resolved))
