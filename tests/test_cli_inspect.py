@@ -11,7 +11,9 @@ from click.testing import CliRunner
 from pyproj import Geod
 
 from cavity.cli import main
-from cavity.fdtd.grid import plan_grid
+from cavity.paths import build_paths
+from cavity.scenario import load_scenario
+from cavity.simulate import plan_path
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 
@@ -41,20 +43,24 @@ def test_bundled_example_prints_receivers_and_grid():
     assert result.stderr == ""
 
 
-def test_uniform_grid_matches_plan_grid():
+def test_uniform_grid_is_the_engines_plan():
     result = run(EXAMPLES / "uniform_day.toml")
     assert result.exit_code == 0, result.output
     row = next(line for line in result.stdout.splitlines() if line.strip().startswith("uniform "))
     cells = row.split()
-    # max range 3200 km (solver.max_range_km), top 120 km, 19.6 kHz, day preset beta 0.335 /km
-    plan = plan_grid(3200e3, 19.6e3, 120e3, duration_s=3200e3 / (0.9 * 299_792_458.0) + 2e-3,
-                     beta_max_per_m=0.335e-3)
-    assert cells[1] == "3200"
+    scenario = load_scenario(EXAMPLES / "uniform_day.toml")
+    (path,) = build_paths(scenario)
+    plan = plan_path(scenario, path).grid
+    assert cells[1] == "3200"  # solver.max_range_km
     assert cells[2] == f"{plan.dr_m:.0f}" and cells[3] == f"{plan.dz_m:.0f}"
+    assert cells[4] == f"{plan.dt_s * 1e6:.3f}"
     assert cells[5:8] == [str(plan.nr), "x", str(plan.nz)]
     assert cells[9] == f"{plan.n_steps:,}"
     # 20 cells per wavelength at 19.6 kHz: dr = c / f / 20 = 764.8 m (common practice)
     assert cells[2] == "765"
+    # Courant: dt must stay below the 2-D Cartesian limit dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and
+    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (physics notes, section 2)
+    assert plan.dt_s < plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
     assert "Marker 3000" in result.stdout and "by range" in result.stdout
 
 

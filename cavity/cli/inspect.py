@@ -6,12 +6,6 @@ import click
 
 from cavity.cli.common import friendly_errors
 
-#: Simulated time used for the plan until the engine publishes its own estimate: the signal must
-#: cross the farthest range at about the guide's group velocity (taken as 0.9 c), then settle.
-DURATION_SPEED_FRACTION = 0.9
-DURATION_SETTLE_S = 2e-3
-
-
 def _latlon(lat: float, lon: float) -> str:
     lon = (lon + 180.0) % 360.0 - 180.0
     return f"{abs(lat):.3f} {'N' if lat >= 0 else 'S'}, {abs(lon):.3f} {'E' if lon >= 0 else 'W'}"
@@ -42,16 +36,16 @@ def _runs(labels, range_m) -> str:
     return text + (f" ({changes} changes)" if changes > 1 else "")
 
 
-def _ionosphere_lines(ion) -> tuple[list[str], float | None]:
-    """Description of the ionosphere and the largest beta (1/m) the grid must resolve (None if unknown)."""
+def _ionosphere_lines(ion) -> list[str]:
+    """Description of the ionosphere form and its parameters."""
     from profiles.daynight import PRESETS
 
     if ion.form == "exponential":
-        return [f"exponential (Wait-Spies): h' = {ion.hprime_km:g} km, beta = {ion.beta_per_km:g} per km"], ion.beta_per_km / 1e3
+        return [f"exponential (Wait-Spies): h' = {ion.hprime_km:g} km, beta = {ion.beta_per_km:g} per km"]
     if ion.form == "preset":
         p = PRESETS[ion.preset]
         return [f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
-                f"reference: {p.reference}"], p.beta_per_km / 1e3
+                f"reference: {p.reference}"]
     if ion.form == "utc":
         day, night = PRESETS[ion.day_preset], PRESETS[ion.night_preset]
         return [
@@ -59,12 +53,12 @@ def _ionosphere_lines(ion) -> tuple[list[str], float | None]:
             f"day   {ion.day_preset!r}: h' = {day.hprime_km:g} km, beta = {day.beta_per_km:g} per km",
             f"night {ion.night_preset!r}: h' = {night.hprime_km:g} km, beta = {night.beta_per_km:g} per km",
             "day for solar zenith <= 90 deg, night for >= 99 deg, linear between (common practice)",
-        ], max(day.beta_per_km, night.beta_per_km) / 1e3
+        ]
     if ion.form == "ceiling":
-        return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"], None
+        return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"]
     if ion.form == "file":
-        return [f"profile file {ion.profile_path}"], None
-    return ["none: free space above the ground (verification)"], None
+        return [f"profile file {ion.profile_path}"]
+    return ["none: free space above the ground (verification)"]
 
 
 def _ground_line(ground) -> str:
@@ -82,10 +76,10 @@ def _ground_line(ground) -> str:
 
 def describe(scenario) -> list[str]:
     """Lines that say what a run of ``scenario`` would compute and how big its grid is."""
-    from cavity.constants import C0
     from cavity.errors import ResourceError
-    from cavity.fdtd.grid import check_memory, plan_grid
+    from cavity.fdtd.grid import check_memory
     from cavity.paths import build_paths, direction_dependent
+    from cavity.simulate import plan_path
 
     s = scenario
     tx = s.transmitter
@@ -104,7 +98,7 @@ def describe(scenario) -> list[str]:
         rows.append([rx.name, f"{geo.range_m / 1e3:.1f}", bearing, position])
     lines += _table(["name", "range_km", "bearing_deg", "position"], rows)
 
-    ion_lines, beta_max_per_m = _ionosphere_lines(s.ionosphere)
+    ion_lines = _ionosphere_lines(s.ionosphere)
     lines.append(f"Ionosphere   {ion_lines[0]}")
     lines += [f"             {line}" for line in ion_lines[1:]]
     lines.append(f"Ground       {_ground_line(s.ground)}")
@@ -123,15 +117,12 @@ def describe(scenario) -> list[str]:
     sv = s.solver
     ceiling = s.ionosphere.form == "ceiling"
     top_m = s.planned_top_m()
-    rows, plans = [], []
+    rows, plans, windows = [], [], []
     for path in paths:
-        duration_s = path.max_range_m / (DURATION_SPEED_FRACTION * C0) + DURATION_SETTLE_S
-        plan = plan_grid(
-            path.max_range_m, max(tx.frequencies_hz), top_m, duration_s=duration_s, dr_m=sv.cell_m, dz_m=sv.cell_m,
-            beta_max_per_m=beta_max_per_m, ceiling=ceiling, pml_cells=sv.pml_cells,
-            cells_per_wavelength=sv.cells_per_wavelength,
-        )
+        run_plan = plan_path(s, path)  # the engine's own plan: grid, time step, simulated time
+        plan = run_plan.grid
         plans.append(plan)
+        windows.append((run_plan.t_min_s, run_plan.t_max_s))
         rows.append([
             path.label, f"{path.max_range_m / 1e3:.0f}", f"{plan.dr_m:.0f}", f"{plan.dz_m:.0f}",
             f"{plan.dt_s * 1e6:.3f}", f"{plan.nr} x {plan.nz}", f"{plan.cells / 1e6:.2f}",
@@ -144,8 +135,10 @@ def describe(scenario) -> list[str]:
                  f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}")
     lines += _table(["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows)
     updates = sum(p.cell_updates for p in plans)
-    lines.append(f"  total {updates:.3g} cell updates (time steps planned for the farthest range at "
-                 f"{DURATION_SPEED_FRACTION:g} c plus {DURATION_SETTLE_S * 1e3:g} ms; the engine may stop earlier once converged)")
+    t_min = max(w[0] for w in windows)
+    t_max = max(w[1] for w in windows)
+    lines.append(f"  total {updates:.3g} cell updates; each solve simulates at least {t_min * 1e3:.1f} ms "
+                 f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged")
     biggest = max(plans, key=lambda p: p.memory_bytes)
     try:
         check_memory(biggest)
