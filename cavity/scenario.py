@@ -332,6 +332,8 @@ class _Table:
         self.prefix = prefix
 
     def key(self, name: str) -> str:
+        if not name or not name.isprintable() or any(c.isspace() or c in '."' for c in name):
+            name = _show(name)  # quoted like a TOML key, control characters escaped: one line
         return f"{self.prefix}.{name}" if self.prefix else name
 
     def has(self, name: str) -> bool:
