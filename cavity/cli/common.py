@@ -66,7 +66,7 @@ class Interrupted(KeyboardInterrupt):
 def one_line(exc: BaseException) -> str:
     """The first line of an exception's message (messages are one line by design)."""
     text = str(exc).strip() or exc.__class__.__name__
-    return text.splitlines()[0]
+    return text.replace("\r", "\n").split("\n")[0]  # not splitlines(): U+2028 in a name is no line end
 
 
 @contextlib.contextmanager
