@@ -28,6 +28,7 @@ def command(scenario, output, overwrite, quiet):
     """
     import cavity
     from cavity.results import write_result
+    from cavity.simulate import simulate  # not cavity.simulate(): importing the module rebinds that name
 
     sc = cavity.load_scenario(scenario)
     target = check_output_file(output, overwrite, what="result file")  # refused before the run, not after
@@ -38,7 +39,7 @@ def command(scenario, output, overwrite, quiet):
         logger.addHandler(handler)
         logger.setLevel(logging.INFO)
     with progress_callback(quiet, "solving") as update:
-        ds = cavity.simulate(sc, progress=update)
+        ds = simulate(sc, progress=update)
     path = write_result(ds, target, overwrite=overwrite)
     if ds.attrs.get("solver_converged") == "no":
         click.echo(f"warning: {ds.attrs.get('solver_notes', 'the run did not converge')}", err=True)
