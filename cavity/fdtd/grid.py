@@ -171,9 +171,9 @@ def check_memory(plan: GridPlan, available_bytes: int | None = None) -> None:
         return
     scale = math.sqrt(need / (0.8 * available_bytes))
     raise ResourceError(
-        f"grid of {plan.nr} x {plan.nz} cells needs about {need / 1e9:.1f} GB but "
-        f"{available_bytes / 1e9:.1f} GB is available; use cell_m >= "
-        f"{math.ceil(max(plan.dr_m, plan.dz_m) * scale)} or a shorter max_range_km"
+        f"grid of {plan.nr} x {plan.nz} cells of {plan.dr_m:g} m x {plan.dz_m:g} m needs about {need / 1e9:.1f} GB "
+        f"but {available_bytes / 1e9:.1f} GB is available; use solver.cell_m >= "
+        f"{math.ceil(max(plan.dr_m, plan.dz_m) * scale)} or a shorter solver.max_range_km"
     )
 
 
