@@ -20,6 +20,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "inspect": ("inspect", "Show what a run of a scenario would do, without running it."),
     "run": ("run", "Solve a scenario and write its netCDF result file."),
     "map": ("map", "Draw the transmitter, receivers and paths on a map, with day/night shading."),
+    "sweep": ("sweep", "Solve a scenario over UTC instants and frequencies on dask workers."),
 }
 
 

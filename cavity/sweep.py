@@ -1,0 +1,781 @@
+"""Sweeps: many variants of one scenario (UTC instants, frequencies) solved on dask.distributed workers.
+
+A sweep is a grid of *points*, every combination of a UTC instant and a frequency. Each point is the
+scenario with ``ionosphere.utc`` set to the instant (form "utc" only) and the transmitter's frequency
+list replaced by the one frequency; it is an ordinary scenario, solved by :func:`cavity.simulate` on a
+worker (a pure function of the scenario: the worker returns the small result dataset, the driver is
+the only writer). The results are combined along a ``time`` dimension (and ``frequency``) into one
+dataset that keeps the result-file contract of the design conventions, with ``time`` a CF time
+coordinate (seconds since 1970-01-01 UTC, standard calendar, when written).
+
+Resuming: each finished point is written atomically as its own small result file into a parts
+folder (by default ``OUT.nc.parts/`` beside the combined file). A part is reused when its embedded
+scenario text and tool version equal those of the point, so a killed sweep run again computes only
+what is missing, and a sweep extended to more instants or frequencies reuses what it has.
+
+Failures: a point whose solve raises is retried once (dask ``retries=1``; a worker that dies is
+replaced and its point rescheduled by dask itself), then reported by name with its error while the
+other points go on. If any point still failed, no combined dataset is made
+(:class:`SweepError`, listing them; the finished points stay in the parts folder and a rerun retries
+only the failed ones) unless ``allow_missing`` is true, which fills the failed points with NaN and
+names them in the ``sweep_missing_points`` attribute.
+
+Workers: without a scheduler a :class:`distributed.LocalCluster` of process workers is sized to the
+machine (workers x numba threads <= cores, and as many solves as fit in memory), with the dashboard
+off; with an address (``tcp://host:port``) or a :class:`distributed.Client` an existing cluster is
+used (its workers need this package installed). The numba kernels are compiled into their on-disk
+cache by a tiny solve in the driver before the fan-out, because numba's cache is not safe when many
+processes compile at once.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import logging
+import math
+import os
+import sys
+import time as _time
+import types
+import uuid
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass
+from datetime import date, datetime, timedelta, timezone
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from cavity import __version__
+from cavity.errors import CavityError, ScenarioError
+
+if TYPE_CHECKING:  # pragma: no cover
+    import xarray as xr
+
+    from cavity.scenario import Scenario
+
+log = logging.getLogger(__name__)
+
+#: Most points one sweep may hold (a guard against a mistyped step such as 1s over a day).
+MAX_POINTS = 10_000
+#: CF encoding of the ``time`` coordinate in written files.
+TIME_UNITS = "seconds since 1970-01-01 00:00:00"
+TIME_CALENDAR = "standard"
+#: Automatic retries of a point whose solve raised (a dead worker is handled by dask separately).
+RETRIES = 1
+#: Suffix of the default parts folder beside the combined file.
+PARTS_SUFFIX = ".parts"
+#: How long to wait for an existing scheduler to answer.
+CONNECT_TIMEOUT_S = 20
+
+#: Variables along range that do not change with the UTC instant (the ground under each path).
+_TIME_INVARIANT = ("ground_conductivity", "ground_relative_permittivity")
+#: Diagnostics that a sweep does not combine (their time axis differs from point to point).
+_DROPPED = ("receiver_ez_time_series", "elapsed_time")
+
+
+class SweepError(CavityError):
+    """One or more points of a sweep failed after their retry; ``failures`` holds (name, message)."""
+
+    def __init__(self, message: str, failures: Sequence[tuple[str, str]] = ()):
+        super().__init__(message)
+        self.failures = list(failures)
+
+
+# --------------------------------------------------------------------------------------------------
+# Points
+# --------------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class SweepPoint:
+    """One point of a sweep: an instant (None when the sweep has no time axis) and one frequency."""
+
+    time_index: int
+    frequency_index: int
+    utc: datetime | None
+    frequency_hz: float
+
+    @property
+    def name(self) -> str:
+        """How the point is named to the user, e.g. ``2026-03-20T06:15:00Z 19.6 kHz``."""
+        f = f"{self.frequency_hz / 1e3:g} kHz"
+        return f"{_utc_text(self.utc)} {f}" if self.utc is not None else f
+
+    @property
+    def key(self) -> str:
+        """A file-name-safe identity of the point, e.g. ``t20260320T061500Z_f19.6kHz``."""
+        f = f"f{self.frequency_hz / 1e3:g}kHz"
+        return f"t{self.utc:%Y%m%dT%H%M%SZ}_{f}" if self.utc is not None else f
+
+
+def _utc_text(when: datetime) -> str:
+    return when.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def parse_utc(value, field: str = "start") -> datetime:
+    """An ISO 8601 instant with an offset (``2026-03-20T06:00Z``), or a date meaning 00:00 UTC.
+
+    Raises
+    ------
+    ScenarioError
+        Not a date and time, or a time without an offset (the tool never guesses a time zone).
+    """
+    if isinstance(value, datetime):
+        when = value
+    elif isinstance(value, date):
+        when = datetime(value.year, value.month, value.day, tzinfo=timezone.utc)
+    else:
+        text = str(value).strip()
+        try:
+            when = datetime.fromisoformat(text)
+        except ValueError:
+            raise ScenarioError(
+                f"{field} = {text!r} is not a date and time; write e.g. 2026-03-20T06:00Z (UTC)"
+            ) from None
+        if len(text) == 10:  # a date alone: midnight UTC
+            when = when.replace(tzinfo=timezone.utc)
+    if when.tzinfo is None or when.utcoffset() is None:
+        raise ScenarioError(f"{field} = {when.isoformat()!r} has no time zone; end it with Z (UTC), e.g. 2026-03-20T06:00Z")
+    return when.astimezone(timezone.utc)
+
+
+def parse_step(value) -> timedelta:
+    """A positive whole number of seconds from text such as ``15min``, ``1h``, ``90s`` or ``1h30min``."""
+    if isinstance(value, timedelta):
+        step = value
+    else:
+        import pandas as pd
+
+        text = str(value).strip()
+        try:
+            float(text)
+        except ValueError:
+            pass
+        else:
+            raise ScenarioError(f"step = {text!r} has no unit; write e.g. 15min, 1h or 90s")
+        try:
+            step = pd.Timedelta(text).to_pytimedelta()
+        except (ValueError, TypeError):
+            raise ScenarioError(f"step = {text!r} is not a duration; write e.g. 15min, 1h or 90s") from None
+    seconds = step.total_seconds()
+    if not (seconds >= 1.0 and float(seconds).is_integer()):
+        raise ScenarioError(f"step = {step} must be a whole number of seconds, at least 1 s")
+    return step
+
+
+def sweep_times(start, stop, step) -> list[datetime]:
+    """Instants from ``start`` to ``stop`` (included when it falls on the grid) every ``step``.
+
+    Parameters
+    ----------
+    start, stop : str, datetime.datetime or datetime.date
+        See :func:`parse_utc`.
+    step : str or datetime.timedelta
+        See :func:`parse_step`.
+    """
+    t0 = parse_utc(start, "start")
+    t1 = parse_utc(stop, "stop")
+    dt = parse_step(step)
+    if t1 < t0:
+        raise ScenarioError(f"stop = {_utc_text(t1)} is before start = {_utc_text(t0)}")
+    count = int((t1 - t0) // dt) + 1
+    if count > MAX_POINTS:
+        raise ScenarioError(f"step = {dt} from {_utc_text(t0)} to {_utc_text(t1)} gives {count} instants; the limit is {MAX_POINTS}")
+    return [t0 + k * dt for k in range(count)]
+
+
+def sweep_points(scenario: Scenario, times=None, frequencies_khz=None) -> tuple[list[datetime] | None, list[float], list[SweepPoint]]:
+    """The instants, frequencies (Hz) and points of a sweep, checked against the scenario.
+
+    ``times`` None keeps the scenario's own instant (a time axis of length 1) for ionosphere form
+    "utc" and gives no time axis otherwise; ``frequencies_khz`` None keeps the scenario's
+    frequencies. Every point becomes its own single-frequency solve.
+
+    Raises
+    ------
+    ScenarioError
+        Instants given for a scenario whose ionosphere does not depend on time, or a bad value.
+    """
+    form = scenario.ionosphere.form
+    if times is not None:
+        times = [parse_utc(t, "time") for t in times]
+        if not times:
+            raise ScenarioError("times: the sweep needs at least one instant")
+        if form != "utc":
+            raise ScenarioError(
+                f"ionosphere: form {form!r} does not change with time, so it cannot be swept over UTC; "
+                "use utc = ... in the scenario, or sweep over frequency only"
+            )
+        if len(set(times)) != len(times):
+            raise ScenarioError("times: an instant appears twice")
+        times = sorted(times)
+    elif form == "utc":
+        times = [scenario.ionosphere.utc]
+    if frequencies_khz is None:
+        freqs = sorted(scenario.transmitter.frequencies_hz)
+    else:
+        values = [frequencies_khz] if isinstance(frequencies_khz, (int, float)) else list(frequencies_khz)
+        if not values:
+            raise ScenarioError("frequency_khz: give at least one frequency")
+        freqs = []
+        for v in values:
+            if isinstance(v, bool) or not isinstance(v, (int, float, np.floating, np.integer)) or not math.isfinite(v):
+                raise ScenarioError(f"frequency_khz = {v!r} must be a number (kHz)")
+            freqs.append(float(v) * 1e3)
+        freqs = sorted(set(freqs))
+    slots = list(range(len(times))) if times is not None else [None]
+    points = [
+        SweepPoint(ti if ti is not None else 0, fi, None if ti is None else times[ti], f)
+        for ti in slots
+        for fi, f in enumerate(freqs)
+    ]
+    if len(points) > MAX_POINTS:
+        raise ScenarioError(f"the sweep has {len(points)} points; the limit is {MAX_POINTS}")
+    return times, freqs, points
+
+
+def point_scenario(scenario: Scenario, point: SweepPoint) -> Scenario:
+    """The scenario of one point: its instant (form "utc") and its one frequency, validated again.
+
+    Receiver time series are switched off: they are per-run diagnostics that a sweep does not keep.
+    """
+    changes = {
+        "transmitter": dataclasses.replace(scenario.transmitter, frequencies_hz=(float(point.frequency_hz),)),
+        "solver": dataclasses.replace(scenario.solver, receiver_time_series=False),
+    }
+    if point.utc is not None:
+        changes["ionosphere"] = dataclasses.replace(scenario.ionosphere, utc=point.utc)
+    return scenario.replace(**changes)
+
+
+# --------------------------------------------------------------------------------------------------
+# Work on the workers, and the numba cache
+# --------------------------------------------------------------------------------------------------
+
+
+def solve_point(scenario: Scenario) -> xr.Dataset:
+    """Solve one point (runs on a worker): the result dataset of :func:`cavity.simulate.simulate`."""
+    from cavity.simulate import simulate
+
+    return simulate(scenario)
+
+
+_WARM_UP_SCENARIO = """
+title = "numba cache warm-up"
+[transmitter]
+name = "warm-up"
+frequency_khz = 10.0
+radiated_power_kw = 1.0
+[[receiver]]
+name = "near"
+range_km = 30.0
+[ionosphere]
+preset = "day"
+[ground]
+kind = "sea"
+[solver]
+cell_m = 2500.0
+top_km = 100.0
+"""
+
+
+def warm_numba_cache() -> float:
+    """Compile (or load) every solver kernel once in this process by a tiny solve; returns seconds.
+
+    The kernels are compiled with ``cache=True``, so the worker processes started afterwards load
+    them from disk instead of compiling them all at the same moment into the same cache files.
+    """
+    import numba
+
+    from cavity.scenario import load_scenario
+    from cavity.simulate import simulate
+
+    t0 = _time.perf_counter()
+    threads = numba.get_num_threads()
+    numba.set_num_threads(1)  # a tiny grid: threads would only add overhead
+    try:
+        simulate(load_scenario(_WARM_UP_SCENARIO))
+    finally:
+        numba.set_num_threads(threads)
+    return _time.perf_counter() - t0
+
+
+def point_memory_bytes(scenario: Scenario) -> int:
+    """Estimated memory of one point's solve (the largest path of the scenario), bytes."""
+    from cavity.paths import build_paths
+    from cavity.simulate import plan_path
+
+    return max(int(plan_path(scenario, p).grid.memory_bytes) for p in build_paths(scenario))
+
+
+def machine_cores() -> int:
+    """Cores this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def local_cluster_size(n_points: int, memory_per_point: int | None = None, workers: int | None = None,
+                       cores: int | None = None, available_bytes: int | None = None) -> tuple[int, int]:
+    """(workers, numba threads per worker) for a local cluster.
+
+    One point at a time per worker process; as many workers as cores, points to solve and solves
+    that fit in 80 % of the available memory; the cores left over go to numba threads, so that
+    workers x threads <= cores. ``workers`` overrides the count (threads then = cores // workers,
+    at least 1).
+    """
+    cores = cores or machine_cores()
+    if workers is None:
+        n = min(cores, max(1, n_points))
+        if memory_per_point:
+            if available_bytes is None:
+                from cavity.fdtd.grid import available_memory_bytes
+
+                available_bytes = available_memory_bytes()
+            n = min(n, max(1, int(0.8 * available_bytes // memory_per_point)))
+    else:
+        if isinstance(workers, bool) or not isinstance(workers, int) or workers < 1:
+            raise ScenarioError(f"workers = {workers!r} must be a whole number >= 1")
+        n = workers
+        if n > cores:
+            log.warning("%d workers on %d cores: the solves will share the cores", n, cores)
+    return n, max(1, cores // n)
+
+
+# --------------------------------------------------------------------------------------------------
+# Parts folder
+# --------------------------------------------------------------------------------------------------
+
+
+def default_parts_dir(output) -> Path:
+    """The parts folder of a combined file: ``OUT.nc.parts`` beside it."""
+    out = Path(os.fspath(output)).expanduser()
+    return out.with_name(out.name + PARTS_SUFFIX)
+
+
+def _part_path(parts_dir: Path, point: SweepPoint) -> Path:
+    return parts_dir / f"{point.key}.nc"
+
+
+def _load_part(path: Path, variant: Scenario):
+    """A finished part that belongs to this point (same scenario text, same tool version), or None."""
+    from cavity.errors import ResultFileError
+    from cavity.results import open_result
+
+    if not path.is_file():
+        return None
+    try:
+        ds = open_result(path)
+    except ResultFileError as exc:
+        log.warning("ignoring unreadable part %s (%s)", path.name, exc)
+        return None
+    if ds.attrs.get("scenario") != variant.text or ds.attrs.get("source") != f"cavity {__version__}":
+        log.info("part %s belongs to another scenario or version; solving it again", path.name)
+        return None
+    return ds
+
+
+# --------------------------------------------------------------------------------------------------
+# The sweep
+# --------------------------------------------------------------------------------------------------
+
+
+def sweep(
+    scenario: Scenario,
+    times: Iterable | None = None,
+    frequencies_khz: Iterable[float] | float | None = None,
+    scheduler=None,
+    workers: int | None = None,
+    parts_dir=None,
+    progress: Callable[[float, str], None] | None = None,
+    *,
+    allow_missing: bool = False,
+) -> xr.Dataset:
+    """Solve every (instant, frequency) variant of a scenario on dask workers and combine them.
+
+    Parameters
+    ----------
+    scenario : cavity.scenario.Scenario
+        The base scenario. Instants need ionosphere form "utc".
+    times : iterable of datetime or str, optional
+        UTC instants (tz-aware datetimes or ISO 8601 text with an offset); see :func:`sweep_times`
+        for a regular grid. Default: the scenario's own instant (form "utc"), else no time axis.
+    frequencies_khz : float or iterable of float, optional
+        Frequencies, kHz; default the scenario's. Each is solved on its own.
+    scheduler : str or distributed.Client, optional
+        Address of an existing scheduler (``tcp://host:port``) or a connected client; default a
+        local cluster sized to this machine, shut down at the end.
+    workers : int, optional
+        Worker processes of the local cluster (ignored with ``scheduler``).
+    parts_dir : str or os.PathLike, optional
+        Folder that keeps one result file per finished point; points already there (same scenario
+        text and tool version) are reused, not solved again. Default: none (nothing kept).
+    progress : callable(fraction, text), optional
+        Called in the driver after each solved point, with the fraction of the points to solve.
+    allow_missing : bool
+        Combine even if some points failed, with NaN for them (named in ``sweep_missing_points``).
+
+    Returns
+    -------
+    xarray.Dataset
+        The result-file contract with a leading ``time`` dimension (datetime64, UTC) on every
+        field, receiver value and ionosphere variable (absent when the sweep has no instants),
+        and per-point solver records ``point_solver_*``. Write it with :func:`write_sweep`.
+
+    Raises
+    ------
+    ScenarioError
+        A bad instant, step or frequency, or instants for a scenario without form "utc".
+    SweepError
+        Points failed after their retry (each named with its error), or the scheduler cannot be
+        reached.
+    """
+    times, freqs, points = sweep_points(scenario, times, frequencies_khz)
+    variants = {p: point_scenario(scenario, p) for p in points}
+    results: dict[SweepPoint, object] = {}
+    folder = None
+    if parts_dir is not None:
+        folder = Path(os.fspath(parts_dir)).expanduser()
+        folder.mkdir(parents=True, exist_ok=True)
+        for p in points:
+            ds = _load_part(_part_path(folder, p), variants[p])
+            if ds is not None:
+                results[p] = ds
+    todo = [p for p in points if p not in results]
+    log.info(
+        "sweep: %d points (%s x %d frequencies); %d already solved%s, %d to solve",
+        len(points), f"{len(times)} instants" if times is not None else "no time axis", len(freqs),
+        len(results), f" in {folder}" if folder is not None else "", len(todo),
+    )
+    failures: dict[SweepPoint, str] = {}
+    if todo:
+        failures = _run(todo, variants, results, folder, scheduler, workers, progress)
+    if failures:
+        lines = [(p.name, failures[p]) for p in points if p in failures]
+        for name, message in lines:
+            log.error("point %s failed: %s", name, message)
+        if not allow_missing:
+            kept = f"; the {len(results)} finished points are kept in {folder}" if folder is not None and results else ""
+            first = f"{lines[0][0]}: {lines[0][1]}"
+            raise SweepError(
+                f"{len(lines)} of {len(points)} points failed (first: {first}){kept}; "
+                "run the sweep again to retry only the missing points",
+                lines,
+            )
+    if not results:
+        raise SweepError("no point of the sweep was solved", [(p.name, failures.get(p, "")) for p in points])
+    return combine(scenario, times, freqs, points, results, variants)
+
+
+def _run(todo, variants, results, folder, scheduler, workers, progress) -> dict:
+    """Fan the points out on a cluster, collect them as they finish; returns {point: error text}."""
+    from contextlib import ExitStack
+
+    from distributed import Client, LocalCluster, as_completed
+
+    failures: dict[SweepPoint, str] = {}
+    with ExitStack() as stack:
+        t_start = _time.perf_counter()
+        if scheduler is None:
+            need = None
+            try:
+                need = point_memory_bytes(variants[max(todo, key=lambda p: p.frequency_hz)])
+            except CavityError:
+                pass  # the solve itself will report the problem for each point
+            n, threads = local_cluster_size(len(todo), need, workers)
+            warm = warm_numba_cache()
+            log.info("numba kernels ready in %.1f s; starting %d local workers x %d numba threads", warm, n, threads)
+            cluster = stack.enter_context(
+                LocalCluster(
+                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                    # no dashboard; the scheduler's small HTTP service on a free loopback port
+                    scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+                    env={"NUMBA_NUM_THREADS": str(threads)}, silence_logs=logging.ERROR,
+                )
+            )
+            client = stack.enter_context(Client(cluster))
+        elif isinstance(scheduler, Client):
+            client = scheduler
+            warm_numba_cache()
+        else:
+            warm = warm_numba_cache()
+            log.info("numba kernels ready in %.1f s; connecting to %s", warm, scheduler)
+            try:
+                client = stack.enter_context(Client(str(scheduler), timeout=CONNECT_TIMEOUT_S))
+            except (OSError, TimeoutError, ValueError) as exc:
+                raise SweepError(f"scheduler = {str(scheduler)!r}: cannot connect ({_one_line(exc)})") from None
+        log.info("cluster ready in %.1f s", _time.perf_counter() - t_start)
+
+        tag = uuid.uuid4().hex[:8]
+        futures = {}
+        for p in todo:
+            fut = client.submit(solve_point, variants[p], key=f"cavity-sweep-{tag}-{p.key}", retries=RETRIES, pure=False)
+            futures[fut] = p
+        done = 0
+        try:
+            for fut in as_completed(list(futures)):
+                p = futures[fut]
+                done += 1
+                ds = None
+                try:
+                    ds = fut.result()
+                except Exception as exc:  # the solve raised twice, or its worker died too often
+                    failures[p] = _describe(exc)
+                if ds is not None:
+                    if folder is not None:
+                        from cavity.results import write_result
+
+                        write_result(ds, _part_path(folder, p), overwrite=True)
+                    results[p] = ds
+                text = f"{p.name} FAILED" if p in failures else f"{p.name} solved"
+                log.debug("%s (%d/%d)", text, done, len(todo))
+                if progress is not None:
+                    progress(done / len(todo), text)
+                fut.release()
+        except BaseException:
+            for fut in futures:
+                fut.cancel()
+            raise
+    return failures
+
+
+def _one_line(exc: BaseException) -> str:
+    text = str(exc).strip() or exc.__class__.__name__
+    return text.splitlines()[0]
+
+
+def _describe(exc: BaseException | None) -> str:
+    if exc is None:
+        return "unknown error"
+    return f"{exc.__class__.__name__}: {_one_line(exc)}"
+
+
+# --------------------------------------------------------------------------------------------------
+# Combining the points
+# --------------------------------------------------------------------------------------------------
+
+
+def _common_range(by_frequency: dict[int, np.ndarray]) -> tuple[np.ndarray, bool]:
+    """The range axis of the combined dataset and whether any frequency had another one.
+
+    Points at one frequency share their grid (the range cell follows the frequency and the
+    scenario, not the ionosphere). When frequencies differ in grid, the coarsest axis is kept.
+    """
+    axes = list(by_frequency.values())
+    first = axes[0]
+    if all(a.shape == first.shape and np.array_equal(a, first) for a in axes):
+        return first, False
+    spacing = [float(np.median(np.diff(a))) if a.size > 1 else 0.0 for a in axes]
+    return axes[int(np.argmax(spacing))], True
+
+
+def _on_range(ds, r: np.ndarray):
+    """``ds`` with its range-resolved variables on the range axis ``r``.
+
+    Sampled linearly in dB amplitude and in unwrapped phase (the tool's rule for fields between
+    grid points, as at receivers); NaN outside the point's own axis.
+    """
+    if ds.sizes["range"] == r.size and np.array_equal(ds["range"].values, r):
+        return ds
+    out = ds.interp(range=r, method="linear", kwargs={"fill_value": np.nan})
+    out["range"].attrs = ds["range"].attrs
+    return out
+
+
+def combine(scenario: Scenario, times, freqs, points, results: dict, variants: dict | None = None) -> xr.Dataset:
+    """Combine the points' result datasets into one sweep dataset (NaN for missing points).
+
+    Parameters
+    ----------
+    scenario : Scenario
+        The base scenario (title and ``scenario`` attribute).
+    times : list of datetime or None
+        The instants (None: no time axis).
+    freqs : list of float
+        Frequencies, Hz, increasing.
+    points : list of SweepPoint
+    results : dict SweepPoint -> xarray.Dataset
+        Each point's result dataset (one frequency).
+    variants : dict SweepPoint -> Scenario, optional
+        Unused except for the record of which instants and frequencies were run.
+    """
+    import xarray as xr
+
+    done = [p for p in points if p in results]
+    by_f: dict[int, np.ndarray] = {}
+    for p in done:
+        by_f.setdefault(p.frequency_index, results[p]["range"].values)
+    r, regridded = _common_range(by_f)
+    ref_f = next(fi for fi, a in by_f.items() if a.shape == r.shape and np.array_equal(a, r))
+    slot = {(p.time_index, p.frequency_index): _on_range(results[p].drop_vars(_DROPPED, errors="ignore"), r) for p in done}
+    template = next(slot[k] for k in sorted(slot, key=lambda k: (k[1] != ref_f, k)))
+
+    n_t = len(times) if times is not None else 1
+    freq_vars = [n for n, v in template.data_vars.items() if "frequency" in v.dims]
+    time_vars = [n for n, v in template.data_vars.items()
+                 if "frequency" not in v.dims and "range" in v.dims and n not in _TIME_INVARIANT]
+    fixed_vars = [n for n in template.data_vars if n not in freq_vars and n not in time_vars]
+
+    def blank(name):
+        v = template[name]
+        return xr.full_like(v, np.nan, dtype=float) if v.dtype.kind == "f" else v
+
+    per_time = []
+    for ti in range(n_t):
+        per_f = [slot.get((ti, fi)) for fi in range(len(freqs))]
+        fields = {}
+        for name in freq_vars:
+            parts = [ds[name] if ds is not None else blank(name) for ds in per_f]
+            fields[name] = xr.concat(parts, dim="frequency", coords="minimal", compat="override", join="override")
+        source = slot.get((ti, ref_f))
+        if source is None:
+            source = next((ds for ds in per_f if ds is not None), None)
+        for name in time_vars:
+            fields[name] = source[name] if source is not None else blank(name)
+        per_time.append(xr.Dataset(fields))
+    freq_coord = xr.DataArray(np.asarray(freqs, float) / 1e3, dims="frequency", attrs=template["frequency"].attrs)
+    if times is not None:
+        stacked = xr.concat(per_time, dim="time", coords="minimal", compat="override", join="override")
+    else:
+        stacked = per_time[0]
+    ds = xr.Dataset({n: template[n] for n in fixed_vars})
+    for name in freq_vars + time_vars:
+        ds[name] = stacked[name].assign_attrs(template[name].attrs)
+    ds = ds.assign_coords(frequency=freq_coord, range=("range", r, template["range"].attrs))
+    for name in ("path", "altitude"):
+        ds = ds.assign_coords({name: template[name]})
+    ds = ds[list(template.data_vars)]
+
+    # per-point record of the solver
+    shape = (n_t, len(freqs))
+    record = {k: np.full(shape, np.nan) for k in ("wall_time", "time_steps", "cells", "cell_r", "cell_z", "time_step")}
+    notes, converged, fit = [], True, 0.0
+    for p in done:
+        a = results[p].attrs
+        key = (p.time_index, p.frequency_index)
+        record["wall_time"][key] = a.get("solver_wall_time_s", np.nan)
+        record["time_steps"][key] = a.get("solver_time_steps", np.nan)
+        record["cells"][key] = a.get("solver_cells", np.nan)
+        record["cell_r"][key] = a.get("solver_cell_r_m", np.nan)
+        record["cell_z"][key] = a.get("solver_cell_z_m", np.nan)
+        record["time_step"][key] = a.get("solver_time_step_s", np.nan)
+        converged &= a.get("solver_converged", "yes") == "yes"
+        if a.get("solver_notes"):
+            notes.append(f"{p.name}: {a['solver_notes']}")
+        fit = max(fit, float(a.get("solver_impedance_fit_error", 0.0)))
+    meta = {
+        "wall_time": ("s", "seconds the solver spent stepping for this point, all paths"),
+        "time_steps": ("1", "time steps taken for this point (per path)"),
+        "cells": ("1", "grid cells per path for this point"),
+        "cell_r": ("m", "grid cell along range for this point"),
+        "cell_z": ("m", "grid cell along altitude for this point"),
+        "time_step": ("s", "solver time step for this point"),
+    }
+    dims = ("time", "frequency") if times is not None else ("frequency",)
+    for k, (units, long_name) in meta.items():
+        values = record[k] if times is not None else record[k][0]
+        ds[f"point_solver_{k}"] = (dims, values, {"units": units, "long_name": long_name})
+
+    if times is not None:
+        stamps = np.array([np.datetime64(t.astimezone(timezone.utc).replace(tzinfo=None), "ns") for t in times])
+        ds = ds.assign_coords(time=("time", stamps, {
+            "standard_name": "time", "axis": "T",
+            "long_name": "UTC instant that sets the sun's position along the paths",
+        }))
+    missing = [p.name for p in points if p not in results]
+
+    def finite(values, fn, default):
+        v = values[np.isfinite(values)]
+        return fn(v) if v.size else default
+
+    base_text = scenario.text or scenario.to_toml()
+    t_text = (
+        f"{_utc_text(times[0])} to {_utc_text(times[-1])}, {len(times)} instants"
+        + (f" every {int((times[1] - times[0]).total_seconds())} s" if len(times) > 1 and _regular(times) else "")
+        if times is not None else "no time axis"
+    )
+    first = results[done[0]].attrs
+    ds.attrs = {
+        "title": scenario.title,
+        "Conventions": "CF-1.10",
+        "history": f"{_now()} cavity {__version__}: swept {scenario.path or 'a scenario given as text'} over {len(points)} points",
+        "source": f"cavity {__version__}",
+        "scenario": base_text,
+        "cautions": first.get("cautions", ""),
+        "references": first.get("references", ""),
+        "solver_cells": int(finite(record["cells"], np.max, 0)),
+        "solver_time_steps": int(finite(record["time_steps"], np.max, 0)),
+        "solver_cell_r_m": float(finite(record["cell_r"], np.min, np.nan)),
+        "solver_cell_z_m": float(finite(record["cell_z"], np.min, np.nan)),
+        "solver_time_step_s": float(finite(record["time_step"], np.min, np.nan)),
+        "solver_wall_time_s": float(finite(record["wall_time"], np.sum, 0.0)),
+        "solver_converged": "yes" if converged else "no",
+        "solver_impedance_fit_error": fit,
+        "sweep_description": (
+            "each point is the scenario above with ionosphere utc = time (when there is a time axis) "
+            "and transmitter frequency_khz = frequency, solved on its own; the solver_* attributes "
+            "give the largest cells and steps, the smallest cells and time step, and the summed "
+            "stepping time of all points (per point in point_solver_*)"
+        ),
+        "sweep_times": t_text,
+        "sweep_points": len(points),
+    }
+    if notes:
+        ds.attrs["solver_notes"] = "; ".join(notes)
+    if regridded:
+        ds.attrs["sweep_range_note"] = (
+            "frequencies were solved on different range grids; fields along range are sampled on the "
+            "coarsest one, linearly in dB and in unwrapped phase (receiver values are unaffected)"
+        )
+    if missing:
+        ds.attrs["sweep_missing_points"] = "; ".join(missing)
+    return ds
+
+
+def _regular(times) -> bool:
+    gaps = {(b - a) for a, b in zip(times[:-1], times[1:])}
+    return len(gaps) == 1
+
+
+def _now() -> str:
+    return datetime.now(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+# --------------------------------------------------------------------------------------------------
+# Writing
+# --------------------------------------------------------------------------------------------------
+
+
+def encode_time(ds: xr.Dataset) -> xr.Dataset:
+    """A copy whose ``time`` coordinate holds whole seconds since 1970-01-01 UTC with CF units.
+
+    Readers that decode CF times (xarray, :func:`cavity.open_result`) get datetime64 back.
+    """
+    if "time" not in ds.coords or ds["time"].dtype.kind != "M":
+        return ds
+    t = ds["time"]
+    seconds = (t.values.astype("datetime64[s]").astype(np.int64))
+    attrs = {k: v for k, v in t.attrs.items() if k not in ("units", "calendar")}
+    attrs.update(units=TIME_UNITS, calendar=TIME_CALENDAR)
+    out = ds.assign_coords(time=("time", seconds, attrs))
+    out["time"].encoding = {}
+    return out
+
+
+def write_sweep(ds: xr.Dataset, path, *, overwrite: bool = False) -> Path:
+    """Write a sweep dataset atomically (:func:`cavity.results.write_result`) with CF time encoding."""
+    from cavity.results import write_result
+
+    return write_result(encode_time(ds), path, overwrite=overwrite)
+
+
+# ``import cavity.sweep`` rebinds the package attribute ``cavity.sweep`` from the function defined in
+# cavity/__init__.py to this module; making the module callable keeps ``cavity.sweep(...)`` working.
+class _CallableModule(types.ModuleType):
+    def __call__(self, *args, **kwargs):
+        return sweep(*args, **kwargs)
+
+
+sys.modules[__name__].__class__ = _CallableModule
