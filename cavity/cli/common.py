@@ -177,21 +177,28 @@ def check_output_file(path, overwrite: bool, *, what: str = "output file") -> Pa
 
 
 def progress_callback(quiet: bool, label: str):
-    """A context manager yielding ``update(fraction, text)`` that drives a click progress bar on stderr."""
+    """A context manager yielding ``update(fraction, text)`` that drives a click progress bar on stderr.
+
+    The bar is created on the first update, so a command that fails before any progress (a bad
+    profile, a grid too large) prints its one-line error and nothing else.
+    """
 
     @contextlib.contextmanager
     def manager():
         if quiet:
             yield lambda fraction, text="": None
             return
-        with click.progressbar(length=1000, label=label, file=sys.stderr, show_eta=True) as bar:
-            done = [0]
+        with contextlib.ExitStack() as stack:
+            state = {"bar": None, "done": 0}
 
             def update(fraction: float, text: str = "") -> None:
+                if state["bar"] is None:
+                    state["bar"] = stack.enter_context(
+                        click.progressbar(length=1000, label=label, file=sys.stderr, show_eta=True))
                 target = int(max(0.0, min(1.0, fraction)) * 1000)
-                if target > done[0]:
-                    bar.update(target - done[0])
-                    done[0] = target
+                if target > state["done"]:
+                    state["bar"].update(target - state["done"])
+                    state["done"] = target
 
             yield update
 
