@@ -679,6 +679,11 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
         ds[f"point_solver_{k}"] = (dims, values, {"units": units, "long_name": long_name})
 
     if times is not None:
+        # CF 2.4: dimensions other than T, Z, Y, X sit left of them, so time goes just before altitude
+        for name, v in ds.data_vars.items():
+            if "time" in v.dims:
+                order = [d for d in v.dims if d not in ("time", "altitude")] + ["time"]
+                ds[name] = v.transpose(*order, *(["altitude"] if "altitude" in v.dims else []))
         stamps = np.array([np.datetime64(t.astimezone(timezone.utc).replace(tzinfo=None), "ns") for t in times])
         ds = ds.assign_coords(time=("time", stamps, {
             "standard_name": "time", "axis": "T",

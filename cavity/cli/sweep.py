@@ -28,6 +28,29 @@ def _frequencies(values) -> list[float] | None:
     return out
 
 
+class _LazyProgress:
+    """A progress bar that appears with the first solved point, after the set-up messages."""
+
+    def __init__(self, quiet: bool):
+        import contextlib
+
+        self.quiet = quiet
+        self.stack = contextlib.ExitStack()
+        self.update = None
+
+    def __enter__(self):
+        return self
+
+    def __call__(self, fraction: float, text: str = "") -> None:
+        if self.update is None:
+            self.update = self.stack.enter_context(progress_callback(self.quiet, "solving points"))
+        self.update(fraction, text)
+
+    def __exit__(self, *exc):
+        self.stack.close()
+        return False
+
+
 @click.command("sweep")
 @click.argument("scenario", type=click.Path(dir_okay=False))
 @click.option("--start", help="First UTC instant, e.g. 2026-03-20T00:00Z (a date alone means 00:00 UTC).")
@@ -93,7 +116,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
         logger.setLevel(logging.INFO)
     t0 = time.perf_counter()
     try:
-        with progress_callback(quiet, "sweeping") as update:
+        with _LazyProgress(quiet) as update:
             ds = sweep(sc, times=times, frequencies_khz=_frequencies(frequency), scheduler=scheduler,
                        workers=workers, parts_dir=parts_dir, progress=update, allow_missing=allow_missing)
     except SweepError as exc:

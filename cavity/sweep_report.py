@@ -1,0 +1,214 @@
+"""Figures and tables of sweep files (result files with a ``time`` dimension).
+
+:func:`plot_diurnal` draws the field at each receiver against UTC, one panel per frequency, with the
+geometric sunrise and sunset at the midpoint of each receiver's path marked (solar zenith angle
+crossing 90 deg, Michalsky 1988 through :func:`cavity.geo.solar_zenith_deg`); :func:`table_diurnal`
+gives the minimum, median and maximum per receiver and frequency. ``cavity plot`` and ``cavity
+table`` call them for a dataset that has a ``time`` dimension.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import tomllib
+from datetime import datetime, timedelta, timezone
+from pathlib import Path
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from cavity.errors import ResultFileError
+
+if TYPE_CHECKING:  # pragma: no cover
+    import pandas as pd
+    import xarray as xr
+
+#: Sampling of the solar zenith angle when looking for its 90 deg crossings.
+SUN_SAMPLE = timedelta(minutes=2)
+#: Most samples of the zenith angle per receiver (a long window is sampled more coarsely).
+MAX_SUN_SAMPLES = 20_000
+
+
+def _require_sweep(ds: xr.Dataset) -> None:
+    if "time" not in ds.dims:
+        raise ResultFileError("the dataset has no time dimension; it is not a sweep file (see cavity sweep)")
+    for name in ("receiver_name", "receiver_ez_amplitude"):
+        if name not in ds.variables:
+            raise ResultFileError(f"the sweep dataset has no {name} variable")
+
+
+def _utc(value) -> datetime:
+    """numpy datetime64 (UTC, naive) -> aware datetime."""
+    seconds = (np.datetime64(value, "ns") - np.datetime64("1970-01-01T00:00:00", "ns")) / np.timedelta64(1, "s")
+    return datetime(1970, 1, 1, tzinfo=timezone.utc) + timedelta(seconds=float(seconds))
+
+
+def _transmitter_position(ds: xr.Dataset) -> tuple[float, float] | None:
+    """The transmitter's (latitude, longitude) from the scenario text the file embeds, if given."""
+    try:
+        tx = tomllib.loads(str(ds.attrs.get("scenario", ""))).get("transmitter", {})
+    except tomllib.TOMLDecodeError:
+        return None
+    lat, lon = tx.get("latitude_deg"), tx.get("longitude_deg")
+    if isinstance(lat, (int, float)) and isinstance(lon, (int, float)):
+        return float(lat), float(lon)
+    return None
+
+
+def path_midpoints(ds: xr.Dataset) -> list[tuple[float, float] | None]:
+    """Midpoint (latitude, longitude) of the geodesic from the transmitter to each receiver.
+
+    None for a receiver given by range only, or when the transmitter has no position. Uses the
+    WGS84 geodesic (:func:`cavity.geo.distance_bearing`, :func:`cavity.geo.points_along`).
+    """
+    from cavity.geo import distance_bearing, points_along
+
+    tx = _transmitter_position(ds)
+    n = ds.sizes.get("receiver", 0)
+    if tx is None or "receiver_latitude" not in ds or "receiver_longitude" not in ds:
+        return [None] * n
+    out: list[tuple[float, float] | None] = []
+    for lat, lon in zip(ds["receiver_latitude"].values, ds["receiver_longitude"].values):
+        if not (np.isfinite(lat) and np.isfinite(lon)):
+            out.append(None)
+            continue
+        distance, bearing = distance_bearing(tx[0], tx[1], float(lat), float(lon))
+        mlat, mlon = points_along(tx[0], tx[1], bearing, [distance / 2.0])
+        out.append((float(mlat[0]), float(mlon[0])))
+    return out
+
+
+def sun_crossings(lat_deg: float, lon_deg: float, start: datetime, stop: datetime) -> list[tuple[datetime, str]]:
+    """Geometric sunrises and sunsets (solar zenith angle through 90 deg) at a place, in a window.
+
+    Returns
+    -------
+    list of (datetime, "sunrise" | "sunset")
+        In time order; the instant is interpolated linearly between samples a few minutes apart
+        (error well under a minute: the zenith angle is smooth).
+    """
+    from cavity.geo import solar_zenith_deg
+
+    span = stop - start
+    step = max(SUN_SAMPLE, span / MAX_SUN_SAMPLES)
+    n = int(span / step) + 2
+    instants = [start + k * step for k in range(n)]
+    chi = np.array([solar_zenith_deg(t, lat_deg, lon_deg) for t in instants]) - 90.0
+    out = []
+    for k in range(n - 1):
+        a, b = chi[k], chi[k + 1]
+        if a == 0.0 or (a > 0) == (b > 0):
+            continue
+        when = instants[k] + (instants[k + 1] - instants[k]) * (a / (a - b))
+        if start <= when <= stop:
+            out.append((when, "sunrise" if b < a else "sunset"))
+    return out
+
+
+def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[str]:
+    """Draw amplitude against UTC per receiver, one panel per frequency, and save the figure.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep dataset (from :func:`cavity.sweep.sweep` or a sweep file).
+    output_path : str or os.PathLike
+        Figure file; the format follows the suffix (.png, .pdf, .svg).
+    quantity : {"ez", "b"}
+        Vertical electric field (dB re 1 uV/m) or horizontal flux density (dB re 1 fT).
+
+    Returns
+    -------
+    list of str
+        The files written (one).
+
+    Notes
+    -----
+    Dotted vertical lines mark the geometric sunrise and dashed lines the sunset at the midpoint of
+    each receiver's path, in the receiver's colour: the ionosphere over the middle of a path sets
+    much of the field there, so fades cluster around these instants.
+    """
+    from matplotlib.dates import AutoDateLocator, ConciseDateFormatter
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+
+    _require_sweep(ds)
+    if quantity not in ("ez", "b"):
+        raise ValueError(f"quantity = {quantity!r} must be 'ez' or 'b'")
+    name = f"receiver_{quantity}_amplitude"
+    if name not in ds:
+        raise ResultFileError(f"the sweep dataset has no {name} variable")
+    unit = "dB re 1 uV/m" if quantity == "ez" else "dB re 1 fT"
+    label = "Ez" if quantity == "ez" else "B"
+    times = ds["time"].values
+    freqs = np.atleast_1d(ds["frequency"].values)
+    names = [str(x) for x in ds["receiver_name"].values]
+    ranges = ds["receiver_range"].values if "receiver_range" in ds else [math.nan] * len(names)
+    t0, t1 = _utc(times.min()), _utc(times.max())
+    crossings = [sun_crossings(m[0], m[1], t0, t1) if m is not None else [] for m in path_midpoints(ds)]
+
+    fig = Figure(figsize=(10, 2.2 + 2.8 * len(freqs)), layout="constrained")
+    axes = fig.subplots(len(freqs), 1, sharex=True, squeeze=False)[:, 0]
+    colours = [f"C{i % 10}" for i in range(len(names))]
+    for k, (ax, f) in enumerate(zip(axes, freqs)):
+        for i, rx in enumerate(names):
+            amp = ds[name].isel(frequency=k, receiver=i).transpose("time").values
+            ax.plot(times, amp, marker=".", color=colours[i], label=f"{rx} ({ranges[i]:.0f} km)")
+            for when, kind in crossings[i]:
+                ax.axvline(np.datetime64(when.replace(tzinfo=None), "ns"), color=colours[i],
+                           linestyle=":" if kind == "sunrise" else "--", linewidth=1.0, alpha=0.8)
+        ax.set_title(f"{f:g} kHz", loc="left", fontsize="medium")
+        ax.set_ylabel(f"{label}, {unit}")
+        ax.grid(True, alpha=0.3)
+    locator = AutoDateLocator()
+    axes[-1].xaxis.set_major_locator(locator)
+    axes[-1].xaxis.set_major_formatter(ConciseDateFormatter(locator))
+    axes[-1].set_xlabel("UTC")
+    handles, labels = axes[0].get_legend_handles_labels()
+    if any(crossings):
+        handles += [Line2D([], [], color="0.3", linestyle=":"), Line2D([], [], color="0.3", linestyle="--")]
+        labels += ["sunrise at path midpoint", "sunset at path midpoint"]
+    axes[0].legend(handles, labels, fontsize="small", loc="best")
+    fig.suptitle(str(ds.attrs.get("title", "sweep")))
+    target = Path(os.fspath(output_path)).expanduser()
+    fig.savefig(target, dpi=150)
+    return [str(target)]
+
+
+def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
+    """Minimum, median and maximum field per receiver and frequency over a sweep's instants.
+
+    Returns
+    -------
+    pandas.DataFrame
+        One row per (receiver, frequency): ``receiver``, ``range_km``, ``frequency_khz``,
+        ``instants`` (solved, not NaN), ``ez_min_db``, ``ez_median_db``, ``ez_max_db`` (dB re
+        1 uV/m), ``utc_of_min`` and ``utc_of_max`` (ISO 8601 text); NaN statistics where no instant
+        was solved.
+    """
+    import pandas as pd
+
+    _require_sweep(ds)
+    amp = ds["receiver_ez_amplitude"].transpose("receiver", "frequency", "time").values
+    times = ds["time"].values
+    names = [str(x) for x in ds["receiver_name"].values]
+    ranges = ds["receiver_range"].values if "receiver_range" in ds else [math.nan] * len(names)
+    rows = []
+    for i, rx in enumerate(names):
+        for k, f in enumerate(np.atleast_1d(ds["frequency"].values)):
+            a = amp[i, k]
+            ok = np.isfinite(a)
+            row = {"receiver": rx, "range_km": float(ranges[i]), "frequency_khz": float(f), "instants": int(ok.sum())}
+            if ok.any():
+                lo, hi = int(np.nanargmin(a)), int(np.nanargmax(a))
+                row.update(
+                    ez_min_db=float(a[lo]), ez_median_db=float(np.median(a[ok])), ez_max_db=float(a[hi]),
+                    utc_of_min=_utc(times[lo]).strftime("%Y-%m-%dT%H:%M:%SZ"),
+                    utc_of_max=_utc(times[hi]).strftime("%Y-%m-%dT%H:%M:%SZ"),
+                )
+            else:
+                row.update(ez_min_db=math.nan, ez_median_db=math.nan, ez_max_db=math.nan, utc_of_min="", utc_of_max="")
+            rows.append(row)
+    return pd.DataFrame(rows, columns=["receiver", "range_km", "frequency_khz", "instants", "ez_min_db",
+                                       "ez_median_db", "ez_max_db", "utc_of_min", "utc_of_max"])
