@@ -67,10 +67,12 @@ def engine_settings(scenario, path, *, waveform=None) -> eng.Settings:
 def path_medium(scenario, path) -> eng.Medium:
     """The engine's medium for one path: ground per sample and the ionosphere profile per sample."""
     import profiles
+    from profiles.exponential import ALTITUDE_RANGE_M
 
     ion = scenario.ionosphere
     top = scenario.planned_top_m()
     z = np.arange(0.0, top + 40e3 + PROFILE_STEP_M, PROFILE_STEP_M)
+    z = z[z <= ALTITUDE_RANGE_M[1]]  # profiles end at 500 km; the engine holds the top value above
     ne = nu = None
     if path.hprime_km is not None:
         ne = profiles.electron_density(z[None, :], path.hprime_km[:, None], path.beta_per_km[:, None])
