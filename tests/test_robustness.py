@@ -661,3 +661,46 @@ def test_bad_usage_exit_2(argv, tmp_path):
     assert result.exit_code == 2, (result.exit_code, result.stderr)
     assert "Traceback" not in result.stderr
     assert result.stderr.strip().splitlines()[-1].startswith("Error: ")
+
+
+# ----------------------------------------------------------------------------------------------
+# Extreme but valid inputs: accepted and planned, never an internal error
+# ----------------------------------------------------------------------------------------------
+EXTREME_VALID = {
+    # top_km up to 600 is allowed while profiles end at 500 km (was refused from inside profiles)
+    "top-600-km": scenario(solver="[solver]\ntop_km = 600.0"),
+    "lowest-frequency-longest-range": scenario(transmitter=tx(frequency_khz="0.3"), receivers=rx(range_km="15000.0"), solver=""),
+    "transmitter-at-north-pole": scenario(transmitter=tx(latitude_deg="90.0"), receivers=at_position("80.0", "359.99"), solver=""),
+    "south-pole-with-sun": scenario(transmitter=tx(latitude_deg="-90.0", longitude_deg="-180.0"), receivers=at_position("-80.0", "0.0"),
+                                    ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z", solver=""),
+    "across-the-date-line": scenario(transmitter=tx(latitude_deg="0.0", longitude_deg="179.99"), receivers=at_position("0.0", "-179.99"),
+                                     solver=""),
+    "lowest-ceiling-coarsest-cell": scenario(ionosphere="[ionosphere]\nceiling_km = 20.0", solver="[solver]\ncell_m = 5000.0"),
+    "receiver-at-1-km-largest-cell": scenario(receivers=rx(range_km="1.0"), solver="[solver]\ncell_m = 5000.0\nmax_range_km = 1.0"),
+    "band-edges-and-duplicates": scenario(transmitter=tx(frequency_khz="[60.0, 0.3, 20.0, 20]"), solver=""),
+    "user-profile-under-a-high-top": scenario(ionosphere=f'[ionosphere]\nprofile_file = "{(BAD_DATA.parent / "profile_night_invented.csv").as_posix()}"',
+                                              solver="[solver]\ntop_km = 500.0"),
+}
+
+
+@pytest.mark.parametrize("text", list(EXTREME_VALID.values()), ids=list(EXTREME_VALID))
+def test_extreme_valid_inputs_are_planned(text, tmp_path):
+    """`cavity inspect` plans each one (exit 0), with the engine's grid for every path."""
+    (tmp_path / "edge.toml").write_text(text)
+    result = invoke(["inspect", "edge.toml"], tmp_path)
+    assert result.exit_code == 0, result.stderr
+    assert "Traceback" not in result.output + result.stderr
+    assert "memory:" in result.output
+
+
+def test_extreme_user_profile_reaches_the_engine(tmp_path):
+    """A top of 500 km over a user profile: the medium handed to the engine stops at 500 km (the
+    profiles' range) instead of failing inside profiles."""
+    from cavity import load_scenario
+    from cavity.paths import build_paths
+    from cavity.simulate import path_medium
+
+    s = load_scenario(EXTREME_VALID["user-profile-under-a-high-top"])
+    medium = path_medium(s, build_paths(s)[0])
+    assert medium.altitude_m[-1] == 500e3
+    assert np.all(np.isfinite(medium.electron_density)) and np.all(medium.electron_density >= 0)
