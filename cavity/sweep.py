@@ -121,6 +121,7 @@ def parse_utc(value, field: str = "start") -> datetime:
     ScenarioError
         Not a date and time, or a time without an offset (the tool never guesses a time zone).
     """
+    shown = value.isoformat() if isinstance(value, (datetime, date)) else str(value).strip()
     if isinstance(value, datetime):
         when = value
     elif isinstance(value, date):
@@ -136,7 +137,7 @@ def parse_utc(value, field: str = "start") -> datetime:
         if len(text) == 10:  # a date alone: midnight UTC
             when = when.replace(tzinfo=timezone.utc)
     if when.tzinfo is None or when.utcoffset() is None:
-        raise ScenarioError(f"{field} = {when.isoformat()!r} has no time zone; end it with Z (UTC), e.g. 2026-03-20T06:00Z")
+        raise ScenarioError(f"{field} = {shown!r} has no time zone; end it with Z (UTC), e.g. 2026-03-20T06:00Z")
     return when.astimezone(timezone.utc)
 
 
@@ -392,6 +393,7 @@ def sweep(
     progress: Callable[[float, str], None] | None = None,
     *,
     allow_missing: bool = False,
+    solve: Callable | None = None,
 ) -> xr.Dataset:
     """Solve every (instant, frequency) variant of a scenario on dask workers and combine them.
 
@@ -416,6 +418,9 @@ def sweep(
         Called in the driver after each solved point, with the fraction of the points to solve.
     allow_missing : bool
         Combine even if some points failed, with NaN for them (named in ``sweep_missing_points``).
+    solve : callable(Scenario) -> xarray.Dataset, optional
+        What a worker runs for each point; default :func:`solve_point` (the solver). It must be
+        importable (or picklable by value) on the workers.
 
     Returns
     -------
@@ -451,7 +456,7 @@ def sweep(
     )
     failures: dict[SweepPoint, str] = {}
     if todo:
-        failures = _run(todo, variants, results, folder, scheduler, workers, progress)
+        failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_point)
     if failures:
         lines = [(p.name, failures[p]) for p in points if p in failures]
         for name, message in lines:
@@ -469,7 +474,7 @@ def sweep(
     return combine(scenario, times, freqs, points, results, variants)
 
 
-def _run(todo, variants, results, folder, scheduler, workers, progress) -> dict:
+def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -> dict:
     """Fan the points out on a cluster, collect them as they finish; returns {point: error text}."""
     from contextlib import ExitStack
 
@@ -506,12 +511,16 @@ def _run(todo, variants, results, folder, scheduler, workers, progress) -> dict:
                 client = stack.enter_context(Client(str(scheduler), timeout=CONNECT_TIMEOUT_S))
             except (OSError, TimeoutError, ValueError) as exc:
                 raise SweepError(f"scheduler = {str(scheduler)!r}: cannot connect ({_one_line(exc)})") from None
+        try:
+            client.wait_for_workers(1, timeout=CONNECT_TIMEOUT_S)
+        except (OSError, TimeoutError) as exc:
+            raise SweepError(f"scheduler: no worker joined within {CONNECT_TIMEOUT_S} s ({_one_line(exc)})") from None
         log.info("cluster ready in %.1f s", _time.perf_counter() - t_start)
 
         tag = uuid.uuid4().hex[:8]
         futures = {}
         for p in todo:
-            fut = client.submit(solve_point, variants[p], key=f"cavity-sweep-{tag}-{p.key}", retries=RETRIES, pure=False)
+            fut = client.submit(solve, variants[p], key=f"cavity-sweep-{tag}-{p.key}", retries=RETRIES, pure=False)
             futures[fut] = p
         done = 0
         try:
