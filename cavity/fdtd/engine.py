@@ -28,6 +28,8 @@ log = logging.getLogger(__name__)
 
 #: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (physics.md 1: 3182.6)
 WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
+#: Loss tangent below which a row is stepped as vacuum (see Simulation._build).
+PLASMA_THRESHOLD = 1e-6
 
 
 @dataclass(frozen=True)
@@ -219,6 +221,11 @@ class Simulation:
         self._build()
 
     # ------------------------------------------------------------------ set-up
+    @staticmethod
+    def _coefficient(values, nr, n):
+        """A contiguous float32 (nr, n) coefficient table (contiguous rows let the kernels vectorise)."""
+        return np.ascontiguousarray(np.broadcast_to(np.asarray(values, dtype=np.float32), (nr, n)))
+
     def _build(self):
         p, s, m = self.plan, self.settings, self.medium
         nr, nz = p.nr, p.nz
@@ -253,22 +260,25 @@ class Simulation:
         wp2_r, nu_r = _on_grid(m, self.r_h, self.z_er[:nz])
         self.jp0 = nz
         if wp2_z is not None:
+            # rows whose loss tangent omega_p^2/(omega max(nu, omega)) stays below PLASMA_THRESHOLD
+            # are stepped as vacuum: a layer that weak adds far less than 0.01 dB per 1000 km
             w_min = 2 * math.pi * self.frequencies_hz.min()
             weight_z = wp2_z / (w_min * np.maximum(nu_z, w_min))
             weight_r = wp2_r / (w_min * np.maximum(nu_r, w_min))
-            rows = np.nonzero((weight_z.max(axis=0) > 1e-7) | (weight_r.max(axis=0) > 1e-7))[0]
+            rows = np.nonzero((weight_z.max(axis=0) > PLASMA_THRESHOLD) | (weight_r.max(axis=0) > PLASMA_THRESHOLD))[0]
             if rows.size:
                 self.jp0 = max(int(rows[0]), 1)
         n_pl = nz - self.jp0
         sl = slice(self.jp0, nz)
         if n_pl > 0:
+            # the kernel needs (pb, qa, qb) of the E-J update (see kernels.update_e)
             cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
             cr = media.plasma_coefficients(eps_er[None, sl], wp2_r[:, sl], nu_r[:, sl], dt)
-            self.plasma_z = [np.ascontiguousarray(np.broadcast_to(a, (nr, n_pl)), dtype=f32) for a in cz]
-            self.plasma_r = [np.ascontiguousarray(np.broadcast_to(a, (nr, n_pl)), dtype=f32) for a in cr]
+            self.plasma_z = [self._coefficient(cz[k], nr, n_pl) for k in (1, 3, 4)]
+            self.plasma_r = [self._coefficient(cr[k], nr, n_pl) for k in (1, 3, 4)]
         else:
-            self.plasma_z = [np.zeros((nr, 0), f32) for _ in range(5)]
-            self.plasma_r = [np.zeros((nr, 0), f32) for _ in range(5)]
+            self.plasma_z = [np.zeros((nr, 0), f32) for _ in range(3)]
+            self.plasma_r = [np.zeros((nr, 0), f32) for _ in range(3)]
         self.jz = np.zeros((nr, n_pl), f32)
         self.jr = np.zeros((nr, n_pl), f32)
         self.wp2_max = 0.0 if wp2_z is None else float(np.max(wp2_z))
@@ -317,8 +327,8 @@ class Simulation:
         if n_pl > 0:
             for k, j in enumerate(range(self.jz0, nz)):
                 if j >= self.jp0:
-                    ce_top[:, k] = self.plasma_r[1][:, j - self.jp0]
-            ce_far[:, self.jp0:] = self.plasma_z[1][self.ir0:, :]
+                    ce_top[:, k] = self.plasma_r[0][:, j - self.jp0]
+            ce_far[:, self.jp0:] = self.plasma_z[0][self.ir0:, :]
         self.ce_top = ce_top.astype(f32)
         self.ce_far = ce_far.astype(f32)
         ch_far = np.full((nrp, nz), self.ch, f32)
@@ -362,12 +372,22 @@ class Simulation:
         if line_source:
             height = float(getattr(wave, "channel_height_m", self.plan.dz_m))
             n_line = int(min(self.jz0, max(1, math.ceil(height / self.plan.dz_m))))
+        # point source: the whole current record at once (zero after the waveform's end)
+        n_src = min(n_max, int(math.ceil(float(wave.end_s) / dt)) + 1)
+        src = None if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
+        # DFT kernels exp(-j w t) at the H and E instants, advanced by one rotation per step
+        rot_h = np.exp(-0.5j * w * dt)
+        rot_step = np.exp(-1j * w * dt)
+        rot_half = np.exp(-0.5j * w * dt)
         t0 = time.perf_counter()
         step = 0
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
         while step < n_max:
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
+            if step % 1024 == 0:  # re-anchor the rotors against round-off
+                rot_h = np.exp(-1j * w * t_h)
+            rot_e = rot_h * rot_half
             K.update_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
                        self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi)
             if self.psi_zh.shape[1]:
@@ -378,21 +398,25 @@ class Simulation:
                        *plasma_z, self.jz, *plasma_r, self.jr)
             if self.psi_ze.shape[1]:
                 K.pml_z_e(self.er, self.hp, self.jz0, self.inv_dz, self.ce_top, *self.pz_e, self.psi_ze,
-                          self.jp0, self.jr, plasma_r[4])
+                          self.jp0, self.jr, plasma_r[2])
             if self.psi_re.shape[0]:
                 K.pml_r_e(self.ez, self.hp, self.ir0, self.rp, self.rm, self.ce_far, *self.pr_e, self.psi_re,
-                          self.jp0, self.jz, plasma_z[4])
+                          self.jp0, self.jz, plasma_z[2])
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
                 self.ez[0, :n_line] -= (self.src_coef_rows[:n_line] * currents).astype(np.float32)
                 current = float(currents.sum())
-            else:
-                current = float(wave(t_h))
+            elif step < n_src:
+                current = src[step]
                 self.ez[0, 0] -= np.float32(self.src_coef * current)
-            acc_i += current * np.exp(-1j * w * t_h)
-            K.accumulate_dft(acc_e[0], acc_e[1], self.ez, 0, np.cos(w * t_e), np.sin(w * t_e))
-            K.accumulate_dft(acc_h[0], acc_h[1], self.hp, 0, np.cos(w * t_h), np.sin(w * t_h))
+            else:
+                current = 0.0
+            if current != 0.0:
+                acc_i += current * rot_h
+            K.accumulate_dft(acc_e[0], acc_e[1], self.ez, 0, rot_e.real, -rot_e.imag)
+            K.accumulate_dft(acc_h[0], acc_h[1], self.hp, 0, rot_h.real, -rot_h.imag)
+            rot_h = rot_h * rot_step
             if probe_cols.size and step % series_every == 0:
                 t_series.append(t_e)
                 ez_series.append(self.ez[probe_cols, 0].copy())

@@ -56,46 +56,65 @@ def update_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi):
 
 
 @nb.njit(parallel=True, **_OPTS)
-def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0,
-             pa_z, pb_z, pc_z, qa_z, qb_z, jz,
-             pa_r, pb_r, pc_r, qa_r, qb_r, jr):
+def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, pb_z, qa_z, qb_z, jz, pb_r, qa_r, qb_r, jr):
     """Ez and Er from Ampere's law, with the collisional-plasma current above row ``jp0``.
 
     Vacuum rows (j < jp0): E += c * curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
-    2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt:
+    2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt, written with three coefficients
+    (pb = 1/(eps/dt + qb/2)):
 
-        E(n+1) = pa E(n) + pb curlH(n+1/2) - pc J(n)
+        E(n+1) = E(n) + pb [curlH(n+1/2) - qb E(n) - (1 + qa)/2 J(n)]
         J(n+1) = qa J(n) + qb (E(n+1) + E(n))
 
     Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
     on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2).
     Er curl: -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (ground handled in :func:`update_h`).
-    The plasma never reaches row 0 (``jp0 >= 1``).
+    The plasma never reaches row 0 (``jp0 >= 1``). Inner loops run over row views indexed from
+    zero so that the compiler can vectorise them.
     """
     nr, nz = ez.shape
+    n = nz - jp0
+    half = np.float32(0.5)
+    one = np.float32(1.0)
     for i in prange(nr):
         im = i - 1 if i > 0 else 0
         a = rp[i]
         b = rm[i]
+        e_z = ez[i]
+        e_r = er[i]
+        h = hp[i]
+        hm = hp[im]
         # vacuum rows
-        ez[i, 0] += cez[0] * (a * hp[i, 0] - b * hp[im, 0])
+        for j in range(jp0):
+            e_z[j] += cez[j] * (a * h[j] - b * hm[j])
         for j in range(1, jp0):
-            ez[i, j] += cez[j] * (a * hp[i, j] - b * hp[im, j])
-            er[i, j] -= cer[j] * (hp[i, j] - hp[i, j - 1]) * inv_dz
-        # plasma rows
-        for j in range(max(jp0, 1), nz):
-            k = j - jp0
-            e_old = ez[i, j]
-            curl = a * hp[i, j] - b * hp[im, j]
-            e_new = pa_z[i, k] * e_old + pb_z[i, k] * curl - pc_z[i, k] * jz[i, k]
-            jz[i, k] = qa_z[i, k] * jz[i, k] + qb_z[i, k] * (e_new + e_old)
-            ez[i, j] = e_new
-            e_old = er[i, j]
-            curl = -(hp[i, j] - hp[i, j - 1]) * inv_dz
-            e_new = pa_r[i, k] * e_old + pb_r[i, k] * curl - pc_r[i, k] * jr[i, k]
-            jr[i, k] = qa_r[i, k] * jr[i, k] + qb_r[i, k] * (e_new + e_old)
-            er[i, j] = e_new
+            e_r[j] -= cer[j] * (h[j] - h[j - 1]) * inv_dz
+        # plasma rows (views shifted to start at jp0)
+        ezp = ez[i, jp0:]
+        hp0 = hp[i, jp0:]
+        hpm = hp[im, jp0:]
+        pb = pb_z[i]
+        qa = qa_z[i]
+        qb = qb_z[i]
+        jj = jz[i]
+        for k in range(n):
+            e_old = ezp[k]
+            e_new = e_old + pb[k] * ((a * hp0[k] - b * hpm[k]) - qb[k] * e_old - half * (one + qa[k]) * jj[k])
+            jj[k] = qa[k] * jj[k] + qb[k] * (e_new + e_old)
+            ezp[k] = e_new
+        erp = er[i, jp0:]
+        hlo = hp[i, jp0 - 1:]
+        pb = pb_r[i]
+        qa = qa_r[i]
+        qb = qb_r[i]
+        jj = jr[i]
+        for k in range(n):
+            e_old = erp[k]
+            curl = -(hp0[k] - hlo[k]) * inv_dz
+            e_new = e_old + pb[k] * (curl - qb[k] * e_old - half * (one + qa[k]) * jj[k])
+            jj[k] = qa[k] * jj[k] + qb[k] * (e_new + e_old)
+            erp[k] = e_new
 
 
 @nb.njit(parallel=True, **_OPTS)
