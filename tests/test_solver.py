@@ -1,0 +1,111 @@
+"""The time-domain solver against outside references (physics.md 9), plus engine behaviour.
+
+The checks themselves live in :mod:`cavity.verify` (also run by ``cavity verify``); each names its
+source. Long-range comparisons are marked slow (``pytest -m slow``).
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from cavity import verify
+from cavity.errors import SolverError
+from cavity.fdtd import engine as eng
+
+
+def _assert(result):
+    assert result.passed, f"{result.name}: expected {result.expected}, got {result.obtained} ({result.detail})"
+
+
+def test_calibration_300_mv_per_m_at_1_km():
+    # ITU-R P.368: 1 kW from a short monopole over perfect ground gives 300 mV/m at 1 km (1/d beyond).
+    _assert(verify.check_calibration())
+
+
+def test_two_mode_beat_in_a_conducting_guide():
+    # physics.md 9.5 / Wait 1960: h = 70 km at 3 kHz, nulls every 333.5 km within 2 %.
+    _assert(verify.check_two_mode_beat())
+
+
+def test_parallel_plates_mode_sum():
+    # Wait 1960 exact mode sum (scipy.special.hankel2), within 0.5 dB from 50 km.
+    _assert(verify.check_plates(600e3))
+
+
+def test_absorbers_reflect_less_than_minus_40_db():
+    # physics.md 9.6: far-end and top CPML against a larger domain.
+    _assert(verify.check_absorbers())
+
+
+def test_dense_plasma_stays_bounded():
+    # physics.md 9.7 / Yu and Simpson 2010: omega_p dt >> 1 bounded for 1e5 steps.
+    _assert(verify.check_plasma_stability())
+
+
+def test_ground_wave_over_dry_ground():
+    # Exact Sommerfeld integral for a Leontovich plane (cavity.reference.groundwave), 0.3 dB.
+    _assert(verify.check_ground_wave((100e3, 300e3)))
+
+
+@pytest.mark.slow
+def test_day_guide_against_normal_modes_1000_km():
+    _assert(verify.check_ionosphere("day over sea", 20e3, 71.8, 0.335, 5.0, 70.0, 1000e3, 1.0))
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [n for n, _ in verify.FULL])
+def test_long_range_checks(name):
+    _assert(dict(verify.FULL)[name]())
+
+
+def _small_guide(**kw):
+    settings = dict(frequencies_hz=(10e3,), max_range_m=150e3, dr_m=1000.0, dz_m=1000.0, earth_curvature=False)
+    settings.update(kw)
+    return eng.Medium.uniform(ceiling_m=60e3), eng.Settings(**settings)
+
+
+def test_serial_and_parallel_kernels_give_identical_fields():
+    # style.md 7: each column is updated independently, so thread count must not change a bit.
+    import numba
+
+    medium, settings = _small_guide(max_duration_s=2e-3)
+    old = numba.get_num_threads()
+    try:
+        numba.set_num_threads(1)
+        one = eng.run(medium, settings)
+        numba.set_num_threads(max(2, old))
+        many = eng.run(medium, settings)
+    finally:
+        numba.set_num_threads(old)
+    assert np.array_equal(one.ez, many.ez)
+    assert np.array_equal(one.hphi, many.hphi)
+
+
+def test_unstable_run_stops_with_step_and_region():
+    # A time step above the stability limit (physics.md 2) must end in a clear error, not garbage.
+    medium, settings = _small_guide(courant_safety=1.5, max_duration_s=5e-3)
+    with pytest.raises(SolverError) as err:
+        eng.run(medium, settings)
+    msg = str(err.value)
+    assert "unstable at step" in msg and "r = " in msg and "z = " in msg and "\n" not in msg
+
+
+def test_transfer_function_is_independent_of_the_waveform():
+    # Linear system: the DFT ratio field/current must not depend on the source waveform.
+    from cavity.fdtd.source import GaussianPulse, ToneBursts
+
+    medium, settings = _small_guide()
+    a = eng.run(medium, eng.Settings(**{**settings.__dict__, "waveform": ToneBursts((10e3,))}))
+    b = eng.run(medium, eng.Settings(**{**settings.__dict__, "waveform": GaussianPulse(6e3, 14e3)}))
+    sel = a.range_m > 20e3
+    assert np.max(np.abs(20 * np.log10(np.abs(a.ez[0][sel] / b.ez[0][sel])))) < 0.05
+
+
+def test_source_calibration_formula():
+    # ITU-R P.368 / physics.md 6: P = 160 pi^2 (I l / lambda)^2.
+    from cavity.fdtd.source import moment_for_power
+
+    m = moment_for_power(1e3, 20e3)
+    lam = 299_792_458.0 / 20e3
+    assert 160 * math.pi**2 * (m / lam) ** 2 == pytest.approx(1e3)
