@@ -19,6 +19,7 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "profile": ("profile", "Summarise and save an ionosphere altitude profile."),
     "inspect": ("inspect", "Show what a run of a scenario would do, without running it."),
     "run": ("run", "Solve a scenario and write its netCDF result file."),
+    "bench": ("bench", "Measure solver speed on this machine and predict run times."),
     "verify": ("verify", "Check the solver against analytic and independent references."),
     "map": ("map", "Draw the transmitter, receivers and paths on a map, with day/night shading."),
     "sweep": ("sweep", "Solve a scenario over UTC instants and frequencies on dask workers."),

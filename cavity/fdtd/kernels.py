@@ -232,3 +232,25 @@ def max_abs(a):
         if not (best[i] <= best[k]):
             k = i
     return best[k], where[k]
+
+
+@nb.njit(parallel=True, **_OPTS)
+def minimal_h(hp, ez, er, inv_dr, inv_dz, ch):
+    """Benchmark stencil: H_phi update only (no ground impedance, no absorber)."""
+    nr, nz = hp.shape
+    for i in prange(nr - 1):
+        for j in range(nz):
+            hp[i, j] += ch * ((ez[i + 1, j] - ez[i, j]) * inv_dr - (er[i, j + 1] - er[i, j]) * inv_dz)
+
+
+@nb.njit(parallel=True, **_OPTS)
+def minimal_e(ez, er, hp, rp, rm, inv_dz, ca, cb):
+    """Benchmark stencil: Ez, Er with a conductivity that varies with altitude only (``ca``, ``cb`` per row)."""
+    nr, nz = ez.shape
+    for i in prange(1, nr):
+        a = rp[i]
+        b = rm[i]
+        for j in range(nz):
+            ez[i, j] = ca[j] * ez[i, j] + cb[j] * (a * hp[i, j] - b * hp[i - 1, j])
+        for j in range(1, nz):
+            er[i, j] = ca[j] * er[i, j] - cb[j] * (hp[i, j] - hp[i, j - 1]) * inv_dz

@@ -1,0 +1,152 @@
+"""Speed measurements: memory bandwidth, a minimal compiled stencil and the full engine, side by side.
+
+``cavity bench`` runs them on one grid in one process so the ratio engine/minimal says how close the
+engine comes to what this machine can do; ``--whole`` adds the 3,000 km day-path run with its
+accuracy against the independent normal-mode reference, its wall time and peak memory.
+"""
+
+from __future__ import annotations
+
+import math
+import resource
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from cavity.constants import C0, EPS0, MU0
+
+
+@dataclass(frozen=True)
+class Rates:
+    """Measured throughputs on one grid."""
+
+    nr: int
+    nz: int
+    copy_gb_per_s: float
+    minimal_cells_per_s: float
+    engine_cells_per_s: float
+    threads: int
+
+    @property
+    def ratio(self) -> float:
+        return self.engine_cells_per_s / self.minimal_cells_per_s
+
+
+def memory_bandwidth_gb_per_s(n_bytes: int = 256 * 1024**2, repeats: int = 5) -> float:
+    """Copy bandwidth of numpy (read + write bytes per second), best of ``repeats``."""
+    a = np.ones(n_bytes // 8)
+    b = np.empty_like(a)
+    best = math.inf
+    for _ in range(repeats):
+        t = time.perf_counter()
+        np.copyto(b, a)
+        best = min(best, time.perf_counter() - t)
+    return 2 * n_bytes / best / 1e9
+
+
+def _day_simulation(max_range_m: float, frequency_hz: float):
+    import profiles
+
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 200e3, 250.0)
+    medium = eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335),
+                                profiles.collision_frequency(z))
+    return eng.Simulation(medium, eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m))
+
+
+def measure_rates(max_range_m: float = 1000e3, frequency_hz: float = 20e3, steps: int = 200) -> Rates:
+    """Cell updates per second of the minimal stencil and of the full engine on the same grid."""
+    import numba
+
+    from cavity.fdtd import kernels as K
+
+    sim = _day_simulation(max_range_m, frequency_hz)
+    p = sim.plan
+    nr, nz = p.nr, p.nz
+    f32 = np.float32
+    ez = np.zeros((nr, nz), f32)
+    er = np.zeros((nr, nz + 1), f32)
+    hp = np.zeros((nr, nz), f32)
+    z = (np.arange(nz) + 0.5) * p.dz_m
+    sigma = 1e-6 * np.exp((z - 90e3) / 5e3)  # a conductivity that varies with altitude only
+    x = sigma * p.dt_s / (2 * EPS0)
+    ca = ((1 - x) / (1 + x)).astype(f32)
+    cb = (p.dt_s / EPS0 / (1 + x)).astype(f32)
+    args_h = (hp, ez, er, f32(1 / p.dr_m), f32(1 / p.dz_m), f32(p.dt_s / MU0))
+    args_e = (ez, er, hp, sim.rp, sim.rm, f32(1 / p.dz_m), ca, cb)
+    K.minimal_h(*args_h)
+    K.minimal_e(*args_e)
+    t = time.perf_counter()
+    for _ in range(steps):
+        K.minimal_h(*args_h)
+        K.minimal_e(*args_e)
+    minimal = nr * nz * steps / (time.perf_counter() - t)
+    # the engine: same grid, plasma, absorbers, impedance ground, DFTs (a short run of `steps` steps)
+    sim.t_min = sim.t_max = 20 * p.dt_s
+    sim.run()  # compile / load from cache
+    sim.t_min = sim.t_max = steps * p.dt_s
+    t = time.perf_counter()
+    sim.run()
+    engine = nr * nz * steps / (time.perf_counter() - t)
+    return Rates(nr, nz, memory_bandwidth_gb_per_s(), minimal, engine, numba.get_num_threads())
+
+
+def predict_wall_time_s(rate_cells_per_s: float, max_range_km: float, frequency_khz: float,
+                        cell_m: float | None = None, top_km: float = 120.0) -> tuple[float, object]:
+    """Predicted stepping time of a run from a measured engine rate (and its grid plan)."""
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 200e3, 250.0)
+    import profiles
+
+    medium = eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335),
+                                profiles.collision_frequency(z))
+    plan = eng.make_plan(medium, eng.Settings(frequencies_hz=(frequency_khz * 1e3,), max_range_m=max_range_km * 1e3,
+                                              top_m=top_km * 1e3, dr_m=cell_m, dz_m=cell_m))
+    return plan.grid.cell_updates / rate_cells_per_s, plan.grid
+
+
+def peak_memory_bytes() -> int:
+    """Peak resident memory of this process (Linux ru_maxrss is in kB)."""
+    return int(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss) * 1024
+
+
+def whole_run(max_range_m: float = 3000e3, frequency_hz: float = 20e3, cells_per_wavelength: float | None = None):
+    """The 3,000 km day path at 20 kHz over sea with the default grid, against the mode reference.
+
+    Returns a dict: wall time of the solve (compile from cache included), steps, cells, peak memory
+    and the error in dB against :func:`cavity.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
+    """
+    from cavity import verify
+    from cavity.fdtd import engine as eng
+    from cavity.fdtd import grid as gridmod
+
+    kw = {}
+    if cells_per_wavelength:
+        kw["cells_per_wavelength"] = cells_per_wavelength
+    t = time.perf_counter()
+    res = verify.ionosphere_run(frequency_hz, 71.8, 0.335, 5.0, 70.0, max_range_m + 30e3, **kw)
+    wall = time.perf_counter() - t
+    at = np.array([500e3, 1000e3, 2000e3, 3000e3])
+    at = at[at <= max_range_m]
+    idx = [int(np.argmin(np.abs(res.range_m - r))) for r in at]
+    ref = verify.mode_reference(frequency_hz, 71.8, 0.335, 5.0, 70.0, res.range_m[idx])
+    err = 20 * np.log10(np.abs(res.ez[0][idx] / ref))
+    phase = np.degrees(np.angle(res.ez[0][idx] / ref))
+    return {
+        "wall_s": wall,
+        "stepping_s": res.wall_time_s,
+        "steps": res.steps,
+        "cells": res.plan.cells,
+        "dr_m": res.plan.dr_m,
+        "dz_m": res.plan.dz_m,
+        "cells_per_wavelength": C0 / frequency_hz / res.plan.dr_m,
+        "rate_cells_per_s": res.plan.cells * res.steps / res.wall_time_s,
+        "peak_memory_bytes": peak_memory_bytes(),
+        "ranges_km": (at / 1e3).tolist(),
+        "error_db": err.tolist(),
+        "phase_error_deg": phase.tolist(),
+        "default_cells_per_wavelength": gridmod.DEFAULT_CELLS_PER_WAVELENGTH,
+    }
