@@ -212,3 +212,31 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
             rows.append(row)
     return pd.DataFrame(rows, columns=["receiver", "range_km", "frequency_khz", "instants", "ez_min_db",
                                        "ez_median_db", "ez_max_db", "utc_of_min", "utc_of_max"])
+
+
+def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
+    """The :func:`table_diurnal` rows as Markdown (a pipe table) or CSV text, dB to 0.1 dB.
+
+    Parameters
+    ----------
+    table : pandas.DataFrame
+        From :func:`table_diurnal`.
+    fmt : {"markdown", "csv"}
+    """
+    if fmt not in ("markdown", "csv"):
+        raise ValueError(f"fmt = {fmt!r} must be 'markdown' or 'csv'")
+    if fmt == "csv":
+        return table.to_csv(index=False, float_format="%.2f", lineterminator="\n")
+    headers = ["receiver", "range, km", "frequency, kHz", "instants", "min, dB re 1 uV/m",
+               "median, dB re 1 uV/m", "max, dB re 1 uV/m", "UTC of min", "UTC of max"]
+
+    def cell(value, digits):
+        if isinstance(value, float):
+            return "-" if math.isnan(value) else f"{value:{digits}}"
+        return str(value).replace("|", "\\|") or "-"
+
+    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join(["---"] + ["---:"] * 6 + ["---"] * 2) + "|"]
+    digits = [None, ".0f", "g", None, ".1f", ".1f", ".1f", None, None]
+    for row in table.itertuples(index=False):
+        lines.append("| " + " | ".join(cell(v, d) for v, d in zip(row, digits)) + " |")
+    return "\n".join(lines) + "\n"

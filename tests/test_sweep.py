@@ -15,7 +15,6 @@ import shutil
 import signal
 import subprocess
 import sys
-import textwrap
 import time
 import uuid
 from datetime import datetime, timedelta, timezone
@@ -23,7 +22,6 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-import xarray as xr
 from click.testing import CliRunner
 
 import cavity

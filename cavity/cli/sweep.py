@@ -8,7 +8,7 @@ import time
 
 import click
 
-from cavity.cli.common import friendly_errors, one_line, progress_callback
+from cavity.cli.common import check_output_file, friendly_errors, one_line, progress_callback
 
 
 def _frequencies(values) -> list[float] | None:
@@ -26,29 +26,6 @@ def _frequencies(values) -> list[float] | None:
             except ValueError:
                 raise click.BadParameter(f"{item!r} is not a number of kHz", param_hint="--frequency") from None
     return out
-
-
-class _LazyProgress:
-    """A progress bar that appears with the first solved point, after the set-up messages."""
-
-    def __init__(self, quiet: bool):
-        import contextlib
-
-        self.quiet = quiet
-        self.stack = contextlib.ExitStack()
-        self.update = None
-
-    def __enter__(self):
-        return self
-
-    def __call__(self, fraction: float, text: str = "") -> None:
-        if self.update is None:
-            self.update = self.stack.enter_context(progress_callback(self.quiet, "solving points"))
-        self.update(fraction, text)
-
-    def __exit__(self, *exc):
-        self.stack.close()
-        return False
 
 
 @click.command("sweep")
@@ -89,22 +66,17 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     from pathlib import Path
 
     import cavity
-    from cavity.errors import ScenarioError
     from cavity.sweep import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
 
     if (start is None) != (stop is None):
         raise click.UsageError("--start and --stop go together")
-    target = Path(output)
-    if target.is_dir():
-        raise click.ClickException(f"{target} is a folder; give a file name such as {target / 'sweep.nc'}")
-    if target.exists() and not overwrite:
-        raise click.ClickException(f"{target} exists; use --overwrite to replace it")
-    if not target.parent.is_dir():
-        raise click.ClickException(f"cannot write {target.name}: folder {target.parent} does not exist")
+    if scheduler and workers:
+        raise click.UsageError("--workers sizes the local cluster; it does not apply with --scheduler")
+    target = check_output_file(output, overwrite, what="sweep file")
     sc = cavity.load_scenario(scenario)
     times = sweep_times(start, stop, step) if start is not None else None
     if times is None and sc.ionosphere.form == "utc" and not quiet:
-        click.echo(f"note: no --start/--stop, so only the scenario's own instant is solved", err=True)
+        click.echo("note: no --start/--stop, so only the scenario's own instant is solved", err=True)
     parts_dir = Path(parts) if parts else default_parts_dir(target)
 
     handler = None
@@ -116,17 +88,17 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
         logger.setLevel(logging.INFO)
     t0 = time.perf_counter()
     try:
-        with _LazyProgress(quiet) as update:
+        with progress_callback(quiet, "solving points") as update:
             ds = sweep(sc, times=times, frequencies_khz=_frequencies(frequency), scheduler=scheduler,
                        workers=workers, parts_dir=parts_dir, progress=update, allow_missing=allow_missing)
     except SweepError as exc:
         for name, message in exc.failures:
             click.echo(f"failed: {name}: {message}", err=True)
         raise click.ClickException(one_line(exc)) from None
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM through cavity.cli.common (exit 143)
         click.echo(f"Error: interrupted; finished points are kept in {parts_dir}; run the same command "
                    "again to solve only the rest", err=True)
-        sys.exit(130)
+        sys.exit(128 + getattr(exc, "signum", 2))
     finally:
         if handler is not None:
             logging.getLogger("cavity.sweep").removeHandler(handler)
