@@ -18,9 +18,11 @@ a bug (any other exception)                   1          "internal error (Type: 
 
 Results are written under a temporary name and renamed (:func:`cavity.results.write_result`), so an
 interrupted command leaves either the complete new file or the old one, never a part of either.
-While the command unwinds after the first signal, further SIGINT/SIGTERM are held back so that the
-clean-up (removing the temporary file) is not itself interrupted; a third one ends the process at
-once.
+Every SIGINT/SIGTERM raises again, even while the command unwinds: the first one can be lost when it
+lands in Python code called back from C (numba compiling and writing its cache runs such callbacks,
+and Python ignores exceptions raised there), and the user's second Ctrl-C must then still work. A
+second signal during clean-up may leave a hidden temporary file beside the target, never a damaged
+target: the rename is atomic.
 """
 
 from __future__ import annotations
@@ -79,15 +81,9 @@ def _signals_as_exceptions():
     if threading.current_thread() is not threading.main_thread():
         yield
         return
-    received: list[int] = []
 
     def handler(signum, frame):
-        received.append(signum)
-        if len(received) == 1:
-            raise Interrupted(signum)
-        if len(received) >= 3:  # the user insists: stop without further clean-up
-            os._exit(128 + received[0])
-        # the second signal arrives while unwinding: let the clean-up finish
+        raise Interrupted(signum)
 
     previous = {}
     for sig in (signal.SIGINT, signal.SIGTERM):
