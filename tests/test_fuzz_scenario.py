@@ -26,7 +26,7 @@ import copy
 import math
 import os
 import tomllib
-from datetime import date, datetime, time, timedelta, timezone
+from datetime import timedelta, timezone
 
 import pytest
 import tomli_w
