@@ -174,6 +174,16 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
     return to_dataset(scenario, solutions)
 
 
+def _series_scale(scenario, sol) -> float:
+    """Factor from the engine's source current (peak 1 A class) to the transmitter's moment.
+
+    The waveform as run is the engine's; receiver time series are scaled so that the carrier's
+    current moment equals the transmitter's RMS moment at the lowest frequency (sqrt 2 for peak).
+    """
+    f0 = float(sol.engine.frequencies_hz.min())
+    return math.sqrt(2.0) * moment_for_power(scenario.transmitter.radiated_power_w, f0) / sol.engine.plan.dz_m
+
+
 def to_dataset(scenario, solutions):
     """Put path solutions on one range axis (the longest path's) and build the result dataset.
 
@@ -257,7 +267,18 @@ def to_dataset(scenario, solutions):
         solar_zenith_angle_deg=extra.get("solar_zenith_deg"),
         hprime_km=extra.get("hprime_km"),
         beta_per_km=extra.get("beta_per_km"),
+        **series,
     )
+    series = {}
+    if all(s.engine.time_s is not None for s in solutions):
+        # receiver waveforms (probes sit at the receivers, in path order), padded to the longest run
+        t = max((s.engine.time_s for s in solutions), key=len)
+        wave = np.full((n_rx, t.size), np.nan)
+        for sol in solutions:
+            scale_t = _series_scale(scenario, sol)
+            for j, i_rx in enumerate(sol.path.receiver_indices):
+                wave[i_rx, : sol.engine.time_s.size] = sol.engine.ez_series[:, j] * scale_t
+        series = {"time_s": t, "receiver_ez_time_series_v_per_m": wave}
     notes = [f"{s.path.label}: {n}" for s in solutions for n in s.engine.notes]
     ds.attrs["solver_converged"] = "yes" if all(s.engine.converged for s in solutions) else "no"
     if notes:
