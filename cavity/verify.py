@@ -8,6 +8,7 @@ comparisons. The test suite runs the same functions.
 
 from __future__ import annotations
 
+import functools
 import math
 import time
 from dataclasses import dataclass
@@ -239,6 +240,11 @@ def mode_reference(f_hz, hprime_km, beta_per_km, conductivity, permittivity, ran
     return modes.ground_field(ms, range_m)
 
 
+@functools.lru_cache(maxsize=8)
+def _cached_ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m):
+    return ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m)
+
+
 def ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m, **kw):
     """Engine run of a uniform Wait-Spies guide (flattened earth), fields per unit moment."""
     import profiles
@@ -253,7 +259,7 @@ def check_ionosphere(label, f_hz, hprime_km, beta_per_km, conductivity, permitti
                      tolerance_db) -> CheckResult:
     """FDTD against the normal-mode reference for a uniform day or night guide, 300 km on."""
     t0 = time.perf_counter()
-    res = ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m + 30e3)
+    res = _cached_ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m + 30e3)
     r = res.range_m
     ref = mode_reference(f_hz, hprime_km, beta_per_km, conductivity, permittivity, r)
     sel = (r >= 300e3) & (r <= max_range_m) & _deep_null_mask(r, ref)
@@ -266,6 +272,24 @@ def check_ionosphere(label, f_hz, hprime_km, beta_per_km, conductivity, permitti
         f"h'={hprime_km} km, beta={beta_per_km}/km, sigma={conductivity:g} S/m",
         f"worst {worst:.2f} dB (rms {float(np.sqrt(np.mean(err ** 2))):.2f}); phase at end {phase:.0f} deg",
         f"{tolerance_db} dB", worst <= tolerance_db, time.perf_counter() - t0,
+    )
+
+
+def check_day_below_night(f_hz=20e3, conductivity=5.0, permittivity=70.0, max_range_m=3000e3) -> CheckResult:
+    """Beyond 1,500 km the day field lies below the night field (common practice; physics.md 9.10).
+
+    Compared as the mean dB level over 1,500 km to the end, so single modal nulls do not decide it.
+    """
+    t0 = time.perf_counter()
+    day = _cached_ionosphere_run(f_hz, 71.8, 0.335, conductivity, permittivity, max_range_m + 30e3)
+    night = _cached_ionosphere_run(f_hz, 85.1, 0.63, conductivity, permittivity, max_range_m + 30e3)
+    sel = (day.range_m >= 1500e3) & (day.range_m <= max_range_m)
+    d, n = float(np.mean(_db(day.ez[0][sel]))), float(np.mean(_db(night.ez[0][sel])))
+    share = float(np.mean(_db(day.ez[0][sel]) < _db(night.ez[0][sel])))
+    return CheckResult(
+        f"day below night {f_hz / 1e3:g} kHz", "common practice (physics.md 9.10, from memory)",
+        "night mean level above day, 1500 km on", f"day {d:.1f} dB, night {n:.1f} dB; day lower at "
+        f"{100 * share:.0f} % of ranges", "night > day", n > d, time.perf_counter() - t0,
     )
 
 
@@ -284,6 +308,7 @@ FULL: list[tuple[str, Callable[[], CheckResult]]] = [
     ("ground_wave_1000", lambda: check_ground_wave((100e3, 300e3, 1000e3))),
     ("day_sea_20", lambda: check_ionosphere("day over sea", 20e3, 71.8, 0.335, 5.0, 70.0, 3000e3, 1.0)),
     ("night_sea_20", lambda: check_ionosphere("night over sea", 20e3, 85.1, 0.63, 5.0, 70.0, 3000e3, 1.5)),
+    ("day_below_night_20", check_day_below_night),
     ("day_land_12", lambda: check_ionosphere("day over land", 12e3, 71.8, 0.335, 1e-3, 15.0, 3000e3, 1.0)),
     ("night_land_12", lambda: check_ionosphere("night over land", 12e3, 85.1, 0.63, 1e-3, 15.0, 3000e3, 1.5)),
 ]
