@@ -22,6 +22,10 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "bench": ("bench", "Measure solver speed on this machine and predict run times."),
     "verify": ("verify", "Check the solver against analytic and independent references."),
     "map": ("map", "Draw the transmitter, receivers and paths on a map, with day/night shading."),
+    "table": ("table", "Tabulate the field at every receiver of result files (Markdown or CSV)."),
+    "compare": ("compare", "Compare two result files: one figure, differences at receivers, attenuation."),
+    "plot": ("plot", "Plot amplitude and phase against range from a result file (PNG or PDF)."),
+    "demo": ("demo", "Run the bundled invented demo by day and night; write results, tables, figures, map."),
     "sweep": ("sweep", "Solve a scenario over UTC instants and frequencies on dask workers."),
 }
 
