@@ -425,9 +425,10 @@ def sweep(
     Returns
     -------
     xarray.Dataset
-        The result-file contract with a leading ``time`` dimension (datetime64, UTC) on every
-        field, receiver value and ionosphere variable (absent when the sweep has no instants),
-        and per-point solver records ``point_solver_*``. Write it with :func:`write_sweep`.
+        The result-file contract with a ``time`` dimension (datetime64, UTC; just left of
+        ``altitude``, the order CF recommends) on every field, receiver value and ionosphere
+        variable (absent when the sweep has no instants), and per-point solver records
+        ``point_solver_*``. Write it with :func:`write_sweep`.
 
     Raises
     ------
@@ -436,6 +437,13 @@ def sweep(
     SweepError
         Points failed after their retry (each named with its error), or the scheduler cannot be
         reached.
+
+    Notes
+    -----
+    A script that starts the local cluster must keep its work under ``if __name__ ==
+    "__main__":``: dask's worker processes are spawned and import the script again. Any exception
+    in the driver (Ctrl-C, or one raised by ``progress``) cancels the points not yet solved; the
+    finished ones stay in ``parts_dir``.
     """
     times, freqs, points = sweep_points(scenario, times, frequencies_khz)
     variants = {p: point_scenario(scenario, p) for p in points}
@@ -450,8 +458,9 @@ def sweep(
                 results[p] = ds
     todo = [p for p in points if p not in results]
     log.info(
-        "sweep: %d points (%s x %d frequencies); %d already solved%s, %d to solve",
-        len(points), f"{len(times)} instants" if times is not None else "no time axis", len(freqs),
+        "sweep: %d points (%s x %s); %d already solved%s, %d to solve",
+        len(points), f"{len(times)} instants" if times is not None else "no time axis",
+        f"{len(freqs)} frequencies" if len(freqs) > 1 else "1 frequency",
         len(results), f" in {folder}" if folder is not None else "", len(todo),
     )
     failures: dict[SweepPoint, str] = {}

@@ -437,7 +437,7 @@ def test_cli_sweep_local_cluster_then_resume(tmp_path):
     result = runner.invoke(main, args)
     assert result.exit_code == 0, result.output
     assert f"wrote {out}" in result.output
-    assert "2 points (2 instants x 1 frequencies); 0 already solved" in result.output
+    assert "2 points (2 instants x 1 frequency); 0 already solved" in result.output
     parts = default_parts_dir(out)
     assert parts == tmp_path / "day.nc.parts" and len(list(parts.glob("*.nc"))) == 2
     ds = open_result(out)
