@@ -271,14 +271,21 @@ class Simulation:
         n_pl = nz - self.jp0
         sl = slice(self.jp0, nz)
         if n_pl > 0:
-            # the kernel needs (pb, qa, qb) of the E-J update (see kernels.update_e)
+            # the kernel needs eps/dt and qa per plasma row, qb per cell (see kernels.update_e)
+            if not (np.allclose(nu_z, nu_z[:1]) and np.allclose(nu_r, nu_r[:1])):
+                raise SolverError("collision frequency must not vary along range (one nu(z) per path)")
             cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
             cr = media.plasma_coefficients(eps_er[None, sl], wp2_r[:, sl], nu_r[:, sl], dt)
-            self.plasma_z = [self._coefficient(cz[k], nr, n_pl) for k in (1, 3, 4)]
-            self.plasma_r = [self._coefficient(cr[k], nr, n_pl) for k in (1, 3, 4)]
+            self.plasma_z = [(eps_ez[sl] / dt).astype(f32), np.asarray(cz[3], f32)[0].copy(),
+                             self._coefficient(cz[4], nr, n_pl)]
+            self.plasma_r = [(eps_er[sl] / dt).astype(f32), np.asarray(cr[3], f32)[0].copy(),
+                             self._coefficient(cr[4], nr, n_pl)]
+            self.pb_z = self._coefficient(cz[1], nr, n_pl)  # curl coefficients, for the absorber cells
+            self.pb_r = self._coefficient(cr[1], nr, n_pl)
         else:
-            self.plasma_z = [np.zeros((nr, 0), f32) for _ in range(3)]
-            self.plasma_r = [np.zeros((nr, 0), f32) for _ in range(3)]
+            self.plasma_z = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((nr, 0), f32)]
+            self.plasma_r = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((nr, 0), f32)]
+            self.pb_z = self.pb_r = None
         self.jz = np.zeros((nr, n_pl), f32)
         self.jr = np.zeros((nr, n_pl), f32)
         self.wp2_max = 0.0 if wp2_z is None else float(np.max(wp2_z))
@@ -327,10 +334,11 @@ class Simulation:
         if n_pl > 0:
             for k, j in enumerate(range(self.jz0, nz)):
                 if j >= self.jp0:
-                    ce_top[:, k] = self.plasma_r[0][:, j - self.jp0]
-            ce_far[:, self.jp0:] = self.plasma_z[0][self.ir0:, :]
+                    ce_top[:, k] = self.pb_r[:, j - self.jp0]
+            ce_far[:, self.jp0:] = self.pb_z[self.ir0:, :]
         self.ce_top = ce_top.astype(f32)
         self.ce_far = ce_far.astype(f32)
+        self.pb_z = self.pb_r = None  # only needed for the absorber cells above
         ch_far = np.full((nrp, nz), self.ch, f32)
         ch_far[:, 0] = self.hb[self.ir0:]
         self.ch_far = ch_far

@@ -56,17 +56,18 @@ def update_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi):
 
 
 @nb.njit(parallel=True, **_OPTS)
-def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, pb_z, qa_z, qb_z, jz, pb_r, qa_r, qb_r, jr):
+def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr):
     """Ez and Er from Ampere's law, with the collisional-plasma current above row ``jp0``.
 
     Vacuum rows (j < jp0): E += c * curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
-    2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt, written with three coefficients
-    (pb = 1/(eps/dt + qb/2)):
+    2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt:
 
-        E(n+1) = E(n) + pb [curlH(n+1/2) - qb E(n) - (1 + qa)/2 J(n)]
+        E(n+1) = E(n) + [curlH(n+1/2) - qb E(n) - (1 + qa)/2 J(n)] / (eps/dt + qb/2)
         J(n+1) = qa J(n) + qb (E(n+1) + E(n))
 
+    with ``ed`` = eps/dt and ``qa`` per plasma row (the collision frequency depends on height only)
+    and ``qb`` = eps omega_p^2 (dt/2)/(1 + nu dt/2) per cell: the fewest arrays streamed per cell.
     Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
     on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2).
     Er curl: -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (ground handled in :func:`update_h`).
@@ -94,26 +95,24 @@ def update_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, pb_z, qa_z, qb_z, jz, pb
         ezp = ez[i, jp0:]
         hp0 = hp[i, jp0:]
         hpm = hp[im, jp0:]
-        pb = pb_z[i]
-        qa = qa_z[i]
         qb = qb_z[i]
         jj = jz[i]
         for k in range(n):
             e_old = ezp[k]
-            e_new = e_old + pb[k] * ((a * hp0[k] - b * hpm[k]) - qb[k] * e_old - half * (one + qa[k]) * jj[k])
-            jj[k] = qa[k] * jj[k] + qb[k] * (e_new + e_old)
+            g = qb[k]
+            e_new = e_old + ((a * hp0[k] - b * hpm[k]) - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
+            jj[k] = qa_z[k] * jj[k] + g * (e_new + e_old)
             ezp[k] = e_new
         erp = er[i, jp0:]
         hlo = hp[i, jp0 - 1:]
-        pb = pb_r[i]
-        qa = qa_r[i]
         qb = qb_r[i]
         jj = jr[i]
         for k in range(n):
             e_old = erp[k]
+            g = qb[k]
             curl = -(hp0[k] - hlo[k]) * inv_dz
-            e_new = e_old + pb[k] * (curl - qb[k] * e_old - half * (one + qa[k]) * jj[k])
-            jj[k] = qa[k] * jj[k] + qb[k] * (e_new + e_old)
+            e_new = e_old + (curl - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
+            jj[k] = qa_r[k] * jj[k] + g * (e_new + e_old)
             erp[k] = e_new
 
 
