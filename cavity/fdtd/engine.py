@@ -396,34 +396,30 @@ class Simulation:
             if step % 1024 == 0:  # re-anchor the rotors against round-off
                 rot_h = np.exp(-1j * w * t_h)
             rot_e = rot_h * rot_half
-            K.update_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
-                       self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi)
-            if self.psi_zh.shape[1]:
-                K.pml_z_h(self.hp, self.er, self.jz0, self.inv_dz, self.ch, *self.pz_h, self.psi_zh)
-            if self.psi_rh.shape[0]:
-                K.pml_r_h(self.hp, self.ez, self.ir0, self.inv_dr, self.ch_far, *self.pr_h, self.psi_rh)
-            K.update_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
-                       *plasma_z, self.jz, *plasma_r, self.jr)
-            if self.psi_ze.shape[1]:
-                K.pml_z_e(self.er, self.hp, self.jz0, self.inv_dz, self.ce_top, *self.pz_e, self.psi_ze,
-                          self.jp0, self.jr, plasma_r[2])
-            if self.psi_re.shape[0]:
-                K.pml_r_e(self.ez, self.hp, self.ir0, self.rp, self.rm, self.ce_far, *self.pr_e, self.psi_re,
-                          self.jp0, self.jz, plasma_z[2])
+            K.step_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
+                     self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi,
+                     self.jz0, *self.pz_h, self.psi_zh, self.ir0, *self.pr_h, self.psi_rh, self.ch_far,
+                     acc_h[0], acc_h[1], rot_h.real, -rot_h.imag)
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
-                self.ez[0, :n_line] -= (self.src_coef_rows[:n_line] * currents).astype(np.float32)
+                kicks = (self.src_coef_rows[:n_line] * currents).astype(np.float32)
                 current = float(currents.sum())
+                src_kick = kicks[0]
             elif step < n_src:
                 current = src[step]
-                self.ez[0, 0] -= np.float32(self.src_coef * current)
+                src_kick = np.float32(self.src_coef * current)
             else:
                 current = 0.0
+                src_kick = np.float32(0.0)
+            K.step_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
+                     *plasma_z, self.jz, *plasma_r, self.jr,
+                     self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
+                     self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag)
+            if line_source and n_line > 1:
+                self.ez[0, 1:n_line] -= kicks[1:]  # rows above the ground row do not enter this step's DFT
             if current != 0.0:
                 acc_i += current * rot_h
-            K.accumulate_dft(acc_e[0], acc_e[1], self.ez, 0, rot_e.real, -rot_e.imag)
-            K.accumulate_dft(acc_h[0], acc_h[1], self.hp, 0, rot_h.real, -rot_h.imag)
             rot_h = rot_h * rot_step
             if probe_cols.size and step % series_every == 0:
                 t_series.append(t_e)
