@@ -11,10 +11,9 @@ never half-accepted.
 Units: the file speaks km, kHz, kW and degrees; the dataclasses hold m, Hz, W, S/m and degrees.
 :meth:`Scenario.to_toml` writes the file form back so that loading it gives an equal scenario.
 
-Extension point: a ``[source]`` section (an impulsive lightning source instead of the continuous
-transmitter) is planned. It will be parsed by a ``_parse_source`` function called from
-:func:`_parse_document` next to the other sections, stored in a ``source`` field of :class:`Scenario`
-and written back by :meth:`Scenario.to_toml`; until then ``source`` is an unknown key like any other.
+The optional ``[source]`` section (:func:`_parse_source`, :class:`Source`) replaces the continuous
+carrier by an impulsive lightning return stroke at the transmitter's place (``kind = "lightning"``);
+without it, or with ``kind = "carrier"``, the scenario's ``source`` is None (the carrier).
 """
 
 from __future__ import annotations
@@ -30,6 +29,7 @@ from datetime import date, datetime, time, timezone
 from pathlib import Path
 from typing import Any
 
+from cavity.constants import C0
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
 
@@ -49,6 +49,17 @@ PML_CELLS_RANGE = (5, 100)
 CELLS_PER_WAVELENGTH_RANGE = (8.0, 200.0)
 CONDUCTIVITY_RANGE_S_PER_M = (1e-6, 1e3)
 PERMITTIVITY_RANGE = (1.0, 100.0)
+# [source] with kind = "lightning" (Heidler current on a transmission-line channel)
+SOURCE_KINDS: tuple[str, ...] = ("carrier", "lightning")
+PEAK_CURRENT_RANGE_KA = (0.1, 500.0)
+RISE_TIME_CONSTANT_RANGE_US = (0.05, 50.0)
+DECAY_TIME_CONSTANT_RANGE_US = (1.0, 5000.0)
+HEIDLER_EXPONENT_RANGE = (1.0, 20.0)
+CHANNEL_SPEED_FRACTION_RANGE = (0.0, 1.0)  # lower end excluded
+CHANNEL_HEIGHT_RANGE_KM = (0.5, 20.0)
+RECORD_RANGE_MS = (1.0, 200.0)
+#: The record must last this long after the pulse reaches the farthest receiver.
+RECORD_MARGIN_MS = 2.0
 
 #: Top of the physical domain when the scenario does not set ``top_km`` (exponential, preset, utc
 #: and file forms; under a ceiling the ceiling is the top; with no ionosphere the open top is high).
@@ -66,13 +77,15 @@ IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
 _FORM_TEXT = "hprime_km + beta_per_km, preset, utc, ceiling_km, profile_file or no_ionosphere = true"
 GROUND_KINDS: tuple[str, ...] = (*GROUND_CLASSES, "custom", "auto")
 
-_TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "solver")
+_TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "solver", "source")
 _TRANSMITTER_KEYS = ("name", "latitude_deg", "longitude_deg", "frequency_khz", "radiated_power_kw")
 _RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
 _IONOSPHERE_KEYS = ("hprime_km", "beta_per_km", "preset", "utc", "day_preset", "night_preset",
                     "ceiling_km", "profile_file", "no_ionosphere")
 _GROUND_KEYS = ("kind", "conductivity_s_per_m", "relative_permittivity", "segment")
 _SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_permittivity")
+_SOURCE_KEYS = ("kind", "peak_current_ka", "rise_time_constant_us", "decay_time_constant_us", "heidler_exponent",
+                "channel_speed_fraction", "channel_height_km", "record_ms", "band_khz")
 _SOLVER_KEYS = ("max_range_km", "cell_m", "top_km", "earth_curvature", "pml_cells",
                 "cells_per_wavelength", "receiver_time_series")
 
@@ -170,6 +183,31 @@ class Solver:
 
 
 @dataclass(frozen=True)
+class Source:
+    """A lightning return stroke at the transmitter's place, in place of the carrier (SI units).
+
+    Channel-base current after Heidler, Cvetic and Stanic (1999, IEEE Trans. Power Delivery 14(2)
+    399) with peak ``peak_current_a``, time constants ``rise_time_constant_s`` (tau1) and
+    ``decay_time_constant_s`` (tau2) and exponent n; a transmission-line channel of height
+    ``channel_height_m`` climbed at ``channel_speed_fraction`` of the speed of light. Defaults are
+    the first-stroke values 28 kA, 1.8 us, 95 us, n = 2. ``record_s`` is the length of the recorded
+    waveforms from the stroke's onset; ``band_hz`` the band of the spectra, whose upper edge also
+    sets the grid (see :mod:`cavity.sferic`).
+    """
+
+    # written as the loader converts the file's units, so that the defaults round-trip exactly
+    kind: str = "lightning"
+    peak_current_a: float = 28.0 * 1e3
+    rise_time_constant_s: float = 1.8 * 1e-6
+    decay_time_constant_s: float = 95.0 * 1e-6
+    heidler_exponent: float = 2.0
+    channel_speed_fraction: float = 0.5
+    channel_height_m: float = 7.5 * 1e3
+    record_s: float = 20.0 * 1e-3
+    band_hz: tuple[float, float] = (0.5 * 1e3, 30.0 * 1e3)
+
+
+@dataclass(frozen=True)
 class ReceiverGeometry:
     """Where a receiver lies as seen from the transmitter (bearing None for a range-only receiver)."""
 
@@ -192,6 +230,7 @@ class Scenario:
     ionosphere: Ionosphere
     ground: Ground
     solver: Solver
+    source: Source | None = None  # None: the carrier of [transmitter]
     text: str = field(default="", compare=False, repr=False)
     path: str | None = field(default=None, compare=False)
 
@@ -298,8 +337,10 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     ionosphere = _parse_ionosphere(top.table("ionosphere", required=True), base)
     ground = _parse_ground(top.table("ground", required=True))
     solver = _parse_solver(top.table("solver", required=False) or _Table({}, "solver"), ionosphere)
-    scenario = Scenario(title, transmitter, receivers, ionosphere, ground, solver)
+    source = _parse_source(top.table("source", required=False))
+    scenario = Scenario(title, transmitter, receivers, ionosphere, ground, solver, source)
     _check_geometry(scenario)
+    _check_source(scenario)
     return scenario
 
 
@@ -661,6 +702,74 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
     )
 
 
+def _parse_source(t: _Table | None) -> Source | None:
+    """The optional [source]: None for the carrier (absent or kind = "carrier"), else a lightning stroke."""
+    if t is None:
+        return None
+    t.finish(_SOURCE_KEYS)
+    kind = t.string("kind", required=True, what=f"choose from {', '.join(SOURCE_KINDS)}")
+    if kind not in SOURCE_KINDS:
+        close = difflib.get_close_matches(kind, SOURCE_KINDS, n=1)
+        hint = f"; did you mean {close[0]!r}?" if close else ""
+        raise t.fail("kind", kind, f"is not a source kind (choose from {', '.join(SOURCE_KINDS)}){hint}")
+    if kind == "carrier":
+        for name in _SOURCE_KEYS[1:]:
+            if t.has(name):
+                raise t.fail(name, t.data[name], 'is only used with kind = "lightning"')
+        return None
+    d = Source()
+    peak = t.number("peak_current_ka", *PEAK_CURRENT_RANGE_KA, "kA")
+    rise = t.number("rise_time_constant_us", *RISE_TIME_CONSTANT_RANGE_US, "us")
+    decay = t.number("decay_time_constant_us", *DECAY_TIME_CONSTANT_RANGE_US, "us")
+    exponent = t.number("heidler_exponent", *HEIDLER_EXPONENT_RANGE, "")
+    speed = t.number("channel_speed_fraction", *CHANNEL_SPEED_FRACTION_RANGE, "of the speed of light", low_open=True)
+    height = t.number("channel_height_km", *CHANNEL_HEIGHT_RANGE_KM, "km")
+    record = t.number("record_ms", *RECORD_RANGE_MS, "ms")
+    rise_s = d.rise_time_constant_s if rise is None else rise * 1e-6
+    decay_s = d.decay_time_constant_s if decay is None else decay * 1e-6
+    if decay_s <= rise_s:
+        name = "decay_time_constant_us" if decay is not None else "rise_time_constant_us"
+        raise t.fail(name, t.data[name], f"leaves the decay ({_number_text(decay_s * 1e6)} us) no longer than "
+                     f"the rise ({_number_text(rise_s * 1e6)} us); the decay time constant must be the longer")
+    band = d.band_hz
+    raw = t.raw("band_khz")
+    if raw is not None:
+        allowed = f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+        if not isinstance(raw, list) or len(raw) != 2:
+            raise t.fail("band_khz", raw, f"must be two numbers {allowed}")
+        low, high = (t.number("band_khz", *FREQUENCY_RANGE_KHZ, "kHz", value=v, label=f"band_khz[{i}]",
+                              allowed=f"allowed range {allowed}") for i, v in enumerate(raw, 1))
+        if high <= low:
+            raise t.fail("band_khz", raw, f"must give the low edge first and a higher edge second ({allowed})")
+        band = (low * 1e3, high * 1e3)
+    return Source(
+        kind="lightning",
+        peak_current_a=d.peak_current_a if peak is None else peak * 1e3,
+        rise_time_constant_s=rise_s,
+        decay_time_constant_s=decay_s,
+        heidler_exponent=d.heidler_exponent if exponent is None else exponent,
+        channel_speed_fraction=d.channel_speed_fraction if speed is None else speed,
+        channel_height_m=d.channel_height_m if height is None else height * 1e3,
+        record_s=d.record_s if record is None else record * 1e-3,
+        band_hz=band,
+    )
+
+
+def _check_source(s: Scenario) -> None:
+    """A lightning record must outlast the pulse's arrival at the farthest receiver by RECORD_MARGIN_MS."""
+    if s.source is None:
+        return
+    farthest = max(s.receiver_geometry(), key=lambda g: g.range_m)
+    arrival_ms = farthest.range_m / C0 * 1e3
+    need_ms = arrival_ms + RECORD_MARGIN_MS
+    if s.source.record_s * 1e3 < need_ms:
+        raise ScenarioError(
+            f"source.record_ms = {_show(_edge(s.source.record_s, 1e-3))} ends before the sferic has passed "
+            f"{farthest.name!r} ({farthest.range_m / 1e3:.0f} km, arrival at {arrival_ms:.2f} ms); allowed range "
+            f"{math.ceil(need_ms * 10) / 10:g} to {_number_text(RECORD_RANGE_MS[1])} ms"
+        )
+
+
 def _geodesic(lat1, lon1, lat2, lon2) -> tuple[float, float]:
     """WGS84 geodesic distance (m) and forward bearing (deg, 0-360) from point 1 to point 2 (pyproj)."""
     from cavity.geo import distance_bearing
@@ -737,6 +846,15 @@ def _edge(value_si: float, scale: float) -> float:
             if candidate * scale == value_si:
                 return candidate
     return q
+
+
+def _edge_short(value_si: float, scale: float) -> float:
+    """Like :func:`_edge`, preferring the shortest decimal that gives ``value_si`` back (95.0, not 95.00000000000001)."""
+    for digits in (12, 15):
+        q = float(f"{value_si / scale:.{digits}g}")
+        if q * scale == value_si:
+            return q
+    return _edge(value_si, scale)
 
 
 def _toml_value(value: Any) -> str:
@@ -835,4 +953,18 @@ def _to_toml(s: Scenario) -> str:
         ("cells_per_wavelength", sv.cells_per_wavelength),
         ("receiver_time_series", sv.receiver_time_series),
     ])
+    src = s.source
+    if src is not None:
+        out += ["", "[source]"]
+        out += _lines([
+            ("kind", src.kind),
+            ("peak_current_ka", _edge_short(src.peak_current_a, 1e3)),
+            ("rise_time_constant_us", _edge_short(src.rise_time_constant_s, 1e-6)),
+            ("decay_time_constant_us", _edge_short(src.decay_time_constant_s, 1e-6)),
+            ("heidler_exponent", float(src.heidler_exponent)),
+            ("channel_speed_fraction", float(src.channel_speed_fraction)),
+            ("channel_height_km", _edge_short(src.channel_height_m, 1e3)),
+            ("record_ms", _edge_short(src.record_s, 1e-3)),
+            ("band_khz", [_edge_short(src.band_hz[0], 1e3), _edge_short(src.band_hz[1], 1e3)]),
+        ])
     return "\n".join(out) + "\n"
