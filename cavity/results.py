@@ -64,7 +64,8 @@ VARIABLES: dict[str, dict[str, str]] = {
                  "positive": "up", "axis": "Z"},
     "path": {"units": "1", "long_name": "path index, one per distinct bearing solved"},
     # Not named "time": it is elapsed time without a calendar origin, which CF's time axis requires.
-    "elapsed_time": {"units": "s", "long_name": "time since the transmitter was switched on"},
+    "lag": {"units": "s", "long_name": "time since the source started (the carrier switched on, or the lightning stroke's onset)"},
+    "spectrum_frequency": {"units": "kHz", "long_name": "frequency of the waveform spectra"},
     # per path
     "path_label": {"long_name": "path label"},
     "path_bearing": {"units": "degree", "long_name": "bearing of the path at the transmitter, clockwise from true north (NaN: the path serves every bearing)"},
@@ -85,6 +86,13 @@ VARIABLES: dict[str, dict[str, str]] = {
     "receiver_b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the receiver, {_DB_B}"},
     "receiver_b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
     "receiver_ez_time_series": {"units": "V m-1", "long_name": "vertical electric field at the receiver against time (instantaneous value)"},
+    # sferics (cavity.sferic): waveforms, their spectra and the source
+    "receiver_b_time_series": {"units": "T", "long_name": "horizontal magnetic flux density at the receiver against time (instantaneous value)"},
+    "receiver_ez_spectrum": {"units": "1", "long_name": "amplitude spectral density of the vertical electric field waveform at the receiver (magnitude of its Fourier transform), dB re 1 uV/m/Hz"},
+    "receiver_b_spectrum": {"units": "1", "long_name": "amplitude spectral density of the horizontal magnetic flux density waveform at the receiver (magnitude of its Fourier transform), dB re 1 fT/Hz"},
+    "receiver_cutoff_frequency": {"units": "kHz", "long_name": "lowest waveguide cutoff estimated from the sferic's tail at the receiver (NaN: none found)"},
+    "source_current": {"units": "A", "long_name": "lightning channel-base current"},
+    "source_current_moment": {"units": "A m", "long_name": "current moment of the lightning channel (current integrated along the channel)"},
     # media along each path
     "electron_density": {"units": "m-3", "long_name": "electron density"},
     "collision_frequency": {"units": "s-1", "long_name": "effective electron collision frequency"},
@@ -238,7 +246,7 @@ def assemble_dataset(
 
     Complex phasors become dB and unwrapped degrees here (:func:`phasor_to_db_phase`); lengths
     become km and frequencies kHz. Dimension sizes: P paths, F frequencies, R ranges, Z altitudes,
-    N receivers, T time samples (dimension ``elapsed_time``).
+    N receivers, T time samples (dimension ``lag``).
 
     Parameters
     ----------
@@ -370,9 +378,9 @@ def assemble_dataset(
         raise ValueError("time_s and receiver_ez_time_series_v_per_m go together")
     if time_s is not None:
         t = _array("time_s", time_s, np.shape(time_s))
-        coords["elapsed_time"] = ("elapsed_time", t)
+        coords["lag"] = ("lag", t)
         data_vars["receiver_ez_time_series"] = (
-            ("receiver", "elapsed_time"),
+            ("receiver", "lag"),
             _array("receiver_ez_time_series_v_per_m", receiver_ez_time_series_v_per_m, (N, t.size)),
         )
 
