@@ -107,7 +107,8 @@ class EngineResult:
     time_s: np.ndarray | None = None  # (nt,) sample times of the probe series
     ez_series: np.ndarray | None = None  # (nt, nprobe) V/m for the source waveform as run
     hphi_series: np.ndarray | None = None
-    source_current: np.ndarray | None = None  # (nt,) A at the series times
+    source_current: np.ndarray | None = None  # (nt,) A at the series times: waveform(t) (a channel's base current)
+    source_moment: np.ndarray | None = None  # (nt,) A m at the series times: sum of I dz over the driven cells
     notes: list[str] = field(default_factory=list)
 
 
@@ -370,7 +371,7 @@ class Simulation:
         series_every = 1
         if s.time_series_rate_hz:
             series_every = max(1, int(1.0 / (s.time_series_rate_hz * dt)))
-        ez_series, h_series, t_series, i_series = [], [], [], []
+        ez_series, h_series, t_series, i_series, m_series = [], [], [], [], []
         src_peak = 0.0
         last = None
         converged = False
@@ -426,6 +427,10 @@ class Simulation:
                 ez_series.append(self.ez[probe_cols, 0].copy())
                 h_series.append(0.5 * (self.hp[probe_cols, 0] + self.hp[probe_cols - 1, 0]))
                 i_series.append(float(wave(t_e)))
+                if line_source:
+                    m_series.append(float(np.sum(wave.axis_currents(t_e, self.z_ez[:n_line]))) * self.plan.dz_m)
+                else:
+                    m_series.append(i_series[-1] * self.plan.dz_m)
             step += 1
 
             if step % guard_every == 0:
@@ -461,6 +466,7 @@ class Simulation:
             res.ez_series = np.asarray(ez_series, float)
             res.hphi_series = np.asarray(h_series, float)
             res.source_current = np.asarray(i_series)
+            res.source_moment = np.asarray(m_series)
         return res
 
     @staticmethod
