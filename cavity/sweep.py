@@ -406,9 +406,9 @@ def sweep(
         for a regular grid. Default: the scenario's own instant (form "utc"), else no time axis.
     frequencies_khz : float or iterable of float, optional
         Frequencies, kHz; default the scenario's. Each is solved on its own.
-    scheduler : str or distributed.Client, optional
-        Address of an existing scheduler (``tcp://host:port``) or a connected client; default a
-        local cluster sized to this machine, shut down at the end.
+    scheduler : str, distributed.Client or a dask cluster object, optional
+        Address of an existing scheduler (``tcp://host:port``), a connected client or a cluster
+        (left running); default a local cluster sized to this machine, shut down at the end.
     workers : int, optional
         Worker processes of the local cluster (ignored with ``scheduler``).
     parts_dir : str or os.PathLike, optional
@@ -513,6 +513,9 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
         elif isinstance(scheduler, Client):
             client = scheduler
             warm_numba_cache()
+        elif hasattr(scheduler, "scheduler_address"):  # a cluster object (LocalCluster, ...)
+            warm_numba_cache()
+            client = stack.enter_context(Client(scheduler))
         else:
             warm = warm_numba_cache()
             log.info("numba kernels ready in %.1f s; connecting to %s", warm, scheduler)

@@ -372,7 +372,7 @@ def test_failed_point_is_retried_reported_by_name_and_the_rest_complete(tiny, cl
 def test_frequency_only_sweep_of_a_fixed_ionosphere(write_scenario, cluster):
     text = TINY.replace("utc = 2026-03-20T06:00:00Z", 'preset = "night"')
     sc = cavity.load_scenario(write_scenario(text))
-    ds = sweep(sc, frequencies_khz=FREQS_KHZ, scheduler=cluster.scheduler_address)
+    ds = sweep(sc, frequencies_khz=FREQS_KHZ, scheduler=cluster)  # a cluster object also works
     assert "time" not in ds.dims and list(ds["frequency"].values) == FREQS_KHZ
     assert ds["receiver_ez_amplitude"].dims == ("receiver", "frequency")
     one = simulate(point_scenario(sc, SweepPoint(0, 1, None, 12e3)))
@@ -484,7 +484,9 @@ def test_cli_killed_sweep_resumes(tmp_path):
     command = [sys.executable, "-c", "import sys; from cavity.cli import main; sys.exit(main())", "sweep",
                str(scenario), "--start", "2026-03-20T03:00Z", "--stop", "2026-03-20T07:00Z", "--step", "20min",
                "--workers", "2", "-o", str(out)]
-    proc = subprocess.Popen([*command, "-q"], stderr=subprocess.PIPE, text=True)
+    # SIGINT as a terminal sends it (a shell may have left it ignored for background jobs)
+    proc = subprocess.Popen([*command, "-q"], stderr=subprocess.PIPE, text=True,
+                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     parts = default_parts_dir(out)
     deadline = time.time() + 300
     while time.time() < deadline and len(list(parts.glob("*.nc"))) < 3:
