@@ -380,6 +380,28 @@ def test_frequency_only_sweep_of_a_fixed_ionosphere(write_scenario, cluster):
                                   one["receiver_ez_amplitude"].isel(frequency=0).values)
 
 
+def test_frequencies_on_different_grids_share_the_coarsest_range_axis(write_scenario, cluster):
+    # cell_m left to the tool: 20 cells per wavelength, so 10 and 12 kHz are solved on different
+    # range grids (1.5 km and 1.25 km cells)
+    text = TINY.replace("cell_m = 2500\n", "").replace("utc = 2026-03-20T06:00:00Z", 'preset = "day"')
+    text = text.replace("longitude_deg = 11.3", "longitude_deg = 10.6").replace("latitude_deg = 45.9", "latitude_deg = 45.4")
+    sc = cavity.load_scenario(write_scenario(text))
+    ds = sweep(sc, frequencies_khz=FREQS_KHZ, scheduler=cluster)
+    assert "coarsest" in ds.attrs["sweep_range_note"]
+    ten = simulate(point_scenario(sc, SweepPoint(0, 0, None, 10e3)))
+    twelve = simulate(point_scenario(sc, SweepPoint(0, 1, None, 12e3)))
+    assert np.median(np.diff(twelve["range"].values)) < np.median(np.diff(ten["range"].values))
+    np.testing.assert_array_equal(ds["range"].values, ten["range"].values)
+    np.testing.assert_array_equal(ds["ez_amplitude"].isel(frequency=0).values, ten["ez_amplitude"].isel(frequency=0).values)
+    for name in ("receiver_ez_amplitude", "receiver_ez_phase"):  # receivers: from each solve's own grid
+        np.testing.assert_array_equal(ds[name].isel(frequency=1).values, twelve[name].isel(frequency=0).values)
+    # fields along range at 12 kHz: linear in dB between the 12 kHz grid's points (numpy.interp)
+    for p in range(ds.sizes["path"]):
+        expected = np.interp(ds["range"].values, twelve["range"].values,
+                             twelve["ez_amplitude"].isel(path=p, frequency=0).values, right=np.nan)
+        np.testing.assert_allclose(ds["ez_amplitude"].isel(path=p, frequency=1).values, expected, rtol=1e-12)
+
+
 def test_unreachable_scheduler_is_a_one_line_error(tiny, monkeypatch):
     monkeypatch.setattr("cavity.sweep.CONNECT_TIMEOUT_S", 2)
     with pytest.raises(SweepError, match=r"scheduler = 'tcp://127.0.0.1:9': cannot connect"):
