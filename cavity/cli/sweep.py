@@ -30,18 +30,18 @@ def _frequencies(values) -> list[float] | None:
 
 @click.command("sweep")
 @click.argument("scenario", type=click.Path(dir_okay=False))
-@click.option("--start", help="First UTC instant, e.g. 2026-03-20T00:00Z (a date alone means 00:00 UTC).")
-@click.option("--stop", help="Last UTC instant (included when it falls on a step).")
-@click.option("--step", default="15min", show_default=True, help="Time between instants: 15min, 1h, 90s ...")
+@click.option("--start", metavar="UTC", help="First UTC instant, e.g. 2026-03-20T00:00Z (a date alone means 00:00 UTC).")
+@click.option("--stop", metavar="UTC", help="Last UTC instant (included when it falls on a step).")
+@click.option("--step", default="15min", show_default=True, metavar="DURATION", help="Time between instants: 15min, 1h, 90s ...")
 @click.option("--frequency", "frequency", multiple=True, metavar="KHZ",
               help="Frequency in kHz, repeatable or comma-separated (default: the scenario's).")
 @click.option("--scheduler", metavar="ADDRESS",
-              help="Use an existing dask scheduler, e.g. tcp://10.0.0.5:8786 (default: local workers).")
+              help="Use an existing dask scheduler, e.g. tcp://scheduler-host:8786 (default: local workers).")
 @click.option("--workers", type=click.IntRange(min=1), metavar="N",
               help="Local worker processes (default: as many as cores and memory allow).")
 @click.option("-o", "--output", "output", type=click.Path(dir_okay=False), required=True,
               help="Combined sweep file to write (netCDF).")
-@click.option("--parts", "parts", type=click.Path(file_okay=False),
+@click.option("--parts", "parts", type=click.Path(file_okay=False), metavar="DIR",
               help="Folder keeping one file per finished point [default: OUTPUT.parts beside the output].")
 @click.option("--allow-missing", is_flag=True,
               help="Write the combined file even if some points failed (NaN there, listed in the file).")
@@ -60,8 +60,10 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
 
     A scenario whose ionosphere is not given by utc can be swept over frequency only (no --start).
 
-    Example: cavity sweep examples/northbay.toml --start 2026-03-20T00:00Z
-    --stop 2026-03-21T00:00Z --step 30min -o northbay_day.nc
+    \b
+    Example:
+      cavity sweep examples/northbay.toml --start 2026-03-20T00:00Z \\
+          --stop 2026-03-21T00:00Z --step 30min -o northbay_day.nc
     """
     from pathlib import Path
 
