@@ -89,6 +89,7 @@ class Settings:
     time_series_rate_hz: float | None = None
     convergence_db: float = 0.002
     max_duration_s: float | None = None
+    dispersion_correction: bool = True
 
 
 @dataclass
@@ -110,6 +111,24 @@ class EngineResult:
     source_current: np.ndarray | None = None  # (nt,) A at the series times: waveform(t) (a channel's base current)
     source_moment: np.ndarray | None = None  # (nt,) A m at the series times: sum of I dz over the driven cells
     notes: list[str] = field(default_factory=list)
+
+
+def radial_dispersion_factor(frequencies_hz, dr: float, dt: float) -> float:
+    """Factor on the radial differences that makes waves along r travel at c at the design frequency.
+
+    For a wave along r (k_z = 0) the Yee scheme obeys sin(w dt/2)/(c dt) = sin(k dr/2)/dr, so it
+    travels slowly (about -0.2 % at 20 cells per wavelength, 55 deg per 1000 km at 20 kHz). Scaling
+    the radial difference operators by gamma = (dr/(c dt)) sin(w dt/2)/sin(k dr/2) makes the
+    numerical wavenumber exact at the design frequency (the RMS of the requested frequencies): the
+    modified-coefficient, dispersion-optimised FDTD at a design frequency (Taflove and Hagness 2005,
+    ch. 4; Shlager and Schneider 2003, IEEE TAP 51(3) 642). The grazing, low-order waveguide modes
+    that carry the field to long range benefit most; gamma - 1 is a few parts per thousand, well
+    inside the time step's stability margin.
+    """
+    f = float(np.sqrt(np.mean(np.square(np.asarray(frequencies_hz, float)))))
+    w = 2 * math.pi * f
+    k = w / C0
+    return float((dr / (C0 * dt)) * math.sin(w * dt / 2) / math.sin(k * dr / 2))
 
 
 def default_waveform(frequencies_hz) -> Callable:
@@ -248,12 +267,15 @@ class Simulation:
         self.cez = (dt / eps_ez).astype(f32)
         self.cer = (dt / eps_er).astype(f32)
         self.ch = f32(dt / MU0)
-        self.inv_dr, self.inv_dz = f32(1.0 / dr), f32(1.0 / dz)
+        self.gamma = radial_dispersion_factor(self.frequencies_hz, dr, dt) if s.dispersion_correction else 1.0
+        self.inv_dr, self.inv_dz = f32(self.gamma / dr), f32(1.0 / dz)
+        # (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = (H_{i+1/2} - H_{i-1/2})/dr + (H_{i+1/2} + H_{i-1/2})/(2 r_i):
+        # the difference part carries the dispersion factor, the 1/r part does not
         rp = np.empty(nr)
         rm = np.empty(nr)
-        rp[0], rm[0] = 4.0 / dr, 0.0
-        rp[1:] = self.r_h[1:] / (self.r_ez[1:] * dr)
-        rm[1:] = self.r_h[:-1] / (self.r_ez[1:] * dr)
+        rp[0], rm[0] = 4.0 * self.gamma / dr, 0.0
+        rp[1:] = self.gamma / dr + 0.5 / self.r_ez[1:]
+        rm[1:] = self.gamma / dr - 0.5 / self.r_ez[1:]
         self.rp, self.rm = rp.astype(f32), rm.astype(f32)
 
         # plasma
