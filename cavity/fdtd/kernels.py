@@ -43,7 +43,9 @@ def max_abs(a):
         where[i] = i * nz + w
     k = 0
     for i in range(nr):
-        if not (best[i] <= best[k]):
+        if best[i] != best[i]:  # NaN wins: the guard must see it
+            return best[i], where[i]
+        if best[i] > best[k]:
             k = i
     return best[k], where[k]
 
