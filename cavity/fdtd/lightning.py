@@ -133,8 +133,13 @@ class HeidlerStroke:
 
     def charge(self, t_s):
         """Charge through the channel base since the onset, q(t) = int_0^t i, C."""
-        t, _ = self._fine
-        return np.interp(np.asarray(t_s, float), t, self._cumulative_charge, left=0.0)
+        t, i = self._fine
+        ts = np.asarray(t_s, float)
+        q = np.interp(ts, t, self._cumulative_charge, left=0.0)
+        # beyond the fine grid the current is i(T) exp(-(t - T)/tau2) to relative 1e-9
+        late = ts > t[-1]
+        tau2 = self.decay_time_constant_s
+        return np.where(late, self._cumulative_charge[-1] + i[-1] * tau2 * (1.0 - np.exp(-(ts - t[-1]) / tau2)), q)
 
     @property
     def charge_transferred_c(self) -> float:
