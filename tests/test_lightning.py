@@ -8,6 +8,7 @@ scipy.integrate.quad and maximised/solved with scipy.optimize, and the transmiss
 
 from __future__ import annotations
 
+import functools
 import math
 
 import numpy as np
@@ -92,15 +93,21 @@ def test_current_spectrum_matches_the_fourier_integral(stroke):
     assert stroke.current_spectrum(0.0)[0].real == pytest.approx(stroke.charge_transferred_c, rel=1e-9)
 
 
+@functools.lru_cache(maxsize=None)
+def _current_ft(f):
+    w = 2 * math.pi * f
+    re = quad(heidler, 0, 3e-3, weight="cos", wvar=w, limit=400)[0]
+    im = -quad(heidler, 0, 3e-3, weight="sin", wvar=w, limit=400)[0]
+    return re + 1j * im
+
+
 def _radiation_spectrum_peak(height_m, speed):
-    """Peak of |v I(f) (1 - exp(-j w H/v))| (the TL channel's dM/dt), I(f) from quad, golden search."""
+    """Peak of |v I(f) (1 - exp(-j w H/v))| (the TL channel's dM/dt), I(f) from quad, bounded search."""
     def magnitude(f):
         w = 2 * math.pi * f
-        re = quad(heidler, 0, 3e-3, weight="cos", wvar=w, limit=400)[0]
-        im = -quad(heidler, 0, 3e-3, weight="sin", wvar=w, limit=400)[0]
-        return abs(speed * (re + 1j * im) * (1 - np.exp(-1j * w * height_m / speed)))
+        return abs(speed * _current_ft(float(f)) * (1 - np.exp(-1j * w * height_m / speed)))
 
-    grid = np.geomspace(1e3, 20e3, 60)
+    grid = np.geomspace(1e3, 20e3, 40)
     k = int(np.argmax([magnitude(f) for f in grid]))
     res = minimize_scalar(lambda f: -magnitude(f), bounds=(grid[k - 1], grid[k + 1]), method="bounded",
                           options={"xatol": 0.5})

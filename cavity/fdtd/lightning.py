@@ -233,11 +233,11 @@ class HeidlerStroke:
         f = np.atleast_1d(np.asarray(frequency_hz, dtype=float))
         return 2j * np.pi * f * self.moment_spectrum(f)
 
-    def radiation_spectrum_peak_hz(self, f_low_hz: float = 100.0, f_high_hz: float = 100e3) -> float:
+    def radiation_spectrum_peak_hz(self, f_low_hz: float = 300.0, f_high_hz: float = 30e3) -> float:
         """Frequency where |j w M(f)| peaks (log-spaced search, then a bounded refinement), Hz."""
         from scipy.optimize import minimize_scalar
 
-        f = np.geomspace(f_low_hz, f_high_hz, 400)
+        f = np.geomspace(f_low_hz, f_high_hz, 100)
         a = np.abs(self.radiation_spectrum(f))
         k = int(np.argmax(a))
         lo, hi = f[max(k - 1, 0)], f[min(k + 1, f.size - 1)]
