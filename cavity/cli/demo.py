@@ -42,7 +42,7 @@ def _simulate(scenario, quiet: bool, label: str):
 
 
 @click.command("demo")
-@click.option("-o", "--output", "folder", type=click.Path(file_okay=False, path_type=Path),
+@click.option("-o", "--output", "folder", type=click.Path(path_type=Path),
               default=Path("demo-output"), show_default=True, metavar="FOLDER",
               help="Folder to write into (made if missing).")
 @click.option("--overwrite", is_flag=True, help="Replace the demo's files if the folder already has them.")
