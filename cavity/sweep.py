@@ -70,8 +70,9 @@ CONNECT_TIMEOUT_S = 20
 
 #: Variables along range that do not change with the UTC instant (the ground under each path).
 _TIME_INVARIANT = ("ground_conductivity", "ground_relative_permittivity")
-#: Diagnostics that a sweep does not combine (their time axis differs from point to point).
-_DROPPED = ("receiver_ez_time_series", "elapsed_time")
+#: Dimensions a sweep combines; per-run diagnostics on other dimensions (waveforms against time
+#: since the source started, spectra) differ in length from point to point and are left out.
+_SWEPT_DIMS = frozenset({"path", "frequency", "range", "altitude", "receiver"})
 
 
 class SweepError(CavityError):
@@ -605,6 +606,11 @@ def _on_range(ds, r: np.ndarray):
     return out
 
 
+def _sweepable(ds):
+    """``ds`` without the variables on dimensions a sweep does not combine."""
+    return ds.drop_vars([n for n, v in ds.variables.items() if not set(v.dims) <= _SWEPT_DIMS])
+
+
 def combine(scenario: Scenario, times, freqs, points, results: dict, variants: dict | None = None) -> xr.Dataset:
     """Combine the points' result datasets into one sweep dataset (NaN for missing points).
 
@@ -630,7 +636,7 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
         by_f.setdefault(p.frequency_index, results[p]["range"].values)
     r, regridded = _common_range(by_f)
     ref_f = next(fi for fi, a in by_f.items() if a.shape == r.shape and np.array_equal(a, r))
-    slot = {(p.time_index, p.frequency_index): _on_range(results[p].drop_vars(_DROPPED, errors="ignore"), r) for p in done}
+    slot = {(p.time_index, p.frequency_index): _on_range(_sweepable(results[p]), r) for p in done}
     template = next(slot[k] for k in sorted(slot, key=lambda k: (k[1] != ref_f, k)))
 
     n_t = len(times) if times is not None else 1
