@@ -45,6 +45,8 @@ if TYPE_CHECKING:  # pragma: no cover
 EARTH_RADIUS_KM = 6371.0
 #: Default range window of the attenuation fit, km.
 DEFAULT_FIT_KM = (1000.0, 3000.0)
+#: RMS residual above which a fitted rate is flagged as describing modal interference, dB.
+SHAKY_FIT_RESIDUAL_DB = 2.0
 #: Fewest range samples a fit accepts.
 MIN_FIT_POINTS = 5
 #: Figure formats by file suffix.
@@ -642,6 +644,12 @@ def comparison_report(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         "(1/sqrt(d) on a flat earth, 1/sqrt(a sin(d/a)) on the sphere):\n\n"
     )
     text += format_table(fits, ATTENUATION_COLUMNS)
+    if any(f["stop_km"] - f["start_km"] < 1000.0 or f["rms_residual_db"] > SHAKY_FIT_RESIDUAL_DB for f in fits):
+        text += (
+            f"\nA window shorter than 1000 km or an RMS residual above {SHAKY_FIT_RESIDUAL_DB:g} dB means the "
+            "curve is dominated by modal interference there: read such a rate as a rough slope, not as the "
+            "waveguide's attenuation.\n"
+        )
     cautions = table_notes([ds_a, ds_b])[-1:]
     for note in cautions:
         if note.startswith("Cautions"):
@@ -808,8 +816,8 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
         _mark_receivers(ax_p, rx_n, rx_d, y_rx, RUN_COLOURS[0], label_names=False)
         ax_p.set_xlabel("Ground range from the transmitter (km)")
         ax_p.grid(True, alpha=0.3)
-    if len(r):
-        axes[0].set_xlim(0.0, float(np.nanmax(r)))
+        if ok.any():
+            ax_a.set_xlim(0.0, float(r[ok].max()))
     heading = title if title is not None else _text(ds.attrs.get("title", "cavity result"))
     note = ("phase relative to a wave at the speed of light (+360 f d/c)" if phase == "relative"
             else "phase relative to the transmitter current")
@@ -862,7 +870,7 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         ax.set_xlabel("Ground range from the transmitter (km)")
         ax.set_title(f"{f:g} kHz", fontsize=10)
         ax.grid(True, alpha=0.3)
-        ax.legend(fontsize=8, loc="upper right")
+        ax.legend(fontsize=8, loc="lower left", framealpha=0.85)
     heading = title if title is not None else f"{label_a} and {label_b}"
     fig.suptitle(f"{heading}\nRMS vertical field at the ground; dots: receivers; "
                  "fits: spreading removed, loss per 1000 km", fontsize=10)

@@ -426,3 +426,55 @@ def test_full_demo_in_minutes(tmp_path):
     night = open_result(tmp_path / "demo-output" / "night.nc")
     assert day["receiver_ez_amplitude"].values[-1, 0] < night["receiver_ez_amplitude"].values[-1, 0]
     print(f"demo took {elapsed:.0f} s")
+
+
+# --------------------------------------------------------------------------------------------------
+# examples/memo_report.py
+# --------------------------------------------------------------------------------------------------
+
+
+def load_memo_script():
+    import importlib.util
+
+    spec = importlib.util.spec_from_file_location("memo_report", REPO / "examples" / "memo_report.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module
+
+
+def test_memo_report_from_day_and_night(tmp_path, capsys):
+    memo = load_memo_script()
+    day, night = tmp_path / "day.nc", tmp_path / "night.nc"
+    shutil.copy(DAY, day)
+    shutil.copy(NIGHT, night)
+    out = tmp_path / "memo.md"
+    assert memo.main([str(day), str(night), "-o", str(out), "--required", "40"]) == 0
+    printed = capsys.readouterr().out.splitlines()
+    names = sorted(Path(line.removeprefix("wrote ")).name for line in printed)
+    assert names == ["memo.md", "memo_comparison.png", "memo_day.png", "memo_map.png", "memo_night.png"]
+    text = out.read_text(encoding="utf-8")
+    for heading in ("## Job", "## Scenario", "## Map", "## Field against range", "## Receiver table", "## Cautions"):
+        assert heading in text
+    for figure in ("memo_map.png", "memo_comparison.png", "memo_day.png"):
+        assert f"]({figure})" in text
+        png_not_blank(tmp_path / figure)
+    assert "Margin over 40 dB (dB)" in text and "Predictions are planning estimates" in text
+    # the receiver table in the memo carries the file's numbers
+    ez = open_result(DAY)["receiver_ez_amplitude"].values
+    table = text.split("## Receiver table", 1)[1]
+    rows = [[c.strip() for c in line.strip().strip("|").split(" | ")] for line in table.splitlines()
+            if line.startswith("| day ")]
+    assert len(rows) == ez.size
+    column = [c.strip() for c in table.splitlines()[2].strip().strip("|").split(" | ")].index("Ez (dB re 1 uV/m)")
+    for n, row in enumerate(rows):
+        assert abs(float(row[column]) - ez[divmod(n, ez.shape[1])]) <= 0.05
+    # a second run refuses to replace the memo
+    assert memo.main([str(day), "-o", str(out)]) == 1
+    assert "exists already" in capsys.readouterr().err
+
+
+def test_memo_report_bad_file(tmp_path, capsys):
+    memo = load_memo_script()
+    assert memo.main([str(tmp_path / "absent.nc"), "-o", str(tmp_path / "m.md")]) == 1
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "not found" in err[0]
