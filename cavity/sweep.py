@@ -199,6 +199,11 @@ def sweep_points(scenario: Scenario, times=None, frequencies_khz=None) -> tuple[
     ScenarioError
         Instants given for a scenario whose ionosphere does not depend on time, or a bad value.
     """
+    if getattr(scenario, "source", None) is not None:
+        raise ScenarioError(
+            "[source]: a sweep solves the continuous transmitter; a lightning source is not swept "
+            "(remove [source], or run each instant on its own)"
+        )
     form = scenario.ionosphere.form
     if times is not None:
         times = [parse_utc(t, "time") for t in times]

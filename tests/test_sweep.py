@@ -215,6 +215,12 @@ def test_instants_need_the_utc_form(write_scenario):
     assert times is None and freqs == [10e3, 12e3] and [p.name for p in points] == ["10 kHz", "12 kHz"]
 
 
+def test_a_lightning_source_is_not_swept():
+    sc = cavity.load_scenario(TINY + '\n[source]\nkind = "lightning"\n')
+    with pytest.raises(ScenarioError, match=r"\[source\]: a sweep solves the continuous transmitter"):
+        sweep_points(sc, TIMES)
+
+
 def test_local_cluster_size_keeps_workers_times_threads_within_cores():
     assert local_cluster_size(100, cores=8) == (8, 1)
     assert local_cluster_size(3, cores=8) == (3, 2)  # fewer points than cores: threads for each
