@@ -232,6 +232,16 @@ def to_dataset(scenario, solutions):
             rx_b[i_rx] = sol.receiver_b[j]
             rx_path[i_rx] = p
             rx_range[i_rx] = sol.path.receiver_ranges_m[j]
+    series = {}
+    if all(s.engine.time_s is not None for s in solutions):
+        # receiver waveforms (probes sit at the receivers, in path order), padded to the longest run
+        t = max((s.engine.time_s for s in solutions), key=len)
+        wave = np.full((n_rx, t.size), np.nan)
+        for sol in solutions:
+            scale_t = _series_scale(scenario, sol)
+            for j, i_rx in enumerate(sol.path.receiver_indices):
+                wave[i_rx, : sol.engine.time_s.size] = sol.engine.ez_series[:, j] * scale_t
+        series = {"time_s": t, "receiver_ez_time_series_v_per_m": wave}
     geometry = scenario.receiver_geometry()
     record = SolverRecord(
         cells=int(max(s.engine.plan.cells for s in solutions)),
@@ -269,16 +279,6 @@ def to_dataset(scenario, solutions):
         beta_per_km=extra.get("beta_per_km"),
         **series,
     )
-    series = {}
-    if all(s.engine.time_s is not None for s in solutions):
-        # receiver waveforms (probes sit at the receivers, in path order), padded to the longest run
-        t = max((s.engine.time_s for s in solutions), key=len)
-        wave = np.full((n_rx, t.size), np.nan)
-        for sol in solutions:
-            scale_t = _series_scale(scenario, sol)
-            for j, i_rx in enumerate(sol.path.receiver_indices):
-                wave[i_rx, : sol.engine.time_s.size] = sol.engine.ez_series[:, j] * scale_t
-        series = {"time_s": t, "receiver_ez_time_series_v_per_m": wave}
     notes = [f"{s.path.label}: {n}" for s in solutions for n in s.engine.notes]
     ds.attrs["solver_converged"] = "yes" if all(s.engine.converged for s in solutions) else "no"
     if notes:
