@@ -30,6 +30,7 @@ from pathlib import Path
 from typing import Any
 
 from cavity.constants import C0
+from cavity.fdtd.grid import DEFAULT_CELLS_PER_WAVELENGTH
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
 
@@ -178,7 +179,7 @@ class Solver:
     top_m: float | None = None
     earth_curvature: bool = True
     pml_cells: int = 20
-    cells_per_wavelength: float = 20.0
+    cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH
     receiver_time_series: bool = False
 
 
