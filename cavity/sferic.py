@@ -30,6 +30,7 @@ file holds.
 from __future__ import annotations
 
 import dataclasses
+import importlib
 import logging
 import math
 import time
@@ -239,9 +240,17 @@ def engine_settings(scenario, path, stroke):
     )
 
 
+def plan_path(scenario, path):
+    """The solve one path of a lightning scenario needs (grid, time step, record), without allocating it."""
+    sim_mod = importlib.import_module("cavity.simulate")  # the module (the package also has a function of that name)
+    from cavity.fdtd import engine as eng
+
+    return eng.make_plan(sim_mod.path_medium(scenario, path), engine_settings(scenario, path, stroke_for(scenario.source)))
+
+
 def _solve_path(scenario, path, stroke, progress):
     """One engine run: the calibrated carrier response (as :func:`cavity.simulate.solve_path`) and the raw series."""
-    from cavity import simulate as sim_mod
+    sim_mod = importlib.import_module("cavity.simulate")  # the module (the package also has a function of that name)
     from cavity.fdtd import engine as eng
     from cavity.fdtd import media
     from cavity.fdtd.source import moment_for_power
