@@ -117,8 +117,8 @@ CATALOGUE: list[Case] = [
          scenario(receivers=rx(latitude="51.0", longitude_deg="1.0"))),
     Case("key-solver-misspelt", "unknown key", ("solver.cellsize_m", "unknown key", "'cell_m'"),
          scenario(solver="[solver]\ncellsize_m = 500.0")),
-    Case("key-unplanned-section", "unknown key", ("source", "unknown key", "known keys"),
-         scenario() + '\n[source]\nkind = "lightning"\n'),
+    Case("key-unplanned-section", "unknown key", ("antenna", "unknown key", "known keys"),
+         scenario() + '\n[antenna]\nheight_m = 200.0\n'),
     # --- wrong types
     Case("type-power-with-unit-text", "wrong type", ("transmitter.radiated_power_kw", '"100 kW"', "must be a number", "> 0 to 5000 kW"),
          scenario(transmitter=tx(radiated_power_kw='"100 kW"'))),

@@ -60,9 +60,11 @@ def test_long_range_checks(name):
 
 
 def _small_guide(**kw):
+    # h = 55 km keeps every plate mode away from cutoff at 10 kHz (TM3 8.2 kHz, TM4 10.9 kHz):
+    # a mode at cutoff rings for ever and no finite run converges
     settings = dict(frequencies_hz=(10e3,), max_range_m=150e3, dr_m=1000.0, dz_m=1000.0, earth_curvature=False)
     settings.update(kw)
-    return eng.Medium.uniform(ceiling_m=60e3), eng.Settings(**settings)
+    return eng.Medium.uniform(ceiling_m=55e3), eng.Settings(**settings)
 
 
 def test_serial_and_parallel_kernels_give_identical_fields():
