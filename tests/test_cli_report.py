@@ -267,7 +267,14 @@ def sweep_file(monkeypatch):
     """Make open_result hand back a dataset with a time dimension (as a sweep file has)."""
     import cavity.results
 
-    ds = open_result(DAWN).expand_dims(time=np.array(["2026-03-20T05:00", "2026-03-20T06:00"], dtype="datetime64[ns]"))
+    base = open_result(DAWN)
+    times = np.array(["2026-03-20T05:00", "2026-03-20T06:00"], dtype="datetime64[ns]")
+    # as a sweep file: the fields and the ionosphere vary with time, the geometry does not
+    varying = [n for n, v in base.data_vars.items()
+               if "frequency" in v.dims or n in ("solar_zenith_angle", "hprime", "beta", "electron_density")]
+    ds = base.copy()
+    for name in varying:
+        ds[name] = base[name].expand_dims(time=times)
     monkeypatch.setattr(cavity.results, "open_result", lambda path: ds)
     return ds
 
@@ -290,6 +297,19 @@ def test_sweep_files_dispatch_to_the_sweep_reports(sweep_file, monkeypatch, tmp_
     assert calls == [("table", 2), ("plot", "d.png")]
     result = invoke("table", "sweep.nc", "--required", "40")
     assert result.exit_code == 2 and "sweep file" in result.stderr
+
+
+def test_sweep_files_with_the_real_sweep_reports(sweep_file, tmp_path):
+    pytest.importorskip("cavity.sweep_report")
+    result = invoke("table", "sweep.nc", "-f", "csv")
+    assert result.exit_code == 0, result.output
+    rows = list(csv.DictReader(io.StringIO(result.stdout)))
+    assert len(rows) == sweep_file.sizes["receiver"] * sweep_file.sizes["frequency"]
+    result = invoke("table", "sweep.nc")
+    assert result.exit_code == 0 and result.stdout.rstrip().splitlines()[-1].startswith("Cautions:")
+    result = invoke("plot", "sweep.nc", "-o", tmp_path / "d.png")
+    assert result.exit_code == 0, result.output
+    png_not_blank(tmp_path / "d.png")
 
 
 def test_sweep_files_without_the_sweep_reports(sweep_file, monkeypatch, tmp_path):

@@ -32,17 +32,27 @@ def run_labels(files) -> list[str]:
     return names if len(set(names)) == len(names) else [str(f) for f in files]
 
 
-def diurnal_table(ds) -> str:
+def diurnal_table(ds, fmt: str) -> str:
     """The table of a sweep file, from the sweep module's reporter (imported only when needed)."""
+    import importlib
+
     try:
-        from cavity.sweep_report import table_diurnal
+        sweep_report = importlib.import_module("cavity.sweep_report")
     except ImportError:
         raise click.ClickException(
             "this is a sweep file (it has a time dimension), and the sweep reports (cavity.sweep_report) "
             "are not installed"
         ) from None
-    text = table_diurnal(ds)
-    return text if isinstance(text, str) else str(text)
+    table = sweep_report.table_diurnal(ds)
+    if isinstance(table, str):
+        return table
+    formatter = getattr(sweep_report, "format_diurnal_table", None)
+    text = formatter(table, fmt) if formatter is not None else table.to_csv(index=False)
+    if fmt == "markdown":
+        from cavity.report import table_notes
+
+        text += "".join(f"\n{note}\n" for note in table_notes([ds]) if note.startswith("Cautions"))
+    return text
 
 
 @click.command("table")
@@ -102,7 +112,7 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
             raise click.UsageError(
                 "a sweep file (time dimension) is tabulated on its own, without --required/--noise"
             )
-        text = diurnal_table(sweeps[0])
+        text = diurnal_table(sweeps[0], fmt)
     else:
         labels = run_labels(results) if len(results) > 1 else None
         text = receiver_table(datasets, fmt, runs=labels, required_db=required_db, noise_db=noise_db,
