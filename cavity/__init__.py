@@ -42,8 +42,8 @@ def load_scenario(source):
 
 
 def simulate(scenario, **kwargs):
-    """Run the waveguide solver for a scenario and return the result dataset; see :mod:`cavity.simulate`."""
-    from cavity.simulate import simulate as _simulate
+    """Run the waveguide solver for a scenario and return the result dataset; see :mod:`cavity.solve`."""
+    from cavity.solve import simulate as _simulate
 
     return _simulate(scenario, **kwargs)
 

@@ -18,7 +18,7 @@ the result dataset of the file contract, plus:
 The frequency-domain variables of every result file (``ez_amplitude`` ...) hold, at the
 ``[transmitter]`` frequencies, the waveguide's response to a carrier of ``radiated_power_kw`` at the
 same place, obtained from the same impulsive run (field spectrum over current-moment spectrum, then
-the carrier calibration of :mod:`cavity.simulate`).
+the carrier calibration of :mod:`cavity.solve`).
 
 Band and grid: the grid passes what it resolves. The band's upper edge sets the range cell (the
 scenario's ``cells_per_wavelength`` at that frequency, unless ``cell_m`` is given); the stroke's
@@ -242,15 +242,15 @@ def engine_settings(scenario, path, stroke):
 
 def plan_path(scenario, path):
     """The solve one path of a lightning scenario needs (grid, time step, record), without allocating it."""
-    sim_mod = importlib.import_module("cavity.simulate")  # the module (the package also has a function of that name)
+    sim_mod = importlib.import_module("cavity.solve")
     from cavity.fdtd import engine as eng
 
     return eng.make_plan(sim_mod.path_medium(scenario, path), engine_settings(scenario, path, stroke_for(scenario.source)))
 
 
 def _solve_path(scenario, path, stroke, progress):
-    """One engine run: the calibrated carrier response (as :func:`cavity.simulate.solve_path`) and the raw series."""
-    sim_mod = importlib.import_module("cavity.simulate")  # the module (the package also has a function of that name)
+    """One engine run: the calibrated carrier response (as :func:`cavity.solve.solve_path`) and the raw series."""
+    sim_mod = importlib.import_module("cavity.solve")
     from cavity.fdtd import engine as eng
     from cavity.fdtd import media
     from cavity.fdtd.source import moment_for_power
@@ -309,7 +309,7 @@ def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing
     from cavity.fdtd import media
     from cavity.paths import build_paths
     from cavity.results import apply_metadata
-    from cavity.simulate import to_dataset
+    from cavity.solve import to_dataset
 
     src = getattr(scenario, "source", None)
     if src is None or src.kind != "lightning":

@@ -262,8 +262,8 @@ def point_scenario(scenario: Scenario, point: SweepPoint) -> Scenario:
 
 
 def solve_point(scenario: Scenario) -> xr.Dataset:
-    """Solve one point (runs on a worker): the result dataset of :func:`cavity.simulate.simulate`."""
-    from cavity.simulate import simulate
+    """Solve one point (runs on a worker): the result dataset of :func:`cavity.solve.simulate`."""
+    from cavity.solve import simulate
 
     return simulate(scenario)
 
@@ -296,7 +296,7 @@ def warm_numba_cache() -> float:
     import numba
 
     from cavity.scenario import load_scenario
-    from cavity.simulate import simulate
+    from cavity.solve import simulate
 
     t0 = _time.perf_counter()
     threads = numba.get_num_threads()
@@ -311,7 +311,7 @@ def warm_numba_cache() -> float:
 def point_memory_bytes(scenario: Scenario) -> int:
     """Estimated memory of one point's solve (the largest path of the scenario), bytes."""
     from cavity.paths import build_paths
-    from cavity.simulate import plan_path
+    from cavity.solve import plan_path
 
     return max(int(plan_path(scenario, p).grid.memory_bytes) for p in build_paths(scenario))
 

@@ -13,7 +13,7 @@ from pyproj import Geod
 from cavity.cli import main
 from cavity.paths import build_paths
 from cavity.scenario import load_scenario
-from cavity.simulate import plan_path
+from cavity.solve import plan_path
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
 

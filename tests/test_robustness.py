@@ -363,9 +363,9 @@ def test_grid_too_large_is_refused_before_allocation(tmp_path, monkeypatch):
 def test_unstable_run_stops_naming_step_and_region(tmp_path, monkeypatch):
     """A time step 1.5 x the stability limit (physics.md 2: the leapfrog scheme diverges above it)
     must be stopped by the engine's guard with the step and region, and no result file written."""
-    import cavity.simulate  # noqa: F401  (the module, for monkeypatching)
+    import cavity.solve  # noqa: F401  (the module, for monkeypatching)
 
-    module = sys.modules["cavity.simulate"]
+    module = sys.modules["cavity.solve"]
     original = module.engine_settings
     monkeypatch.setattr(module, "engine_settings",
                         lambda *a, **k: dataclasses.replace(original(*a, **k), courant_safety=1.5))
@@ -630,11 +630,11 @@ def test_signal_while_writing_leaves_the_old_file(tmp_path, monkeypatch):
     result is intact, exit 143 with one line. The run itself is replaced by a ready dataset."""
     import xarray as xr
 
-    import cavity.simulate  # noqa: F401
+    import cavity.solve  # noqa: F401
 
     ready = xr.open_dataset(_write_result(tmp_path / "ready.nc", 20.0)).load()
     (tmp_path / "ready.nc").unlink()
-    monkeypatch.setattr(sys.modules["cavity.simulate"], "simulate", lambda scenario, progress=None: ready.copy())
+    monkeypatch.setattr(sys.modules["cavity.solve"], "simulate", lambda scenario, progress=None: ready.copy())
     real_to_netcdf = xr.Dataset.to_netcdf
 
     def half_written(self, path, *args, **kwargs):
@@ -711,7 +711,7 @@ def test_extreme_user_profile_reaches_the_engine(tmp_path):
     profiles' range) instead of failing inside profiles."""
     from cavity import load_scenario
     from cavity.paths import build_paths
-    from cavity.simulate import path_medium
+    from cavity.solve import path_medium
 
     s = load_scenario(EXTREME_VALID["user-profile-under-a-high-top"])
     medium = path_medium(s, build_paths(s)[0])

@@ -111,3 +111,11 @@ def test_source_calibration_formula():
     m = moment_for_power(1e3, 20e3)
     lam = 299_792_458.0 / 20e3
     assert 160 * math.pi**2 * (m / lam) ** 2 == pytest.approx(1e3)
+
+
+def test_public_simulate_survives_importing_the_orchestration_module(tmp_path):
+    # The package's function `cavity.simulate` must not be replaced by a submodule of that name.
+    import cavity
+    import cavity.solve  # noqa: F401
+
+    assert callable(cavity.simulate) and cavity.simulate.__module__ == "cavity"

@@ -28,7 +28,7 @@ import cavity
 from cavity.cli import main
 from cavity.errors import ScenarioError, SolverError
 from cavity.results import REQUIRED_ATTRIBUTES, REQUIRED_VARIABLES, open_result
-from cavity.simulate import simulate
+from cavity.solve import simulate
 from cavity.sweep import (
     TIME_CALENDAR,
     TIME_UNITS,

@@ -35,7 +35,7 @@ def demo_scenarios() -> dict:
 
 
 def _simulate(scenario, quiet: bool, label: str):
-    from cavity.simulate import simulate
+    from cavity.solve import simulate
 
     with progress_callback(quiet, f"{label} run") as update:
         return simulate(scenario, progress=update)
@@ -51,7 +51,7 @@ def _simulate(scenario, quiet: bool, label: str):
 def command(folder, overwrite, quiet):
     """Run the bundled invented demo by day and by night and write a memo's worth of files.
 
-    One transmitter (Fulmar Sound, 18.3 kHz, 150 kW) and three listening posts at about 470, 1,500 and
+    One transmitter (Fulmar Sound, 22.3 kHz, 150 kW) and three listening posts at about 470, 1,500 and
     3,000 km on one great circle over land and sea (ground from the land/sea mask), solved under the
     published midday and night ionospheres. Every name is made up. Written to FOLDER:
 
@@ -63,7 +63,7 @@ def command(folder, overwrite, quiet):
       plot_day.png, plot_night.png amplitude and phase against range
       map.png                     transmitter, receivers and the path by ground class
 
-    Takes a few minutes on two cores (two solves of about 10^10 cell updates each).
+    Takes a few minutes on two cores (two solves of about 2 x 10^10 cell updates each).
     Existing files are replaced only with --overwrite; nothing is written if the run fails.
 
     \b
@@ -90,7 +90,7 @@ def command(folder, overwrite, quiet):
     if not quiet:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.simulate")
+        logger = logging.getLogger("cavity.solve")
         logger.addHandler(handler)
         logger.setLevel(logging.INFO)
     results = {}

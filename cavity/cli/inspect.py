@@ -79,7 +79,7 @@ def describe(scenario) -> list[str]:
     from cavity.errors import ResourceError
     from cavity.fdtd.grid import check_memory
     from cavity.paths import build_paths, direction_dependent
-    from cavity.simulate import plan_path
+    from cavity.solve import plan_path
 
     s = scenario
     tx = s.transmitter

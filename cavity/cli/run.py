@@ -28,14 +28,14 @@ def command(scenario, output, overwrite, quiet):
     """
     import cavity
     from cavity.results import write_result
-    from cavity.simulate import simulate  # not cavity.simulate(): importing the module rebinds that name
+    from cavity.solve import simulate  # not cavity.simulate(): importing the module rebinds that name
 
     sc = cavity.load_scenario(scenario)
     target = check_output_file(output, overwrite, what="result file")  # refused before the run, not after
     if not quiet:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.simulate")
+        logger = logging.getLogger("cavity.solve")
         logger.addHandler(handler)
         logger.setLevel(logging.INFO)
     with progress_callback(quiet, "solving") as update:

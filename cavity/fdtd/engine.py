@@ -2,7 +2,7 @@
 
 Orchestration only: grid sizing (:mod:`.grid`), coefficients (:mod:`.media`), waveforms
 (:mod:`.source`) and the compiled loops (:mod:`.kernels`) meet here. The engine works per unit
-current moment; :mod:`cavity.simulate` scales to the transmitter's radiated power.
+current moment; :mod:`cavity.solve` scales to the transmitter's radiated power.
 
 Outputs are running DFTs of Ez and H_phi along the ground row, divided by the DFT of the source
 current at the same instants: the transfer function of the waveguide at each requested frequency.
