@@ -360,15 +360,16 @@ def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing
         ez_low, b_low = lowpass(t, ez, f_hi), lowpass(t, b, f_hi)
         ez_spec = amplitude_spectrum(t, ez, spec_f)
         b_spec = amplitude_spectrum(t, b, spec_f)
+        t_b = t - 0.5 * (t[2] - t[1])  # Hphi is stepped half a step before the Ez instants it is recorded at
         for j, i_rx in enumerate(sol.path.receiver_indices):
             ez_t[i_rx] = np.interp(lag, t, ez_low[:, j])
-            b_t[i_rx] = np.interp(lag, t, b_low[:, j])
+            b_t[i_rx] = np.interp(lag, t_b, b_low[:, j])
             ez_s[i_rx] = ez_spec[:, j]
             b_s[i_rx] = b_spec[:, j]
             r = float(res.probe_ranges_m[j])
-            fc = estimate_cutoff(t, b[:, j], r, origin_s=source_group_delay_s(stroke, 1.8e3))
+            fc = estimate_cutoff(t_b, b[:, j], r, origin_s=source_group_delay_s(stroke, 1.8e3))
             if math.isfinite(fc):
-                fc = estimate_cutoff(t, b[:, j], r, origin_s=source_group_delay_s(stroke, fc))
+                fc = estimate_cutoff(t_b, b[:, j], r, origin_s=source_group_delay_s(stroke, fc))
             cutoff[i_rx] = fc
             level = tail_level_db(ez[:, j])
             if level > TAIL_LIMIT_DB:
@@ -479,7 +480,7 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
                 ax_f.axvline(fc, color=colour, ls="--", lw=0.9)
                 ax_f.annotate(f"cutoff {fc:.2f} kHz", xy=(fc, 1.0), xycoords=("data", "axes fraction"),
                               xytext=(3, -12 - 11 * k), textcoords="offset points", color=colour, fontsize=8)
-        ax_t.set_xlim(max(0.0, arrival_ms - 0.5), min(t_end, arrival_ms + 8.0))
+        ax_t.set_xlim(max(0.0, arrival_ms - 0.3), min(t_end, arrival_ms + 5.0))
         ax_t.set_ylabel(f"{quantity} ({unit})")
         ax_t.set_title(f"{name}, {r_km:.0f} km: waveform", fontsize=9)
         ax_t.axhline(0.0, color="0.6", lw=0.5)
