@@ -428,7 +428,7 @@ def test_carrier_scenarios_and_files_are_refused(tmp_path):
 @pytest.mark.slow
 def test_plate_guide_cutoff_from_an_impulsive_run():
     # physics.md 9.4: plates 85 km apart, TM1 cutoff c/(2h) = 1763.5 Hz within 1 %, from the sferic
-    # at 500 km (22 ms record, flat earth). About 15 s on one core; measured 1765.8 Hz (+0.13 %).
+    # at 500 km (22 ms record, flat earth). 15-30 s on one core; measured 1765.7 Hz (+0.13 %).
     from cavity import load_scenario
     from cavity.sferic import simulate_sferic
 
@@ -448,8 +448,8 @@ def test_night_cutoff_from_an_impulsive_run():
     # physics.md 9.9: night profile h' = 85.1 km, beta = 0.63 /km over sea (flat earth), receivers at
     # 500 and 1000 km, 25 ms record. The lowest cutoff read from the tail lies in the observed tweek
     # range 1.65-2.0 kHz, and within 2 % of where the independent frequency-domain mode solution
-    # (cavity.reference.modes) has the TM1 mode's Re(k^2) cross zero. About 2.5 minutes on one core;
-    # measured 1721.6 and 1735.4 Hz against 1720.3 Hz (physics.md 9.9 expects 1.8-1.9 kHz; see the README).
+    # (cavity.reference.modes) has the TM1 mode's Re(k^2) cross zero. About 2 minutes on one core;
+    # measured 1721.6 and 1735.5 Hz against 1720.3 Hz (physics.md 9.9 expects 1.8-1.9 kHz; see the README).
     import profiles
     from cavity import load_scenario
     from cavity.reference import modes
