@@ -57,6 +57,10 @@ SCENARIO = textwrap.dedent("""\
 STARTUP_TIMEOUT_S = 240.0  # imports and numba's cache on a busy shared machine
 
 
+def _default_sigint():
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
+
+
 class Running:
     """A ``cavity`` subprocess whose stderr lines are collected by a thread as they come."""
 
@@ -65,8 +69,10 @@ class Running:
         # oversubscribed machine slow the first 200 steps tenfold; signals are handled the same way
         env = {**os.environ, "PYTHONUNBUFFERED": "1", "NUMBA_NUM_THREADS": "1"}
         env.pop("CAVITY_TRACEBACK", None)
+        # a process started in the background by a non-interactive shell (as CI may start the suite)
+        # inherits SIGINT as ignored; a user's terminal delivers it: restore the default in the child
         self.proc = subprocess.Popen(argv, cwd=cwd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                                     text=True)
+                                     text=True, preexec_fn=_default_sigint)
         self.lines: list[str] = []
         self.ended = False
         self._queue: queue.Queue = queue.Queue()
