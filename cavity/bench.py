@@ -120,7 +120,6 @@ def whole_run(max_range_m: float = 3000e3, frequency_hz: float = 20e3, cells_per
     and the error in dB against :func:`cavity.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
     """
     from cavity import verify
-    from cavity.fdtd import engine as eng
     from cavity.fdtd import grid as gridmod
 
     kw = {}

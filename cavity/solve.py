@@ -93,8 +93,17 @@ def path_medium(scenario, path) -> eng.Medium:
     )
 
 
+def _is_lightning(scenario) -> bool:
+    source = getattr(scenario, "source", None)
+    return source is not None and source.kind == "lightning"
+
+
 def plan_path(scenario, path, *, waveform=None) -> eng.RunPlan:
     """The solve a path would need (grid, time step, steps, memory), without allocating it."""
+    if _is_lightning(scenario) and waveform is None:
+        from cavity.sferic import plan_path as lightning_plan
+
+        return lightning_plan(scenario, path)
     return eng.make_plan(path_medium(scenario, path), engine_settings(scenario, path, waveform=waveform))
 
 
@@ -151,10 +160,15 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
 
     Returns
     -------
-    xarray.Dataset following the result-file contract (conventions.md), not yet written.
+    xarray.Dataset following the result-file contract (conventions.md), not yet written. A scenario
+    whose ``[source]`` is a lightning stroke is solved by :func:`cavity.sferic.simulate_sferic`.
     """
+    if _is_lightning(scenario):
+        from cavity.sferic import simulate_sferic
+
+        return simulate_sferic(scenario, progress=progress, sample_km=sample_km,
+                               bearing_tolerance_deg=bearing_tolerance_deg)
     from cavity.paths import build_paths
-    from cavity.results import assemble_dataset
 
     paths = build_paths(scenario, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
     weights = np.array([p.max_range_m for p in paths], float)

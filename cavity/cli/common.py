@@ -29,6 +29,7 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import logging
 import os
 import signal
 import sys
@@ -199,3 +200,26 @@ def progress_callback(quiet: bool, label: str):
             yield update
 
     return manager()
+
+
+@contextlib.contextmanager
+def solver_log(logger_name: str, quiet: bool):
+    """Show a library logger's INFO lines (grid, time step, memory) on stderr for one command.
+
+    The handler is removed afterwards, so commands called again in one process (tests, notebooks)
+    do not print each line twice.
+    """
+    if quiet:
+        yield
+        return
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setFormatter(logging.Formatter("%(message)s"))
+    logger = logging.getLogger(logger_name)
+    old_level = logger.level
+    logger.addHandler(handler)
+    logger.setLevel(logging.INFO)
+    try:
+        yield
+    finally:
+        logger.removeHandler(handler)
+        logger.setLevel(old_level)

@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-import logging
-import sys
 from pathlib import Path
 
 import click
 
-from cavity.cli.common import friendly_errors, progress_callback
+from cavity.cli.common import friendly_errors, progress_callback, solver_log
 
 #: The bundled scenarios (package data, cavity/data/), one run each, in this order.
 DEMO_SCENARIOS: dict[str, str] = {"day": "demo_day.toml", "night": "demo_night.toml"}
@@ -87,15 +85,10 @@ def command(folder, overwrite, quiet):
             "to replace them, or choose another folder"
         )
     scenarios = demo_scenarios()
-    if not quiet:
-        handler = logging.StreamHandler(sys.stderr)
-        handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.solve")
-        logger.addHandler(handler)
-        logger.setLevel(logging.INFO)
     results = {}
-    for label, scenario in scenarios.items():
-        results[label] = _simulate(scenario, quiet, label)
+    with solver_log("cavity.solve", quiet):
+        for label, scenario in scenarios.items():
+            results[label] = _simulate(scenario, quiet, label)
     folder.mkdir(parents=True, exist_ok=True)
     written = []
     for label, ds in results.items():

@@ -63,6 +63,10 @@ def command(result, output, overwrite, phase, dpi):
     ds = open_result(result)
     if is_sweep(ds):
         diurnal_plot(ds, output)
+    elif "receiver_ez_spectrum" in ds:  # a lightning run: waveforms and spectra per receiver
+        from cavity.sferic import plot_sferic
+
+        plot_sferic([ds], output)
     else:
         plot_result(ds, output, phase=phase, dpi=dpi)
     click.echo(f"wrote {output}")

@@ -2,12 +2,10 @@
 
 from __future__ import annotations
 
-import logging
-import sys
 
 import click
 
-from cavity.cli.common import check_output_file, friendly_errors, progress_callback
+from cavity.cli.common import check_output_file, friendly_errors, progress_callback, solver_log
 
 
 @click.command("run")
@@ -32,13 +30,7 @@ def command(scenario, output, overwrite, quiet):
 
     sc = cavity.load_scenario(scenario)
     target = check_output_file(output, overwrite, what="result file")  # refused before the run, not after
-    if not quiet:
-        handler = logging.StreamHandler(sys.stderr)
-        handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.solve")
-        logger.addHandler(handler)
-        logger.setLevel(logging.INFO)
-    with progress_callback(quiet, "solving") as update:
+    with solver_log("cavity.solve", quiet), progress_callback(quiet, "solving") as update:
         ds = simulate(sc, progress=update)
     path = write_result(ds, target, overwrite=overwrite)
     if ds.attrs.get("solver_converged") == "no":

@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-import logging
-import sys
 from pathlib import Path
 
 import click
 
-from cavity.cli.common import friendly_errors, progress_callback
+from cavity.cli.common import friendly_errors, progress_callback, solver_log
 
 _FIGURE_SUFFIXES = (".png", ".pdf", ".svg")
 
@@ -49,13 +47,7 @@ def run_command(scenario, output, overwrite, quiet):
     sc = cavity.load_scenario(scenario)
     if output.exists() and not overwrite:
         raise click.ClickException(f"{output} exists; use --overwrite to replace it")
-    if not quiet:
-        handler = logging.StreamHandler(sys.stderr)
-        handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.sferic")
-        logger.addHandler(handler)
-        logger.setLevel(logging.INFO)
-    with progress_callback(quiet, "solving") as update:
+    with solver_log("cavity.sferic", quiet), progress_callback(quiet, "solving") as update:
         ds = simulate_sferic(sc, progress=update)
     path = write_result(ds, output, overwrite=overwrite)
     if ds.attrs.get("solver_converged") == "no":
