@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from cavity.cli.common import friendly_errors
+from cavity.cli.common import check_output_file, friendly_errors
 
 _SUFFIXES = (".png", ".pdf")
 
@@ -42,11 +42,7 @@ def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
         raise click.BadParameter(
             f"{str(output)!r} has suffix {output.suffix or '(none)'!r}; write .png or .pdf", param_hint="'-o'"
         )
-    if output.exists() and not overwrite:
-        raise click.ClickException(f"{output} exists already; pass --overwrite to replace it")
-    folder = output.parent if str(output.parent) else Path(".")
-    if not folder.is_dir():
-        raise click.ClickException(f"output folder {folder} does not exist")
+    check_output_file(output, overwrite, what="map")
 
     scenario = load_scenario(scenario_file)
     if scenario.transmitter.latitude_deg is None:

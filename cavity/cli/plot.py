@@ -6,7 +6,7 @@ from pathlib import Path
 
 import click
 
-from cavity.cli.common import friendly_errors
+from cavity.cli.common import check_output_file, friendly_errors
 
 _SUFFIXES = (".png", ".pdf")
 
@@ -55,11 +55,7 @@ def command(result, output, overwrite, phase, dpi):
         raise click.BadParameter(
             f"{str(output)!r} has suffix {output.suffix or '(none)'!r}; write .png or .pdf", param_hint="'-o'"
         )
-    if output.exists() and not overwrite:
-        raise click.ClickException(f"{output} exists already; pass --overwrite to replace it")
-    folder = output.parent if str(output.parent) else Path(".")
-    if not folder.is_dir():
-        raise click.ClickException(f"output folder {folder} does not exist")
+    check_output_file(output, overwrite, what="figure")
     ds = open_result(result)
     if is_sweep(ds):
         diurnal_plot(ds, output)
