@@ -317,18 +317,10 @@ def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing
     stroke = stroke_for(src)
     log.info("%s", stroke.describe())
     paths = build_paths(scenario, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
-    weights = np.array([p.max_range_m for p in paths], float)
-    weights = weights / weights.sum()
     solutions, raws = [], []
     curved = True
     t_start = time.perf_counter()
-    for k, path in enumerate(paths):
-        done = float(weights[:k].sum())
-
-        def sub(fraction, text="", _done=done, _w=float(weights[k]), _label=path.label):
-            if progress is not None:
-                progress(_done + _w * fraction, f"{_label}: {text}")
-
+    for path, sub in zip(paths, importlib.import_module("cavity.solve").path_progress(progress, paths)):
         solution, raw, curved = _solve_path(scenario, path, stroke, sub)
         solutions.append(solution)
         raws.append(raw)

@@ -136,6 +136,22 @@ def solve_path(scenario, path, *, progress=None, waveform=None) -> PathSolution:
     return PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, sim.impedance_fit_error, ne_out, nu_out)
 
 
+def path_progress(progress, paths) -> list:
+    """One progress callback per path, mapping its own 0..1 onto its share (by range) of the whole."""
+    weights = np.array([p.max_range_m for p in paths], float)
+    weights = weights / weights.sum()
+    starts = np.concatenate([[0.0], np.cumsum(weights)[:-1]])
+
+    def make(start, weight, label):
+        def update(fraction, text=""):
+            if progress is not None:
+                progress(start + weight * fraction, f"{label}: {text}")
+
+        return update
+
+    return [make(float(a), float(w), p.label) for a, w, p in zip(starts, weights, paths)]
+
+
 def interpolate_phasor(range_m, values, at_m):
     """Complex field at arbitrary ranges: linear in dB amplitude and in unwrapped phase."""
     amp = np.log(np.maximum(np.abs(values), 1e-300))
@@ -171,17 +187,9 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
     from cavity.paths import build_paths
 
     paths = build_paths(scenario, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
-    weights = np.array([p.max_range_m for p in paths], float)
-    weights = weights / weights.sum()
     solutions = []
     t0 = time.perf_counter()
-    for k, path in enumerate(paths):
-        done = float(weights[:k].sum())
-
-        def sub(fraction, text="", _done=done, _w=float(weights[k]), _label=path.label):
-            if progress is not None:
-                progress(_done + _w * fraction, f"{_label}: {text}")
-
+    for path, sub in zip(paths, path_progress(progress, paths)):
         solutions.append(solve_path(scenario, path, progress=sub, waveform=waveform))
     wall = sum(s.engine.wall_time_s for s in solutions)
     log.info("all paths solved in %.1f s (stepping %.1f s)", time.perf_counter() - t0, wall)
