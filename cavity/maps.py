@@ -11,7 +11,6 @@ matplotlib and cartopy are imported inside the functions, so ``import cavity`` s
 from __future__ import annotations
 
 import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -119,7 +118,7 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
         raise ScenarioError(
             "transmitter.latitude_deg is missing: a map needs positions (this scenario gives receivers by range only)"
         )
-    path, fmt = _check_output(output_path)
+    path, _ = _check_output(output_path)
 
     import cartopy.crs as ccrs
     from cartopy.feature import ShapelyFeature
@@ -244,15 +243,7 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
     ax.legend(handles=legend, loc="lower left", fontsize=8, framealpha=0.85)
     ax.set_title(f"{scenario.title}\n{time_text}; azimuthal equidistant about the transmitter", fontsize=10)
 
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)  # mkstemp makes owner-only files; a map is an ordinary file
-        fig.savefig(tmp, format=fmt, dpi=dpi)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    from cavity.report import save_figure  # the one atomic figure writer
+
+    save_figure(fig, path, dpi=dpi)
     return notes
