@@ -506,6 +506,17 @@ def _parse_transmitter(t: _Table) -> Transmitter:
     return Transmitter(name, lat, lon, frequencies, power_kw * 1e3)
 
 
+def _each_table(raw: list, name: str, syntax: str, keys: tuple[str, ...]):
+    """Yield (1-based index, checked _Table) for each entry of an array of tables such as [[receiver]]."""
+    for i, item in enumerate(raw, 1):
+        prefix = f"{name}[{i}]"
+        if not isinstance(item, dict):
+            raise ScenarioError(f"{prefix} = {_show(item)} must be a {syntax} table")
+        table = _Table(item, prefix)
+        table.finish(keys)
+        yield i, table
+
+
 def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
     raw = top.raw("receiver")
     if raw is None:
@@ -516,12 +527,7 @@ def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
         raise top.fail("receiver", raw, "must be one or more [[receiver]] tables")
     receivers: list[Receiver] = []
     first_index: dict[str, int] = {}
-    for i, item in enumerate(raw, 1):
-        prefix = f"receiver[{i}]"
-        if not isinstance(item, dict):
-            raise ScenarioError(f"{prefix} = {_show(item)} must be a [[receiver]] table")
-        t = _Table(item, prefix)
-        t.finish(_RECEIVER_KEYS)
+    for i, t in _each_table(raw, "receiver", "[[receiver]]", _RECEIVER_KEYS):
         name = t.string("name", required=True)
         if name in first_index:
             raise t.fail("name", name, f"is already used by receiver[{first_index[name]}]; names must be unique")
@@ -533,9 +539,9 @@ def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
             given, other = ("latitude_deg", "longitude_deg") if lat is not None else ("longitude_deg", "latitude_deg")
             raise ScenarioError(f"{t.key(other)} is missing (needed with {t.key(given)})")
         if range_km is not None and lat is not None:
-            raise t.fail("range_km", item["range_km"], "given together with a position; give either latitude_deg and longitude_deg or range_km")
+            raise t.fail("range_km", t.raw("range_km"), "given together with a position; give either latitude_deg and longitude_deg or range_km")
         if range_km is None and lat is None:
-            raise ScenarioError(f"{prefix} has no location: give latitude_deg and longitude_deg, or range_km")
+            raise ScenarioError(f"{t.prefix} has no location: give latitude_deg and longitude_deg, or range_km")
         receivers.append(Receiver(name, lat, lon, _km(range_km)))
     return tuple(receivers)
 
@@ -639,19 +645,14 @@ def _parse_ground(t: _Table) -> Ground:
             raise ScenarioError(f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)")
         if not isinstance(raw, list):
             raise t.fail("segment", raw, "must be [[ground.segment]] tables")
-        for i, item in enumerate(raw, 1):
-            prefix = f"ground.segment[{i}]"
-            if not isinstance(item, dict):
-                raise ScenarioError(f"{prefix} = {_show(item)} must be a [[ground.segment]] table")
-            s = _Table(item, prefix)
-            s.finish(_SEGMENT_KEYS)
+        for i, s in _each_table(raw, "ground.segment", "[[ground.segment]]", _SEGMENT_KEYS):
             from_km = s.number("from_km", 0.0, RANGE_LIMITS_KM[1], "km", required=True, high_open=True)
             to_km = s.number("to_km", 0.0, RANGE_LIMITS_KM[1], "km", required=True, low_open=True)
             if to_km <= from_km:
-                raise s.fail("to_km", item["to_km"], f"must be greater than from_km = {_show(item['from_km'])}")
+                raise s.fail("to_km", s.raw("to_km"), f"must be greater than from_km = {_show(s.raw('from_km'))}")
             if segments and from_km * 1e3 < segments[-1].to_m:
                 raise s.fail(
-                    "from_km", item["from_km"],
+                    "from_km", s.raw("from_km"),
                     f"overlaps ground.segment[{i - 1}], which ends at {_number_text(segments[-1].to_m / 1e3)} km; "
                     "segments must be in order of range and must not overlap",
                 )
