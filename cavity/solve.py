@@ -136,6 +136,32 @@ def solve_path(scenario, path, *, progress=None, waveform=None) -> PathSolution:
     return PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, sim.impedance_fit_error, ne_out, nu_out)
 
 
+def solve_key(scenario, path, *, waveform=None) -> str | None:
+    """A digest of everything one path's solve depends on; equal digests give identical solutions.
+
+    It covers the engine's medium (ground and ionosphere per sample) and settings, the radiated power
+    and the receivers' ranges, so instants of a diurnal sweep at which a path lies wholly in day (or
+    wholly in night) share one solve. None when the solve cannot be keyed (a custom waveform).
+    """
+    import hashlib
+
+    if waveform is not None or _is_lightning(scenario):
+        return None
+    medium = path_medium(scenario, path)
+    settings = engine_settings(scenario, path)
+    digest = hashlib.sha256()
+    for name in ("range_m", "ground_conductivity", "ground_permittivity", "altitude_m", "electron_density",
+                 "collision_frequency"):
+        value = getattr(medium, name)
+        digest.update(name.encode())
+        if value is not None:
+            value = np.ascontiguousarray(value, dtype=float)
+            digest.update(repr(value.shape).encode() + value.tobytes())
+    digest.update(repr((medium.ceiling_m, settings, float(scenario.transmitter.radiated_power_w),
+                        tuple(float(x) for x in path.receiver_ranges_m))).encode())
+    return digest.hexdigest()
+
+
 def path_progress(progress, paths) -> list:
     """One progress callback per path, mapping its own 0..1 onto its share (by range) of the whole."""
     weights = np.array([p.max_range_m for p in paths], float)

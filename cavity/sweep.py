@@ -2,20 +2,24 @@
 
 A sweep is a grid of *points*, every combination of a UTC instant and a frequency. Each point is the
 scenario with ``ionosphere.utc`` set to the instant (form "utc" only) and the transmitter's frequency
-list replaced by the one frequency; it is an ordinary scenario, solved by :func:`cavity.simulate` on a
-worker (a pure function of the scenario: the worker returns the small result dataset, the driver is
-the only writer). The results are combined along a ``time`` dimension (and ``frequency``) into one
-dataset that keeps the result-file contract of the design conventions, with ``time`` a CF time
-coordinate (seconds since 1970-01-01 UTC, standard calendar, when written).
+list replaced by the one frequency: an ordinary scenario. The driver builds each point's paths and
+hands the *distinct* path solves to dask workers: a path whose medium and settings are the same at
+several instants (wholly in day, or wholly in night, for hours of a diurnal sweep) is solved once
+(:func:`cavity.solve.solve_key`), which is what makes a day of 15-minute steps affordable. A worker
+returns the path's small calibrated solution; the driver puts each point together exactly as
+:func:`cavity.simulate` would (the same numbers) and is the only writer. The points are combined
+along a ``time`` dimension (and ``frequency``) into one dataset that keeps the result-file contract
+of the design conventions, with ``time`` a CF time coordinate (seconds since 1970-01-01 UTC,
+standard calendar, when written).
 
 Resuming: each finished point is written atomically as its own small result file into a parts
 folder (by default ``OUT.nc.parts/`` beside the combined file). A part is reused when its embedded
 scenario text and tool version equal those of the point, so a killed sweep run again computes only
 what is missing, and a sweep extended to more instants or frequencies reuses what it has.
 
-Failures: a point whose solve raises is retried once (dask ``retries=1``; a worker that dies is
-replaced and its point rescheduled by dask itself), then reported by name with its error while the
-other points go on. If any point still failed, no combined dataset is made
+Failures: a path solve that raises is retried once (dask ``retries=1``; a worker that dies is
+replaced and its solve rescheduled by dask itself), then every point that needs it is reported by
+name with the error while the other points go on. If any point still failed, no combined dataset is made
 (:class:`SweepError`, listing them; the finished points stay in the parts folder and a rerun retries
 only the failed ones) unless ``allow_missing`` is true, which fills the failed points with NaN and
 names them in the ``sweep_missing_points`` attribute.
@@ -261,11 +265,11 @@ def point_scenario(scenario: Scenario, point: SweepPoint) -> Scenario:
 # --------------------------------------------------------------------------------------------------
 
 
-def solve_point(scenario: Scenario) -> xr.Dataset:
-    """Solve one point (runs on a worker): the result dataset of :func:`cavity.solve.simulate`."""
-    from cavity.solve import simulate
+def solve_path(scenario: Scenario, path):
+    """Solve one path of one point (runs on a worker): a :class:`cavity.solve.PathSolution`."""
+    from cavity.solve import solve_path as solve
 
-    return simulate(scenario)
+    return solve(scenario, path)
 
 
 _WARM_UP_SCENARIO = """
@@ -306,14 +310,6 @@ def warm_numba_cache() -> float:
     finally:
         numba.set_num_threads(threads)
     return _time.perf_counter() - t0
-
-
-def point_memory_bytes(scenario: Scenario) -> int:
-    """Estimated memory of one point's solve (the largest path of the scenario), bytes."""
-    from cavity.paths import build_paths
-    from cavity.solve import plan_path
-
-    return max(int(plan_path(scenario, p).grid.memory_bytes) for p in build_paths(scenario))
 
 
 def machine_cores() -> int:
@@ -424,9 +420,9 @@ def sweep(
         Called in the driver after each solved point, with the fraction of the points to solve.
     allow_missing : bool
         Combine even if some points failed, with NaN for them (named in ``sweep_missing_points``).
-    solve : callable(Scenario) -> xarray.Dataset, optional
-        What a worker runs for each point; default :func:`solve_point` (the solver). It must be
-        importable (or picklable by value) on the workers.
+    solve : callable(Scenario, PathModel) -> PathSolution, optional
+        What a worker runs for each distinct path solve; default :func:`solve_path` (the solver). It
+        must be importable (or picklable by value) on the workers.
 
     Returns
     -------
@@ -471,7 +467,7 @@ def sweep(
     )
     failures: dict[SweepPoint, str] = {}
     if todo:
-        failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_point)
+        failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
     if failures:
         lines = [(p.name, failures[p]) for p in points if p in failures]
         for name, message in lines:
@@ -489,22 +485,86 @@ def sweep(
     return combine(scenario, times, freqs, points, results, variants)
 
 
+@dataclass
+class _Job:
+    """One distinct path solve and the points waiting for it."""
+
+    key: str
+    scenario: Scenario  # the first point's scenario that needs it
+    path: object  # cavity.paths.PathModel
+    points: list[SweepPoint]
+
+
+def plan_jobs(todo: Sequence[SweepPoint], variants: dict) -> tuple[dict, dict, dict]:
+    """The distinct path solves of the points to solve (runs in the driver, no solving).
+
+    Returns ``(jobs, needs, failures)``: jobs by key, in the order of the points; for each point its
+    paths and their job keys; and the points whose paths could not be built, with the error.
+    A path whose medium and settings equal another's (:func:`cavity.solve.solve_key`) is solved once.
+    """
+    from cavity.paths import build_paths
+    from cavity.solve import solve_key
+
+    jobs: dict[str, _Job] = {}
+    needs: dict[SweepPoint, list[tuple[object, str]]] = {}
+    failures: dict[SweepPoint, str] = {}
+    for p in todo:
+        try:
+            paths = build_paths(variants[p])
+        except CavityError as exc:
+            failures[p] = _describe(exc)
+            continue
+        keyed = []
+        for path in paths:
+            key = solve_key(variants[p], path) or f"{p.key}-{path.label}"
+            job = jobs.setdefault(key, _Job(key, variants[p], path, []))
+            job.points.append(p)
+            keyed.append((path, key))
+        needs[p] = keyed
+    return jobs, needs, failures
+
+
+def _assemble(point: SweepPoint, variant: Scenario, keyed, solutions: dict, counted: set):
+    """A point's result dataset from its paths' (possibly shared) solutions.
+
+    A shared solution is put on the point's own path model (its sun, h' and beta per sample are the
+    point's); its stepping time is counted once, at the first point that uses it.
+    """
+    from cavity.solve import to_dataset
+
+    parts = []
+    for path, key in keyed:
+        sol = solutions[key]
+        engine = sol.engine if key not in counted else dataclasses.replace(sol.engine, wall_time_s=0.0)
+        counted.add(key)
+        parts.append(dataclasses.replace(sol, path=path, engine=engine))
+    return to_dataset(variant, parts)
+
+
 def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -> dict:
-    """Fan the points out on a cluster, collect them as they finish; returns {point: error text}."""
+    """Fan the distinct path solves out on a cluster and assemble each point as soon as its paths are
+    in; returns {point: error text}."""
     from contextlib import ExitStack
 
     from distributed import Client, LocalCluster, as_completed
 
-    failures: dict[SweepPoint, str] = {}
+    from cavity.solve import plan_path
+
+    jobs, needs, failures = plan_jobs(todo, variants)
+    n_paths = sum(len(v) for v in needs.values())
+    log.info("%d path solves for %d points (%d shared with another instant)", len(jobs), len(todo),
+             n_paths - len(jobs))
+    if not jobs:
+        return failures
     with ExitStack() as stack:
         t_start = _time.perf_counter()
         if scheduler is None:
             need = None
             try:
-                need = point_memory_bytes(variants[max(todo, key=lambda p: p.frequency_hz)])
+                need = max(int(plan_path(j.scenario, j.path).grid.memory_bytes) for j in jobs.values())
             except CavityError:
-                pass  # the solve itself will report the problem for each point
-            n, threads = local_cluster_size(len(todo), need, workers)
+                pass  # the solve itself will report the problem for its points
+            n, threads = local_cluster_size(len(jobs), need, workers)
             warm = warm_numba_cache()
             log.info("numba kernels ready in %.1f s; starting %d local workers x %d numba threads", warm, n, threads)
             cluster = stack.enter_context(
@@ -537,30 +597,52 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
 
         tag = uuid.uuid4().hex[:8]
         futures = {}
-        for p in todo:
-            fut = client.submit(solve, variants[p], key=f"cavity-sweep-{tag}-{p.key}", retries=RETRIES, pure=False)
-            futures[fut] = p
+        for job in jobs.values():  # in the order of the points, so that points finish early and in turn
+            fut = client.submit(solve, job.scenario, job.path, key=f"cavity-sweep-{tag}-{job.key[:20]}",
+                                retries=RETRIES, pure=False)
+            futures[fut] = job
+        solutions: dict[str, object] = {}
+        errors: dict[str, str] = {}
+        counted: set[str] = set()
+        waiting = {p: {k for _, k in keyed} for p, keyed in needs.items()}
+        users = {key: len(set(job.points)) for key, job in jobs.items()}  # points not yet settled
         done = 0
         try:
             for fut in as_completed(list(futures)):
-                p = futures[fut]
+                job = futures[fut]
                 done += 1
-                ds = None
                 try:
-                    ds = fut.result()
+                    solutions[job.key] = fut.result()
                 except Exception as exc:  # the solve raised twice, or its worker died too often
-                    failures[p] = _describe(exc)
-                if ds is not None:
-                    if folder is not None:
-                        from cavity.results import write_result
-
-                        write_result(ds, _part_path(folder, p), overwrite=True)
-                    results[p] = ds
-                text = f"{p.name} FAILED" if p in failures else f"{p.name} solved"
-                log.debug("%s (%d/%d)", text, done, len(todo))
-                if progress is not None:
-                    progress(done / len(todo), text)
+                    errors[job.key] = _describe(exc)
                 fut.release()
+                for p in dict.fromkeys(job.points):
+                    waiting[p].discard(job.key)
+                    if waiting[p]:
+                        continue
+                    bad = [(path, k) for path, k in needs[p] if k in errors]
+                    if bad:
+                        failures[p] = f"path {bad[0][0].label}: {errors[bad[0][1]]}"
+                    else:
+                        try:
+                            ds = _assemble(p, variants[p], needs[p], solutions, counted)
+                        except CavityError as exc:
+                            failures[p] = _describe(exc)
+                        else:
+                            if folder is not None:
+                                from cavity.results import write_result
+
+                                write_result(ds, _part_path(folder, p), overwrite=True)
+                            results[p] = ds
+                    for key in {k for _, k in needs[p]}:  # drop solutions no unsettled point needs
+                        users[key] -= 1
+                        if users[key] == 0:
+                            solutions.pop(key, None)
+                status = "FAILED" if job.key in errors else "solved"
+                text = f"{job.path.label} at {job.points[0].name} {status} ({len(job.points)} points)"
+                log.debug("%s (%d/%d path solves)", text, done, len(jobs))
+                if progress is not None:
+                    progress(done / len(jobs), text)
         except BaseException:
             for fut in futures:
                 fut.cancel()
@@ -698,7 +780,8 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
             notes.append(f"{p.name}: {a['solver_notes']}")
         fit = max(fit, float(a.get("solver_impedance_fit_error", 0.0)))
     meta = {
-        "wall_time": ("s", "seconds the solver spent stepping for this point, all paths"),
+        "wall_time": ("s", "seconds the solver spent stepping for this point, all paths (a path solve "
+                               "shared by several points counts at the first of them)"),
         "time_steps": ("1", "time steps taken for this point (per path)"),
         "cells": ("1", "grid cells per path for this point"),
         "cell_r": ("m", "grid cell along range for this point"),

@@ -38,8 +38,9 @@ from cavity.sweep import (
     local_cluster_size,
     parse_step,
     parse_utc,
+    plan_jobs,
     point_scenario,
-    solve_point,
+    solve_path,
     sweep,
     sweep_points,
     sweep_times,
@@ -125,18 +126,18 @@ def swept(tiny, cluster):
     return ds, time.perf_counter() - t0
 
 
-def counting_solve(scenario, marker_dir):
-    """Solve a point and leave one marker file per attempt (how tests count solves on workers)."""
+def counting_solve(scenario, path, marker_dir):
+    """Solve a path and leave one marker file per attempt (how tests count solves on workers)."""
     Path(marker_dir, uuid.uuid4().hex).write_text(scenario.title)
-    return solve_point(scenario)
+    return solve_path(scenario, path)
 
 
-def failing_solve(scenario, marker_dir, bad_hz):
+def failing_solve(scenario, path, marker_dir, bad_hz):
     """Like :func:`counting_solve`, but every attempt at ``bad_hz`` raises."""
     Path(marker_dir, f"{scenario.transmitter.frequencies_hz[0]:.0f}-{uuid.uuid4().hex}").write_text("")
     if scenario.transmitter.frequencies_hz[0] == bad_hz:
         raise SolverError("invented failure for a test")
-    return solve_point(scenario)
+    return solve_path(scenario, path)
 
 
 @pytest.fixture(autouse=True, scope="module")
@@ -265,6 +266,33 @@ def test_sweep_equals_points_solved_one_by_one(tiny, swept):
     assert h[0] > h[1]
 
 
+def test_instants_with_the_same_ionosphere_share_one_solve_per_path(tiny, cluster, tmp_path):
+    # 00:00 and 01:00 UTC on 2026-03-20 at 45 N, 10-11.3 E: local midnight, the sun far below the
+    # horizon (zenith > 99 deg) along both paths, so both instants have the whole-night medium;
+    # 12:00 UTC is midday (zenith < 90 deg). Expected: 2 paths x 2 distinct media = 4 solves, not 6.
+    times = ["2026-03-20T00:00Z", "2026-03-20T01:00Z", "2026-03-20T12:00Z"]
+    markers = tmp_path / "markers"
+    markers.mkdir()
+    _, _, points = sweep_points(tiny, times, [10.0])
+    jobs, needs, failures = plan_jobs(points, {p: point_scenario(tiny, p) for p in points})
+    assert len(jobs) == 4 and not failures
+    ds = sweep(tiny, times, [10.0], scheduler=cluster.scheduler_address,
+               solve=functools.partial(counting_solve, marker_dir=str(markers)))
+    assert len(list(markers.iterdir())) == 4
+    zenith = ds["solar_zenith_angle"]
+    assert float(zenith.isel(time=[0, 1]).min()) > 99.0 and float(zenith.isel(time=2).max()) < 90.0
+    # the shared solve gives the later instant exactly what solving it on its own gives ...
+    one = simulate(point_scenario(tiny, points[1]))
+    for name in ("receiver_ez_amplitude", "receiver_ez_phase", "ez_amplitude", "electron_density"):
+        np.testing.assert_array_equal(ds[name].isel(time=1).squeeze().values, one[name].squeeze().values, err_msg=name)
+    # ... with its own sun, and its stepping time counted once (at the first instant)
+    assert not np.array_equal(zenith.isel(time=0).values, zenith.isel(time=1).values)
+    assert ds["point_solver_wall_time"].isel(time=1).item() == 0.0
+    assert ds["point_solver_wall_time"].isel(time=0).item() > 0.0
+    # midday has its own medium, hence its own solve and field
+    assert not np.array_equal(ds["receiver_ez_amplitude"].isel(time=2).values, ds["receiver_ez_amplitude"].isel(time=1).values)
+
+
 def test_combined_file_follows_the_contract_with_a_cf_time(swept, tmp_path):
     ds, _ = swept
     path = write_sweep(ds, tmp_path / "sweep.nc")
@@ -308,16 +336,14 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
     markers = tmp_path / "markers"
     markers.mkdir()
     solve = functools.partial(counting_solve, marker_dir=str(markers))
-    seen = []
 
-    def stop_after_two(fraction, text):
-        seen.append(text)
-        if len(seen) == 2:
+    def stop_after_two_points(fraction, text):
+        if len(list(parts.glob("*.nc"))) >= 2:
             raise _Stop()
 
     with pytest.raises(_Stop):
         sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts,
-              progress=stop_after_two, solve=solve)
+              progress=stop_after_two_points, solve=solve)
     kept = {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in parts.glob("*.nc")}
     assert len(kept) == 2
     time.sleep(1.5)  # let cancelled in-flight solves finish leaving their markers
@@ -326,8 +352,9 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
     calls = []
     ds = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts,
                progress=lambda f, text: calls.append(text), solve=solve)
-    assert len(calls) == 2  # the driver collected only the two missing points ...
-    assert len(list(markers.iterdir())) - before == 2  # ... and the workers solved only those
+    # two paths (bearings 0 and 90 deg) per missing point, none shared: these instants differ in sun
+    assert len(calls) == 4  # the driver collected only the paths of the two missing points ...
+    assert len(list(markers.iterdir())) - before == 4  # ... and the workers solved only those
     assert {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in parts.glob("*.nc") if p.name in kept} == kept
     assert len(list(parts.glob("*.nc"))) == 4
     for name in ("receiver_ez_amplitude", "ez_amplitude", "electron_density"):
@@ -344,7 +371,7 @@ def test_parts_of_another_scenario_are_solved_again(tiny, cluster, tmp_path):
     calls = []
     two = sweep(louder, TIMES[:1], [10.0], scheduler=cluster.scheduler_address, parts_dir=parts,
                 progress=lambda f, t: calls.append(t))
-    assert len(calls) == 1  # the part on disk was made for 100 kW, so it was not reused
+    assert len(calls) == 2  # the part on disk was made for 100 kW, so both paths were solved again
     # four times the power: +6.02 dB (10 log10 4) at every receiver
     np.testing.assert_allclose(two["receiver_ez_amplitude"] - one["receiver_ez_amplitude"], 10 * np.log10(4), atol=1e-9)
 
@@ -358,13 +385,14 @@ def test_failed_point_is_retried_reported_by_name_and_the_rest_complete(tiny, cl
         sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve)
     message = str(info.value)
     assert "\n" not in message
-    assert message.startswith("2 of 4 points failed (first: 2026-03-20T04:00:00Z 12 kHz: SolverError: invented failure")
+    assert message.startswith("2 of 4 points failed (first: 2026-03-20T04:00:00Z 12 kHz: path bearing ")
+    assert "SolverError: invented failure" in message
     assert "the 2 finished points are kept in" in message
     assert [name for name, _ in info.value.failures] == ["2026-03-20T04:00:00Z 12 kHz", "2026-03-20T05:20:00Z 12 kHz"]
     assert sorted(p.name for p in parts.glob("*.nc")) == ["t20260320T040000Z_f10kHz.nc", "t20260320T052000Z_f10kHz.nc"]
     attempts = [m.name.split("-")[0] for m in markers.iterdir()]
-    assert attempts.count("12000") == 4  # each failing point tried twice (retries=1)
-    assert attempts.count("10000") == 2
+    assert attempts.count("12000") == 8  # each failing path solve (2 points x 2 paths) tried twice (retries=1)
+    assert attempts.count("10000") == 4
 
     # with allow_missing the combined dataset has NaN where the points failed, and says which
     ds = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve,
