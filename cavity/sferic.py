@@ -433,7 +433,8 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
 
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
-    from pathlib import Path
+
+    from cavity.report import save_figure
 
     if component not in ("ez", "b"):
         raise ValueError(f"component = {component!r}: choose 'ez' or 'b'")
@@ -489,10 +490,10 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     fig.suptitle(f"Sferic at the receivers\n{source}\nwaveforms: {filt}; dashed: lowest cutoff from the tail",
                  fontsize=9)
     fig.tight_layout()
-    target = Path(output)
-    fig.savefig(target, dpi=120)
-    plt.close(fig)
-    return target
+    try:
+        return save_figure(fig, output, dpi=120)
+    finally:
+        plt.close(fig)
 
 
 def _run_label(ds) -> str:

@@ -2,18 +2,18 @@
 
 :func:`plot_diurnal` draws the field at each receiver against UTC, one panel per frequency, with the
 geometric sunrise and sunset at the midpoint of each receiver's path marked (solar zenith angle
-crossing 90 deg, Michalsky 1988 through :func:`cavity.geo.solar_zenith_deg`); :func:`table_diurnal`
-gives the minimum, median and maximum per receiver and frequency. ``cavity plot`` and ``cavity
-table`` call them for a dataset that has a ``time`` dimension.
+crossing 90 deg, Michalsky 1988 through :func:`cavity.geo.solar_zenith_deg`), and below it the level
+each path carries to its far half (:func:`path_levels`); :func:`table_diurnal` gives the minimum,
+median and maximum per receiver and frequency, and the median by day and by night. ``cavity plot``
+and ``cavity table`` call them for a dataset that has a ``time`` dimension.
 """
 
 from __future__ import annotations
 
 import math
-import os
 import tomllib
+import warnings
 from datetime import datetime, timedelta, timezone
-from pathlib import Path
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -28,6 +28,9 @@ if TYPE_CHECKING:  # pragma: no cover
 SUN_SAMPLE = timedelta(minutes=2)
 #: Most samples of the zenith angle per receiver (a long window is sampled more coarsely).
 MAX_SUN_SAMPLES = 20_000
+#: The far part of a path whose level :func:`path_levels` follows starts at this fraction of the
+#: farthest receiver's range and ends at that receiver.
+FAR_FRACTION = 0.5
 
 
 def _require_sweep(ds: xr.Dataset) -> None:
@@ -106,6 +109,80 @@ def sun_crossings(lat_deg: float, lon_deg: float, start: datetime, stop: datetim
     return out
 
 
+def path_levels(ds: xr.Dataset) -> tuple[xr.DataArray, list[str]] | None:
+    """Median Ez over the far half of each path against time, and a label per path.
+
+    The far half runs from :data:`FAR_FRACTION` of the farthest receiver's range on the path to that
+    receiver. A receiver's own value depends on where the modal interference pattern puts its
+    minima, and these move by hundreds of km with a km of h'; the median over a stretch of the path
+    longer than the pattern's minima shows the level the guide carries that far (night above day at
+    long range is common practice) without that sensitivity.
+
+    Returns
+    -------
+    (xarray.DataArray, list of str) or None
+        Levels in dB re 1 uV/m on (path, frequency, time) (NaN for a path without receivers) and
+        labels such as ``"to Gannet Reach, 1515-3029 km"``; None when the dataset holds no field
+        along range (a file reduced to receiver values).
+    """
+    import xarray as xr
+
+    needed = ("ez_amplitude", "receiver_path", "receiver_range", "range")
+    if any(name not in ds.variables for name in needed) or "path" not in ds.dims:
+        return None
+    r = ds["range"].values
+    amp = ds["ez_amplitude"].transpose("path", "frequency", "range", "time").values
+    names = [str(x) for x in ds["receiver_name"].values]
+    rx_path = ds["receiver_path"].values.astype(int)
+    rx_range = ds["receiver_range"].values.astype(float)
+    levels = np.full((ds.sizes["path"], ds.sizes["frequency"], ds.sizes["time"]), np.nan)
+    labels = []
+    for p in range(ds.sizes["path"]):
+        on = [i for i in range(len(names)) if rx_path[i] == p and np.isfinite(rx_range[i])]
+        if not on:
+            labels.append(f"path {p}: no receiver")
+            continue
+        far = max(on, key=lambda i: rx_range[i])
+        lo, hi = FAR_FRACTION * rx_range[far], rx_range[far]
+        band = (r >= lo) & (r <= hi)
+        if band.any():
+            with warnings.catch_warnings():  # an instant that was not solved is all NaN: NaN level
+                warnings.simplefilter("ignore", RuntimeWarning)
+                levels[p] = np.nanmedian(amp[p][:, band, :], axis=1)
+        labels.append(f"to {names[far]}, {lo:.0f}-{hi:.0f} km")
+    da = xr.DataArray(levels, dims=("path", "frequency", "time"),
+                      coords={"time": ds["time"].values, "frequency": ds["frequency"].values},
+                      attrs={"units": "dB re 1 uV/m", "long_name": "median Ez over the far half of the path"})
+    return da, labels
+
+
+def daylight_at_receivers(ds: xr.Dataset) -> np.ndarray | None:
+    """"day", "night" or "transition" per (receiver, time): the state of the path up to the receiver.
+
+    A receiver is in day (night) at an instant when every sample of its path from the transmitter to
+    it is in day (night) by the tool's rule (solar zenith angle <= 90 deg, >= 99 deg:
+    :func:`profiles.daynight.daylight_class`); otherwise the terminator lies across it. None when the
+    dataset holds no solar zenith angles.
+    """
+    from profiles.daynight import daylight_class
+
+    needed = ("solar_zenith_angle", "receiver_path", "receiver_range", "range")
+    if any(name not in ds.variables for name in needed):
+        return None
+    chi = ds["solar_zenith_angle"].transpose("path", "range", "time").values
+    r = ds["range"].values
+    out = np.full((ds.sizes["receiver"], ds.sizes["time"]), "transition", dtype=object)
+    for i, (p, rr) in enumerate(zip(ds["receiver_path"].values.astype(int), ds["receiver_range"].values)):
+        if not np.isfinite(rr):
+            continue
+        upto = chi[p][r <= rr]
+        if upto.size == 0 or not np.isfinite(upto).all():
+            continue
+        state = daylight_class(upto)
+        out[i] = np.where((state == "day").all(axis=0), "day", np.where((state == "night").all(axis=0), "night", "transition"))
+    return out
+
+
 def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[str]:
     """Draw amplitude against UTC per receiver, one panel per frequency, and save the figure.
 
@@ -114,7 +191,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
     ds : xarray.Dataset
         A sweep dataset (from :func:`cavity.sweep.sweep` or a sweep file).
     output_path : str or os.PathLike
-        Figure file; the format follows the suffix (.png, .pdf, .svg).
+        Figure file, .png or .pdf (written atomically).
     quantity : {"ez", "b"}
         Vertical electric field (dB re 1 uV/m) or horizontal flux density (dB re 1 fT).
 
@@ -148,32 +225,57 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
     t0, t1 = _utc(times.min()), _utc(times.max())
     crossings = [sun_crossings(m[0], m[1], t0, t1) if m is not None else [] for m in path_midpoints(ds)]
 
-    fig = Figure(figsize=(10, 2.2 + 2.8 * len(freqs)), layout="constrained")
-    axes = fig.subplots(len(freqs), 1, sharex=True, squeeze=False)[:, 0]
+    levels = path_levels(ds) if quantity == "ez" else None
+    rows = 2 if levels is not None else 1
+    fig = Figure(figsize=(10, 2.2 + 2.8 * rows * len(freqs)), layout="constrained")
+    grid = fig.subplots(rows * len(freqs), 1, sharex=True, squeeze=False)[:, 0]
+    axes = grid[::rows]
     colours = [f"C{i % 10}" for i in range(len(names))]
+
+    def mark_sun(ax, i):
+        for when, kind in crossings[i]:
+            ax.axvline(np.datetime64(when.replace(tzinfo=None), "ns"), color=colours[i],
+                       linestyle=":" if kind == "sunrise" else "--", linewidth=1.0, alpha=0.8)
+
     for k, (ax, f) in enumerate(zip(axes, freqs)):
         for i, rx in enumerate(names):
             amp = ds[name].isel(frequency=k, receiver=i).transpose("time").values
             ax.plot(times, amp, marker=".", color=colours[i], label=f"{rx} ({ranges[i]:.0f} km)")
-            for when, kind in crossings[i]:
-                ax.axvline(np.datetime64(when.replace(tzinfo=None), "ns"), color=colours[i],
-                           linestyle=":" if kind == "sunrise" else "--", linewidth=1.0, alpha=0.8)
-        ax.set_title(f"{f:g} kHz", loc="left", fontsize="medium")
+            mark_sun(ax, i)
+        ax.set_title(f"{f:g} kHz: at the receivers", loc="left", fontsize="medium")
         ax.set_ylabel(f"{label}, {unit}")
         ax.grid(True, alpha=0.3)
+        if levels is not None:
+            lax = grid[rows * k + 1]
+            values, path_labels = levels
+            rx_path = ds["receiver_path"].values.astype(int)
+            for p, text in enumerate(path_labels):
+                curve = values.isel(path=p, frequency=k).values
+                if not np.isfinite(curve).any():
+                    continue
+                # colour of the path's farthest receiver, so a path and its receiver read together
+                on = [i for i in range(len(names)) if rx_path[i] == p]
+                far = max(on, key=lambda i: ranges[i])
+                lax.plot(times, curve, marker=".", color=colours[far], label=f"path {text}")
+                mark_sun(lax, far)
+            lax.set_title(f"{f:g} kHz: median along the far half of each path (less sensitive to where "
+                          "the modal minima fall)", loc="left", fontsize="medium")
+            lax.set_ylabel(f"{label}, {unit}")
+            lax.grid(True, alpha=0.3)
+            lax.legend(fontsize="small", loc="best")
     locator = AutoDateLocator()
-    axes[-1].xaxis.set_major_locator(locator)
-    axes[-1].xaxis.set_major_formatter(ConciseDateFormatter(locator))
-    axes[-1].set_xlabel("UTC")
+    grid[-1].xaxis.set_major_locator(locator)
+    grid[-1].xaxis.set_major_formatter(ConciseDateFormatter(locator))
+    grid[-1].set_xlabel("UTC")
     handles, labels = axes[0].get_legend_handles_labels()
     if any(crossings):
         handles += [Line2D([], [], color="0.3", linestyle=":"), Line2D([], [], color="0.3", linestyle="--")]
         labels += ["sunrise at path midpoint", "sunset at path midpoint"]
     axes[0].legend(handles, labels, fontsize="small", loc="best")
     fig.suptitle(str(ds.attrs.get("title", "sweep")))
-    target = Path(os.fspath(output_path)).expanduser()
-    fig.savefig(target, dpi=150)
-    return [str(target)]
+    from cavity.report import save_figure
+
+    return [str(save_figure(fig, output_path))]
 
 
 def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
@@ -185,7 +287,9 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
         One row per (receiver, frequency): ``receiver``, ``range_km``, ``frequency_khz``,
         ``instants`` (solved, not NaN), ``ez_min_db``, ``ez_median_db``, ``ez_max_db`` (dB re
         1 uV/m), ``utc_of_min`` and ``utc_of_max`` (ISO 8601 text); NaN statistics where no instant
-        was solved.
+        was solved. With the sun along the paths in the file: ``day_instants``, ``ez_day_median_db``,
+        ``night_instants``, ``ez_night_median_db`` and ``night_minus_day_db`` (day and night as in
+        :func:`daylight_at_receivers`; NaN without such instants).
     """
     import pandas as pd
 
@@ -194,6 +298,7 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
     times = ds["time"].values
     names = [str(x) for x in ds["receiver_name"].values]
     ranges = ds["receiver_range"].values if "receiver_range" in ds else [math.nan] * len(names)
+    state = daylight_at_receivers(ds)
     rows = []
     for i, rx in enumerate(names):
         for k, f in enumerate(np.atleast_1d(ds["frequency"].values)):
@@ -209,9 +314,18 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
                 )
             else:
                 row.update(ez_min_db=math.nan, ez_median_db=math.nan, ez_max_db=math.nan, utc_of_min="", utc_of_max="")
+            if state is not None:
+                for kind in ("day", "night"):
+                    pick = ok & (state[i] == kind)
+                    row[f"{kind}_instants"] = int(pick.sum())
+                    row[f"ez_{kind}_median_db"] = float(np.median(a[pick])) if pick.any() else math.nan
+                row["night_minus_day_db"] = row["ez_night_median_db"] - row["ez_day_median_db"]
             rows.append(row)
-    return pd.DataFrame(rows, columns=["receiver", "range_km", "frequency_khz", "instants", "ez_min_db",
-                                       "ez_median_db", "ez_max_db", "utc_of_min", "utc_of_max"])
+    columns = ["receiver", "range_km", "frequency_khz", "instants", "ez_min_db", "ez_median_db", "ez_max_db",
+               "utc_of_min", "utc_of_max"]
+    if state is not None:
+        columns += ["day_instants", "ez_day_median_db", "night_instants", "ez_night_median_db", "night_minus_day_db"]
+    return pd.DataFrame(rows, columns=columns)
 
 
 def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
@@ -229,14 +343,20 @@ def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
         return table.to_csv(index=False, float_format="%.2f", lineterminator="\n")
     headers = ["receiver", "range, km", "frequency, kHz", "instants", "min, dB re 1 uV/m",
                "median, dB re 1 uV/m", "max, dB re 1 uV/m", "UTC of min", "UTC of max"]
+    digits = [None, ".0f", "g", None, ".1f", ".1f", ".1f", None, None]
+    align = ["---"] + ["---:"] * 6 + ["---"] * 2
+    if "night_minus_day_db" in table.columns:
+        headers += ["day instants", "day median, dB re 1 uV/m", "night instants", "night median, dB re 1 uV/m",
+                    "night - day, dB"]
+        digits += [None, ".1f", None, ".1f", "+.1f"]
+        align += ["---:"] * 5
 
     def cell(value, digits):
         if isinstance(value, float):
             return "-" if math.isnan(value) else f"{value:{digits}}"
         return str(value).replace("|", "\\|") or "-"
 
-    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join(["---"] + ["---:"] * 6 + ["---"] * 2) + "|"]
-    digits = [None, ".0f", "g", None, ".1f", ".1f", ".1f", None, None]
+    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join(align) + "|"]
     for row in table.itertuples(index=False):
         lines.append("| " + " | ".join(cell(v, d) for v, d in zip(row, digits)) + " |")
     return "\n".join(lines) + "\n"

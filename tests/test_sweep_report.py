@@ -150,3 +150,81 @@ def test_reports_refuse_a_dataset_without_time(tmp_path):
         table_diurnal(ds)
     with pytest.raises(ResultFileError, match="not a sweep file"):
         plot_diurnal(ds, tmp_path / "x.png")
+
+
+def sweep_with_paths():
+    """A sweep-shaped dataset with fields along two paths and the sun along them (three instants).
+
+    Path 0 carries Ez = 100 - 0.01 r (r in km) at night and 5 dB less by day, with a 30 dB deep
+    notch at its receiver's range (a modal minimum); path 1 carries 80 dB everywhere. Instant 0 is
+    night along both paths (zenith 120 deg), instant 1 day (40 deg), instant 2 has the terminator
+    at 1,000 km along path 0 (zenith 80 deg before it, 110 deg after) and day along path 1.
+    """
+    r = np.arange(0.0, 3001.0, 10.0)
+    times = np.array(["2026-03-20T00:00", "2026-03-20T12:00", "2026-03-20T18:00"], dtype="datetime64[ns]")
+    ez = np.empty((2, 1, r.size, 3))
+    for t, shift in enumerate((0.0, -5.0, -2.0)):
+        ez[0, 0, :, t] = 100.0 - 0.01 * r + shift
+        ez[1, 0, :, t] = 80.0
+    notch = np.abs(r - 2400.0) <= 10.0
+    ez[0, 0, notch, :] -= 30.0
+    chi = np.empty((2, r.size, 3))
+    chi[:, :, 0] = 120.0
+    chi[:, :, 1] = 40.0
+    chi[0, :, 2] = np.where(r < 1000.0, 80.0, 110.0)
+    chi[1, :, 2] = 40.0
+    rx_amp = np.stack([ez[0, :, notch.argmax() + 1, :], ez[1, :, 50, :], ez[0, :, 50, :]])
+    return xr.Dataset(
+        {
+            "receiver_name": (("receiver",), np.array(["Far Mere", "Near Cairn", "Close Weir"], dtype=object)),
+            "receiver_range": (("receiver",), np.array([2400.0, 500.0, 500.0])),
+            "receiver_path": (("receiver",), np.array([0, 1, 0])),
+            "receiver_ez_amplitude": (("receiver", "frequency", "time"), rx_amp),
+            "ez_amplitude": (("path", "frequency", "range", "time"), ez),
+            "solar_zenith_angle": (("path", "range", "time"), chi),
+        },
+        coords={"time": ("time", times), "frequency": ("frequency", np.array([19.6])), "range": ("range", r)},
+        attrs={"title": "Invented sweep with paths"},
+    )
+
+
+def test_path_levels_are_medians_over_the_far_half_of_each_path():
+    from cavity.sweep_report import path_levels
+
+    levels, labels = path_levels(sweep_with_paths())
+    # far half of path 0: 1200-2400 km; the median of the straight line 100 - 0.01 r over an even
+    # grid is its value at the middle, 1800 km (82 dB), and a 3-sample notch does not move it
+    # beyond one grid step (0.1 dB)
+    np.testing.assert_allclose(levels.isel(path=0, frequency=0).values, [82.0, 77.0, 80.0], atol=0.11)
+    np.testing.assert_allclose(levels.isel(path=1, frequency=0).values, 80.0)
+    assert labels == ["to Far Mere, 1200-2400 km", "to Near Cairn, 250-500 km"]
+    assert path_levels(synthetic_sweep()) is None  # receiver values only
+
+
+def test_day_and_night_medians_follow_the_sun_along_each_receivers_path():
+    from cavity.sweep_report import daylight_at_receivers
+
+    ds = sweep_with_paths()
+    state = daylight_at_receivers(ds)
+    # Far Mere (2,400 km) has the terminator between it and the transmitter at instant 2; Close Weir
+    # (500 km, same path) lies wholly on the day side of it then
+    assert state.tolist() == [["night", "day", "transition"], ["night", "day", "day"], ["night", "day", "day"]]
+    table = table_diurnal(ds)
+    far = table.iloc[0]
+    assert far["day_instants"] == 1 and far["night_instants"] == 1
+    assert far["night_minus_day_db"] == pytest.approx(5.0)
+    close = table.iloc[2]
+    assert close["day_instants"] == 2 and close["ez_day_median_db"] == pytest.approx(100.0 - 5.0 - 3.5)
+    md = format_diurnal_table(table)
+    assert "night - day, dB" in md.splitlines()[0] and "| +5.0 |" in md
+    assert "night_minus_day_db" not in table_diurnal(synthetic_sweep()).columns
+
+
+def test_plot_has_a_row_of_path_levels(tmp_path):
+    import matplotlib.image as mpimg
+
+    ds = sweep_with_paths()
+    files = plot_diurnal(ds, tmp_path / "paths.png")
+    plain = plot_diurnal(ds.drop_vars("ez_amplitude"), tmp_path / "plain.png")
+    taller, shorter = mpimg.imread(files[0]), mpimg.imread(plain[0])
+    assert taller.shape[0] > 1.5 * shorter.shape[0]  # the second row of panels was drawn
