@@ -72,8 +72,9 @@ PARTS_SUFFIX = ".parts"
 #: How long to wait for an existing scheduler to answer.
 CONNECT_TIMEOUT_S = 20
 
-#: Variables along range that do not change with the UTC instant (the ground under each path).
-_TIME_INVARIANT = ("ground_conductivity", "ground_relative_permittivity")
+#: Variables along range that do not change with the UTC instant: the ground under each path, and
+#: the collision frequency, which the exponential profiles of the "utc" form take from altitude alone.
+_TIME_INVARIANT = ("ground_conductivity", "ground_relative_permittivity", "collision_frequency")
 #: Dimensions a sweep combines; per-run diagnostics on other dimensions (waveforms against time
 #: since the source started, spectra) differ in length from point to point and are left out.
 _SWEPT_DIMS = frozenset({"path", "frequency", "range", "altitude", "receiver"})
@@ -732,31 +733,34 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
                  if "frequency" not in v.dims and "range" in v.dims and n not in _TIME_INVARIANT]
     fixed_vars = [n for n in template.data_vars if n not in freq_vars and n not in time_vars]
 
-    def blank(name):
+    # preallocated arrays filled point by point: no per-instant copies, so a long sweep's memory is
+    # that of the combined arrays and the points' own datasets
+    stacked = {}
+    for name in freq_vars + time_vars:
         v = template[name]
-        return xr.full_like(v, np.nan, dtype=float) if v.dtype.kind == "f" else v
-
-    per_time = []
-    for ti in range(n_t):
-        per_f = [slot.get((ti, fi)) for fi in range(len(freqs))]
-        fields = {}
+        if v.dtype.kind != "f":
+            raise SweepError(f"variable {name} ({v.dtype}) varies between points and cannot be combined")
+        shape = tuple(len(freqs) if d == "frequency" else v.sizes[d] for d in v.dims)
+        stacked[name] = (v.dims, np.full((n_t,) + shape, np.nan))
+    for (ti, fi), point_ds in slot.items():
         for name in freq_vars:
-            parts = [ds[name] if ds is not None else blank(name) for ds in per_f]
-            fields[name] = xr.concat(parts, dim="frequency", coords="minimal", compat="override", join="override")
+            dims, arr = stacked[name]
+            at = tuple(fi if d == "frequency" else slice(None) for d in dims)
+            arr[(ti,) + at] = point_ds[name].isel(frequency=0).values
+    for ti in range(n_t):
         source = slot.get((ti, ref_f))
         if source is None:
-            source = next((ds for ds in per_f if ds is not None), None)
-        for name in time_vars:
-            fields[name] = source[name] if source is not None else blank(name)
-        per_time.append(xr.Dataset(fields))
+            source = next((slot[(ti, fi)] for fi in range(len(freqs)) if (ti, fi) in slot), None)
+        if source is not None:
+            for name in time_vars:
+                stacked[name][1][ti] = source[name].values
     freq_coord = xr.DataArray(np.asarray(freqs, float) / 1e3, dims="frequency", attrs=template["frequency"].attrs)
-    if times is not None:
-        stacked = xr.concat(per_time, dim="time", coords="minimal", compat="override", join="override")
-    else:
-        stacked = per_time[0]
     ds = xr.Dataset({n: template[n] for n in fixed_vars})
-    for name in freq_vars + time_vars:
-        ds[name] = stacked[name].assign_attrs(template[name].attrs)
+    for name, (dims, arr) in stacked.items():
+        if times is not None:
+            ds[name] = xr.Variable(("time",) + dims, arr, template[name].attrs)
+        else:
+            ds[name] = xr.Variable(dims, arr[0], template[name].attrs)
     ds = ds.assign_coords(frequency=freq_coord, range=("range", r, template["range"].attrs))
     for name in ("path", "altitude"):
         ds = ds.assign_coords({name: template[name]})
