@@ -456,9 +456,8 @@ def sweep(
         folder = Path(os.fspath(parts_dir)).expanduser()
         folder.mkdir(parents=True, exist_ok=True)
         for p in points:
-            ds = _load_part(_part_path(folder, p), variants[p])
-            if ds is not None:
-                results[p] = ds
+            if _load_part(_part_path(folder, p), variants[p]) is not None:
+                results[p] = _part_path(folder, p)  # read again, one at a time, when combining
     todo = [p for p in points if p not in results]
     log.info(
         "sweep: %d points (%s x %s); %d already solved%s, %d to solve",
@@ -633,7 +632,8 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
                             if folder is not None:
                                 from cavity.results import write_result
 
-                                write_result(ds, _part_path(folder, p), overwrite=True)
+                                # kept on disk only: a long sweep's points need not fit in memory
+                                ds = write_result(ds, _part_path(folder, p), overwrite=True)
                             results[p] = ds
                     for key in {k for _, k in needs[p]}:  # drop solutions no unsettled point needs
                         users[key] -= 1
@@ -694,6 +694,25 @@ def _on_range(ds, r: np.ndarray):
     return out
 
 
+def _point_dataset(value):
+    """A point's result dataset: held in memory, or read from its part file."""
+    if isinstance(value, Path):
+        from cavity.results import open_result
+
+        return open_result(value)
+    return value
+
+
+def _range_of(value) -> np.ndarray:
+    """The range axis (km) of a point held in memory or in its part file (read alone)."""
+    if isinstance(value, Path):
+        import xarray as xr
+
+        with xr.open_dataset(value, engine="netcdf4") as handle:
+            return handle["range"].values.copy()
+    return value["range"].values
+
+
 def _sweepable(ds):
     """``ds`` without the variables on dimensions a sweep does not combine."""
     return ds.drop_vars([n for n, v in ds.variables.items() if not set(v.dims) <= _SWEPT_DIMS])
@@ -711,21 +730,23 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
     freqs : list of float
         Frequencies, Hz, increasing.
     points : list of SweepPoint
-    results : dict SweepPoint -> xarray.Dataset
-        Each point's result dataset (one frequency).
+    results : dict SweepPoint -> xarray.Dataset or pathlib.Path
+        Each point's result dataset (one frequency), or the part file that holds it (read when
+        needed, one point at a time).
     variants : dict SweepPoint -> Scenario, optional
         Unused except for the record of which instants and frequencies were run.
     """
     import xarray as xr
 
     done = [p for p in points if p in results]
+    ranges = {p: _range_of(results[p]) for p in done}
     by_f: dict[int, np.ndarray] = {}
     for p in done:
-        by_f.setdefault(p.frequency_index, results[p]["range"].values)
+        by_f.setdefault(p.frequency_index, ranges[p])
     r, regridded = _common_range(by_f)
     ref_f = next(fi for fi, a in by_f.items() if a.shape == r.shape and np.array_equal(a, r))
-    slot = {(p.time_index, p.frequency_index): _on_range(_sweepable(results[p]), r) for p in done}
-    template = next(slot[k] for k in sorted(slot, key=lambda k: (k[1] != ref_f, k)))
+    first_point = min(done, key=lambda p: (p.frequency_index != ref_f, p.time_index, p.frequency_index))
+    template = _on_range(_sweepable(_point_dataset(results[first_point])), r)
 
     n_t = len(times) if times is not None else 1
     freq_vars = [n for n, v in template.data_vars.items() if "frequency" in v.dims]
@@ -733,8 +754,8 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
                  if "frequency" not in v.dims and "range" in v.dims and n not in _TIME_INVARIANT]
     fixed_vars = [n for n in template.data_vars if n not in freq_vars and n not in time_vars]
 
-    # preallocated arrays filled point by point: no per-instant copies, so a long sweep's memory is
-    # that of the combined arrays and the points' own datasets
+    # Preallocated arrays filled one point at a time: a point kept as a part file is read, copied in
+    # and let go, so memory is that of the combined arrays, not of all the points at once.
     stacked = {}
     for name in freq_vars + time_vars:
         v = template[name]
@@ -742,18 +763,22 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
             raise SweepError(f"variable {name} ({v.dtype}) varies between points and cannot be combined")
         shape = tuple(len(freqs) if d == "frequency" else v.sizes[d] for d in v.dims)
         stacked[name] = (v.dims, np.full((n_t,) + shape, np.nan))
-    for (ti, fi), point_ds in slot.items():
+    attrs = {}
+    from_ref = set()  # instants whose medium came from the reference frequency's point
+    for p in done:
+        ti, fi = p.time_index, p.frequency_index
+        point_ds = _on_range(_sweepable(_point_dataset(results[p])), r)
+        attrs[p] = dict(point_ds.attrs)
         for name in freq_vars:
             dims, arr = stacked[name]
             at = tuple(fi if d == "frequency" else slice(None) for d in dims)
             arr[(ti,) + at] = point_ds[name].isel(frequency=0).values
-    for ti in range(n_t):
-        source = slot.get((ti, ref_f))
-        if source is None:
-            source = next((slot[(ti, fi)] for fi in range(len(freqs)) if (ti, fi) in slot), None)
-        if source is not None:
+        if ti not in from_ref:  # the medium along range: the reference frequency's grid wins
             for name in time_vars:
-                stacked[name][1][ti] = source[name].values
+                stacked[name][1][ti] = point_ds[name].values
+            if fi == ref_f:
+                from_ref.add(ti)
+        del point_ds
     freq_coord = xr.DataArray(np.asarray(freqs, float) / 1e3, dims="frequency", attrs=template["frequency"].attrs)
     ds = xr.Dataset({n: template[n] for n in fixed_vars})
     for name, (dims, arr) in stacked.items():
@@ -771,7 +796,7 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
     record = {k: np.full(shape, np.nan) for k in ("wall_time", "time_steps", "cells", "cell_r", "cell_z", "time_step")}
     notes, converged, fit = [], True, 0.0
     for p in done:
-        a = results[p].attrs
+        a = attrs[p]
         key = (p.time_index, p.frequency_index)
         record["wall_time"][key] = a.get("solver_wall_time_s", np.nan)
         record["time_steps"][key] = a.get("solver_time_steps", np.nan)
@@ -820,7 +845,7 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
         + (f" every {int((times[1] - times[0]).total_seconds())} s" if len(times) > 1 and _regular(times) else "")
         if times is not None else "no time axis"
     )
-    first = results[done[0]].attrs
+    first = attrs[done[0]]
     ds.attrs = {
         "title": scenario.title,
         "Conventions": "CF-1.10",
