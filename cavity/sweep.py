@@ -640,7 +640,8 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
                         if users[key] == 0:
                             solutions.pop(key, None)
                 status = "FAILED" if job.key in errors else "solved"
-                text = f"{job.path.label} at {job.points[0].name} {status} ({len(job.points)} points)"
+                shared = len(set(job.points))
+                text = f"{job.path.label} at {job.points[0].name} {status}" + (f" (for {shared} points)" if shared > 1 else "")
                 log.debug("%s (%d/%d path solves)", text, done, len(jobs))
                 if progress is not None:
                     progress(done / len(jobs), text)
