@@ -15,28 +15,28 @@ F32 = np.float32
 
 
 def np_step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
-              jz0, b_zh, c_zh, k_zh, psi_zh, ir0, b_rh, c_rh, k_rh, psi_rh, ch_far,
+              jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
               acc_re, acc_im, cos_h, sin_h):
     nr, nz = hp.shape
     ez_pad = np.vstack([ez, np.zeros((1, nz), ez.dtype)])  # Ez = 0 beyond the last column
     dez = (ez_pad[1:] - ez_pad[:-1]) * inv_dr
     der = (er[:, 1:] - er[:, :-1]) * inv_dz
-    sib_psi[:] = sib_q[:, None] * sib_psi + sib_w * hp[:, 0]
-    ground = ha * hp[:, 0] + hb * (dez[:, 0] - er[:, 1] * inv_dz + sib_psi.sum(axis=0) * inv_dz)
+    sib_psi[:] = sib_q[None, :] * sib_psi + sib_w * hp[:, 0][:, None]
+    ground = ha * hp[:, 0] + hb * (dez[:, 0] - er[:, 1] * inv_dz + sib_psi.sum(axis=1) * inv_dz)
     hp[:, 1:] += ch * (dez[:, 1:] - der[:, 1:])
     hp[:, 0] = ground
     d = -der[:, jz0:]
     psi_zh[:] = b_zh * psi_zh + c_zh * d
-    hp[:, jz0:] += ch * ((1 / k_zh - 1) * d + psi_zh)
+    hp[:, jz0:] += ch * (kd_zh * d + psi_zh)
     d = dez[ir0:]
     psi_rh[:] = b_rh[:, None] * psi_rh + c_rh[:, None] * d
-    hp[ir0:] += ch_far * ((1 / k_rh[:, None] - 1) * d + psi_rh)
+    hp[ir0:] += ch_far * (kd_rh[:, None] * d + psi_rh)
     acc_re += hp[:, 0][None, :] * cos_h[:, None]
     acc_im -= hp[:, 0][None, :] * sin_h[:, None]
 
 
 def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
-              jz0, b_ze, c_ze, k_ze, psi_ze, ce_top, ir0, b_re, c_re, k_re, psi_re, ce_far,
+              jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
               src, acc_re, acc_im, cos_e, sin_e):
     nr, nz = ez.shape
     hm = np.vstack([hp[:1], hp[:-1]])  # H_(i-1/2); rm[0] = 0 on the axis
@@ -52,12 +52,12 @@ def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, e
         e[:, jp0:nz] = new
     d = curl_r[:, jz0:nz]
     psi_ze[:] = b_ze * psi_ze + c_ze * d
-    de = ce_top * ((1 / k_ze - 1) * d + psi_ze)
+    de = ce_top * (kd_ze * d + psi_ze)
     er[:, jz0:nz] += de
     jr[:, jz0 - jp0:] += qb_r[:, jz0 - jp0:] * de
     d = curl_z[ir0:]
     psi_re[:] = b_re[:, None] * psi_re + c_re[:, None] * d
-    de = ce_far * ((1 / k_re[:, None] - 1) * d + psi_re)
+    de = ce_far * (kd_re[:, None] * d + psi_re)
     ez[ir0:] += de
     jz[ir0:] += qb_z[ir0:] * de[:, jp0:]
     ez[0, 0] -= src
@@ -68,14 +68,15 @@ def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, e
 def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
     r = lambda *shape: (RNG.standard_normal(shape) * 0.1).astype(F32)  # noqa: E731
     pos = lambda *shape: RNG.uniform(0.2, 0.9, shape).astype(F32)  # noqa: E731
+    kd = lambda n: 1.0 / (1 + pos(n)).astype(np.float64) - 1.0  # noqa: E731  (1/kappa - 1, kappa > 1)
     n_pl, n_top, n_far = nz - jp0, nz - jz0, nr - ir0
     fields = dict(ez=r(nr, nz), er=r(nr, nz + 1), hp=r(nr, nz), jz=r(nr, n_pl), jr=r(nr, n_pl))
     fields["er"][:, 0] = fields["er"][:, -1] = 0
     h = dict(inv_dr=F32(1.3), inv_dz=F32(1.7), ch=F32(0.3), ha=pos(nr), hb=pos(nr) * F32(0.3),
-             sib_q=RNG.uniform(0.1, 0.99, nk), sib_w=RNG.standard_normal((nk, nr)) * 0.1,
-             sib_psi=RNG.standard_normal((nk, nr)) * 0.01,
-             jz0=jz0, b_zh=pos(n_top), c_zh=-pos(n_top) * F32(0.1), k_zh=1 + pos(n_top), psi_zh=r(nr, n_top),
-             ir0=ir0, b_rh=pos(n_far), c_rh=-pos(n_far) * F32(0.1), k_rh=1 + pos(n_far), psi_rh=r(n_far, nz),
+             sib_q=RNG.uniform(0.1, 0.99, nk), sib_w=RNG.standard_normal((nr, nk)) * 0.1,
+             sib_psi=RNG.standard_normal((nr, nk)) * 0.01,
+             jz0=jz0, b_zh=pos(n_top), c_zh=-pos(n_top) * F32(0.1), kd_zh=kd(n_top), psi_zh=r(nr, n_top),
+             ir0=ir0, b_rh=pos(n_far), c_rh=-pos(n_far) * F32(0.1), kd_rh=kd(n_far), psi_rh=r(n_far, nz),
              ch_far=pos(n_far, nz) * F32(0.3), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
              cos_h=RNG.standard_normal(nf), sin_h=RNG.standard_normal(nf))
     rp = pos(nr)
@@ -83,9 +84,9 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
     rm[0] = 0
     e = dict(rp=rp, rm=rm, inv_dz=F32(1.7), cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3), jp0=jp0,
              ed_z=1 + pos(n_pl) * 3, qa_z=pos(n_pl), qb_z=pos(nr, n_pl), ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl),
-             qb_r=pos(nr, n_pl), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), k_ze=1 + pos(n_top),
+             qb_r=pos(nr, n_pl), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
              psi_ze=r(nr, n_top), ce_top=pos(nr, n_top) * F32(0.3), ir0=ir0, b_re=pos(n_far),
-             c_re=-pos(n_far) * F32(0.1), k_re=1 + pos(n_far), psi_re=r(n_far, nz), ce_far=pos(n_far, nz) * F32(0.3),
+             c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far), psi_re=r(n_far, nz), ce_far=pos(n_far, nz) * F32(0.3),
              src=F32(0.05), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
              cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
     return fields, h, e
@@ -104,14 +105,14 @@ def test_fused_kernels_match_their_numpy_twins(steps):
         K.step_h(f_k["hp"], f_k["ez"], f_k["er"], **h_k)
         K.step_e(f_k["ez"], f_k["er"], f_k["hp"], e_k["rp"], e_k["rm"], e_k["inv_dz"], e_k["cez"], e_k["cer"],
                  e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], f_k["jz"], e_k["ed_r"], e_k["qa_r"],
-                 e_k["qb_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "k_ze", "psi_ze", "ce_top", "ir0",
-                                                             "b_re", "c_re", "k_re", "psi_re", "ce_far", "src",
+                 e_k["qb_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
+                                                             "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
                                                              "acc_re", "acc_im", "cos_e", "sin_e")])
         np_step_h(f_n["hp"], f_n["ez"], f_n["er"], **h_n)
         np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["rp"], e_n["rm"], e_n["inv_dz"], e_n["cez"], e_n["cer"],
                   e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], f_n["jz"], e_n["ed_r"], e_n["qa_r"],
-                  e_n["qb_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "k_ze", "psi_ze", "ce_top", "ir0",
-                                                              "b_re", "c_re", "k_re", "psi_re", "ce_far", "src",
+                  e_n["qb_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
+                                                              "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
                                                               "acc_re", "acc_im", "cos_e", "sin_e")])
     for name in ("ez", "er", "hp", "jz", "jr"):
         np.testing.assert_allclose(f_k[name], f_n[name], rtol=2e-4, atol=2e-6, err_msg=name)

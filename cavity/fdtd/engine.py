@@ -113,6 +113,13 @@ class EngineResult:
     notes: list[str] = field(default_factory=list)
 
 
+def _kernel_cpml(coefficients) -> list[np.ndarray]:
+    """CPML (b, c, kappa) as the kernels take them: b and c in float32, and 1/kappa - 1 in float64
+    from the float32 kappa, so that the kernels need no division per absorber cell."""
+    b, c, kappa = (np.asarray(a).astype(np.float32) for a in coefficients)
+    return [b, c, 1.0 / kappa.astype(np.float64) - 1.0]
+
+
 def radial_dispersion_factor(frequencies_hz, dr: float, dt: float) -> float:
     """Factor on the radial differences that makes waves along r travel at c at the design frequency.
 
@@ -322,13 +329,13 @@ class Simulation:
             fits[key] = media.impedance_fit(key[0], key[1], dt, f_lo, f_hi)
         poles = next((fit[1] for fit in fits.values() if fit[1].size), np.zeros(0))
         self.sib_q = poles.astype(np.float64)
-        self.sib_w = np.zeros((poles.size, nr))
+        self.sib_w = np.zeros((nr, poles.size))  # (column, pole): a column's poles side by side
         self.impedance_fit_error = max((fit[3] for fit in fits.values()), default=0.0)
         for key, fit in fits.items():
             cols = (sig == key[0]) & (epr == key[1])
             eta[cols] = fit[0]
             if fit[1].size:
-                self.sib_w[:, cols] = fit[2][:, None]
+                self.sib_w[cols, :] = fit[2][None, :]
         self.sib_psi = np.zeros_like(self.sib_w)
         denom = MU0 / dt + eta / (2 * dz)
         self.ha = ((MU0 / dt - eta / (2 * dz)) / denom).astype(f32)
@@ -343,10 +350,10 @@ class Simulation:
         ze = media.cpml_coefficients(nzp, dz, dt, offset=0.0, **kw)
         rh = media.cpml_coefficients(nrp, dr, dt, offset=0.5, **kw)
         re = media.cpml_coefficients(nrp, dr, dt, offset=0.0, **kw)
-        self.pz_h = [a.astype(f32) for a in zh]
-        self.pz_e = [a.astype(f32) for a in ze]
-        self.pr_h = [a.astype(f32) for a in rh]
-        self.pr_e = [a.astype(f32) for a in re]
+        self.pz_h = _kernel_cpml(zh)
+        self.pz_e = _kernel_cpml(ze)
+        self.pr_h = _kernel_cpml(rh)
+        self.pr_e = _kernel_cpml(re)
         self.psi_zh = np.zeros((nr, nzp), f32)
         self.psi_ze = np.zeros((nr, nzp), f32)
         self.psi_rh = np.zeros((nrp, nz), f32)

@@ -85,7 +85,7 @@ def minimal_e(ez, er, hp, rp, rm, inv_dz, ca, cb):
 
 @nb.njit(parallel=True, **_OPTS)
 def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
-           jz0, b_zh, c_zh, k_zh, psi_zh, ir0, b_rh, c_rh, k_rh, psi_rh, ch_far,
+           jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
            acc_re, acc_im, cos_h, sin_h):
     """One H half-step: Faraday's law, mu0 dH/dt = dEz/dr - dEr/dz, with both absorbers and the DFT.
 
@@ -94,12 +94,14 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
     Ground row (z = dz/2) with the impedance ground: Er(0) = -eta (H(n+1/2) + H(n-1/2))/2 + sum_k psi_k,
     the instantaneous part averaged in time (semi-implicit, unconditionally stable) and the memory
     part a sum of recursively updated exponentials ``psi_k(n) = q_k psi_k(n-1) + w_k H(n-1/2)``
-    (Maloney and Smith 1992); ``ha``/``hb`` per column fold eta in (perfect ground: ha = 1,
-    hb = dt/mu0, no poles). ``ch`` = dt/mu0.
+    (Maloney and Smith 1992; ``sib_w``, ``sib_psi`` are (column, pole), so a column's poles are
+    contiguous); ``ha``/``hb`` per column fold eta in (perfect ground: ha = 1, hb = dt/mu0, no
+    poles). ``ch`` = dt/mu0.
 
     Absorbers: convolutional PML by recursive convolution (Roden and Gedney 2000, MOTL 27(5) 334).
     For a derivative d the layer needs (1/kappa) d + psi with psi(n) = b psi(n-1) + c d; the ordinary
-    update has applied d, so the correction adds coef ((1/kappa - 1) d + psi): the top layer on
+    update has applied d, so the correction adds coef (kd d + psi) with ``kd`` = 1/kappa - 1 (float64,
+    computed once outside the loop): the top layer on
     dEr/dz (rows >= jz0), the far-end layer on dEz/dr (columns >= ir0; ``ch_far`` holds each cell's
     curl coefficient, the ground row's being ``hb``).
 
@@ -114,8 +116,8 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
         h_old = hp[i, 0]
         psi_sum = 0.0
         for k in range(nk):
-            p = sib_q[k] * sib_psi[k, i] + sib_w[k, i] * h_old
-            sib_psi[k, i] = p
+            p = sib_q[k] * sib_psi[i, k] + sib_w[i, k] * h_old
+            sib_psi[i, k] = p
             psi_sum += p
         ezn = ez[i + 1, 0] if has_next else np.float32(0.0)
         curl = (ezn - ez[i, 0]) * inv_dr - er[i, 1] * inv_dz + psi_sum * inv_dz
@@ -136,7 +138,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
             d = -(e_r[j + 1] - e_r[j]) * inv_dz
             p = b_zh[k] * psi_zh[i, k] + c_zh[k] * d
             psi_zh[i, k] = p
-            h[j] += ch * ((1.0 / k_zh[k] - 1.0) * d + p)
+            h[j] += ch * (kd_zh[k] * d + p)
         if i >= ir0:
             kk = i - ir0
             for j in range(nz):
@@ -144,7 +146,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
                 d = (ezn - e_z[j]) * inv_dr
                 p = b_rh[kk] * psi_rh[kk, j] + c_rh[kk] * d
                 psi_rh[kk, j] = p
-                h[j] += ch_far[kk, j] * ((1.0 / k_rh[kk] - 1.0) * d + p)
+                h[j] += ch_far[kk, j] * (kd_rh[kk] * d + p)
         v = np.float64(h[0])
         for f in range(nf):
             acc_re[f, i] += v * cos_h[f]
@@ -153,7 +155,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
 @nb.njit(parallel=True, **_OPTS)
 def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
-           jz0, b_ze, c_ze, k_ze, psi_ze, ce_top, ir0, b_re, c_re, k_re, psi_re, ce_far,
+           jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
            src, acc_re, acc_im, cos_e, sin_e):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
 
@@ -228,7 +230,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
             d = -(h[j] - h[j - 1]) * inv_dz
             p = b_ze[k] * psi_ze[i, k] + c_ze[k] * d
             psi_ze[i, k] = p
-            de = ce_top[i, k] * ((1.0 / k_ze[k] - 1.0) * d + p)
+            de = ce_top[i, k] * (kd_ze[k] * d + p)
             e_r[j] += de
             if j >= jp0:
                 jr[i, j - jp0] += qb_r[i, j - jp0] * de
@@ -238,7 +240,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
                 d = a * h[j] - b * hm[j]
                 p = b_re[kk] * psi_re[kk, j] + c_re[kk] * d
                 psi_re[kk, j] = p
-                de = ce_far[kk, j] * ((1.0 / k_re[kk] - 1.0) * d + p)
+                de = ce_far[kk, j] * (kd_re[kk] * d + p)
                 e_z[j] += de
                 if j >= jp0:
                     jz[i, j - jp0] += qb_z[i, j - jp0] * de
