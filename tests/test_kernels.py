@@ -16,8 +16,9 @@ F32 = np.float32
 
 def np_step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
               jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
-              acc_re, acc_im, cos_h, sin_h):
+              acc_re, acc_im, cos_h, sin_h, n_cols):
     nr, nz = hp.shape
+    assert n_cols == nr  # the twin steps the whole grid
     ez_pad = np.vstack([ez, np.zeros((1, nz), ez.dtype)])  # Ez = 0 beyond the last column
     dez = (ez_pad[1:] - ez_pad[:-1]) * inv_dr
     der = (er[:, 1:] - er[:, :-1]) * inv_dz
@@ -37,8 +38,9 @@ def np_step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
 def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
               jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
-              src, acc_re, acc_im, cos_e, sin_e):
+              src, acc_re, acc_im, cos_e, sin_e, n_cols):
     nr, nz = ez.shape
+    assert n_cols == nr
     hm = np.vstack([hp[:1], hp[:-1]])  # H_(i-1/2); rm[0] = 0 on the axis
     curl_z = rp[:, None] * hp - rm[:, None] * hm
     curl_r = np.zeros_like(er)
@@ -78,7 +80,7 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
              jz0=jz0, b_zh=pos(n_top), c_zh=-pos(n_top) * F32(0.1), kd_zh=kd(n_top), psi_zh=r(nr, n_top),
              ir0=ir0, b_rh=pos(n_far), c_rh=-pos(n_far) * F32(0.1), kd_rh=kd(n_far), psi_rh=r(n_far, nz),
              ch_far=pos(n_far, nz) * F32(0.3), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
-             cos_h=RNG.standard_normal(nf), sin_h=RNG.standard_normal(nf))
+             cos_h=RNG.standard_normal(nf), sin_h=RNG.standard_normal(nf), n_cols=nr)
     rp = pos(nr)
     rm = pos(nr)
     rm[0] = 0
@@ -107,13 +109,13 @@ def test_fused_kernels_match_their_numpy_twins(steps):
                  e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], f_k["jz"], e_k["ed_r"], e_k["qa_r"],
                  e_k["qb_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                              "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
-                                                             "acc_re", "acc_im", "cos_e", "sin_e")])
+                                                             "acc_re", "acc_im", "cos_e", "sin_e")], f_k["ez"].shape[0])
         np_step_h(f_n["hp"], f_n["ez"], f_n["er"], **h_n)
         np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["rp"], e_n["rm"], e_n["inv_dz"], e_n["cez"], e_n["cer"],
                   e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], f_n["jz"], e_n["ed_r"], e_n["qa_r"],
                   e_n["qb_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                               "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
-                                                              "acc_re", "acc_im", "cos_e", "sin_e")])
+                                                              "acc_re", "acc_im", "cos_e", "sin_e")], f_n["ez"].shape[0])
     for name in ("ez", "er", "hp", "jz", "jr"):
         np.testing.assert_allclose(f_k[name], f_n[name], rtol=2e-4, atol=2e-6, err_msg=name)
     for name in ("sib_psi", "psi_zh", "psi_rh", "acc_re", "acc_im"):
@@ -130,3 +132,45 @@ def test_max_abs_finds_the_largest_and_nan():
     a[1, 2] = np.nan
     peak, _ = K.max_abs(a)
     assert np.isnan(peak)
+
+
+def test_last_active_column_sees_every_kind_of_state():
+    fields, h, e = _state()
+    nr = fields["ez"].shape[0]
+    arrays = {name: np.zeros_like(a) for name, a in (("ez", fields["ez"]), ("er", fields["er"]), ("hp", fields["hp"]),
+                                                      ("jz", fields["jz"]), ("jr", fields["jr"]), ("psi_zh", h["psi_zh"]),
+                                                      ("psi_ze", e["psi_ze"]), ("sib_psi", h["sib_psi"]),
+                                                      ("psi_rh", h["psi_rh"]), ("psi_re", e["psi_re"]))}
+    ir0 = h["ir0"]
+
+    def last(start=nr - 1):
+        a = arrays
+        return K.last_active_column(start, a["ez"], a["er"], a["hp"], a["jz"], a["jr"], a["psi_zh"], a["psi_ze"],
+                                    a["sib_psi"], ir0, a["psi_rh"], a["psi_re"])
+
+    assert last() == -1
+    for name, col in (("hp", 3), ("sib_psi", 5), ("jr", 7), ("psi_ze", 9), ("psi_rh", ir0 + 2), ("psi_re", ir0 + 4)):
+        row = col - ir0 if name in ("psi_rh", "psi_re") else col
+        arrays[name][row, -1] = np.float32(1e-38)  # a subnormal counts: only exact zeros are empty
+        assert last() == col, name
+    assert last(start=ir0 + 3) == ir0 + 2  # the search starts where it is told
+
+
+def test_stepping_only_the_reached_columns_changes_nothing():
+    """The same solve with and without skipping the columns ahead of the wave: identical numbers."""
+    import profiles
+
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 160e3, 250.0)
+    medium = eng.Medium.uniform(1e-3, 10.0, z, profiles.electron_density(z, 85.1, 0.63), profiles.collision_frequency(z))
+    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=400e3, dr_m=1000.0, dz_m=1000.0)
+    tracked = eng.Simulation(medium, settings)
+    whole = eng.Simulation(medium, settings)
+    whole.track_front = False
+    a, b = tracked.run(), whole.run()
+    assert a.steps == b.steps
+    np.testing.assert_array_equal(a.ez, b.ez)
+    np.testing.assert_array_equal(a.hphi, b.hphi)
+    for name in ("ez", "er", "hp", "jz", "jr", "psi_zh", "psi_ze", "psi_rh", "psi_re", "sib_psi"):
+        np.testing.assert_array_equal(getattr(tracked, name), getattr(whole, name), err_msg=name)

@@ -134,7 +134,7 @@ def describe(scenario) -> list[str]:
     lines.append(f"  top {top_text}; far-end absorber {sv.pml_cells} cells; "
                  f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}")
     lines += _table(["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows)
-    updates = sum(p.cell_updates for p in plans)
+    updates = sum(p.stepped_cell_updates for p in plans)
     t_min = max(w[0] for w in windows)
     t_max = max(w[1] for w in windows)
     lines.append(f"  total {updates:.3g} cell updates; each solve simulates at least {t_min * 1e3:.1f} ms "

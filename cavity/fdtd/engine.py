@@ -30,6 +30,8 @@ log = logging.getLogger(__name__)
 WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
 #: Loss tangent below which a row is stepped as vacuum (see Simulation._build).
 PLASMA_THRESHOLD = 1e-6
+#: Steps between searches for the last active column (the wave front).
+FRONT_SEARCH_STEPS = gridmod.FRONT_SEARCH_STEPS
 
 
 @dataclass(frozen=True)
@@ -236,6 +238,10 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
 class Simulation:
     """One solve: allocated fields and coefficients, stepped by :meth:`run`."""
 
+    #: Step only the columns the wave has reached (exact; see kernels.last_active_column). Tests
+    #: switch it off to compare with stepping the whole grid.
+    track_front: bool = True
+
     def __init__(self, medium: Medium, settings: Settings):
         self.medium = medium
         self.settings = settings
@@ -420,7 +426,15 @@ class Simulation:
         t0 = time.perf_counter()
         step = 0
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
+        n_cols = nr
         while step < n_max:
+            if self.track_front and step % FRONT_SEARCH_STEPS == 0:
+                # columns beyond the last active one are still empty (kernels.last_active_column):
+                # step only as far as the wave can reach before the next search
+                last_col = K.last_active_column(n_cols - 1, self.ez, self.er, self.hp, self.jz, self.jr,
+                                                self.psi_zh, self.psi_ze, self.sib_psi, self.ir0,
+                                                self.psi_rh, self.psi_re)
+                n_cols = min(nr, last_col + FRONT_SEARCH_STEPS + 2)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
             if step % 1024 == 0:  # re-anchor the rotors against round-off
@@ -429,7 +443,7 @@ class Simulation:
             K.step_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
                      self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi,
                      self.jz0, *self.pz_h, self.psi_zh, self.ir0, *self.pr_h, self.psi_rh, self.ch_far,
-                     acc_h[0], acc_h[1], rot_h.real, -rot_h.imag)
+                     acc_h[0], acc_h[1], rot_h.real, -rot_h.imag, n_cols)
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
@@ -445,7 +459,7 @@ class Simulation:
             K.step_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
                      *plasma_z, self.jz, *plasma_r, self.jr,
                      self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
-                     self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag)
+                     self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag, n_cols)
             if line_source and n_line > 1:
                 self.ez[0, 1:n_line] -= kicks[1:]  # rows above the ground row do not enter this step's DFT
             if current != 0.0:

@@ -61,6 +61,35 @@ def max_abs(a):
     return best[k], where[k]
 
 
+@nb.njit(**_OPTS)
+def _any_nonzero(row):
+    for v in row:
+        if v != 0:
+            return True
+    return False
+
+
+@nb.njit(**_OPTS)
+def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, psi_rh, psi_re):
+    """Last column, searching down from ``start``, that holds any nonzero field, plasma current or
+    absorber/ground memory; -1 if none.
+
+    Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
+    nonzero values at most one column further out (H at column i reads Ez at i+1, which is still
+    zero; E at i+1 reads H at i). Stepping only the columns up to the last active one plus the steps
+    until the next search is therefore exact, and skips the still-empty far part of a long path
+    during the first passage of the wave.
+    """
+    for i in range(start, -1, -1):
+        if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
+                or _any_nonzero(jr[i]) or _any_nonzero(psi_zh[i]) or _any_nonzero(psi_ze[i])
+                or _any_nonzero(sib_psi[i])):
+            return i
+        if i >= ir0 and (_any_nonzero(psi_rh[i - ir0]) or _any_nonzero(psi_re[i - ir0])):
+            return i
+    return -1
+
+
 @nb.njit(parallel=True, **_OPTS)
 def minimal_h(hp, ez, er, inv_dr, inv_dz, ch):
     """Benchmark stencil: H_phi update only (no ground impedance, no absorber)."""
@@ -86,10 +115,12 @@ def minimal_e(ez, er, hp, rp, rm, inv_dz, ca, cb):
 @nb.njit(parallel=True, **_OPTS)
 def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
            jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
-           acc_re, acc_im, cos_h, sin_h):
+           acc_re, acc_im, cos_h, sin_h, n_cols):
     """One H half-step: Faraday's law, mu0 dH/dt = dEz/dr - dEr/dz, with both absorbers and the DFT.
 
     Everything a column needs is local to it, so one parallel loop over columns with one barrier.
+    Only columns ``0 .. n_cols-1`` are stepped: the caller guarantees that every field and memory
+    beyond them is zero and would stay zero (see :func:`last_active_column`).
 
     Ground row (z = dz/2) with the impedance ground: Er(0) = -eta (H(n+1/2) + H(n-1/2))/2 + sum_k psi_k,
     the instantaneous part averaged in time (semi-implicit, unconditionally stable) and the memory
@@ -111,7 +142,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
     nk = sib_q.shape[0]
     n_top = psi_zh.shape[1]
     nf = acc_re.shape[0]
-    for i in prange(nr):
+    for i in prange(n_cols):
         has_next = i + 1 < nr
         h_old = hp[i, 0]
         psi_sum = 0.0
@@ -156,8 +187,10 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 @nb.njit(parallel=True, **_OPTS)
 def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
            jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
-           src, acc_re, acc_im, cos_e, sin_e):
+           src, acc_re, acc_im, cos_e, sin_e, n_cols):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
+
+    Columns ``0 .. n_cols-1`` only, as in :func:`step_h`.
 
     Vacuum rows (j < jp0): E += c curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
@@ -187,7 +220,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
     nf = acc_re.shape[0]
     half = np.float32(0.5)
     one = np.float32(1.0)
-    for i in prange(nr):
+    for i in prange(n_cols):
         im = i - 1 if i > 0 else 0
         a = rp[i]
         b = rm[i]
