@@ -7,11 +7,13 @@ under ``-m slow``.
 
 from __future__ import annotations
 
+import contextlib
 import csv
 import io
 import math
 import shutil
 import sys
+import tempfile
 import types
 from pathlib import Path
 
@@ -31,7 +33,7 @@ def invoke(*argv, cwd: Path | None = None):
     runner = CliRunner()
     if cwd is None:
         return runner.invoke(main, [str(a) for a in argv], catch_exceptions=False)
-    with runner.isolated_filesystem(temp_dir=cwd):
+    with contextlib.chdir(tempfile.mkdtemp(dir=cwd)):  # a fresh folder: relative outputs land there
         return runner.invoke(main, [str(a) for a in argv], catch_exceptions=False)
 
 
