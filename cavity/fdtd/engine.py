@@ -30,8 +30,6 @@ log = logging.getLogger(__name__)
 WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
 #: Loss tangent below which a row is stepped as vacuum (see Simulation._build).
 PLASMA_THRESHOLD = 1e-6
-#: Steps between searches for the last active column (the wave front).
-FRONT_SEARCH_STEPS = gridmod.FRONT_SEARCH_STEPS
 
 
 @dataclass(frozen=True)
@@ -428,13 +426,13 @@ class Simulation:
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
         n_cols = nr
         while step < n_max:
-            if self.track_front and step % FRONT_SEARCH_STEPS == 0:
+            if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
                 # step only as far as the wave can reach before the next search
                 last_col = K.last_active_column(n_cols - 1, self.ez, self.er, self.hp, self.jz, self.jr,
                                                 self.psi_zh, self.psi_ze, self.sib_psi, self.ir0,
                                                 self.psi_rh, self.psi_re)
-                n_cols = min(nr, last_col + FRONT_SEARCH_STEPS + 2)
+                n_cols = min(nr, last_col + gridmod.FRONT_SEARCH_STEPS + 2)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
             if step % 1024 == 0:  # re-anchor the rotors against round-off
