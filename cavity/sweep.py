@@ -363,6 +363,77 @@ def _part_path(parts_dir: Path, point: SweepPoint) -> Path:
     return parts_dir / f"{point.key}.nc"
 
 
+#: Subfolder of the parts folder that keeps each distinct path solve, by its key.
+SOLVES_SUBDIR = "path-solves"
+_SOLUTION_ARRAYS = ("range_m", "ez", "b", "receiver_ez", "receiver_b", "electron_density", "collision_frequency")
+_ENGINE_ARRAYS = ("range_m", "frequencies_hz", "ez", "hphi", "probe_ranges_m")
+
+
+def _solution_path(parts_dir: Path, key: str) -> Path:
+    return parts_dir / SOLVES_SUBDIR / f"{key}.npz"
+
+
+def save_solution(parts_dir: Path, key: str, sol) -> Path:
+    """Keep one path solve (a :class:`cavity.solve.PathSolution`) as ``path-solves/KEY.npz``, atomically.
+
+    Plain arrays and a JSON record (no pickle), so that a resumed or widened sweep takes the solve
+    from disk instead of solving it again. The path model is not stored: every point that uses the
+    solve supplies its own.
+    """
+    import json
+    import tempfile
+
+    if sol.engine.time_s is not None:
+        raise ValueError("a solve with receiver time series is not kept (sweeps switch them off)")
+    target = _solution_path(parts_dir, key)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    arrays = {f"sol_{n}": getattr(sol, n) for n in _SOLUTION_ARRAYS if getattr(sol, n) is not None}
+    arrays.update({f"eng_{n}": getattr(sol.engine, n) for n in _ENGINE_ARRAYS})
+    record = {
+        "version": __version__, "key": key, "plan": dataclasses.asdict(sol.engine.plan),
+        "steps": sol.engine.steps, "wall_time_s": sol.engine.wall_time_s, "converged": sol.engine.converged,
+        "notes": list(sol.engine.notes), "engine_fit_error": sol.engine_fit_error,
+    }
+    fd, tmp = tempfile.mkstemp(prefix=f".{key[:16]}.", suffix=".npz", dir=target.parent)
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            np.savez(handle, record=np.array(json.dumps(record)), **arrays)
+        os.replace(tmp, target)
+    except BaseException:
+        Path(tmp).unlink(missing_ok=True)
+        raise
+    return target
+
+
+def load_solution(parts_dir: Path, key: str, path):
+    """A path solve kept by :func:`save_solution` for this key and tool version, on ``path``; else None."""
+    import json
+
+    from cavity.fdtd.engine import EngineResult
+    from cavity.fdtd.grid import GridPlan
+    from cavity.solve import PathSolution
+
+    file = _solution_path(parts_dir, key)
+    if not file.is_file():
+        return None
+    try:
+        with np.load(file, allow_pickle=False) as data:
+            record = json.loads(str(data["record"]))
+            if record.get("version") != __version__ or record.get("key") != key:
+                return None
+            get = lambda name: data[name] if name in data.files else None  # noqa: E731
+            engine = EngineResult(
+                plan=GridPlan(**record["plan"]), steps=int(record["steps"]), wall_time_s=float(record["wall_time_s"]),
+                converged=bool(record["converged"]), notes=list(record["notes"]),
+                **{n: data[f"eng_{n}"] for n in _ENGINE_ARRAYS},
+            )
+            return PathSolution(path=path, engine=engine, engine_fit_error=float(record["engine_fit_error"]),
+                                **{n: get(f"sol_{n}") for n in _SOLUTION_ARRAYS})
+    except (OSError, ValueError, KeyError, TypeError) as exc:  # unreadable or from another layout
+        log.warning("ignoring kept path solve %s (%s)", file.name, _one_line(exc))
+        return None
+
+
 def _load_part(path: Path, variant: Scenario):
     """A finished part that belongs to this point (same scenario text, same tool version), or None."""
     from cavity.errors import ResultFileError
@@ -552,19 +623,64 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
 
     jobs, needs, failures = plan_jobs(todo, variants)
     n_paths = sum(len(v) for v in needs.values())
-    log.info("%d path solves for %d points (%d shared with another instant)", len(jobs), len(todo),
-             n_paths - len(jobs))
-    if not jobs:
+    solutions: dict[str, object] = {}
+    errors: dict[str, str] = {}
+    counted: set[str] = set()
+    waiting = {p: {k for _, k in keyed} for p, keyed in needs.items()}
+    users = {key: len(set(job.points)) for key, job in jobs.items()}  # points not yet settled
+
+    def settle(job: _Job, solution, error: str | None) -> None:
+        """Record one finished path solve; assemble (and keep) every point it completes."""
+        if error is None:
+            solutions[job.key] = solution
+        else:
+            errors[job.key] = error
+        for p in dict.fromkeys(job.points):
+            waiting[p].discard(job.key)
+            if waiting[p]:
+                continue
+            bad = [(path, k) for path, k in needs[p] if k in errors]
+            if bad:
+                failures[p] = f"path {bad[0][0].label}: {errors[bad[0][1]]}"
+            else:
+                try:
+                    ds = _assemble(p, variants[p], needs[p], solutions, counted)
+                except CavityError as exc:
+                    failures[p] = _describe(exc)
+                else:
+                    if folder is not None:
+                        from cavity.results import write_result
+
+                        # kept on disk only: a long sweep's points need not fit in memory
+                        ds = write_result(ds, _part_path(folder, p), overwrite=True)
+                    results[p] = ds
+            for key in {k for _, k in needs[p]}:  # drop solutions no unsettled point needs
+                users[key] -= 1
+                if users[key] == 0:
+                    solutions.pop(key, None)
+
+    kept = {}
+    if folder is not None:
+        for job in jobs.values():
+            solution = load_solution(folder, job.key, job.path)
+            if solution is not None:
+                kept[job.key] = solution
+    log.info("%d path solves for %d points (%d shared with another instant%s)", len(jobs), len(todo),
+             n_paths - len(jobs), f"; {len(kept)} kept from an earlier run" if kept else "")
+    for key, solution in kept.items():
+        settle(jobs[key], solution, None)
+    to_solve = [job for job in jobs.values() if job.key not in kept]
+    if not to_solve:
         return failures
     with ExitStack() as stack:
         t_start = _time.perf_counter()
         if scheduler is None:
             need = None
             try:
-                need = max(int(plan_path(j.scenario, j.path).grid.memory_bytes) for j in jobs.values())
+                need = max(int(plan_path(j.scenario, j.path).grid.memory_bytes) for j in to_solve)
             except CavityError:
                 pass  # the solve itself will report the problem for its points
-            n, threads = local_cluster_size(len(jobs), need, workers)
+            n, threads = local_cluster_size(len(to_solve), need, workers)
             warm = warm_numba_cache()
             log.info("numba kernels ready in %.1f s; starting %d local workers x %d numba threads", warm, n, threads)
             cluster = stack.enter_context(
@@ -597,54 +713,30 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
 
         tag = uuid.uuid4().hex[:8]
         futures = {}
-        for job in jobs.values():  # in the order of the points, so that points finish early and in turn
+        for job in to_solve:  # in the order of the points, so that points finish early and in turn
             fut = client.submit(solve, job.scenario, job.path, key=f"cavity-sweep-{tag}-{job.key[:20]}",
                                 retries=RETRIES, pure=False)
             futures[fut] = job
-        solutions: dict[str, object] = {}
-        errors: dict[str, str] = {}
-        counted: set[str] = set()
-        waiting = {p: {k for _, k in keyed} for p, keyed in needs.items()}
-        users = {key: len(set(job.points)) for key, job in jobs.items()}  # points not yet settled
         done = 0
         try:
             for fut in as_completed(list(futures)):
                 job = futures[fut]
                 done += 1
+                solution, error = None, None
                 try:
-                    solutions[job.key] = fut.result()
+                    solution = fut.result()
                 except Exception as exc:  # the solve raised twice, or its worker died too often
-                    errors[job.key] = _describe(exc)
+                    error = _describe(exc)
                 fut.release()
-                for p in dict.fromkeys(job.points):
-                    waiting[p].discard(job.key)
-                    if waiting[p]:
-                        continue
-                    bad = [(path, k) for path, k in needs[p] if k in errors]
-                    if bad:
-                        failures[p] = f"path {bad[0][0].label}: {errors[bad[0][1]]}"
-                    else:
-                        try:
-                            ds = _assemble(p, variants[p], needs[p], solutions, counted)
-                        except CavityError as exc:
-                            failures[p] = _describe(exc)
-                        else:
-                            if folder is not None:
-                                from cavity.results import write_result
-
-                                # kept on disk only: a long sweep's points need not fit in memory
-                                ds = write_result(ds, _part_path(folder, p), overwrite=True)
-                            results[p] = ds
-                    for key in {k for _, k in needs[p]}:  # drop solutions no unsettled point needs
-                        users[key] -= 1
-                        if users[key] == 0:
-                            solutions.pop(key, None)
-                status = "FAILED" if job.key in errors else "solved"
+                if solution is not None and folder is not None:
+                    save_solution(folder, job.key, solution)
+                settle(job, solution, error)
                 shared = len(set(job.points))
-                text = f"{job.path.label} at {job.points[0].name} {status}" + (f" (for {shared} points)" if shared > 1 else "")
-                log.debug("%s (%d/%d path solves)", text, done, len(jobs))
+                text = (f"{job.path.label} at {job.points[0].name} {'FAILED' if error else 'solved'}"
+                        + (f" (for {shared} points)" if shared > 1 else ""))
+                log.debug("%s (%d/%d path solves)", text, done, len(to_solve))
                 if progress is not None:
-                    progress(done / len(jobs), text)
+                    progress(done / len(to_solve), text)
         except BaseException:
             for fut in futures:
                 fut.cancel()

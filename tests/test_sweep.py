@@ -30,6 +30,7 @@ from cavity.errors import ScenarioError, SolverError
 from cavity.results import REQUIRED_ATTRIBUTES, REQUIRED_VARIABLES, open_result
 from cavity.solve import simulate
 from cavity.sweep import (
+    SOLVES_SUBDIR,
     TIME_CALENDAR,
     TIME_UNITS,
     SweepError,
@@ -349,12 +350,17 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
     time.sleep(1.5)  # let cancelled in-flight solves finish leaving their markers
     before = len(list(markers.iterdir()))
 
+    # 8 distinct path solves in all (2 points x 2 paths at each of 2 instants, none shared: the
+    # instants differ in sun); those of the finished points, and any other solve that had come in,
+    # are kept in the parts folder
+    solves_kept = len(list((parts / SOLVES_SUBDIR).glob("*.npz")))
+    assert 4 <= solves_kept < 8
+
     calls = []
     ds = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts,
                progress=lambda f, text: calls.append(text), solve=solve)
-    # two paths (bearings 0 and 90 deg) per missing point, none shared: these instants differ in sun
-    assert len(calls) == 4  # the driver collected only the paths of the two missing points ...
-    assert len(list(markers.iterdir())) - before == 4  # ... and the workers solved only those
+    assert len(calls) == 8 - solves_kept  # the driver collected only the path solves not kept ...
+    assert len(list(markers.iterdir())) - before == 8 - solves_kept  # ... and the workers solved only those
     assert {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in parts.glob("*.nc") if p.name in kept} == kept
     assert len(list(parts.glob("*.nc"))) == 4
     for name in ("receiver_ez_amplitude", "ez_amplitude", "electron_density"):
@@ -362,6 +368,23 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
     # a third run solves nothing and needs no cluster at all
     again = sweep(tiny, TIMES, FREQS_KHZ, scheduler="tcp://127.0.0.1:1", parts_dir=parts, solve=solve)
     np.testing.assert_array_equal(again["receiver_ez_phase"].values, swept[0]["receiver_ez_phase"].values)
+
+
+def test_kept_path_solves_are_reused_when_points_are_missing(tiny, swept, cluster, tmp_path):
+    parts = tmp_path / "parts"
+    markers = tmp_path / "markers"
+    markers.mkdir()
+    solve = functools.partial(counting_solve, marker_dir=str(markers))
+    sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve)
+    assert len(list(markers.iterdir())) == 8
+    for part in parts.glob("*.nc"):  # every point lost, every path solve kept
+        part.unlink()
+    kept = sorted((parts / SOLVES_SUBDIR).glob("*.npz"))
+    kept[0].write_bytes(b"not a kept solve")  # a damaged one is solved again, with a warning
+    again = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve)
+    assert len(list(markers.iterdir())) == 9
+    for name in ("receiver_ez_amplitude", "receiver_ez_phase", "ez_amplitude", "electron_density", "hprime"):
+        np.testing.assert_array_equal(again[name].values, swept[0][name].values, err_msg=name)
 
 
 def test_parts_of_another_scenario_are_solved_again(tiny, cluster, tmp_path):
