@@ -421,14 +421,13 @@ def load_solution(parts_dir: Path, key: str, path):
             record = json.loads(str(data["record"]))
             if record.get("version") != __version__ or record.get("key") != key:
                 return None
-            get = lambda name: data[name] if name in data.files else None  # noqa: E731
+            arrays = {n: data[f"sol_{n}"] if f"sol_{n}" in data.files else None for n in _SOLUTION_ARRAYS}
             engine = EngineResult(
                 plan=GridPlan(**record["plan"]), steps=int(record["steps"]), wall_time_s=float(record["wall_time_s"]),
                 converged=bool(record["converged"]), notes=list(record["notes"]),
                 **{n: data[f"eng_{n}"] for n in _ENGINE_ARRAYS},
             )
-            return PathSolution(path=path, engine=engine, engine_fit_error=float(record["engine_fit_error"]),
-                                **{n: get(f"sol_{n}") for n in _SOLUTION_ARRAYS})
+            return PathSolution(path=path, engine=engine, engine_fit_error=float(record["engine_fit_error"]), **arrays)
     except (OSError, ValueError, KeyError, TypeError) as exc:  # unreadable or from another layout
         log.warning("ignoring kept path solve %s (%s)", file.name, _one_line(exc))
         return None
