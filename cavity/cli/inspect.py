@@ -137,7 +137,7 @@ def describe(scenario) -> list[str]:
     updates = sum(p.stepped_cell_updates for p in plans)
     t_min = max(w[0] for w in windows)
     t_max = max(w[1] for w in windows)
-    lines.append(f"  total {updates:.3g} cell updates; each solve simulates at least {t_min * 1e3:.1f} ms "
+    lines.append(f"  total {updates:.3g} cell updates (columns the wave has not reached are skipped); each solve simulates at least {t_min * 1e3:.1f} ms "
                  f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged")
     biggest = max(plans, key=lambda p: p.memory_bytes)
     try:
