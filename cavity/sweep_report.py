@@ -114,9 +114,10 @@ def path_levels(ds: xr.Dataset) -> tuple[xr.DataArray, list[str]] | None:
 
     The far half runs from :data:`FAR_FRACTION` of the farthest receiver's range on the path to that
     receiver. A receiver's own value depends on where the modal interference pattern puts its
-    minima, and these move by hundreds of km with a km of h'; the median over a stretch of the path
-    longer than the pattern's minima shows the level the guide carries that far (night above day at
-    long range is common practice) without that sensitivity.
+    minima, and these move with h' (about 85 km per km of h' near 3,000 km on the example's night
+    path); the median over a stretch of the path longer than the pattern's minima shows the level the
+    guide carries that far (night above day at long range is common practice) without that
+    sensitivity.
 
     Returns
     -------
