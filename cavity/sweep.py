@@ -71,6 +71,8 @@ RETRIES = 1
 PARTS_SUFFIX = ".parts"
 #: How long to wait for an existing scheduler to answer.
 CONNECT_TIMEOUT_S = 20
+#: Share of the available memory the combined arrays of a sweep may take.
+COMBINE_MEMORY_SHARE = 0.8
 
 #: Variables along range that do not change with the UTC instant: the ground under each path, and
 #: the collision frequency, which the exponential profiles of the "utc" form take from altitude alone.
@@ -348,6 +350,57 @@ def local_cluster_size(n_points: int, memory_per_point: int | None = None, worke
     return n, max(1, cores // n)
 
 
+def combined_memory_bytes(n_times: int, n_freqs: int, n_paths: int, n_range: int) -> int:
+    """Memory of a sweep's combined arrays (float64), bytes.
+
+    Per instant: the ionosphere along every path (electron density on the result altitudes, h',
+    beta, solar zenith angle) and, per frequency, four field variables along range. Receiver values
+    and per-point records are small beside them.
+    """
+    from cavity.solve import RESULT_ALTITUDE_KM
+
+    per_instant = n_paths * n_range * (RESULT_ALTITUDE_KM.size + 3 + 4 * n_freqs)
+    return int(8 * max(1, n_times) * per_instant)
+
+
+def check_combine_memory(times, freqs, points, variants) -> None:
+    """Refuse, before any solving, a sweep whose combined arrays would not fit in memory.
+
+    The size follows from the grid of the longest path at the highest frequency. A point whose paths
+    cannot be built is left to the solve, which reports it by name.
+
+    Raises
+    ------
+    SweepError
+        The combined arrays need more than :data:`COMBINE_MEMORY_SHARE` of the available memory; the
+        message says how many instants would fit.
+    """
+    from cavity.fdtd import grid as gridmod
+    from cavity.paths import build_paths
+    from cavity.solve import plan_path
+
+    point = max(points, key=lambda p: (p.frequency_hz, -p.time_index))
+    try:
+        paths = build_paths(variants[point])
+        plan = max((plan_path(variants[point], path).grid for path in paths), key=lambda g: g.nr)
+    except CavityError:
+        return
+    n_t = len(times) if times is not None else 1
+    n_range = plan.nr - plan.pml_r_cells - 1
+    need = combined_memory_bytes(n_t, len(freqs), len(paths), n_range)
+    available = gridmod.available_memory_bytes()
+    if need > COMBINE_MEMORY_SHARE * available:
+        per_instant = combined_memory_bytes(1, len(freqs), len(paths), n_range)
+        fit = int(COMBINE_MEMORY_SHARE * available // per_instant)
+        advice = (f"sweep at most {fit} instant{'s' if fit > 1 else ''} per file (a shorter time range or a longer --step)" if fit
+                  else "not even one instant fits (free memory, or use a coarser solver.cell_m)")
+        raise SweepError(
+            f"the combined sweep would need about {need / 1e9:.2g} GB of memory ({n_t} instants x "
+            f"{per_instant / 1e6:.2g} MB), more than {COMBINE_MEMORY_SHARE:.0%} of the "
+            f"{available / 1e9:.2g} GB available; {advice}"
+        )
+
+
 # --------------------------------------------------------------------------------------------------
 # Parts folder
 # --------------------------------------------------------------------------------------------------
@@ -537,6 +590,7 @@ def sweep(
     )
     failures: dict[SweepPoint, str] = {}
     if todo:
+        check_combine_memory(times, freqs, points, variants)
         failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
     if failures:
         lines = [(p.name, failures[p]) for p in points if p in failures]

@@ -459,6 +459,28 @@ def test_frequencies_on_different_grids_share_the_coarsest_range_axis(write_scen
         np.testing.assert_allclose(ds["ez_amplitude"].isel(path=p, frequency=1).values, expected, rtol=1e-12)
 
 
+def test_a_sweep_whose_combined_arrays_cannot_fit_is_refused_before_solving(tiny, monkeypatch, tmp_path):
+    from cavity.sweep import combined_memory_bytes
+
+    # per instant: 2 paths x range samples x (81 altitudes + h', beta, zenith + 4 fields) x 8 bytes
+    assert combined_memory_bytes(1, 1, 2, 100) == 2 * 100 * (81 + 3 + 4) * 8
+    assert combined_memory_bytes(10, 2, 2, 100) == 10 * 2 * 100 * (81 + 3 + 8) * 8
+    from cavity.paths import build_paths
+    from cavity.solve import plan_path
+
+    # one instant of the tiny sweep at its highest frequency, from its own grid
+    _, _, points = sweep_points(tiny, TIMES, FREQS_KHZ)
+    variant = point_scenario(tiny, points[-1])
+    paths = build_paths(variant)
+    grid = max((plan_path(variant, p).grid for p in paths), key=lambda g: g.nr)
+    one = combined_memory_bytes(1, 2, len(paths), grid.nr - grid.pml_r_cells - 1)
+    for available, advice in ((one * 1.5 / 0.8, r"sweep at most 1 instant per file"), (one / 2, r"not even one instant fits")):
+        monkeypatch.setattr("cavity.fdtd.grid.available_memory_bytes", lambda a=available: int(a))
+        with pytest.raises(SweepError, match=r"would need about .* GB of memory \(2 instants x .*; " + advice):
+            sweep(tiny, TIMES, FREQS_KHZ, scheduler="tcp://127.0.0.1:1", parts_dir=tmp_path / "parts")
+    assert not list((tmp_path / "parts").iterdir())  # nothing solved, nothing written
+
+
 def test_unreachable_scheduler_is_a_one_line_error(tiny, monkeypatch):
     monkeypatch.setattr("cavity.sweep.CONNECT_TIMEOUT_S", 2)
     with pytest.raises(SweepError, match=r"scheduler = 'tcp://127.0.0.1:9': cannot connect"):
