@@ -632,7 +632,10 @@ def plan_jobs(todo: Sequence[SweepPoint], variants: dict) -> tuple[dict, dict, d
     jobs: dict[str, _Job] = {}
     needs: dict[SweepPoint, list[tuple[object, str]]] = {}
     failures: dict[SweepPoint, str] = {}
-    for p in todo:
+    every = max(1, len(todo) // 10)
+    for n, p in enumerate(todo):
+        if len(todo) >= 200 and n % every == 0:  # a long sweep takes a while to plan: say so
+            log.info("building paths: %d of %d points", n, len(todo))
         try:
             paths = build_paths(variants[p])
         except CavityError as exc:
