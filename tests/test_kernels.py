@@ -36,11 +36,12 @@ def np_step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
     acc_im -= hp[:, 0][None, :] * sin_h[:, None]
 
 
-def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
+def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
               jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
               src, acc_re, acc_im, cos_e, sin_e, n_cols):
     nr, nz = ez.shape
     assert n_cols == nr
+    qb_z, qb_r = qb_z[prof_z], qb_r[prof_r]  # each column's row of the distinct profiles
     hm = np.vstack([hp[:1], hp[:-1]])  # H_(i-1/2); rm[0] = 0 on the axis
     curl_z = rp[:, None] * hp - rm[:, None] * hm
     curl_r = np.zeros_like(er)
@@ -85,8 +86,8 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
     rm = pos(nr)
     rm[0] = 0
     e = dict(rp=rp, rm=rm, inv_dz=F32(1.7), cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3), jp0=jp0,
-             ed_z=1 + pos(n_pl) * 3, qa_z=pos(n_pl), qb_z=pos(nr, n_pl), ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl),
-             qb_r=pos(nr, n_pl), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
+             ed_z=1 + pos(n_pl) * 3, qa_z=pos(n_pl), qb_z=pos(5, n_pl), prof_z=RNG.integers(0, 5, nr).astype(np.int32),
+             ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl), qb_r=pos(4, n_pl), prof_r=RNG.integers(0, 4, nr).astype(np.int32), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
              psi_ze=r(nr, n_top), ce_top=pos(nr, n_top) * F32(0.3), ir0=ir0, b_re=pos(n_far),
              c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far), psi_re=r(n_far, nz), ce_far=pos(n_far, nz) * F32(0.3),
              src=F32(0.05), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
@@ -106,14 +107,14 @@ def test_fused_kernels_match_their_numpy_twins(steps):
     for _ in range(steps):
         K.step_h(f_k["hp"], f_k["ez"], f_k["er"], **h_k)
         K.step_e(f_k["ez"], f_k["er"], f_k["hp"], e_k["rp"], e_k["rm"], e_k["inv_dz"], e_k["cez"], e_k["cer"],
-                 e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], f_k["jz"], e_k["ed_r"], e_k["qa_r"],
-                 e_k["qb_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
+                 e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], e_k["prof_z"], f_k["jz"], e_k["ed_r"],
+                 e_k["qa_r"], e_k["qb_r"], e_k["prof_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                              "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
                                                              "acc_re", "acc_im", "cos_e", "sin_e")], f_k["ez"].shape[0])
         np_step_h(f_n["hp"], f_n["ez"], f_n["er"], **h_n)
         np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["rp"], e_n["rm"], e_n["inv_dz"], e_n["cez"], e_n["cer"],
-                  e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], f_n["jz"], e_n["ed_r"], e_n["qa_r"],
-                  e_n["qb_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
+                  e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], e_n["prof_z"], f_n["jz"], e_n["ed_r"],
+                  e_n["qa_r"], e_n["qb_r"], e_n["prof_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                               "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
                                                               "acc_re", "acc_im", "cos_e", "sin_e")], f_n["ez"].shape[0])
     for name in ("ez", "er", "hp", "jz", "jr"):

@@ -113,6 +113,15 @@ class EngineResult:
     notes: list[str] = field(default_factory=list)
 
 
+def _distinct_rows(table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(distinct rows, row index of each column) of a per-column coefficient table.
+
+    Columns under the same ionosphere profile share one row, which the kernels then read from cache.
+    """
+    rows, index = np.unique(table, axis=0, return_inverse=True)
+    return np.ascontiguousarray(rows), np.ascontiguousarray(index.reshape(-1), dtype=np.int32)
+
+
 def _kernel_cpml(coefficients) -> list[np.ndarray]:
     """CPML (b, c, kappa) as the kernels take them: b and c in float32, and 1/kappa - 1 in float64
     from the float32 kappa, so that the kernels need no division per absorber cell."""
@@ -311,14 +320,14 @@ class Simulation:
             cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
             cr = media.plasma_coefficients(eps_er[None, sl], wp2_r[:, sl], nu_r[:, sl], dt)
             self.plasma_z = [(eps_ez[sl] / dt).astype(f32), np.asarray(cz[3], f32)[0].copy(),
-                             self._coefficient(cz[4], nr, n_pl)]
+                             *_distinct_rows(self._coefficient(cz[4], nr, n_pl))]
             self.plasma_r = [(eps_er[sl] / dt).astype(f32), np.asarray(cr[3], f32)[0].copy(),
-                             self._coefficient(cr[4], nr, n_pl)]
+                             *_distinct_rows(self._coefficient(cr[4], nr, n_pl))]
             self.pb_z = self._coefficient(cz[1], nr, n_pl)  # curl coefficients, for the absorber cells
             self.pb_r = self._coefficient(cr[1], nr, n_pl)
         else:
-            self.plasma_z = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((nr, 0), f32)]
-            self.plasma_r = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((nr, 0), f32)]
+            self.plasma_z = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((1, 0), f32), np.zeros(nr, np.int32)]
+            self.plasma_r = [np.zeros(0, f32), np.zeros(0, f32), np.zeros((1, 0), f32), np.zeros(nr, np.int32)]
             self.pb_z = self.pb_r = None
         self.jz = np.zeros((nr, n_pl), f32)
         self.jr = np.zeros((nr, n_pl), f32)

@@ -185,7 +185,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r, qa_r, qb_r, jr,
+def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
            jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
            src, acc_re, acc_im, cos_e, sin_e, n_cols):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
@@ -200,7 +200,9 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
         J(n+1) = qa J(n) + qb (E(n+1) + E(n))
 
     with ``ed`` = eps/dt and ``qa`` per plasma row (nu depends on height only) and
-    ``qb`` = eps omega_p^2 (dt/2)/(1 + nu dt/2) per cell, the fewest arrays streamed per cell.
+    ``qb`` = eps omega_p^2 (dt/2)/(1 + nu dt/2) per cell, held once per distinct column profile:
+    column i uses row ``prof[i]`` of ``qb``, so that a path under one ionosphere reads a single
+    cached profile instead of streaming a table the size of the grid.
     Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
     on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2). Er curl:
     -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
@@ -235,7 +237,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
         ezp = ez[i, jp0:]
         hp0 = hp[i, jp0:]
         hpm = hp[im, jp0:]
-        qb = qb_z[i]
+        qb = qb_z[prof_z[i]]
         jj = jz[i]
         for k in range(n):
             e_old = ezp[k]
@@ -247,7 +249,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
             ezp[k] = e_new
         erp = er[i, jp0:]
         hlo = hp[i, jp0 - 1:]
-        qb = qb_r[i]
+        qb = qb_r[prof_r[i]]
         jj = jr[i]
         for k in range(n):
             e_old = erp[k]
@@ -266,7 +268,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
             de = ce_top[i, k] * (kd_ze[k] * d + p)
             e_r[j] += de
             if j >= jp0:
-                jr[i, j - jp0] += qb_r[i, j - jp0] * de
+                jr[i, j - jp0] += qb_r[prof_r[i], j - jp0] * de
         if i >= ir0:
             kk = i - ir0
             for j in range(nz):
@@ -276,7 +278,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, jz, ed_r
                 de = ce_far[kk, j] * (kd_re[kk] * d + p)
                 e_z[j] += de
                 if j >= jp0:
-                    jz[i, j - jp0] += qb_z[i, j - jp0] * de
+                    jz[i, j - jp0] += qb_z[prof_z[i], j - jp0] * de
         if i == 0:
             e_z[0] -= src
         v = np.float64(e_z[0])
