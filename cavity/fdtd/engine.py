@@ -314,7 +314,7 @@ class Simulation:
         n_pl = nz - self.jp0
         sl = slice(self.jp0, nz)
         if n_pl > 0:
-            # the kernel needs eps/dt and qa per plasma row, qb per cell (see kernels.update_e)
+            # the kernel needs eps/dt and qa per plasma row, qb per distinct column profile (kernels.step_e)
             if not (np.allclose(nu_z, nu_z[:1]) and np.allclose(nu_r, nu_r[:1])):
                 raise SolverError("collision frequency must not vary along range (one nu(z) per path)")
             cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
