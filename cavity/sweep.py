@@ -888,10 +888,10 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
     import xarray as xr
 
     done = [p for p in points if p in results]
-    ranges = {p: _range_of(results[p]) for p in done}
     by_f: dict[int, np.ndarray] = {}
-    for p in done:
-        by_f.setdefault(p.frequency_index, ranges[p])
+    for p in done:  # points at one frequency share their grid: one range axis read per frequency
+        if p.frequency_index not in by_f:
+            by_f[p.frequency_index] = _range_of(results[p])
     r, regridded = _common_range(by_f)
     ref_f = next(fi for fi, a in by_f.items() if a.shape == r.shape and np.array_equal(a, r))
     first_point = min(done, key=lambda p: (p.frequency_index != ref_f, p.time_index, p.frequency_index))
