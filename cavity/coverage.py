@@ -57,7 +57,7 @@ log = logging.getLogger(__name__)
 #: Default angle between solved bearings, degrees.
 DEFAULT_BEARING_STEP_DEG = 10.0
 #: Default range of the map, km.
-DEFAULT_RANGE_KM = 2000.0
+DEFAULT_RANGE_KM = 1000.0
 #: Allowed bearing steps (degrees; the step must divide 360) and ranges (km).
 BEARING_STEP_LIMITS_DEG = (0.5, 90.0)
 RANGE_LIMITS_KM = (50.0, 10000.0)

@@ -25,7 +25,7 @@ def _finite(ctx, param, value):
               help="Coverage file to write (netCDF).")
 @click.option("--bearing-step", "bearing_step", type=float, metavar="DEG",
               help="Angle between solved bearings, degrees; must divide 360 [default: 10; 30 with --preview].")
-@click.option("--range-km", "range_km", type=float, metavar="KM", help="Range of the map, km [default: 2000].")
+@click.option("--range-km", "range_km", type=float, metavar="KM", help="Range of the map, km [default: 1000].")
 @click.option("--preview", is_flag=True,
               help="A quick coarse look: bearings every 30 deg and 12 cells per wavelength (when cell_m is auto).")
 @click.option("--grid-deg", "grid_deg", type=float, metavar="DEG",
