@@ -24,6 +24,7 @@ a^2 d(theta) (cos(r1/a) - cos(r2/a)), exact on the sphere (the solver's own eart
 from __future__ import annotations
 
 import math
+import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
@@ -322,7 +323,9 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
     edge = [points_along(lat0, lon0, b, [range_km * 1e3]) for b in edge_b]
     edge_lat = np.array([e[0][0] for e in edge])
     edge_lon = np.array([e[1][0] for e in edge])
-    chi = ds["map_solar_zenith_angle"].values if "map_solar_zenith_angle" in ds else None
+    chi = None
+    if "map_solar_zenith_angle" in ds:  # shaded within the map's disc only
+        chi = np.where(np.isfinite(ds["map_range"].values), ds["map_solar_zenith_angle"].values, np.nan)
     names = [str(x) for x in np.atleast_1d(ds["receiver_name"].values)] if "receiver_name" in ds else []
 
     for panel, k in enumerate(picks):
@@ -372,7 +375,7 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
         ]
         ax.legend(handles=legend, loc="lower left", fontsize=7, framealpha=0.85)
         bar = fig.colorbar(filled, ax=ax, orientation="horizontal", shrink=0.8, pad=0.04)
-        bar.set_label("Ez, dB re 1 uV/m (RMS)\n" + COVERAGE_CAUTION, fontsize=8)
+        bar.set_label("Ez, dB re 1 uV/m (RMS)\n" + textwrap.fill(COVERAGE_CAUTION, 110), fontsize=8)
         when = ""
         if "utc" in str(ds.attrs.get("scenario", "")):
             from cavity.report import scenario_document
