@@ -312,12 +312,26 @@ def test_map_between_bearings_within_1_db_of_a_direct_solve_short_range(coast):
 @pytest.mark.slow
 def test_map_between_bearings_within_1_db_on_the_example_at_the_default_range():
     # The bundled example (20 kHz, land/sea mask, terminator across the map) at the default map's
-    # step and range (1,000 km): bisectors over the ocean, the coast and the continent (slow: 9 long solves).
+    # step and range (10 deg, 1,000 km): two bisectors over the continent, one over the ocean
+    # (slow: 9 solves of 1,000 km). Measured: 0.007, 0.22, 0.05 dB; every bisector in the README.
     scenario = cavity.load_scenario(Path(__file__).parents[1] / "examples" / "coverage.toml")
     settings = CoverageSettings.make()
-    for mid, (worst, kept) in zip([65.0, 155.0, 245.0], _interpolation_errors(scenario, settings, [65.0, 155.0, 245.0])):
+    mids = [65.0, 155.0, 245.0]
+    for mid, (worst, kept) in zip(mids, _interpolation_errors(scenario, settings, mids)):
         assert kept > 0.8, (mid, kept)
         assert worst < 1.0, (mid, worst)
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(strict=True, reason="known limit: along the coast (bearing 335 deg) the map is 1.55 dB off "
+                   "near 460 km, beside the modal minimum at 390-460 km whose range moves unevenly with bearing")
+def test_map_between_bearings_along_the_coast_misses_1_db():
+    # The bisector that runs along the example's coast, where each bearing sees another mix of land
+    # and sea: measured 1.55 dB (rms 0.52 dB) at 10 deg, and 0.70 / 2.07 dB on the two 5 deg
+    # bisectors either side of it, so a finer step does not cure it (README, "Coverage maps").
+    scenario = cavity.load_scenario(Path(__file__).parents[1] / "examples" / "coverage.toml")
+    worst, kept = _interpolation_errors(scenario, CoverageSettings.make(), [335.0])[0]
+    assert kept > 0.8 and worst < 1.0, worst
 
 
 # --------------------------------------------------------------------------------------------------
