@@ -56,7 +56,7 @@ def open_result(path):
 
 
 def sweep(scenario, **kwargs):
-    """Solve many variants of a scenario (hours, frequencies) on dask workers; see :mod:`cavity.sweep`."""
-    from cavity.sweep import sweep as _sweep
+    """Solve many variants of a scenario (hours, frequencies) on dask workers; see :mod:`cavity.sweeps`."""
+    from cavity.sweeps import sweep as _sweep
 
     return _sweep(scenario, **kwargs)

@@ -434,7 +434,7 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
-    from cavity.report import save_figure
+    from cavity.reports.tables import save_figure
 
     if component not in ("ez", "b"):
         raise ValueError(f"component = {component!r}: choose 'ez' or 'b'")

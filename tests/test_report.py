@@ -1,4 +1,4 @@
-"""Checks of cavity.report: receiver tables, attenuation fits, comparisons and figures.
+"""Checks of cavity.reports.tables: receiver tables, attenuation fits, comparisons and figures.
 
 Synthetic results are built with cavity.results.assemble_dataset from fields whose answers are known
 in closed form; the golden result files in tests/data (small solver runs, generated once) guard the
@@ -17,7 +17,7 @@ import pytest
 
 from cavity.constants import C0
 from cavity.errors import CavityError
-from cavity.report import (
+from cavity.reports.tables import (
     EARTH_RADIUS_KM,
     attenuation_rate,
     common_frequencies,

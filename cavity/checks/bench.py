@@ -131,9 +131,9 @@ def whole_run(max_range_m: float = 3000e3, frequency_hz: float = 20e3, cells_per
     """The 3,000 km day path at 20 kHz over sea with the default grid, against the mode reference.
 
     Returns a dict: wall time of the solve (compile from cache included), steps, cells, peak memory
-    and the error in dB against :func:`cavity.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
+    and the error in dB against :func:`cavity.checks.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
     """
-    from cavity import verify
+    from cavity.checks import verify
     from cavity.fdtd import grid as gridmod
 
     kw = {}

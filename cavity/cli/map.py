@@ -35,7 +35,7 @@ def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
       cavity map examples/northbay.toml -o northbay-map.png
     """
     from cavity import load_scenario
-    from cavity.maps import draw_map
+    from cavity.reports.maps import draw_map
     from cavity.paths import build_paths
 
     if output.suffix.lower() not in _SUFFIXES:

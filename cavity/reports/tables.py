@@ -232,7 +232,7 @@ def receiver_rows(
     if bandwidth_hz is not None and not (math.isfinite(bandwidth_hz) and bandwidth_hz > 0):
         raise CavityError(f"bandwidth = {bandwidth_hz!r} Hz must be a positive number")
     if is_sweep(ds):
-        raise CavityError("this is a sweep file (it has a time dimension); use cavity.sweep_report for its tables")
+        raise CavityError("this is a sweep file (it has a time dimension); use cavity.reports.sweep for its tables")
     names = _receiver_names(ds)
     n = len(names)
     freqs = _frequencies(ds)
@@ -774,7 +774,7 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
     if phase not in PHASE_MODES:
         raise CavityError(f"phase = {phase!r} is unknown (choose from {', '.join(PHASE_MODES)})")
     if is_sweep(ds):
-        raise CavityError("this is a sweep file (it has a time dimension); use cavity.sweep_report to plot it")
+        raise CavityError("this is a sweep file (it has a time dimension); use cavity.reports.sweep to plot it")
     r = np.asarray(ds["range"].values, dtype=float)
     freqs = _frequencies(ds)
     labels = _path_labels(ds)
