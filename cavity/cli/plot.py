@@ -60,7 +60,7 @@ def command(result, output, overwrite, phase, dpi):
     if is_sweep(ds):
         diurnal_plot(ds, output)
     elif "receiver_ez_spectrum" in ds:  # a lightning run: waveforms and spectra per receiver
-        from cavity.sferic import plot_sferic
+        from cavity.reports.sferic import plot_sferic
 
         plot_sferic([ds], output)
     else:
