@@ -18,7 +18,7 @@ from cavity.errors import (
     SolverError,
 )
 
-__version__ = "0.1.0"
+from cavity.version import __version__
 
 __all__ = [
     "CavityError",

@@ -12,7 +12,7 @@ import importlib
 
 import click
 
-from cavity import __version__
+from cavity.version import __version__
 
 #: command name -> (module in this package, short help shown by ``cavity --help``)
 COMMANDS: dict[str, tuple[str, str]] = {

@@ -36,7 +36,7 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     matplotlib.use("Agg", force=False)
     import matplotlib.pyplot as plt
 
-    from cavity.reports.tables import save_figure
+    from cavity.files import save_figure
 
     if component not in ("ez", "b"):
         raise ValueError(f"component = {component!r}: choose 'ez' or 'b'")

@@ -274,7 +274,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
         labels += ["sunrise at path midpoint", "sunset at path midpoint"]
     axes[0].legend(handles, labels, fontsize="small", loc="best")
     fig.suptitle(str(ds.attrs.get("title", "sweep")))
-    from cavity.reports.tables import save_figure
+    from cavity.files import save_figure
 
     return [str(save_figure(fig, output_path))]
 

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from cavity import __version__
+from cavity.version import __version__
 from cavity.sweeps.points import SweepError, utc_text
 
 if TYPE_CHECKING:  # pragma: no cover

@@ -10,8 +10,9 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from cavity import __version__
+from cavity.files import replacing
 from cavity.sweeps.points import SweepPoint, one_line
+from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
 
@@ -57,7 +58,6 @@ def save_solution(parts_dir: Path, key: str, sol) -> Path:
     solve supplies its own.
     """
     import json
-    import tempfile
 
     if sol.engine.time_s is not None:
         raise ValueError("a solve with receiver time series is not kept (sweeps switch them off)")
@@ -70,14 +70,8 @@ def save_solution(parts_dir: Path, key: str, sol) -> Path:
         "steps": sol.engine.steps, "wall_time_s": sol.engine.wall_time_s, "converged": sol.engine.converged,
         "notes": list(sol.engine.notes), "engine_fit_error": sol.engine_fit_error,
     }
-    fd, tmp = tempfile.mkstemp(prefix=f".{key[:16]}.", suffix=".npz", dir=target.parent)
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            np.savez(handle, record=np.array(json.dumps(record)), **arrays)
-        os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    with replacing(target, suffix=".npz") as tmp, open(tmp, "wb") as handle:
+        np.savez(handle, record=np.array(json.dumps(record)), **arrays)
     return target
 
 
