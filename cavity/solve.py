@@ -13,7 +13,9 @@ import dataclasses
 import logging
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -21,6 +23,11 @@ from cavity.constants import MU0
 from cavity.fdtd import engine as eng
 from cavity.fdtd import media
 from cavity.fdtd.source import moment_for_power
+
+if TYPE_CHECKING:  # pragma: no cover
+    import xarray as xr
+
+    from cavity.scenario import Scenario
 
 log = logging.getLogger(__name__)
 
@@ -56,8 +63,8 @@ class Excitation:
     fixed record whose time series become the sferic variables (:mod:`cavity.sferic`).
     """
 
-    waveform: object | None = None
-    stroke: object | None = None
+    waveform: Any = None  # a callable of time (cavity.fdtd.source) or None
+    stroke: Any = None  # cavity.fdtd.lightning.HeidlerStroke or None
 
 
 def excitation(scenario, waveform=None) -> Excitation:
@@ -170,6 +177,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     rx_b = np.stack([interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
     ne_out = nu_out = None
     if medium.electron_density is not None:
+        assert medium.altitude_m is not None and medium.collision_frequency is not None  # set together
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
@@ -227,8 +235,8 @@ def interpolate_phasor(range_m, values, at_m):
     return np.exp(a + 1j * p)
 
 
-def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0,
-             waveform=None):
+def simulate(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None, sample_km: float = 10.0,
+             bearing_tolerance_deg: float = 1.0, waveform: Callable[..., Any] | None = None) -> xr.Dataset:
     """Run the waveguide solver for every path of a scenario and return the result dataset.
 
     Parameters
@@ -269,7 +277,8 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
     return apply_metadata(ds)
 
 
-def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0):
+def simulate_sferic(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None,
+                    sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0) -> xr.Dataset:
     """Run a lightning scenario (:func:`simulate`), refusing a scenario without a lightning ``[source]``.
 
     Raises

@@ -23,9 +23,9 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
                fit_km: tuple[float, float] | None = None) -> list[Path]:
     """Write the memo and its figures; return every path written (the memo last)."""
     import cavity
+    from cavity.paths import build_paths
     from cavity.reports import tables as report
     from cavity.reports.maps import draw_map
-    from cavity.paths import build_paths
     from cavity.results import open_result
 
     datasets = [open_result(f) for f in files]

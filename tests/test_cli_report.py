@@ -10,7 +10,6 @@ from __future__ import annotations
 import contextlib
 import csv
 import io
-import math
 import shutil
 import sys
 import tempfile

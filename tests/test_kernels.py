@@ -160,7 +160,6 @@ def test_last_active_column_sees_every_kind_of_state():
 def test_stepping_only_the_reached_columns_changes_nothing():
     """The same solve with and without skipping the columns ahead of the wave: identical numbers."""
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 160e3, 250.0)

@@ -113,8 +113,16 @@ def test_one_way_rules():
     assert not graph["cavity.fdtd.kernels"]
     # the solver core never reaches up into reports, checks, sweeps or the CLI
     upper = ("cavity.reports", "cavity.checks", "cavity.sweeps", "cavity.cli")
-    for low in ("cavity.solve", "cavity.sferic", "cavity.paths", "cavity.scenario", "cavity.results",
-                "cavity.fdtd.engine", "cavity.fdtd.media", "cavity.fdtd.grid"):
+    for low in (
+        "cavity.solve",
+        "cavity.sferic",
+        "cavity.paths",
+        "cavity.scenario",
+        "cavity.results",
+        "cavity.fdtd.engine",
+        "cavity.fdtd.media",
+        "cavity.fdtd.grid",
+    ):
         assert not [t for t in graph[low] if t.startswith(upper)], low
     # the altitude profiles stand alone
     for path in (ROOT / "profiles").rglob("*.py"):

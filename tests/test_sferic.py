@@ -21,7 +21,7 @@ import pytest
 from click.testing import CliRunner
 from scipy.special import hankel2
 
-from cavity.constants import C0, ETA0, MU0
+from cavity.constants import C0, ETA0
 from cavity.errors import ResultFileError, ScenarioError
 from cavity.fdtd.lightning import HeidlerStroke
 from cavity.sferic import amplitude_spectrum, estimate_cutoff, lowpass, source_group_delay_s
@@ -456,7 +456,7 @@ def test_night_cutoff_from_an_impulsive_run():
     from cavity.reference import modes
     from cavity.solve import simulate_sferic
 
-    text = f"""
+    text = """
 title = "Night sferic check"
 [transmitter]
 name = "Stroke"

@@ -47,7 +47,6 @@ def memory_bandwidth_gb_per_s(n_bytes: int = 256 * 1024**2, repeats: int = 5) ->
 
 def _day_simulation(max_range_m: float, frequency_hz: float):
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)

@@ -43,7 +43,9 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     runs = [datasets] if hasattr(datasets, "data_vars") else list(datasets)
     for ds in runs:
         if "receiver_ez_time_series" not in ds or "receiver_ez_spectrum" not in ds:
-            raise ResultFileError(f"{ds.attrs.get('title', 'a dataset')!r} holds no sferic waveforms (write it with cavity sferic run)")
+            raise ResultFileError(
+                f"{ds.attrs.get('title', 'a dataset')!r} holds no sferic waveforms (write it with cavity sferic run)"
+            )
     if labels is None:
         labels = [_run_label(ds) for ds in runs]
     names = [str(n) for n in runs[0].receiver_name.values]
@@ -73,8 +75,15 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
             fc = float(ds.receiver_cutoff_frequency.values[i]) if "receiver_cutoff_frequency" in ds else math.nan
             if math.isfinite(fc):
                 ax_f.axvline(fc, color=colour, ls="--", lw=0.9)
-                ax_f.annotate(f"cutoff {fc:.2f} kHz", xy=(fc, 1.0), xycoords=("data", "axes fraction"),
-                              xytext=(3, -12 - 11 * k), textcoords="offset points", color=colour, fontsize=8)
+                ax_f.annotate(
+                    f"cutoff {fc:.2f} kHz",
+                    xy=(fc, 1.0),
+                    xycoords=("data", "axes fraction"),
+                    xytext=(3, -12 - 11 * k),
+                    textcoords="offset points",
+                    color=colour,
+                    fontsize=8,
+                )
         ax_t.set_xlim(max(0.0, arrival_ms - 0.3), min(t_end, arrival_ms + 5.0))
         ax_t.set_ylabel(f"{quantity} ({unit})")
         ax_t.set_title(f"{name}, {r_km:.0f} km: waveform", fontsize=9)
@@ -89,8 +98,9 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     axes[-1][1].set_xlabel("frequency (kHz)")
     source = str(runs[0].attrs.get("sferic_source", "lightning stroke"))
     filt = str(runs[0].attrs.get("sferic_waveform_filter", "")).split(";")[0]
-    fig.suptitle(f"Sferic at the receivers\n{source}\nwaveforms: {filt}; dashed: lowest cutoff from the tail",
-                 fontsize=9)
+    fig.suptitle(
+        f"Sferic at the receivers\n{source}\nwaveforms: {filt}; dashed: lowest cutoff from the tail", fontsize=9
+    )
     fig.tight_layout()
     try:
         return save_figure(fig, output, dpi=120)

@@ -7,12 +7,10 @@ import os
 import time as _time
 from typing import TYPE_CHECKING
 
-
 from cavity.errors import CavityError, ScenarioError
 from cavity.sweeps.points import SweepError
 
 if TYPE_CHECKING:  # pragma: no cover
-
     from cavity.scenario import Scenario
 
 log = logging.getLogger(__name__)
@@ -81,8 +79,13 @@ def machine_cores() -> int:
         return max(1, os.cpu_count() or 1)
 
 
-def local_cluster_size(n_points: int, memory_per_point: int | None = None, workers: int | None = None,
-                       cores: int | None = None, available_bytes: int | None = None) -> tuple[int, int]:
+def local_cluster_size(
+    n_points: int,
+    memory_per_point: int | None = None,
+    workers: int | None = None,
+    cores: int | None = None,
+    available_bytes: int | None = None,
+) -> tuple[int, int]:
     """(workers, numba threads per worker) for a local cluster.
 
     One point at a time per worker process; as many workers as cores, points to solve and solves
@@ -150,12 +153,13 @@ def check_combine_memory(times, freqs, points, variants) -> None:
     if need > COMBINE_MEMORY_SHARE * available:
         per_instant = combined_memory_bytes(1, len(freqs), len(paths), n_range)
         fit = int(COMBINE_MEMORY_SHARE * available // per_instant)
-        advice = (f"sweep at most {fit} instant{'s' if fit > 1 else ''} per file (a shorter time range or a longer --step)" if fit
-                  else "not even one instant fits (free memory, or use a coarser solver.cell_m)")
+        advice = (
+            f"sweep at most {fit} instant{'s' if fit > 1 else ''} per file (a shorter time range or a longer --step)"
+            if fit
+            else "not even one instant fits (free memory, or use a coarser solver.cell_m)"
+        )
         raise SweepError(
             f"the combined sweep would need about {need / 1e9:.2g} GB of memory ({n_t} instants x "
             f"{per_instant / 1e6:.2g} MB), more than {COMBINE_MEMORY_SHARE:.0%} of the "
             f"{available / 1e9:.2g} GB available; {advice}"
         )
-
-

@@ -9,8 +9,8 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from cavity.version import __version__
 from cavity.sweeps.points import SweepError, utc_text
+from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -119,8 +119,11 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
 
     n_t = len(times) if times is not None else 1
     freq_vars = [n for n, v in template.data_vars.items() if "frequency" in v.dims]
-    time_vars = [n for n, v in template.data_vars.items()
-                 if "frequency" not in v.dims and "range" in v.dims and n not in _TIME_INVARIANT]
+    time_vars = [
+        n
+        for n, v in template.data_vars.items()
+        if "frequency" not in v.dims and "range" in v.dims and n not in _TIME_INVARIANT
+    ]
     fixed_vars = [n for n in template.data_vars if n not in freq_vars and n not in time_vars]
 
     # Preallocated arrays filled one point at a time: a point kept as a part file is read, copied in
@@ -178,8 +181,11 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
             notes.append(f"{p.name}: {a['solver_notes']}")
         fit = max(fit, float(a.get("solver_impedance_fit_error", 0.0)))
     meta = {
-        "wall_time": ("s", "seconds the solver spent stepping for this point, all paths (a path solve "
-                               "shared by several points counts at the first of them)"),
+        "wall_time": (
+            "s",
+            "seconds the solver spent stepping for this point, all paths (a path solve "
+            "shared by several points counts at the first of them)",
+        ),
         "time_steps": ("1", "time steps taken for this point (per path)"),
         "cells": ("1", "grid cells per path for this point"),
         "cell_r": ("m", "grid cell along range for this point"),
@@ -198,10 +204,17 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
                 order = [d for d in v.dims if d not in ("time", "altitude")] + ["time"]
                 ds[name] = v.transpose(*order, *(["altitude"] if "altitude" in v.dims else []))
         stamps = np.array([np.datetime64(t.astimezone(timezone.utc).replace(tzinfo=None), "ns") for t in times])
-        ds = ds.assign_coords(time=("time", stamps, {
-            "standard_name": "time", "axis": "T",
-            "long_name": "UTC instant that sets the sun's position along the paths",
-        }))
+        ds = ds.assign_coords(
+            time=(
+                "time",
+                stamps,
+                {
+                    "standard_name": "time",
+                    "axis": "T",
+                    "long_name": "UTC instant that sets the sun's position along the paths",
+                },
+            )
+        )
     missing = [p.name for p in points if p not in results]
 
     def finite(values, fn, default):
@@ -212,7 +225,8 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
     t_text = (
         f"{utc_text(times[0])} to {utc_text(times[-1])}, {len(times)} instants"
         + (f" every {int((times[1] - times[0]).total_seconds())} s" if len(times) > 1 and _regular(times) else "")
-        if times is not None else "no time axis"
+        if times is not None
+        else "no time axis"
     )
     first = attrs[done[0]]
     ds.attrs = {
@@ -274,7 +288,7 @@ def encode_time(ds: xr.Dataset) -> xr.Dataset:
     if "time" not in ds.coords or ds["time"].dtype.kind != "M":
         return ds
     t = ds["time"]
-    seconds = (t.values.astype("datetime64[s]").astype(np.int64))
+    seconds = t.values.astype("datetime64[s]").astype(np.int64)
     attrs = {k: v for k, v in t.attrs.items() if k not in ("units", "calendar")}
     attrs.update(units=TIME_UNITS, calendar=TIME_CALENDAR)
     out = ds.assign_coords(time=("time", seconds, attrs))

@@ -15,7 +15,6 @@ import numpy as np
 from cavity.errors import CavityError, ScenarioError
 
 if TYPE_CHECKING:  # pragma: no cover
-
     from cavity.scenario import Scenario
 
 log = logging.getLogger(__name__)
@@ -146,11 +145,15 @@ def sweep_times(start, stop, step) -> list[datetime]:
         raise ScenarioError(f"stop = {utc_text(t1)} is before start = {utc_text(t0)}")
     count = int((t1 - t0) // dt) + 1
     if count > MAX_POINTS:
-        raise ScenarioError(f"step = {dt} from {utc_text(t0)} to {utc_text(t1)} gives {count} instants; the limit is {MAX_POINTS}")
+        raise ScenarioError(
+            f"step = {dt} from {utc_text(t0)} to {utc_text(t1)} gives {count} instants; the limit is {MAX_POINTS}"
+        )
     return [t0 + k * dt for k in range(count)]
 
 
-def sweep_points(scenario: Scenario, times=None, frequencies_khz=None) -> tuple[list[datetime] | None, list[float], list[SweepPoint]]:
+def sweep_points(
+    scenario: Scenario, times=None, frequencies_khz=None
+) -> tuple[list[datetime] | None, list[float], list[SweepPoint]]:
     """The instants, frequencies (Hz) and points of a sweep, checked against the scenario.
 
     ``times`` None keeps the scenario's own instant (a time axis of length 1) for ionosphere form
@@ -217,5 +220,3 @@ def point_scenario(scenario: Scenario, point: SweepPoint) -> Scenario:
     if point.utc is not None:
         changes["ionosphere"] = dataclasses.replace(scenario.ionosphere, utc=point.utc)
     return scenario.replace(**changes)
-
-

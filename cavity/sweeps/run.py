@@ -42,8 +42,7 @@ import uuid
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import TYPE_CHECKING
-
+from typing import TYPE_CHECKING, Any
 
 from cavity.errors import CavityError
 from cavity.sweeps.cluster import check_combine_memory, local_cluster_size, solve_path, warm_numba_cache
@@ -144,9 +143,12 @@ def sweep(
     todo = [p for p in points if p not in results]
     log.info(
         "sweep: %d points (%s x %s); %d already solved%s, %d to solve",
-        len(points), f"{len(times)} instants" if times is not None else "no time axis",
+        len(points),
+        f"{len(times)} instants" if times is not None else "no time axis",
         f"{len(freqs)} frequencies" if len(freqs) > 1 else "1 frequency",
-        len(results), f" in {folder}" if folder is not None else "", len(todo),
+        len(results),
+        f" in {folder}" if folder is not None else "",
+        len(todo),
     )
     failures: dict[SweepPoint, str] = {}
     if todo:
@@ -157,7 +159,9 @@ def sweep(
         for name, message in lines:
             log.error("point %s failed: %s", name, message)
         if not allow_missing:
-            kept = f"; the {len(results)} finished points are kept in {folder}" if folder is not None and results else ""
+            kept = (
+                f"; the {len(results)} finished points are kept in {folder}" if folder is not None and results else ""
+            )
             first = f"{lines[0][0]}: {lines[0][1]}"
             raise SweepError(
                 f"{len(lines)} of {len(points)} points failed (first: {first}){kept}; "
@@ -201,7 +205,7 @@ def plan_jobs(todo: Sequence[SweepPoint], variants: dict) -> tuple[dict, dict, d
         except CavityError as exc:
             failures[p] = describe_error(exc)
             continue
-        keyed = []
+        keyed: list[tuple[Any, str]] = []
         for path in paths:
             key = solve_key(variants[p], path) or f"{p.key}-{path.label}"
             job = jobs.setdefault(key, _Job(key, variants[p], path, []))
@@ -281,8 +285,13 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
             solution = load_solution(folder, job.key, job.path)
             if solution is not None:
                 kept[job.key] = solution
-    log.info("%d path solves for %d points (%d shared with another instant%s)", len(jobs), len(todo),
-             n_paths - len(jobs), f"; {len(kept)} kept from an earlier run" if kept else "")
+    log.info(
+        "%d path solves for %d points (%d shared with another instant%s)",
+        len(jobs),
+        len(todo),
+        n_paths - len(jobs),
+        f"; {len(kept)} kept from an earlier run" if kept else "",
+    )
     for key, solution in kept.items():
         settle(jobs[key], solution, None)
     to_solve = [job for job in jobs.values() if job.key not in kept]
@@ -301,10 +310,14 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
             log.info("numba kernels ready in %.1f s; starting %d local workers x %d numba threads", warm, n, threads)
             cluster = stack.enter_context(
                 LocalCluster(
-                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                    n_workers=n,
+                    threads_per_worker=1,
+                    processes=True,
+                    dashboard_address=None,
                     # no dashboard; the scheduler's small HTTP service on a free loopback port
                     scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-                    env={"NUMBA_NUM_THREADS": str(threads)}, silence_logs=logging.ERROR,
+                    env={"NUMBA_NUM_THREADS": str(threads)},
+                    silence_logs=logging.ERROR,
                 )
             )
             client = stack.enter_context(Client(cluster))
@@ -330,8 +343,9 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
         tag = uuid.uuid4().hex[:8]
         futures = {}
         for job in to_solve:  # in the order of the points, so that points finish early and in turn
-            fut = client.submit(solve, job.scenario, job.path, key=f"cavity-sweep-{tag}-{job.key[:20]}",
-                                retries=RETRIES, pure=False)
+            fut = client.submit(
+                solve, job.scenario, job.path, key=f"cavity-sweep-{tag}-{job.key[:20]}", retries=RETRIES, pure=False
+            )
             futures[fut] = job
         done = 0
         try:
@@ -348,8 +362,9 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
                     save_solution(folder, job.key, solution)
                 settle(job, solution, error)
                 shared = len(set(job.points))
-                text = (f"{job.path.label} at {job.points[0].name} {'FAILED' if error else 'solved'}"
-                        + (f" (for {shared} points)" if shared > 1 else ""))
+                text = f"{job.path.label} at {job.points[0].name} {'FAILED' if error else 'solved'}" + (
+                    f" (for {shared} points)" if shared > 1 else ""
+                )
                 log.debug("%s (%d/%d path solves)", text, done, len(to_solve))
                 if progress is not None:
                     progress(done / len(to_solve), text)
@@ -358,5 +373,3 @@ def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -
                 fut.cancel()
             raise
     return failures
-
-

@@ -6,7 +6,7 @@ import dataclasses
 import logging
 import os
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -15,7 +15,6 @@ from cavity.sweeps.points import SweepPoint, one_line
 from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
-
     from cavity.scenario import Scenario
 
 log = logging.getLogger(__name__)
@@ -66,9 +65,14 @@ def save_solution(parts_dir: Path, key: str, sol) -> Path:
     arrays = {f"sol_{n}": getattr(sol, n) for n in _SOLUTION_ARRAYS if getattr(sol, n) is not None}
     arrays.update({f"eng_{n}": getattr(sol.engine, n) for n in _ENGINE_ARRAYS})
     record = {
-        "version": __version__, "key": key, "plan": dataclasses.asdict(sol.engine.plan),
-        "steps": sol.engine.steps, "wall_time_s": sol.engine.wall_time_s, "converged": sol.engine.converged,
-        "notes": list(sol.engine.notes), "engine_fit_error": sol.engine_fit_error,
+        "version": __version__,
+        "key": key,
+        "plan": dataclasses.asdict(sol.engine.plan),
+        "steps": sol.engine.steps,
+        "wall_time_s": sol.engine.wall_time_s,
+        "converged": sol.engine.converged,
+        "notes": list(sol.engine.notes),
+        "engine_fit_error": sol.engine_fit_error,
     }
     with replacing(target, suffix=".npz") as tmp, open(tmp, "wb") as handle:
         np.savez(handle, record=np.array(json.dumps(record)), **arrays)
@@ -91,10 +95,15 @@ def load_solution(parts_dir: Path, key: str, path):
             record = json.loads(str(data["record"]))
             if record.get("version") != __version__ or record.get("key") != key:
                 return None
-            arrays = {n: data[f"sol_{n}"] if f"sol_{n}" in data.files else None for n in _SOLUTION_ARRAYS}
+            arrays: dict[str, Any] = {
+                n: data[f"sol_{n}"] if f"sol_{n}" in data.files else None for n in _SOLUTION_ARRAYS
+            }
             engine = EngineResult(
-                plan=GridPlan(**record["plan"]), steps=int(record["steps"]), wall_time_s=float(record["wall_time_s"]),
-                converged=bool(record["converged"]), notes=list(record["notes"]),
+                plan=GridPlan(**record["plan"]),
+                steps=int(record["steps"]),
+                wall_time_s=float(record["wall_time_s"]),
+                converged=bool(record["converged"]),
+                notes=list(record["notes"]),
                 **{n: data[f"eng_{n}"] for n in _ENGINE_ARRAYS},
             )
             return PathSolution(path=path, engine=engine, engine_fit_error=float(record["engine_fit_error"]), **arrays)
@@ -119,5 +128,3 @@ def load_part(path: Path, variant: Scenario):
         log.info("part %s belongs to another scenario or version; solving it again", path.name)
         return None
     return ds
-
-
