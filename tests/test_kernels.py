@@ -63,7 +63,7 @@ def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_
     de = ce_far * (kd_re[:, None] * d + psi_re)
     ez[ir0:] += de
     jz[ir0:] += qb_z[ir0:] * de[:, jp0:]
-    ez[0, 0] -= src
+    ez[0, : src.size] -= src
     acc_re += ez[:, 0][None, :] * cos_e[:, None]
     acc_im -= ez[:, 0][None, :] * sin_e[:, None]
 
@@ -90,7 +90,7 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
              ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl), qb_r=pos(4, n_pl), prof_r=RNG.integers(0, 4, nr).astype(np.int32), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
              psi_ze=r(nr, n_top), ce_top=pos(nr, n_top) * F32(0.3), ir0=ir0, b_re=pos(n_far),
              c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far), psi_re=r(n_far, nz), ce_far=pos(n_far, nz) * F32(0.3),
-             src=F32(0.05), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
+             src=np.array([0.05, -0.02, 0.01], F32), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
              cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
     return fields, h, e
 

@@ -426,6 +426,7 @@ class Simulation:
         # point source: the whole current record at once (zero after the waveform's end)
         n_src = min(n_max, int(math.ceil(float(wave.end_s) / dt)) + 1)
         src = None if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
+        src_kick = np.zeros(max(1, n_line), np.float32)  # this step's source term per axis cell (kernels.step_e)
         # DFT kernels exp(-j w t) at the H and E instants, advanced by one rotation per step
         rot_h = np.exp(-0.5j * w * dt)
         rot_step = np.exp(-1j * w * dt)
@@ -451,24 +452,23 @@ class Simulation:
                      self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi,
                      self.jz0, *self.pz_h, self.psi_zh, self.ir0, *self.pr_h, self.psi_rh, self.ch_far,
                      acc_h[0], acc_h[1], rot_h.real, -rot_h.imag, n_cols)
+            # every source enters the kernel the same way: current elements in the axis cells from
+            # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
-                kicks = (self.src_coef_rows[:n_line] * currents).astype(np.float32)
+                src_kick[:] = self.src_coef_rows[:n_line] * currents
                 current = float(currents.sum())
-                src_kick = kicks[0]
             elif step < n_src:
                 current = src[step]
-                src_kick = np.float32(self.src_coef * current)
+                src_kick[0] = self.src_coef * current
             else:
                 current = 0.0
-                src_kick = np.float32(0.0)
+                src_kick[0] = 0.0
             K.step_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
                      *plasma_z, self.jz, *plasma_r, self.jr,
                      self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
                      self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag, n_cols)
-            if line_source and n_line > 1:
-                self.ez[0, 1:n_line] -= kicks[1:]  # rows above the ground row do not enter this step's DFT
             if current != 0.0:
                 acc_i += current * rot_h
             rot_h = rot_h * rot_step

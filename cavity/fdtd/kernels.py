@@ -213,8 +213,9 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
     (1/r) d(rH)/dr for Ez (columns >= ir0, stretched as a Cartesian derivative: error of order the
     layer depth over r). ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
     cells J(n+1) was computed from the uncorrected E(n+1); it receives qb dE so that the pair stays
-    the trapezoidal E-J update of the stretched equations. Finally ``ez[0, 0] -= src`` (the source
-    current element on the axis) and the ground-row DFT.
+    the trapezoidal E-J update of the stretched equations. Finally ``ez[0, :len(src)] -= src`` (the
+    source: current elements in the axis cells from the ground up, one for a point source, one per
+    driven cell for a lightning channel) and the ground-row DFT.
     """
     nr, nz = ez.shape
     n = nz - jp0
@@ -280,7 +281,8 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
                 if j >= jp0:
                     jz[i, j - jp0] += qb_z[prof_z[i], j - jp0] * de
         if i == 0:
-            e_z[0] -= src
+            for j in range(src.shape[0]):
+                e_z[j] -= src[j]
         v = np.float64(e_z[0])
         for f in range(nf):
             acc_re[f, i] += v * cos_e[f]
