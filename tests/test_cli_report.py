@@ -1,6 +1,6 @@
 """``cavity table``, ``compare``, ``plot`` and ``demo`` through click's CliRunner.
 
-The result files are the golden solver runs in tests/data (small, generated once); the demo is run
+The result files are the golden solver runs in tests/data (small; made by tests/data/make_golden.py); the demo is run
 with those results in place of its two solves (fast), with a tiny real scenario, and in full only
 under ``-m slow``.
 """
