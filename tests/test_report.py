@@ -1,7 +1,7 @@
 """Checks of cavity.reports.tables: receiver tables, attenuation fits, comparisons and figures.
 
 Synthetic results are built with cavity.results.assemble_dataset from fields whose answers are known
-in closed form; the golden result files in tests/data (small solver runs, generated once) guard the
+in closed form; the golden result files in tests/data (small solver runs, made by tests/data/make_golden.py) guard the
 table and plot code against regressions.
 """
 
