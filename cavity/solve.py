@@ -23,6 +23,7 @@ from cavity.constants import MU0
 from cavity.fdtd import engine as eng
 from cavity.fdtd import media
 from cavity.fdtd.source import moment_for_power
+from cavity.medium import PROFILE_STEP_M, path_medium  # noqa: F401  (PROFILE_STEP_M: public here too)
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -31,8 +32,6 @@ if TYPE_CHECKING:  # pragma: no cover
 
 log = logging.getLogger(__name__)
 
-#: Altitude sampling of the profile handed to the engine (the engine interpolates onto its grid).
-PROFILE_STEP_M = 250.0
 #: Altitudes recorded in the result file, km (the D region and a margin).
 RESULT_ALTITUDE_KM = np.arange(40.0, 120.0 + 1e-9, 1.0)
 
@@ -99,35 +98,6 @@ def engine_settings(scenario, path, *, waveform=None, drive: Excitation | None =
                             **record_settings(scenario))
     probes = tuple(path.receiver_ranges_m) if sv.receiver_time_series else ()
     return eng.Settings(**common, dr_m=sv.cell_m, probe_ranges_m=probes, record_time_series=bool(probes))
-
-
-def path_medium(scenario, path) -> eng.Medium:
-    """The engine's medium for one path: ground per sample and the ionosphere profile per sample."""
-    import profiles
-    from profiles.exponential import ALTITUDE_RANGE_M
-
-    ion = scenario.ionosphere
-    top = scenario.planned_top_m()
-    z = np.arange(0.0, top + 40e3 + PROFILE_STEP_M, PROFILE_STEP_M)
-    z = z[z <= ALTITUDE_RANGE_M[1]]  # profiles end at 500 km; the engine holds the top value above
-    ne = nu = None
-    if path.hprime_km is not None:
-        ne = profiles.electron_density(z[None, :], path.hprime_km[:, None], path.beta_per_km[:, None])
-        nu = np.broadcast_to(profiles.collision_frequency(z)[None, :], ne.shape).copy()
-    elif ion.form == "file":
-        ds = profiles.read_profile(ion.profile_path)
-        ne1, nu1 = profiles.sample_profile(ds, z)
-        ne = np.broadcast_to(np.asarray(ne1, float)[None, :], (path.n_samples, z.size)).copy()
-        nu = np.broadcast_to(np.asarray(nu1, float)[None, :], (path.n_samples, z.size)).copy()
-    return eng.Medium(
-        range_m=np.asarray(path.range_m, float),
-        ground_conductivity=np.asarray(path.ground_conductivity_s_per_m, float),
-        ground_permittivity=np.asarray(path.ground_relative_permittivity, float),
-        altitude_m=z if ne is not None else None,
-        electron_density=ne,
-        collision_frequency=nu,
-        ceiling_m=ion.ceiling_m if ion.form == "ceiling" else None,
-    )
 
 
 def plan_path(scenario, path, *, waveform=None) -> eng.RunPlan:

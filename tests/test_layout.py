@@ -100,6 +100,7 @@ def test_graph_sees_lazy_and_from_imports():
     assert "cavity.fdtd.engine" in graph["cavity.solve"]  # module level
     assert "cavity.paths" in graph["cavity.solve"]  # inside simulate()
     assert "cavity.sferic" in graph["cavity.solve"]  # the excitation
+    assert "cavity.medium" in graph["cavity.paths"] and "cavity.medium" in graph["cavity.solve"]
 
 
 def test_no_import_cycle_in_cavity():
