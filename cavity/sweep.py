@@ -106,7 +106,7 @@ class SweepPoint:
 
     @property
     def name(self) -> str:
-        """How the point is named to the user, e.g. ``2026-03-20T06:15:00Z 19.6 kHz``."""
+        """How the point is named to the user, e.g. ``2026-03-20T03:15:00Z 14.3 kHz``."""
         f = f"{self.frequency_hz / 1e3:g} kHz"
         return f"{_utc_text(self.utc)} {f}" if self.utc is not None else f
 

@@ -48,10 +48,10 @@ def far_field(range_m, frequency_hz, power_w=1e3):
     return math.sqrt(90.0 * power_w) / range_m * np.exp(-1j * k * range_m)
 
 
-def build(scenario_name="northbay.toml", paths=3, ground=5.0, **extra):
+def build(scenario_name="quillon_head.toml", paths=3, ground=5.0, **extra):
     s = load_scenario(EXAMPLES / scenario_name)
     r = np.linspace(1e3, 3200e3, 6400)  # 500 m spacing: less than half a wavelength at 24 kHz
-    f = np.array([19.6e3, 24.0e3])
+    f = np.array([14.3e3, 31.5e3])
     z = np.linspace(0.0, 120e3, 61)
     ez = np.broadcast_to(far_field(r, f), (paths, f.size, r.size)).copy()
     if paths > 1:
