@@ -112,7 +112,7 @@ class SweepPoint:
 
     @property
     def key(self) -> str:
-        """A file-name-safe identity of the point, e.g. ``t20260320T061500Z_f19.6kHz``."""
+        """A file-name-safe identity of the point, e.g. ``t20260320T031500Z_f14.3kHz``."""
         f = f"f{self.frequency_hz / 1e3:g}kHz"
         return f"t{self.utc:%Y%m%dT%H%M%SZ}_{f}" if self.utc is not None else f
 
