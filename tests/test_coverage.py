@@ -21,7 +21,10 @@ from click.testing import CliRunner
 
 import cavity
 from cavity.cli import main
-from cavity.coverage import (
+from cavity.errors import CavityError, ResourceError, ScenarioError
+from cavity.reports.coverage import coverage_figures, coverage_summary, make_level, plot_coverage
+from cavity.results import COVERAGE_VARIABLES, open_result
+from cavity.sweeps.coverage import (
     BearingPoint,
     CoverageSettings,
     bearing_scenario,
@@ -32,9 +35,6 @@ from cavity.coverage import (
     rebuild_map,
     write_coverage,
 )
-from cavity.coverage_report import coverage_figures, coverage_summary, make_level, plot_coverage
-from cavity.errors import CavityError, ResourceError, ScenarioError
-from cavity.results import COVERAGE_VARIABLES, open_result
 
 # An invented mast on a coast (sea to the south and west, land to the north and east).
 COAST = """
@@ -107,9 +107,12 @@ def _synthetic(profile_db, bearings_deg, range_km, *, step_deg=None, top_km=None
             "ez_amplitude": (("frequency", "latitude", "longitude"), np.zeros((1, 1, 1))),
         },
         coords={"bearing": bearings_deg, "range": range_km, "frequency": [20.0], "latitude": [0.0], "longitude": [0.0]},
-        attrs={"coverage_range_km": float(top_km or range_km[-1]),
-               "coverage_bearing_step_deg": float(step_deg or 360.0 / len(bearings_deg)),
-               "coverage_interpolation": "linear", "cautions": "test"},
+        attrs={
+            "coverage_range_km": float(top_km or range_km[-1]),
+            "coverage_bearing_step_deg": float(step_deg or 360.0 / len(bearings_deg)),
+            "coverage_interpolation": "linear",
+            "cautions": "test",
+        },
     )
 
 
@@ -125,10 +128,12 @@ def test_settings_defaults_preview_and_refusals():
     p = CoverageSettings.make(preview=True)
     assert p.bearing_step_deg == 30.0 and p.cells_per_wavelength == 12.0
     assert CoverageSettings.make(7.5, 500.0).bearings_deg.size == 48
-    for args, text in [((7.0, 500.0), "bearing_step_deg = 7 does not divide 360"),
-                       ((0.1, 500.0), "bearing_step_deg = 0.1 is outside the allowed range 0.5 to 90 deg"),
-                       ((10.0, 20000.0), "range_km = 20000.0 is outside the allowed range 50 to 10000 km"),
-                       ((10.0, math.nan), "range_km = nan is outside")]:
+    for args, text in [
+        ((7.0, 500.0), "bearing_step_deg = 7 does not divide 360"),
+        ((0.1, 500.0), "bearing_step_deg = 0.1 is outside the allowed range 0.5 to 90 deg"),
+        ((10.0, 20000.0), "range_km = 20000.0 is outside the allowed range 50 to 10000 km"),
+        ((10.0, math.nan), "range_km = nan is outside"),
+    ]:
         with pytest.raises(ScenarioError, match=text):
             CoverageSettings.make(*args)
 
@@ -267,7 +272,7 @@ def _outside_deep_nulls(r_km, direct_db):
     half = max(1, int(round(NULL_HALF_WIDTH_KM / step)))
     flat = direct_db + 20.0 * np.log10(np.maximum(r_km, step))
     padded = np.pad(flat, half, mode="edge")
-    envelope = np.array([padded[i:i + 2 * half + 1].max() for i in range(flat.size)])
+    envelope = np.array([padded[i : i + 2 * half + 1].max() for i in range(flat.size)])
     deep = flat < envelope - NULL_DEPTH_DB
     near = np.convolve(deep.astype(float), np.ones(2 * half + 1), mode="same") > 0
     return ~near & (r_km > 20.0)
@@ -292,8 +297,9 @@ def _interpolation_errors(scenario, settings, mid_bearings):
             r, a = _profile(bearing_scenario(scenario, b, settings))
             sides[b] = np.interp(r_d, r, a)
         order = sorted(sides)
-        mapped = profile_values(np.array(order), r_d, np.stack([sides[b] for b in order]),
-                                np.full(r_d.size, mid), r_d, settings.range_km)
+        mapped = profile_values(
+            np.array(order), r_d, np.stack([sides[b] for b in order]), np.full(r_d.size, mid), r_d, settings.range_km
+        )
         ok = _outside_deep_nulls(r_d, direct) & np.isfinite(mapped)
         out.append((float(np.max(np.abs(mapped[ok] - direct[ok]))), float(ok.mean())))
     return out
@@ -323,8 +329,11 @@ def test_map_between_bearings_within_1_db_on_the_example_at_the_default_range():
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=True, reason="known limit: along the coast (bearing 335 deg) the map is 1.55 dB off "
-                   "near 460 km, beside the modal minimum at 390-460 km whose range moves unevenly with bearing")
+@pytest.mark.xfail(
+    strict=True,
+    reason="known limit: along the coast (bearing 335 deg) the map is 1.55 dB off "
+    "near 460 km, beside the modal minimum at 390-460 km whose range moves unevenly with bearing",
+)
 def test_map_between_bearings_along_the_coast_misses_1_db():
     # The bisector that runs along the example's coast, where each bearing sees another mix of land
     # and sea: measured 1.55 dB (rms 0.52 dB) at 10 deg, and 0.70 / 2.07 dB on the two 5 deg
@@ -374,8 +383,12 @@ def test_coverage_file_contract_and_cf_check(mapped, tmp_path):
     # IOOS compliance checker, CF-1.10 suite (as for every result file, tests/test_results.py)
     checker = Path(sys.executable).parent / "compliance-checker"
     report = tmp_path / "cf.json"
-    done = subprocess.run([str(checker), "--test", "cf:1.10", "-f", "json", "-o", str(report), str(path)],
-                          capture_output=True, text=True, timeout=300)
+    done = subprocess.run(
+        [str(checker), "--test", "cf:1.10", "-f", "json", "-o", str(report), str(path)],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     result = json.loads(report.read_text())["cf:1.10"]
     failed = [(p["name"], p["msgs"]) for p in result["all_priorities"] if p["value"][0] < p["value"][1]]
     assert result["high_count"] == 0, failed
@@ -412,10 +425,12 @@ def test_memory_is_checked_before_any_solving(coast, monkeypatch, tmp_path):
 
 
 def test_a_position_is_needed():
-    scenario = cavity.load_scenario(COAST.replace("latitude_deg = 44.2\nlongitude_deg = 8.4\n", "")
-                                    .replace('kind = "auto"', 'kind = "sea"')
-                                    .replace("utc = 2026-03-20T10:00:00Z", 'preset = "day"')
-                                    .replace("latitude_deg = 44.9\nlongitude_deg = 9.6", "range_km = 150.0"))
+    scenario = cavity.load_scenario(
+        COAST.replace("latitude_deg = 44.2\nlongitude_deg = 8.4\n", "")
+        .replace('kind = "auto"', 'kind = "sea"')
+        .replace("utc = 2026-03-20T10:00:00Z", 'preset = "day"')
+        .replace("latitude_deg = 44.9\nlongitude_deg = 9.6", "range_km = 150.0")
+    )
     with pytest.raises(ScenarioError, match="needs the transmitter's position"):
         coverage(scenario, 90.0, 200.0)
 
@@ -436,7 +451,7 @@ def test_figure_draws_offline_with_the_level_contour(mapped, tmp_path, monkeypat
     level = make_level(required_db=float(np.nanmedian(ds["ez_amplitude"].values)))
     out = plot_coverage(ds, tmp_path / "map.png", level=level)
     assert out.stat().st_size > 20_000
-    from cavity.coverage_report import coverage_figure
+    from cavity.reports.coverage import coverage_figure
 
     fig = coverage_figure(ds, level=level)
     texts = [t.get_text() for ax in fig.axes for t in ax.texts]
@@ -448,8 +463,21 @@ def test_cli_coverage_writes_file_figure_summary_then_table_and_plot(tmp_path):
     scenario.write_text(COAST, encoding="utf-8")
     out = tmp_path / "coast.nc"
     runner = CliRunner()
-    args = ["coverage", str(scenario), "-o", str(out), "--bearing-step", "90", "--range-km", "150",
-            "--workers", "1", "--required", "80", "--quiet"]
+    args = [
+        "coverage",
+        str(scenario),
+        "-o",
+        str(out),
+        "--bearing-step",
+        "90",
+        "--range-km",
+        "150",
+        "--workers",
+        "1",
+        "--required",
+        "80",
+        "--quiet",
+    ]
     result = runner.invoke(main, args)
     assert result.exit_code == 0, result.output
     for name in ("coast.nc", "coast.png", "coast.md", "coast.csv"):

@@ -21,40 +21,127 @@ def _finite(ctx, param, value):
 
 @click.command("coverage")
 @click.argument("scenario", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), required=True,
-              help="Coverage file to write (netCDF).")
-@click.option("--bearing-step", "bearing_step", type=float, metavar="DEG",
-              help="Angle between solved bearings, degrees; must divide 360 [default: 10; 30 with --preview].")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    required=True,
+    help="Coverage file to write (netCDF).",
+)
+@click.option(
+    "--bearing-step",
+    "bearing_step",
+    type=float,
+    metavar="DEG",
+    help="Angle between solved bearings, degrees; must divide 360 [default: 10; 30 with --preview].",
+)
 @click.option("--range-km", "range_km", type=float, metavar="KM", help="Range of the map, km [default: 1000].")
-@click.option("--preview", is_flag=True,
-              help="A quick coarse look: bearings every 30 deg and 12 cells per wavelength (when cell_m is auto).")
-@click.option("--grid-deg", "grid_deg", type=float, metavar="DEG",
-              help="Latitude/longitude step of the map, degrees [default: about 300 steps across the map].")
-@click.option("--required", "required_db", type=float, callback=_finite, metavar="DB",
-              help="Required field, dB re 1 uV/m: drawn as a contour and summarised.")
-@click.option("--noise", "noise_db", type=float, callback=_finite, metavar="DB",
-              help="Noise density, dB re 1 uV/m per sqrt(Hz); with --bandwidth the SNR contour is drawn instead.")
-@click.option("--bandwidth", "bandwidth_hz", type=click.FloatRange(min=0.0, min_open=True), metavar="HZ",
-              help="Receiver bandwidth, Hz (with --noise).")
-@click.option("--snr", "snr_db", type=float, default=0.0, show_default=True, callback=_finite, metavar="DB",
-              help="Required signal-to-noise ratio with --noise/--bandwidth, dB.")
-@click.option("--sector-deg", "sector_deg", type=float, default=45.0, show_default=True, metavar="DEG",
-              help="Width of the summary's bearing sectors, degrees.")
-@click.option("--figure", type=click.Path(dir_okay=False, path_type=Path), metavar="FILE",
-              help="Map figure, .png or .pdf [default: OUTPUT with .png].")
-@click.option("--summary", type=click.Path(dir_okay=False, path_type=Path), metavar="FILE",
-              help="Summary, .md (a .csv is written beside it) [default: OUTPUT with .md; only with a level].")
-@click.option("--scheduler", metavar="ADDRESS",
-              help="Use an existing dask scheduler, e.g. tcp://scheduler-host:8786 (default: local workers).")
-@click.option("--workers", type=click.IntRange(min=1), metavar="N",
-              help="Local worker processes (default: as many as cores and memory allow).")
-@click.option("--parts", type=click.Path(file_okay=False, path_type=Path), metavar="DIR",
-              help="Folder keeping one file per finished bearing [default: OUTPUT.parts beside the output].")
+@click.option(
+    "--preview",
+    is_flag=True,
+    help="A quick coarse look: bearings every 30 deg and 12 cells per wavelength (when cell_m is auto).",
+)
+@click.option(
+    "--grid-deg",
+    "grid_deg",
+    type=float,
+    metavar="DEG",
+    help="Latitude/longitude step of the map, degrees [default: about 300 steps across the map].",
+)
+@click.option(
+    "--required",
+    "required_db",
+    type=float,
+    callback=_finite,
+    metavar="DB",
+    help="Required field, dB re 1 uV/m: drawn as a contour and summarised.",
+)
+@click.option(
+    "--noise",
+    "noise_db",
+    type=float,
+    callback=_finite,
+    metavar="DB",
+    help="Noise density, dB re 1 uV/m per sqrt(Hz); with --bandwidth the SNR contour is drawn instead.",
+)
+@click.option(
+    "--bandwidth",
+    "bandwidth_hz",
+    type=click.FloatRange(min=0.0, min_open=True),
+    metavar="HZ",
+    help="Receiver bandwidth, Hz (with --noise).",
+)
+@click.option(
+    "--snr",
+    "snr_db",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=_finite,
+    metavar="DB",
+    help="Required signal-to-noise ratio with --noise/--bandwidth, dB.",
+)
+@click.option(
+    "--sector-deg",
+    "sector_deg",
+    type=float,
+    default=45.0,
+    show_default=True,
+    metavar="DEG",
+    help="Width of the summary's bearing sectors, degrees.",
+)
+@click.option(
+    "--figure",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FILE",
+    help="Map figure, .png or .pdf [default: OUTPUT with .png].",
+)
+@click.option(
+    "--summary",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FILE",
+    help="Summary, .md (a .csv is written beside it) [default: OUTPUT with .md; only with a level].",
+)
+@click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    help="Use an existing dask scheduler, e.g. tcp://scheduler-host:8786 (default: local workers).",
+)
+@click.option(
+    "--workers",
+    type=click.IntRange(min=1),
+    metavar="N",
+    help="Local worker processes (default: as many as cores and memory allow).",
+)
+@click.option(
+    "--parts",
+    type=click.Path(file_okay=False, path_type=Path),
+    metavar="DIR",
+    help="Folder keeping one file per finished bearing [default: OUTPUT.parts beside the output].",
+)
 @click.option("--overwrite", is_flag=True, help="Replace existing output files (otherwise refused).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar or messages, only errors.")
 @friendly_errors
-def command(scenario, output, bearing_step, range_km, preview, grid_deg, required_db, noise_db, bandwidth_hz,
-            snr_db, sector_deg, figure, summary, scheduler, workers, parts, overwrite, quiet):
+def command(
+    scenario,
+    output,
+    bearing_step,
+    range_km,
+    preview,
+    grid_deg,
+    required_db,
+    noise_db,
+    bandwidth_hz,
+    snr_db,
+    sector_deg,
+    figure,
+    summary,
+    scheduler,
+    workers,
+    parts,
+    overwrite,
+    quiet,
+):
     """Map the field of SCENARIO's transmitter over an area: paths solved at a set of bearings.
 
     Each bearing (every --bearing-step degrees from north) is the scenario with one receiver at
@@ -69,14 +156,14 @@ def command(scenario, output, bearing_step, range_km, preview, grid_deg, require
 
     \b
     Examples:
-      cavity coverage examples/coverage.toml -o coverage.nc --required 40
+      cavity coverage examples/coverage.toml -o coverage.nc --required 70
       cavity coverage examples/coverage.toml -o quick.nc --preview
       cavity coverage day.toml -o day.nc --noise 10 --bandwidth 100 --snr 6
     """
     import cavity
-    from cavity.coverage import CoverageError, CoverageSettings, coverage, default_parts_dir, write_coverage
-    from cavity.coverage_report import check_sector, coverage_summary, make_level, plot_coverage
-    from cavity.report import write_text
+    from cavity.files import write_text
+    from cavity.reports.coverage import check_sector, coverage_summary, make_level, plot_coverage
+    from cavity.sweeps.coverage import CoverageError, CoverageSettings, coverage, default_parts_dir, write_coverage
 
     if scheduler and workers:
         raise click.UsageError("--workers sizes the local cluster; it does not apply with --scheduler")
@@ -103,7 +190,7 @@ def command(scenario, output, bearing_step, range_km, preview, grid_deg, require
 
     handlers = []
     if not quiet:
-        for name in ("cavity.coverage", "cavity.sweep"):
+        for name in ("cavity.sweeps.coverage", "cavity.sweeps.run"):
             handler = logging.StreamHandler(sys.stderr)
             handler.setFormatter(logging.Formatter("%(message)s"))
             logger = logging.getLogger(name)
@@ -113,15 +200,27 @@ def command(scenario, output, bearing_step, range_km, preview, grid_deg, require
     t0 = time.perf_counter()
     try:
         with progress_callback(quiet, "solving bearings") as update:
-            ds = coverage(sc, bearing_step, range_km, preview=preview, grid_deg=grid_deg, scheduler=scheduler,
-                          workers=workers, parts_dir=parts_dir, progress=update)
+            ds = coverage(
+                sc,
+                bearing_step,
+                range_km,
+                preview=preview,
+                grid_deg=grid_deg,
+                scheduler=scheduler,
+                workers=workers,
+                parts_dir=parts_dir,
+                progress=update,
+            )
     except CoverageError as exc:
         for name, message in exc.failures:
             click.echo(f"failed: {name}: {message}", err=True)
         raise click.ClickException(one_line(exc)) from None
     except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM through cavity.cli.common (exit 143)
-        click.echo(f"Error: interrupted; finished bearings are kept in {parts_dir}; run the same command "
-                   "again to solve only the rest", err=True)
+        click.echo(
+            f"Error: interrupted; finished bearings are kept in {parts_dir}; run the same command "
+            "again to solve only the rest",
+            err=True,
+        )
         sys.exit(128 + getattr(exc, "signum", 2))
     finally:
         for logger, handler in handlers:
@@ -134,7 +233,10 @@ def command(scenario, output, bearing_step, range_km, preview, grid_deg, require
     if ds.attrs.get("solver_converged") == "no":
         click.echo(f"warning: {ds.attrs.get('solver_notes', 'some bearings did not converge')}", err=True)
     if not quiet:
-        click.echo(f"{ds.sizes['bearing']} bearings solved and mapped in {solved:.1f} s; "
-                   f"all files in {time.perf_counter() - t0:.1f} s", err=True)
+        click.echo(
+            f"{ds.sizes['bearing']} bearings solved and mapped in {solved:.1f} s; "
+            f"all files in {time.perf_counter() - t0:.1f} s",
+            err=True,
+        )
     for path in written:
         click.echo(f"wrote {path}")

@@ -14,10 +14,10 @@ _SUFFIXES = (".png", ".pdf")
 def diurnal_plot(ds, output) -> None:
     """Plot a sweep file with the sweep module's reporter (imported only when needed)."""
     try:
-        from cavity.sweep_report import plot_diurnal
+        from cavity.reports.sweep import plot_diurnal
     except ImportError:
         raise click.ClickException(
-            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.sweep_report) "
+            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.reports.sweep) "
             "are not installed"
         ) from None
     plot_diurnal(ds, output)
@@ -57,7 +57,7 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
       cavity plot day.nc -o day.png
       cavity plot night.nc -o night.pdf --phase unwrapped
     """
-    from cavity.report import is_sweep, plot_result
+    from cavity.reports.tables import is_sweep, plot_result
     from cavity.results import open_result
 
     if output.suffix.lower() not in _SUFFIXES:
@@ -66,10 +66,10 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
         )
     check_output_file(output, overwrite, what="figure")
     ds = open_result(result)
-    from cavity.coverage import is_coverage
+    from cavity.sweeps.coverage import is_coverage
 
     if is_coverage(ds):
-        from cavity.coverage_report import make_level, plot_coverage
+        from cavity.reports.coverage import make_level, plot_coverage
 
         plot_coverage(ds, output, level=make_level(required_db, noise_db, bandwidth_hz, snr_db), dpi=dpi)
     elif required_db is not None or noise_db is not None or bandwidth_hz is not None:
@@ -77,7 +77,7 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
     elif is_sweep(ds):
         diurnal_plot(ds, output)
     elif "receiver_ez_spectrum" in ds:  # a lightning run: waveforms and spectra per receiver
-        from cavity.sferic import plot_sferic
+        from cavity.reports.sferic import plot_sferic
 
         plot_sferic([ds], output)
     else:

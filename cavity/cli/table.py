@@ -37,10 +37,10 @@ def diurnal_table(ds, fmt: str) -> str:
     import importlib
 
     try:
-        sweep_report = importlib.import_module("cavity.sweep_report")
+        sweep_report = importlib.import_module("cavity.reports.sweep")
     except ImportError:
         raise click.ClickException(
-            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.sweep_report) "
+            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.reports.sweep) "
             "are not installed"
         ) from None
     table = sweep_report.table_diurnal(ds)
@@ -49,7 +49,7 @@ def diurnal_table(ds, fmt: str) -> str:
     formatter = getattr(sweep_report, "format_diurnal_table", None)
     text = formatter(table, fmt) if formatter is not None else table.to_csv(index=False)
     if fmt == "markdown":
-        from cavity.report import table_notes
+        from cavity.reports.tables import table_notes
 
         text += "".join(f"\n{note}\n" for note in table_notes([ds]) if note.startswith("Cautions"))
     return text
@@ -103,7 +103,7 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.report import is_sweep, receiver_table, write_text
+    from cavity.reports.tables import is_sweep, receiver_table, write_text
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")
@@ -115,11 +115,11 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
             raise click.ClickException(f"output folder {folder} does not exist")
     datasets = open_results(results)
     sweeps = [ds for ds in datasets if is_sweep(ds)]
-    from cavity.coverage import is_coverage
+    from cavity.sweeps.coverage import is_coverage
 
     maps = [ds for ds in datasets if is_coverage(ds)]
     if maps:
-        from cavity.coverage_report import coverage_summary, make_level
+        from cavity.reports.coverage import coverage_summary, make_level
 
         if len(maps) != len(datasets):
             raise click.UsageError("coverage files are tabulated together, without other result files")

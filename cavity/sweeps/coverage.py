@@ -5,7 +5,7 @@ A coverage map is many ordinary paths. For each bearing of a regular set (every
 the map's range on that bearing, so that :func:`cavity.paths.build_paths` samples the ground, the
 sun and every other per-column medium along that bearing exactly as ``cavity run`` would, and
 :func:`cavity.solve.solve_path` solves it. The bearings are fanned out on dask workers by the sweep
-driver (:mod:`cavity.sweep`: local cluster or ``scheduler``, numba cache warmed first, failed solves
+driver (:mod:`cavity.sweeps.run`: local cluster or ``scheduler``, numba cache warmed first, failed solves
 retried once and reported by bearing, equal media solved once), and each finished bearing is kept
 as a small result file in a parts folder, so a stopped map resumes with the missing bearings only.
 
@@ -27,7 +27,7 @@ depth. ``tests/test_coverage.py`` compares the map read on the bisector between 
 direct solve along it.
 
 The summary (area above a level, farthest range per sector) is computed from the same profiles in
-range and bearing, on a sphere of radius 6371 km (:mod:`cavity.coverage_report`).
+range and bearing, on a sphere of radius 6371 km (:mod:`cavity.reports.coverage`).
 """
 
 from __future__ import annotations
@@ -40,12 +40,13 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from cavity import __version__
+from cavity.constants import EARTH_RADIUS_M
 from cavity.errors import CavityError, ResourceError, ScenarioError
+from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -71,7 +72,7 @@ NICE_GRID_STEPS_DEG = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0)
 #: Share of the available memory the map's arrays may take.
 MAP_MEMORY_SHARE = 0.8
 #: Mean radius of the earth used for areas and for the solver's curvature model, km.
-EARTH_RADIUS_KM = 6371.0
+EARTH_RADIUS_KM = EARTH_RADIUS_M / 1e3
 
 INTERPOLATION_METHOD = (
     "along each solved bearing linearly in dB between the solver's range samples, then between the "
@@ -115,8 +116,11 @@ class CoverageSettings:
         ScenarioError
             A step that is out of range or does not divide 360 deg, a range or grid step out of range.
         """
-        step = bearing_step_deg if bearing_step_deg is not None else (
-            PREVIEW_BEARING_STEP_DEG if preview else DEFAULT_BEARING_STEP_DEG)
+        step = (
+            bearing_step_deg
+            if bearing_step_deg is not None
+            else (PREVIEW_BEARING_STEP_DEG if preview else DEFAULT_BEARING_STEP_DEG)
+        )
         rng = range_km if range_km is not None else DEFAULT_RANGE_KM
         lo, hi = BEARING_STEP_LIMITS_DEG
         if not _number(step) or not lo <= step <= hi:
@@ -124,16 +128,19 @@ class CoverageSettings:
         count = 360.0 / step
         if abs(count - round(count)) > 1e-9:
             raise ScenarioError(
-                f"bearing_step_deg = {step:g} does not divide 360 deg into whole steps "
-                "(e.g. 5, 7.5, 10, 15, 30)"
+                f"bearing_step_deg = {step:g} does not divide 360 deg into whole steps (e.g. 5, 7.5, 10, 15, 30)"
             )
         lo, hi = RANGE_LIMITS_KM
         if not _number(rng) or not lo <= rng <= hi:
             raise ScenarioError(f"range_km = {rng!r} is outside the allowed range {lo:g} to {hi:g} km")
         if grid_deg is not None and (not _number(grid_deg) or not 0.005 <= grid_deg <= 5.0):
             raise ScenarioError(f"grid_deg = {grid_deg!r} is outside the allowed range 0.005 to 5 deg")
-        return cls(float(step), float(rng), PREVIEW_CELLS_PER_WAVELENGTH if preview else None,
-                   None if grid_deg is None else float(grid_deg))
+        return cls(
+            float(step),
+            float(rng),
+            PREVIEW_CELLS_PER_WAVELENGTH if preview else None,
+            None if grid_deg is None else float(grid_deg),
+        )
 
     @property
     def bearings_deg(self) -> np.ndarray:
@@ -175,22 +182,27 @@ def bearing_scenario(scenario: Scenario, bearing_deg: float, settings: CoverageS
     from cavity.geo import points_along
     from cavity.scenario import Receiver
 
-    tx = scenario.transmitter
-    lat, lon = points_along(tx.latitude_deg, tx.longitude_deg, float(bearing_deg), [settings.range_km * 1e3])
-    receiver = Receiver(name=f"bearing {bearing_deg:g} deg at {settings.range_km:g} km",
-                        latitude_deg=round(float(lat[0]), 9), longitude_deg=round(float(lon[0]), 9))
+    lat0, lon0 = _check_scenario(scenario)
+    lat, lon = points_along(lat0, lon0, float(bearing_deg), [settings.range_km * 1e3])
+    receiver = Receiver(
+        name=f"bearing {bearing_deg:g} deg at {settings.range_km:g} km",
+        latitude_deg=round(float(lat[0]), 9),
+        longitude_deg=round(float(lon[0]), 9),
+    )
     solver = dataclasses.replace(scenario.solver, max_range_m=None, receiver_time_series=False)
     if settings.cells_per_wavelength is not None and scenario.solver.cell_m is None:
         solver = dataclasses.replace(solver, cells_per_wavelength=settings.cells_per_wavelength)
     return scenario.replace(receivers=(receiver,), solver=solver)
 
 
-def _check_scenario(scenario: Scenario) -> None:
+def _check_scenario(scenario: Scenario) -> tuple[float, float]:
+    """The transmitter's (latitude, longitude), degrees; ScenarioError when a map cannot be made."""
     tx = scenario.transmitter
     if tx.latitude_deg is None or tx.longitude_deg is None:
         raise ScenarioError("transmitter.latitude_deg is missing: a coverage map needs the transmitter's position")
     if getattr(scenario, "source", None) is not None:
         raise ScenarioError("[source]: a coverage map is of the continuous transmitter; remove [source]")
+    return float(tx.latitude_deg), float(tx.longitude_deg)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -354,11 +366,10 @@ def check_memory(scenario: Scenario, settings: CoverageSettings, variants: dict)
         gridmod.check_memory(plan, available)
     except ResourceError as exc:
         raise ResourceError(f"one bearing's {exc} (or a shorter --range-km)") from None
-    tx = scenario.transmitter
-    lat, lon = map_grid(tx.latitude_deg, tx.longitude_deg, settings.range_km, settings.grid_deg)
+    lat0, lon0 = _check_scenario(scenario)
+    lat, lon = map_grid(lat0, lon0, settings.range_km, settings.grid_deg)
     n_range = plan.nr - plan.pml_r_cells - 1
-    need = map_memory_bytes(len(scenario.transmitter.frequencies_hz), lat.size, lon.size,
-                            len(variants), n_range)
+    need = map_memory_bytes(len(scenario.transmitter.frequencies_hz), lat.size, lon.size, len(variants), n_range)
     if need > MAP_MEMORY_SHARE * available:
         raise ResourceError(
             f"the coverage map of {lat.size} x {lon.size} grid points x {len(scenario.transmitter.frequencies_hz)} "
@@ -375,7 +386,7 @@ def check_memory(scenario: Scenario, settings: CoverageSettings, variants: dict)
 
 def default_parts_dir(output) -> Path:
     """The parts folder of a coverage file: ``OUT.nc.parts`` beside it (as for sweeps)."""
-    from cavity.sweep import default_parts_dir as parts
+    from cavity.sweeps.store import default_parts_dir as parts
 
     return parts(output)
 
@@ -410,7 +421,7 @@ def coverage(
     grid_deg : float, optional
         Latitude/longitude step of the map, degrees (default about 300 steps across).
     scheduler, workers, progress, solve :
-        As for :func:`cavity.sweep.sweep`: an existing cluster (address, client or cluster object)
+        As for :func:`cavity.sweeps.run.sweep`: an existing cluster (address, client or cluster object)
         or a local one of ``workers`` processes; ``progress(fraction, text)`` after each solved
         bearing; ``solve`` what a worker runs per path.
     parts_dir : str or os.PathLike, optional
@@ -432,11 +443,14 @@ def coverage(
         Bearings failed after their retry (each named with its error); finished ones stay in
         ``parts_dir``.
     """
-    from cavity.sweep import _load_part, _part_path, _run, solve_path
+    from cavity.sweeps.cluster import solve_path
+    from cavity.sweeps.run import _run
+    from cavity.sweeps.store import load_part, part_path
 
     _check_scenario(scenario)
     settings = CoverageSettings.make(bearing_step_deg, range_km, preview=preview, grid_deg=grid_deg)
-    points = [BearingPoint(i, float(b)) for i, b in enumerate(settings.bearings_deg)]
+    # bearings stand in for the sweep driver's points (they have the .key and .name it uses)
+    points: list[Any] = [BearingPoint(i, float(b)) for i, b in enumerate(settings.bearings_deg)]
     variants = {p: bearing_scenario(scenario, p.bearing_deg, settings) for p in points}
     results: dict[BearingPoint, object] = {}
     folder = None
@@ -444,12 +458,18 @@ def coverage(
         folder = Path(os.fspath(parts_dir)).expanduser()
         folder.mkdir(parents=True, exist_ok=True)
         for p in points:
-            if _load_part(_part_path(folder, p), variants[p]) is not None:
-                results[p] = _part_path(folder, p)
+            if load_part(part_path(folder, p), variants[p]) is not None:
+                results[p] = part_path(folder, p)
     todo = [p for p in points if p not in results]
-    log.info("coverage: %d bearings every %g deg to %g km; %d already solved%s, %d to solve", len(points),
-             settings.bearing_step_deg, settings.range_km, len(results),
-             f" in {folder}" if folder is not None else "", len(todo))
+    log.info(
+        "coverage: %d bearings every %g deg to %g km; %d already solved%s, %d to solve",
+        len(points),
+        settings.bearing_step_deg,
+        settings.range_km,
+        len(results),
+        f" in {folder}" if folder is not None else "",
+        len(todo),
+    )
     check_memory(scenario, settings, variants)
     failures = {}
     if todo:
@@ -461,7 +481,9 @@ def coverage(
         kept = f"; the {len(results)} finished bearings are kept in {folder}" if folder is not None and results else ""
         raise CoverageError(
             f"{len(lines)} of {len(points)} bearings failed (first: {lines[0][0]}: {lines[0][1]}){kept}; "
-            "run the map again to retry only the missing bearings", lines)
+            "run the map again to retry only the missing bearings",
+            lines,
+        )
     return combine(scenario, settings, points, results)
 
 
@@ -484,7 +506,7 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
 
     from cavity.geo import distance_bearing, solar_zenith_deg
 
-    tx = scenario.transmitter
+    lat0, lon0 = _check_scenario(scenario)
     r = None
     n_b = len(points)
     profiles: dict[str, np.ndarray] = {}
@@ -516,9 +538,10 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         del ds, on
 
     bearings = np.array([p.bearing_deg for p in points])
-    lat, lon = map_grid(tx.latitude_deg, tx.longitude_deg, settings.range_km, settings.grid_deg)
-    amp, dist_km, brg = map_from_profiles(tx.latitude_deg, tx.longitude_deg, bearings, r,
-                                          profiles["ez_amplitude"], lat, lon, settings.range_km)
+    lat, lon = map_grid(lat0, lon0, settings.range_km, settings.grid_deg)
+    amp, dist_km, brg = map_from_profiles(
+        lat0, lon0, bearings, r, profiles["ez_amplitude"], lat, lon, settings.range_km
+    )
     outside = dist_km > settings.range_km
     dist_km = np.where(outside, np.nan, dist_km)
     brg = np.where(outside, np.nan, brg)
@@ -534,7 +557,7 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         if name in profiles:
             data[f"bearing_{name}"] = (("bearing", "range"), profiles[name])
     ion = scenario.ionosphere
-    if ion.form == "utc":
+    if ion.form == "utc" and ion.utc is not None:
         lat2, lon2 = np.meshgrid(lat, ((lon + 180.0) % 360.0) - 180.0, indexing="ij")
         data["map_solar_zenith_angle"] = (("latitude", "longitude"), np.asarray(solar_zenith_deg(ion.utc, lat2, lon2)))
 
@@ -543,17 +566,19 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
     if placed:
         rlat = np.array([rx.latitude_deg for rx in placed])
         rlon = np.array([rx.longitude_deg for rx in placed])
-        d, b = distance_bearing(tx.latitude_deg, tx.longitude_deg, rlat, rlon)
+        d, b = distance_bearing(lat0, lon0, rlat, rlon)
         d_km = np.asarray(d) / 1e3
         rx_amp = profile_values(bearings, r, profiles["ez_amplitude"], np.asarray(b), d_km, settings.range_km)
-        data.update({
-            "receiver_name": (("receiver",), np.array([rx.name for rx in placed], dtype=object)),
-            "receiver_latitude": (("receiver",), rlat),
-            "receiver_longitude": (("receiver",), rlon),
-            "receiver_range": (("receiver",), d_km),
-            "receiver_bearing": (("receiver",), np.asarray(b, float)),
-            "receiver_ez_amplitude": (("receiver", "frequency"), np.asarray(rx_amp).T),
-        })
+        data.update(
+            {
+                "receiver_name": (("receiver",), np.array([rx.name for rx in placed], dtype=object)),
+                "receiver_latitude": (("receiver",), rlat),
+                "receiver_longitude": (("receiver",), rlon),
+                "receiver_range": (("receiver",), d_km),
+                "receiver_bearing": (("receiver",), np.asarray(b, float)),
+                "receiver_ez_amplitude": (("receiver", "frequency"), np.asarray(rx_amp).T),
+            }
+        )
     coords = {
         "frequency": ("frequency", freqs),
         "latitude": ("latitude", lat),
@@ -589,14 +614,14 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         "coverage_bearing_step_deg": float(settings.bearing_step_deg),
         "coverage_range_km": float(settings.range_km),
         "coverage_grid_deg": float(np.round(lat[1] - lat[0], 10)) if lat.size > 1 else float("nan"),
-        "coverage_transmitter_latitude_deg": float(tx.latitude_deg),
-        "coverage_transmitter_longitude_deg": float(tx.longitude_deg),
+        "coverage_transmitter_latitude_deg": lat0,
+        "coverage_transmitter_longitude_deg": lon0,
         "coverage_interpolation": INTERPOLATION_METHOD,
         "coverage_description": (
             "each bearing is the scenario above with one receiver at coverage_range_km on that bearing "
             "(solver.max_range_km cleared, the path's ground, sun and ionosphere sampled along it), "
             "solved on its own; bearing_* hold each bearing's profiles, from which the map is rebuilt "
-            "(cavity.coverage.rebuild_map); the solver_* attributes give the largest cells and steps, "
+            "(cavity.sweeps.coverage.rebuild_map); the solver_* attributes give the largest cells and steps, "
             "the smallest cells and time step and the summed stepping time of all bearings (a solve "
             "shared by bearings of equal medium counted once)"
         ),
@@ -629,14 +654,24 @@ def rebuild_map(ds: xr.Dataset, grid_deg: float | None = None) -> xr.Dataset:
         lat, lon = np.asarray(ds["latitude"].values, float), np.asarray(ds["longitude"].values, float)
     else:
         lat, lon = map_grid(lat0, lon0, range_km, grid_deg)
-    amp, _, _ = map_from_profiles(lat0, lon0, ds["bearing"].values, ds["range"].values,
-                                  ds["bearing_ez_amplitude"].transpose("bearing", "frequency", "range").values,
-                                  lat, lon, range_km)
+    amp, _, _ = map_from_profiles(
+        lat0,
+        lon0,
+        ds["bearing"].values,
+        ds["range"].values,
+        ds["bearing_ez_amplitude"].transpose("bearing", "frequency", "range").values,
+        lat,
+        lon,
+        range_km,
+    )
     import xarray as xr
 
-    return xr.DataArray(amp, dims=("frequency", "latitude", "longitude"),
-                        coords={"frequency": ds["frequency"].values, "latitude": lat, "longitude": lon},
-                        attrs=dict(ds["ez_amplitude"].attrs)).to_dataset(name="ez_amplitude")
+    return xr.DataArray(
+        amp,
+        dims=("frequency", "latitude", "longitude"),
+        coords={"frequency": ds["frequency"].values, "latitude": lat, "longitude": lon},
+        attrs=dict(ds["ez_amplitude"].attrs),
+    ).to_dataset(name="ez_amplitude")
 
 
 def is_coverage(ds) -> bool:

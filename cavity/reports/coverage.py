@@ -16,7 +16,7 @@ Definitions (those of ``cavity table``):
   field N0 + 10 log10(B) + snr_db.
 
 Areas are integrated in range and bearing from the file's bearing profiles, interpolated exactly as
-the map is (:func:`cavity.coverage.profile_values`) every :data:`SUMMARY_BEARING_STEP_DEG` or finer,
+the map is (:func:`cavity.sweeps.coverage.profile_values`) every :data:`SUMMARY_BEARING_STEP_DEG` or finer,
 on a sphere of radius 6371 km: a cell between ranges r1 and r2 and bearings d(theta) apart has area
 a^2 d(theta) (cos(r1/a) - cos(r2/a)), exact on the sphere (the solver's own earth model).
 """
@@ -27,7 +27,7 @@ import math
 import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, cast
 
 import numpy as np
 
@@ -50,10 +50,12 @@ NIGHT_LIMIT_DEG = 99.0
 
 
 def _require_coverage(ds: xr.Dataset) -> None:
-    from cavity.coverage import is_coverage
+    from cavity.sweeps.coverage import is_coverage
 
     if not is_coverage(ds):
-        raise ResultFileError("the dataset is not a coverage file (no latitude and bearing dimensions; see cavity coverage)")
+        raise ResultFileError(
+            "the dataset is not a coverage file (no latitude and bearing dimensions; see cavity coverage)"
+        )
 
 
 @dataclass(frozen=True)
@@ -66,8 +68,12 @@ class Level:
     short: str  # contour label, e.g. "40 dB" or "SNR 0 dB"
 
 
-def make_level(required_db: float | None = None, noise_db: float | None = None, bandwidth_hz: float | None = None,
-               snr_db: float = 0.0) -> Level | None:
+def make_level(
+    required_db: float | None = None,
+    noise_db: float | None = None,
+    bandwidth_hz: float | None = None,
+    snr_db: float = 0.0,
+) -> Level | None:
     """The level from ``--required`` or ``--noise/--bandwidth`` (+ ``--snr``); None when neither is given.
 
     Raises
@@ -75,7 +81,7 @@ def make_level(required_db: float | None = None, noise_db: float | None = None, 
     CavityError
         Noise without bandwidth (or the reverse), both a required field and a noise, a bad number.
     """
-    from cavity.report import noise_in_bandwidth_db
+    from cavity.reports.tables import noise_in_bandwidth_db
 
     for name, value in (("required", required_db), ("noise", noise_db), ("snr", snr_db)):
         if value is not None and not math.isfinite(float(value)):
@@ -84,22 +90,28 @@ def make_level(required_db: float | None = None, noise_db: float | None = None, 
         raise CavityError("noise and bandwidth go together: give both --noise and --bandwidth, or neither")
     if bandwidth_hz is not None and not (math.isfinite(bandwidth_hz) and bandwidth_hz > 0):
         raise CavityError(f"bandwidth = {bandwidth_hz!r} Hz must be a positive number")
-    if noise_db is not None:
+    if noise_db is not None and bandwidth_hz is not None:
         if required_db is not None:
             raise CavityError("give --required (a field) or --noise/--bandwidth (a signal-to-noise ratio), not both")
         band = noise_in_bandwidth_db(noise_db, bandwidth_hz)
         return Level(
             field_db=band + float(snr_db),
             label=f"SNR {snr_db:g} dB",
-            definition=(f"SNR = Ez - (N0 + 10 log10(B)) with N0 = {noise_db:g} dB re 1 uV/m per sqrt(Hz) and "
-                        f"B = {bandwidth_hz:g} Hz (noise {band:.1f} dB re 1 uV/m in the band); the level is "
-                        f"SNR = {snr_db:g} dB, a field of {band + snr_db:.1f} dB re 1 uV/m"),
+            definition=(
+                f"SNR = Ez - (N0 + 10 log10(B)) with N0 = {noise_db:g} dB re 1 uV/m per sqrt(Hz) and "
+                f"B = {bandwidth_hz:g} Hz (noise {band:.1f} dB re 1 uV/m in the band); the level is "
+                f"SNR = {snr_db:g} dB, a field of {band + snr_db:.1f} dB re 1 uV/m"
+            ),
             short=f"SNR {snr_db:g} dB",
         )
     if required_db is None:
         return None
-    return Level(float(required_db), f"required {required_db:g} dB re 1 uV/m",
-                 f"required field {required_db:g} dB re 1 uV/m", f"{required_db:g} dB")
+    return Level(
+        float(required_db),
+        f"required {required_db:g} dB re 1 uV/m",
+        f"required field {required_db:g} dB re 1 uV/m",
+        f"{required_db:g} dB",
+    )
 
 
 # --------------------------------------------------------------------------------------------------
@@ -120,10 +132,17 @@ class SectorFigures:
 
 def check_sector(sector_deg) -> None:
     """Refuse a sector width that is not a whole fraction of 360 deg (CavityError, one line)."""
-    ok = (isinstance(sector_deg, (int, float)) and not isinstance(sector_deg, bool) and math.isfinite(sector_deg)
-          and 1.0 <= sector_deg <= 360.0 and abs(360.0 / sector_deg - round(360.0 / sector_deg)) < 1e-9)
+    ok = (
+        isinstance(sector_deg, (int, float))
+        and not isinstance(sector_deg, bool)
+        and math.isfinite(sector_deg)
+        and 1.0 <= sector_deg <= 360.0
+        and abs(360.0 / sector_deg - round(360.0 / sector_deg)) < 1e-9
+    )
     if not ok:
-        raise CavityError(f"sector_deg = {sector_deg!r} must divide 360 deg into whole sectors, 1 to 360 deg (e.g. 30, 45, 90)")
+        raise CavityError(
+            f"sector_deg = {sector_deg!r} must divide 360 deg into whole sectors, 1 to 360 deg (e.g. 30, 45, 90)"
+        )
 
 
 def _fine_bearings(step_deg: float) -> tuple[np.ndarray, float]:
@@ -134,14 +153,15 @@ def _fine_bearings(step_deg: float) -> tuple[np.ndarray, float]:
     return (np.arange(n) + 0.5) * width, width
 
 
-def coverage_figures(ds: xr.Dataset, level_db: float, *, frequency_khz: float | None = None,
-                     sector_deg: float = DEFAULT_SECTOR_DEG) -> list[SectorFigures]:
+def coverage_figures(
+    ds: xr.Dataset, level_db: float, *, frequency_khz: float | None = None, sector_deg: float = DEFAULT_SECTOR_DEG
+) -> list[SectorFigures]:
     """Area at or above ``level_db`` and farthest ranges per sector, from the bearing profiles.
 
     The last entry covers all bearings (0-360). Ranges are km, areas km2 on a sphere of radius
     6371 km (see the module notes).
     """
-    from cavity.coverage import EARTH_RADIUS_KM, profile_values
+    from cavity.sweeps.coverage import EARTH_RADIUS_KM, profile_values
 
     _require_coverage(ds)
     check_sector(sector_deg)
@@ -173,16 +193,26 @@ def coverage_figures(ds: xr.Dataset, level_db: float, *, frequency_khz: float | 
         else:
             lo, hi, sel = 0.0, 360.0, np.ones(fine.size, bool)
         far = farthest[sel]
-        out.append(SectorFigures(
-            sector_from_deg=lo, sector_to_deg=hi, area_km2=float(cell_area[sel].sum()),
-            farthest_km=float(np.nanmax(far)) if np.any(np.isfinite(far)) else math.nan,
-            unbroken_km=float(unbroken[sel].min()),
-        ))
+        out.append(
+            SectorFigures(
+                sector_from_deg=lo,
+                sector_to_deg=hi,
+                area_km2=float(cell_area[sel].sum()),
+                farthest_km=float(np.nanmax(far)) if np.any(np.isfinite(far)) else math.nan,
+                unbroken_km=float(unbroken[sel].min()),
+            )
+        )
     return out
 
 
-def coverage_summary(datasets: Sequence[xr.Dataset] | xr.Dataset, level, fmt: str = "markdown", *,
-                     runs: Sequence[str] | None = None, sector_deg: float = DEFAULT_SECTOR_DEG) -> str:
+def coverage_summary(
+    datasets: Sequence[xr.Dataset] | xr.Dataset,
+    level,
+    fmt: str = "markdown",
+    *,
+    runs: Sequence[str] | None = None,
+    sector_deg: float = DEFAULT_SECTOR_DEG,
+) -> str:
     """The summary of one or more coverage files side by side, as Markdown (with notes) or CSV.
 
     Parameters
@@ -194,10 +224,9 @@ def coverage_summary(datasets: Sequence[xr.Dataset] | xr.Dataset, level, fmt: st
     runs : labels of the datasets (default "1", "2", ... when there are several)
     sector_deg : width of the bearing sectors, degrees (dividing 360)
     """
-    from cavity.report import Column, format_table
+    from cavity.reports.tables import Column, format_table
 
-    if not isinstance(datasets, (list, tuple)):
-        datasets = [datasets]
+    datasets = list(datasets) if isinstance(datasets, (list, tuple)) else [cast("xr.Dataset", datasets)]
     for ds in datasets:
         _require_coverage(ds)
     if level is None:
@@ -210,14 +239,21 @@ def coverage_summary(datasets: Sequence[xr.Dataset] | xr.Dataset, level, fmt: st
         per_run = []
         for ds in datasets:
             have = np.atleast_1d(np.asarray(ds["frequency"].values, float))
-            per_run.append(coverage_figures(ds, level.field_db, frequency_khz=f, sector_deg=sector_deg)
-                           if np.any(np.abs(have - f) < 1e-6) else None)
+            per_run.append(
+                coverage_figures(ds, level.field_db, frequency_khz=f, sector_deg=sector_deg)
+                if np.any(np.abs(have - f) < 1e-6)
+                else None
+            )
         n = len(next(x for x in per_run if x is not None))
         for i in range(n):
             base = next(x for x in per_run if x is not None)[i]
             sector = "all bearings" if i == n - 1 else f"{base.sector_from_deg:g}-{base.sector_to_deg:g}"
-            row = {"frequency_khz": f, "sector": sector, "sector_from_deg": base.sector_from_deg,
-                   "sector_to_deg": base.sector_to_deg}
+            row = {
+                "frequency_khz": f,
+                "sector": sector,
+                "sector_from_deg": base.sector_from_deg,
+                "sector_to_deg": base.sector_to_deg,
+            }
             for run, figs in zip(runs, per_run):
                 fig = figs[i] if figs is not None else None
                 prefix = f"{run}_" if run else ""
@@ -230,7 +266,10 @@ def coverage_summary(datasets: Sequence[xr.Dataset] | xr.Dataset, level, fmt: st
         Column("sector", "Bearings (deg)", "sector"),
     ]
     if fmt == "csv":
-        columns += [Column("sector_from_deg", "", "sector_from_deg", 2), Column("sector_to_deg", "", "sector_to_deg", 2)]
+        columns += [
+            Column("sector_from_deg", "", "sector_from_deg", 2),
+            Column("sector_to_deg", "", "sector_to_deg", 2),
+        ]
     for run in runs:
         prefix = f"{run}_" if run else ""
         name = f"{run}: " if run else ""
@@ -258,7 +297,7 @@ def summary_notes(datasets, level, sector_deg: float) -> list[str]:
         f"interpolated {ds.attrs.get('coverage_interpolation', '')}; the summary reads it every "
         f"{SUMMARY_BEARING_STEP_DEG:g} deg or finer.",
     ]
-    from cavity.report import _text
+    from cavity.reports.tables import _text
 
     cautions = list(dict.fromkeys(_text(d.attrs.get("cautions", "")).strip() for d in datasets))
     cautions = [c for c in cautions if c]
@@ -289,15 +328,17 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
 
-    from cavity.coverage import COVERAGE_CAUTION
     from cavity.geo import points_along
+    from cavity.sweeps.coverage import COVERAGE_CAUTION
 
     _require_coverage(ds)
     freqs = np.atleast_1d(np.asarray(ds["frequency"].values, float))
     if frequency_khz is not None:
         picks = [int(np.argmin(np.abs(freqs - frequency_khz)))]
         if abs(freqs[picks[0]] - frequency_khz) > 1e-6:
-            raise CavityError(f"frequency = {frequency_khz:g} kHz is not in the file (it has {', '.join(f'{f:g}' for f in freqs)} kHz)")
+            raise CavityError(
+                f"frequency = {frequency_khz:g} kHz is not in the file (it has {', '.join(f'{f:g}' for f in freqs)} kHz)"
+            )
     else:
         picks = list(range(freqs.size))
     lat0 = float(ds.attrs["coverage_transmitter_latitude_deg"])
@@ -331,34 +372,69 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
     for panel, k in enumerate(picks):
         ax = fig.add_subplot(math.ceil(n / 2), min(n, 2), panel + 1, projection=proj)
         ax.set_extent([-half, half, -half, half], crs=proj)
-        filled = ax.contourf(lon, lat, amp[k], levels=levels, cmap=COLOUR_MAP, extend="both",
-                             transform=plate, zorder=1)
-        ax.contour(land[1], land[0], land[2], levels=[0.5], colors="#222222", linewidths=0.6,
-                   transform=plate, zorder=3)
-        legend = []
+        filled = ax.contourf(lon, lat, amp[k], levels=levels, cmap=COLOUR_MAP, extend="both", transform=plate, zorder=1)
+        ax.contour(land[1], land[0], land[2], levels=[0.5], colors="#222222", linewidths=0.6, transform=plate, zorder=3)
+        legend: list = []
         if chi is not None:
             # light hatching where the sun is down, denser where the D region is in night
-            ax.contourf(lon, lat, chi, levels=[DAY_LIMIT_DEG, NIGHT_LIMIT_DEG, 181.0], colors="none",
-                        hatches=["..", "xx"], transform=plate, zorder=2)
-            ax.contour(lon, lat, chi, levels=[DAY_LIMIT_DEG, NIGHT_LIMIT_DEG], colors="white",
-                       linestyles=["--", ":"], linewidths=1.0, transform=plate, zorder=3)
+            ax.contourf(
+                lon,
+                lat,
+                chi,
+                levels=[DAY_LIMIT_DEG, NIGHT_LIMIT_DEG, 181.0],
+                colors="none",
+                hatches=["..", "xx"],
+                transform=plate,
+                zorder=2,
+            )
+            ax.contour(
+                lon,
+                lat,
+                chi,
+                levels=[DAY_LIMIT_DEG, NIGHT_LIMIT_DEG],
+                colors="white",
+                linestyles=["--", ":"],
+                linewidths=1.0,
+                transform=plate,
+                zorder=3,
+            )
             legend += [
-                Patch(facecolor="none", hatch="..", edgecolor="#555555",
-                      label=f"sun below the horizon (chi > {DAY_LIMIT_DEG:g} deg)"),
-                Patch(facecolor="none", hatch="xx", edgecolor="#555555",
-                      label=f"D-region night (chi > {NIGHT_LIMIT_DEG:g} deg)"),
+                Patch(
+                    facecolor="none",
+                    hatch="..",
+                    edgecolor="#555555",
+                    label=f"sun below the horizon (chi > {DAY_LIMIT_DEG:g} deg)",
+                ),
+                Patch(
+                    facecolor="none",
+                    hatch="xx",
+                    edgecolor="#555555",
+                    label=f"D-region night (chi > {NIGHT_LIMIT_DEG:g} deg)",
+                ),
             ]
         if level is not None:
             for colour, width in (("white", 3.4), ("black", 1.6)):
-                lines = ax.contour(lon, lat, amp[k], levels=[level.field_db], colors=colour, linewidths=width,
-                                   transform=plate, zorder=4)
+                lines = ax.contour(
+                    lon,
+                    lat,
+                    amp[k],
+                    levels=[level.field_db],
+                    colors=colour,
+                    linewidths=width,
+                    transform=plate,
+                    zorder=4,
+                )
             if lines.allsegs and any(len(s) for s in lines.allsegs):
                 ax.clabel(lines, fmt={level.field_db: level.short}, fontsize=9, inline=True)
             legend.append(Line2D([], [], color="black", linewidth=1.6, label=f"{level.label}"))
         ax.plot(edge_lon, edge_lat, color="#444444", linewidth=0.8, linestyle="-.", transform=ccrs.Geodetic(), zorder=4)
         ax.gridlines(draw_labels=True, linewidth=0.3, color="#444444", alpha=0.5, linestyle="--")
-        style = dict(fontsize=8, zorder=7, transform=plate,
-                     bbox=dict(boxstyle="round,pad=0.2", facecolor="white", alpha=0.8, linewidth=0))
+        style = dict(
+            fontsize=8,
+            zorder=7,
+            transform=plate,
+            bbox=dict(boxstyle="round,pad=0.2", facecolor="white", alpha=0.8, linewidth=0),
+        )
         ax.plot(lon0, lat0, marker="*", markersize=15, color="white", markeredgecolor="k", transform=plate, zorder=6)
         for i, name in enumerate(names):
             rlat = float(ds["receiver_latitude"].values[i])
@@ -366,10 +442,19 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
             ax.plot(rlon, rlat, marker="o", markersize=6, color="white", markeredgecolor="k", transform=plate, zorder=6)
             ax.text(rlon, rlat, f"  {name}", ha="left", va="top", **style)
         legend += [
-            Line2D([], [], marker="*", color="white", markeredgecolor="k", markersize=11, linestyle="none",
-                   label="transmitter"),
-            Line2D([], [], marker="o", color="white", markeredgecolor="k", markersize=6, linestyle="none",
-                   label="receiver"),
+            Line2D(
+                [],
+                [],
+                marker="*",
+                color="white",
+                markeredgecolor="k",
+                markersize=11,
+                linestyle="none",
+                label="transmitter",
+            ),
+            Line2D(
+                [], [], marker="o", color="white", markeredgecolor="k", markersize=6, linestyle="none", label="receiver"
+            ),
             Line2D([], [], color="#444444", linewidth=0.8, linestyle="-.", label=f"map edge, {range_km:g} km"),
             Line2D([], [], color="#222222", linewidth=0.6, label="coast (land/sea mask)"),
         ]
@@ -378,19 +463,22 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
         bar.set_label("Ez, dB re 1 uV/m (RMS)\n" + textwrap.fill(COVERAGE_CAUTION, 110), fontsize=8)
         when = ""
         if "utc" in str(ds.attrs.get("scenario", "")):
-            from cavity.report import scenario_document
+            from cavity.reports.tables import scenario_document
 
             utc = scenario_document(ds).get("ionosphere", {}).get("utc")
             when = f", {utc:%Y-%m-%d %H:%M} UTC" if hasattr(utc, "strftime") else ""
-        ax.set_title(f"{ds.attrs.get('title', '')}\n{freqs[k]:g} kHz{when}; bearings every "
-                     f"{float(ds.attrs.get('coverage_bearing_step_deg', np.nan)):g} deg, interpolated between",
-                     fontsize=9)
+        ax.set_title(
+            f"{ds.attrs.get('title', '')}\n{freqs[k]:g} kHz{when}; bearings every "
+            f"{float(ds.attrs.get('coverage_bearing_step_deg', np.nan)):g} deg, interpolated between",
+            fontsize=9,
+        )
     return fig
 
 
-def plot_coverage(ds: xr.Dataset, output, *, level: Level | None = None, frequency_khz: float | None = None,
-                  dpi: int = 150):
+def plot_coverage(
+    ds: xr.Dataset, output, *, level: Level | None = None, frequency_khz: float | None = None, dpi: int = 150
+):
     """Draw :func:`coverage_figure` and write it (PNG or PDF) atomically; returns the path."""
-    from cavity.report import save_figure
+    from cavity.files import save_figure
 
     return save_figure(coverage_figure(ds, level=level, frequency_khz=frequency_khz), output, dpi=dpi)
