@@ -100,7 +100,7 @@ def _finite(ctx, param, value):
     "--summary",
     type=click.Path(dir_okay=False, path_type=Path),
     metavar="FILE",
-    help="Summary, .md (a .csv is written beside it) [default: OUTPUT with .md; only with a level].",
+    help="Summary file; Markdown and CSV are both written (NAME.md, NAME.csv) [default: OUTPUT with .md; only with a level].",
 )
 @click.option(
     "--scheduler",
@@ -178,9 +178,10 @@ def command(
     tables = []
     if level is not None:
         summary = summary or target.with_suffix(".md")
-        tables = [(summary, "markdown")]
-        if summary.suffix.lower() != ".csv":
-            tables.append((summary.with_suffix(".csv"), "csv"))
+        if summary.suffix.lower() == ".csv":  # the CSV named, the Markdown beside it
+            tables = [(summary.with_suffix(".md"), "markdown"), (summary, "csv")]
+        else:
+            tables = [(summary, "markdown"), (summary.with_suffix(".csv"), "csv")]
         for path, _ in tables:
             check_output_file(path, overwrite, what="summary")
     elif summary is not None:
