@@ -26,7 +26,7 @@ column f = (Ex, Ey, H~x, H~y) obeys the first-order system d f / d(k0 z) = A(z) 
 Ez and H~z eliminated). Above the top level the medium is taken as homogeneous; the two
 characteristic waves that decay upward start the integration, which then steps down through thin
 homogeneous layers (each the mean tensor of its two bounding levels; f(z - h) = exp(-A h) f(z),
-the exponential of each 4 x 4 layer matrix by scaling and squaring) to the ground. The two
+the exponential of each balanced 4 x 4 layer matrix applied by Taylor substeps) to the ground. The two
 solutions are re-orthonormalised after every layer, which keeps their span (all that matters)
 and avoids the swamping of the less fast-growing one (the purpose of Pitteway's 1965
 re-orthogonalisation). At the ground the span is split into free-space up- and downgoing waves with
@@ -78,6 +78,7 @@ Wait, J. R. (1960), J. Res. NBS 64D(2), 153-204 (mode sum between plates).
 
 from __future__ import annotations
 
+import logging
 import math
 from dataclasses import dataclass, field
 
@@ -101,6 +102,8 @@ __all__ = [
     "modal_determinant",
     "layer_matrix",
 ]
+
+log = logging.getLogger(__name__)
 
 #: 20 log10(e): dB per neper.
 DB_PER_NEPER = 20.0 / math.log(10.0)
@@ -249,69 +252,78 @@ def _integrate_down(a_layers, thickness, f):
     """Step the 4 x 2 solution ``f`` down through layers (top first): f <- exp(-A h) f, re-orthonormalised.
 
     ``a_layers`` (n, 4, 4) are the layer matrices, ``thickness`` (n,) the layer thicknesses in units of
-    1 / k0. The exponential is a Taylor polynomial (up to degree 14, stopped when a term falls below 1e-18)
-    of the matrix scaled to norm <= 1/2, squared back (scaling and squaring). After each layer the two columns are
-    made orthonormal (Gram-Schmidt), which keeps their span. Plain Python; compiled by numba on use.
+    1 / k0. In a dense plasma A is far from normal (entries ~ |eps| while its eigenvalues are
+    ~ sqrt|eps|), so each layer is first balanced, B = D^-1 A D with D = diag(1, 1, d, d) (the H~ rows
+    scaled by d ~ the layer's index), exp(-A h) = D exp(-B h) D^-1. exp(-B h) is applied to the columns
+    as 2^m substeps of a Taylor polynomial (up to degree 14, stopped when a term falls below 1e-18
+    of the column) with ||B h|| / 2^m <= 1/2, i.e. scaling and squaring applied to the vectors. After
+    each layer the two columns are made orthonormal (Gram-Schmidt, Hermitian product), which keeps
+    their span. Plain Python; compiled by numba on use.
     """
     n = a_layers.shape[0]
-    m = np.empty((4, 4), dtype=np.complex128)
-    term = np.empty((4, 4), dtype=np.complex128)
-    tmp = np.empty((4, 4), dtype=np.complex128)
+    bal = np.empty((4, 4), dtype=np.complex128)
     g = np.empty((4, 2), dtype=np.complex128)
+    term = np.empty((4, 2), dtype=np.complex128)
+    nxt = np.empty((4, 2), dtype=np.complex128)
     for layer in range(n):
         h = thickness[layer]
+        top_right = 0.0
+        bottom_left = 0.0
+        for i in range(2):
+            for j in range(2):
+                v = a_layers[layer, i, j + 2]
+                top_right = max(top_right, abs(v.real) + abs(v.imag))
+                v = a_layers[layer, i + 2, j]
+                bottom_left = max(bottom_left, abs(v.real) + abs(v.imag))
+        d = 1.0
+        if top_right > 0.0 and bottom_left > 0.0:
+            d = min(max((bottom_left / top_right) ** 0.5, 1e-3), 1e3)
         norm = 0.0
         for i in range(4):
             row = 0.0
             for j in range(4):
-                row += abs(a_layers[layer, i, j])
-            if row > norm:
-                norm = row
+                v = a_layers[layer, i, j]
+                if i < 2 and j >= 2:
+                    v = v * d
+                elif i >= 2 and j < 2:
+                    v = v / d
+                bal[i, j] = -h * v
+                row += abs(v.real) + abs(v.imag)
+            norm = max(norm, row)
         norm *= h
-        squarings = 0
+        substeps = 1
         while norm > 0.5:
             norm *= 0.5
-            squarings += 1
-        scale = -h / (2.0**squarings)
+            substeps *= 2
         for i in range(4):
             for j in range(4):
-                b = a_layers[layer, i, j] * scale
-                term[i, j] = b
-                m[i, j] = b
-            m[i, i] += 1.0
-        for k in range(2, 15):
-            biggest = 0.0
+                bal[i, j] = bal[i, j] / substeps
+        # g = D^-1 f
+        for c in range(2):
             for i in range(4):
-                for j in range(4):
-                    acc = 0j
-                    for q in range(4):
-                        acc += term[i, q] * a_layers[layer, q, j]
-                    tmp[i, j] = acc * scale / k
-                    size = abs(tmp[i, j])
-                    if size > biggest:
-                        biggest = size
-            for i in range(4):
-                for j in range(4):
-                    term[i, j] = tmp[i, j]
-                    m[i, j] += tmp[i, j]
-            if biggest < 1e-18:
-                break
-        for _ in range(squarings):
-            for i in range(4):
-                for j in range(4):
-                    acc = 0j
-                    for q in range(4):
-                        acc += m[i, q] * m[q, j]
-                    tmp[i, j] = acc
-            for i in range(4):
-                for j in range(4):
-                    m[i, j] = tmp[i, j]
-        for i in range(4):
+                g[i, c] = f[i, c] / d if i >= 2 else f[i, c]
+        for _ in range(substeps):
             for c in range(2):
-                acc = 0j
-                for q in range(4):
-                    acc += m[i, q] * f[q, c]
-                g[i, c] = acc
+                size = 0.0
+                for i in range(4):
+                    term[i, c] = g[i, c]
+                    size = max(size, abs(g[i, c].real) + abs(g[i, c].imag))
+                for k in range(1, 15):
+                    biggest = 0.0
+                    for i in range(4):
+                        acc = 0j
+                        for q in range(4):
+                            acc += bal[i, q] * term[q, c]
+                        nxt[i, c] = acc / k
+                        biggest = max(biggest, abs(nxt[i, c].real) + abs(nxt[i, c].imag))
+                    for i in range(4):
+                        term[i, c] = nxt[i, c]
+                        g[i, c] += nxt[i, c]
+                    if biggest < 1e-18 * size:
+                        break
+        for c in range(2):
+            for i in range(2, 4):
+                g[i, c] = g[i, c] * d
         # Gram-Schmidt on the two columns (Hermitian inner product).
         n0 = 0.0
         for i in range(4):
@@ -610,10 +622,9 @@ def magnetised_modes(
 ) -> MagnetisedModes:
     """Modes of a flat (earth-flattened) guide with a magnetised ionosphere, followed from B0 = 0.
 
-    At B0 = 0 the TM modes start from the isotropic reference (:func:`cavity.reference.modes.solve_modes`)
-    and the TE modes from the perfect-guide values C = n pi / (k0 h) with h the height where the
-    plasma reflects (X = 1, omega_p = omega); each is refined by Newton's method on its factor of
-    D(C). Every mode is then followed on D(C) = det(I - Rg R) while the field is turned on
+    At B0 = 0 the TM modes start from the isotropic reference (:func:`cavity.reference.modes.solve_modes`),
+    refined by Newton's method on the TM factor of D(C); the TE modes are the roots of the TE factor
+    reached by secant iterations from a lattice of starting values (0 < Re C < 0.65). Every mode is then followed on D(C) = det(I - Rg R) while the field is turned on
     (:func:`_continue`: geometric steps of the field from 1e-3 of it, predictor and secant
     corrector, steps halved when a root would jump toward another). Modes
     attenuated by more than ``max_attenuation_db_per_mm`` at the end are dropped. A root that two
@@ -654,19 +665,19 @@ def magnetised_modes(
         root, ok = _newton(lambda x: iso_guide.scalar(x, "TM"), c)
         if ok:
             starts.append((_canonical(root), f"TM{n + 1}"))
-    # TE: perfect-guide start with h where omega_p = omega (X = 1), then Newton on the TE factor.
-    omega_p2 = ne * ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
-    above = np.flatnonzero(omega_p2 >= (2.0 * math.pi * f) ** 2)
-    h = z[above[0]] if above.size else z[-1]
+    # TE: secant iterations on the TE factor from a lattice of starting values in the C plane.
     te_roots = []
-    for n in range(1, n_te + 4):
-        c = n * math.pi / (k0 * h) * (1.0 - 0.05j)
-        root, ok = _newton(lambda x: iso_guide.scalar(x, "TE"), c, max_step=0.2)
-        # C = 0 (grazing) is where the free-space split is singular, not a mode of a lossy guide.
-        if ok and abs(root) > 1e-4:
-            root = _canonical(root)
-            if all(abs(root - other) > 1e-6 for other in te_roots):
-                te_roots.append(root)
+    if n_te > 0:
+        for re in np.linspace(0.005, 0.65, 14):
+            for im in (0.0, 0.03, 0.08):
+                root, ok = _secant(lambda x: iso_guide.scalar(x, "TE"), complex(re, im), max_move=0.15)
+                # C = 0 (grazing) is where the free-space split is singular, not a mode of a lossy guide.
+                if not ok or abs(root) < 1e-4:
+                    continue
+                root = _canonical(root)
+                att = -DB_PER_NEPER * (k0 * np.sqrt(1 - root * root)).imag * 1e6
+                if 0.0 <= att <= max_attenuation_db_per_mm and all(abs(root - o) > 1e-6 for o in te_roots):
+                    te_roots.append(root)
     te_roots.sort(key=lambda c: -(k0 * np.sqrt(1 - c * c)).imag)
     starts += [(c, f"TE{n + 1}") for n, c in enumerate(te_roots[:n_te])]
 
@@ -703,8 +714,11 @@ def magnetised_modes(
     )
 
 
-def _secant(fun, c, tol=1e-11, max_iter=20):
-    """Secant iteration from c (second point c (1 + 1e-6)); returns (root, converged)."""
+def _secant(fun, c, tol=1e-11, max_iter=20, max_move=0.5):
+    """Secant iteration from c (second point c (1 + 1e-6)); returns (root, converged).
+
+    Gives up (not converged) as soon as an iterate is farther than ``max_move`` from c.
+    """
     c0, c1 = c, c + 1e-6 * max(abs(c), 1e-2)
     f0, f1 = fun(c0), fun(c1)
     for _ in range(max_iter):
@@ -713,6 +727,8 @@ def _secant(fun, c, tol=1e-11, max_iter=20):
         step = f1 * (c1 - c0) / (f1 - f0)
         c0, f0 = c1, f1
         c1 = c1 - step
+        if abs(c1 - c) > max_move:
+            return c1, False
         if abs(step) < tol * max(abs(c1), 1e-3):
             return c1, True
         f1 = fun(c1)
@@ -731,7 +747,7 @@ def _continue(guide_at, roots):
     parts in 1e3) to 1: the gyrofrequency passes the wave frequency at a few percent of the
     geomagnetic field, where the roots move fastest. Predictor: linear in log t from the last two
     steps; corrector: secant iteration on D. A step is accepted when every root converged within a
-    quarter of its distance to the nearest other root (from the prediction) and the roots stay
+    third of its distance to the nearest other root (from the prediction) and the roots stay
     distinct; otherwise it is halved (down to 1/64 of a doubling).
     """
     roots = [complex(c) for c in roots]
@@ -758,8 +774,8 @@ def _continue(guide_at, roots):
         gaps = [min([abs(a - b) for j, b in enumerate(roots) if j != i] or [1.0]) for i, a in enumerate(roots)]
         new, fine = [], True
         for p, gap in zip(predicted, gaps):
-            root, ok = _secant(guide.det, p)
-            if not ok or abs(root - p) > gap / 4.0:
+            root, ok = _secant(guide.det, p, max_move=gap / 3.0)
+            if not ok:
                 fine = False
                 break
             new.append(root)
@@ -768,10 +784,11 @@ def _continue(guide_at, roots):
                 for j in range(i):
                     if abs(new[i] - new[j]) < 1e-6 * max(abs(new[i]), 1e-3):
                         fine = False
+        log.debug("continuation: t = %.5f, step %.4f, %s", math.exp(new_log_t), step, "ok" if fine else "halved")
         if fine:
             roots, log_t = new, new_log_t
             history.append((log_t, roots))
-            step = min(2.0 * step, _LOG_STEP)
+            step = min(1.5 * step, _LOG_STEP)
         else:
             step /= 2.0
             if step < _LOG_STEP / 64.0:
