@@ -373,8 +373,11 @@ def _profile(altitude_m, eps_tensor, frequency_hz) -> _Profile:
     if not np.all(np.isfinite(z)) or z[0] != 0.0:
         raise ScenarioError(f"altitude_m starts at {z[0]} m; allowed: a finite grid starting at 0 m (the ground)")
     steps = np.diff(z)
-    if np.any(steps <= 0.0):
-        raise ScenarioError(f"altitude_m is not strictly increasing at {z[1:][steps <= 0.0][0]} m; allowed: increasing")
+    if np.any(steps < 0.0) or np.any((steps[1:] == 0.0) & (steps[:-1] == 0.0)) or steps[0] == 0.0:
+        raise ScenarioError(
+            "altitude_m must increase; allowed: increasing, with an altitude above the ground given "
+            "at most twice (a sharp boundary)"
+        )
     eps = np.asarray(eps_tensor, dtype=complex)
     if eps.shape != (z.size, 3, 3) or not np.all(np.isfinite(eps)):
         raise ScenarioError(f"eps_tensor has shape {eps.shape}; allowed: finite, shape ({z.size}, 3, 3)")
@@ -428,8 +431,9 @@ def ionosphere_reflection(altitude_m, eps_tensor, frequency_hz: float, cos_incid
     Parameters
     ----------
     altitude_m : array_like (levels,)
-        Altitude grid (m) from 0 (the ground) to the top level, strictly increasing; the medium above
-        the top level is taken as homogeneous.
+        Altitude grid (m) from 0 (the ground) to the top level, increasing; an altitude given twice
+        is a sharp boundary (a layer of zero thickness between the two values). The medium above the
+        top level is taken as homogeneous.
     eps_tensor : array_like (levels, 3, 3)
         Relative permittivity tensor at each level, path frame (:func:`magnetoionic_permittivity`).
     frequency_hz : float
@@ -567,11 +571,17 @@ class _Guide:
         return complex(1.0 - rg[i, i] * r[i, i])
 
 
-def _newton(fun, c, tol=1e-11, max_iter=30, max_step=None):
-    """Newton's method with a central-difference derivative; returns (root, converged)."""
+def _newton(fun, c, tol=1e-11, max_iter=30, max_step=None, ftol=1e-10):
+    """Newton's method with a central-difference derivative; returns (root, converged).
+
+    Converged when the step is below ``tol`` relative or the residual below ``ftol`` (D and its
+    factors are of order one away from roots; near C = 0 rounding leaves residuals of ~1e-11).
+    """
     for _ in range(max_iter):
         h = 1e-6 * max(abs(c), 1e-2)
         f0 = fun(c)
+        if abs(f0) < ftol:
+            return c, True
         d = (fun(c + h) - fun(c - h)) / (2.0 * h)
         if d == 0 or not np.isfinite(d):
             return c, False
@@ -579,7 +589,7 @@ def _newton(fun, c, tol=1e-11, max_iter=30, max_step=None):
         if max_step is not None and abs(step) > max_step:
             step *= max_step / abs(step)
         c = c - step
-        if abs(step) < tol * max(abs(c), 1e-3):
+        if abs(step) < tol * max(abs(c), 1e-2):
             return c, True
     return c, False
 
@@ -595,6 +605,10 @@ def _canonical(c):
 def _isotropic_starts(altitude_m, ne, nu, frequency_hz, ground, earth_flattening, earth_radius_m, n_modes):
     """TM starting values from the isotropic reference (cavity.reference.modes.solve_modes)."""
     from cavity.reference import modes as iso
+
+    # A repeated altitude (sharp boundary): the finite elements take the upper value at that level.
+    keep = np.append(np.diff(altitude_m) > 0.0, True)
+    altitude_m, ne, nu = altitude_m[keep], ne[keep], nu[keep]
 
     eps = iso.ionosphere_permittivity(
         altitude_m, ne, nu, frequency_hz, earth_flattening=earth_flattening, earth_radius_m=earth_radius_m
@@ -662,7 +676,7 @@ def magnetised_modes(
     iso_guide = guide_at(0.0)
     starts = []
     for n, c in enumerate(_isotropic_starts(z, ne, nu, f, ground, earth_flattening, earth_radius_m, n_tm)):
-        root, ok = _newton(lambda x: iso_guide.scalar(x, "TM"), c)
+        root, ok = _newton(lambda x: iso_guide.scalar(x, "TM"), c, max_iter=60)
         if ok:
             starts.append((_canonical(root), f"TM{n + 1}"))
     # TE: secant iterations on the TE factor from a lattice of starting values in the C plane.
@@ -729,7 +743,7 @@ def _secant(fun, c, tol=1e-11, max_iter=20, max_move=0.5):
         c1 = c1 - step
         if abs(c1 - c) > max_move:
             return c1, False
-        if abs(step) < tol * max(abs(c1), 1e-3):
+        if abs(step) < tol * max(abs(c1), 1e-2):
             return c1, True
         f1 = fun(c1)
     return c1, False
