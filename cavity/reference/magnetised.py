@@ -54,7 +54,7 @@ d = R u, s = (1, 0), and the residues in the lower half of the horizontal-wavenu
 the same form and the same Lambda as :class:`cavity.reference.modes.ModeSet` (for B0 = 0 it is the
 TM excitation U(0)^2 / (eps(0)^2 Int U^2 / eps dz); for perfect plates Wait's 2 / h). The horizontal
 components of a mode follow from the same residue: Ephi = -Ez N_tp / (S N_pp), H~phi = -Ez / S,
-H~r = Ez C [(R - I) adj(I - Rg R)(I + Rg)]_tp / (S N_pp). The cylindrical spreading
+H~r = -Ez C [(R - I) adj(I - Rg R)(I + Rg)]_tp / (S N_pp). The cylindrical spreading
 of the source is the one of H0^(2); the medium is taken as that of the path's bearing in every
 direction (the path-plane approximation of the engine), so the horizontal components use the far
 form (H1 ~ j H0).
@@ -629,20 +629,24 @@ def magnetised_modes(
     ground=(5.0, 70.0),
     earth_flattening: bool = True,
     earth_radius_m: float = EARTH_RADIUS_M,
-    n_tm: int = 6,
-    n_te: int = 3,
-    max_attenuation_db_per_mm: float = 60.0,
+    max_attenuation_db_per_mm: float = 30.0,
+    start_attenuation_db_per_mm: float | None = None,
+    n_tm: int | None = None,
+    n_te: int | None = None,
     ground_model: str = "leontovich",
 ) -> MagnetisedModes:
     """Modes of a flat (earth-flattened) guide with a magnetised ionosphere, followed from B0 = 0.
 
     At B0 = 0 the TM modes start from the isotropic reference (:func:`cavity.reference.modes.solve_modes`),
     refined by Newton's method on the TM factor of D(C); the TE modes are the roots of the TE factor
-    reached by secant iterations from a lattice of starting values (0 < Re C < 0.65). Every mode is then followed on D(C) = det(I - Rg R) while the field is turned on
-    (:func:`_continue`: geometric steps of the field from 1e-3 of it, predictor and secant
-    corrector, steps halved when a root would jump toward another). Modes
-    attenuated by more than ``max_attenuation_db_per_mm`` at the end are dropped. A root that two
-    modes reach is an error (a lost mode).
+    reached by secant iterations from a lattice of starting values (0 < Re C < 0.65). Every mode
+    below ``start_attenuation_db_per_mm`` at B0 = 0 is then followed on D(C) = det(I - Rg R) while
+    the field is turned on (:func:`_continue`: geometric steps of the field from 1e-3 of it,
+    predictor and secant corrector, steps halved when a root would jump toward another). Modes
+    attenuated by more than ``max_attenuation_db_per_mm`` at the end are dropped. The field can
+    lower a mode's attenuation a lot (a TE mode of 20 dB/Mm at B0 = 0 can end below 5), so the
+    starting window is wider than the final one. A root that two modes reach is an error (a lost
+    mode).
 
     Parameters
     ----------
@@ -655,8 +659,14 @@ def magnetised_modes(
         (B_r, B_phi, B_z) in T (:func:`field_from_dip_azimuth`, :func:`enu_to_path_frame`).
     frequency_hz : float
     ground : (conductivity S/m, relative permittivity)
-    n_tm, n_te : int
-        Number of TM and TE modes (least attenuated at B0 = 0) to follow.
+    max_attenuation_db_per_mm : float
+        Modes attenuated more at the full field are left out.
+    start_attenuation_db_per_mm : float, optional
+        Modes attenuated less at B0 = 0 are followed (default twice ``max_attenuation_db_per_mm``).
+    n_tm, n_te : int, optional
+        Follow at most this many TM and TE modes (least attenuated at B0 = 0) instead.
+    ground_model : {"leontovich", "fresnel"}
+        See :func:`ground_reflection`.
     """
     import time
 
@@ -668,6 +678,12 @@ def magnetised_modes(
     nu = np.broadcast_to(np.asarray(collision_frequency_s, dtype=float), z.shape)
     ground = (float(ground[0]), float(ground[1]))
     k0 = 2.0 * math.pi * f / C0
+    window = 2.0 * float(max_attenuation_db_per_mm) if start_attenuation_db_per_mm is None else float(start_attenuation_db_per_mm)
+    n_tm = 30 if n_tm is None else int(n_tm)
+    n_te = 30 if n_te is None else int(n_te)
+
+    def attenuation(c):
+        return -DB_PER_NEPER * (k0 * np.sqrt(1 - c * c)).imag * 1e6
 
     def guide_at(fraction):
         eps = magnetoionic_permittivity(z, ne, nu, b * fraction, f, earth_flattening, earth_radius_m)
@@ -677,7 +693,7 @@ def magnetised_modes(
     starts = []
     for n, c in enumerate(_isotropic_starts(z, ne, nu, f, ground, earth_flattening, earth_radius_m, n_tm)):
         root, ok = _newton(lambda x: iso_guide.scalar(x, "TM"), c, max_iter=60)
-        if ok:
+        if ok and attenuation(root) <= window:
             starts.append((_canonical(root), f"TM{n + 1}"))
     # TE: secant iterations on the TE factor from a lattice of starting values in the C plane.
     te_roots = []
@@ -689,8 +705,7 @@ def magnetised_modes(
                 if not ok or abs(root) < 1e-4:
                     continue
                 root = _canonical(root)
-                att = -DB_PER_NEPER * (k0 * np.sqrt(1 - root * root)).imag * 1e6
-                if 0.0 <= att <= max_attenuation_db_per_mm and all(abs(root - o) > 1e-6 for o in te_roots):
+                if 0.0 <= attenuation(root) <= window and all(abs(root - o) > 1e-6 for o in te_roots):
                     te_roots.append(root)
     te_roots.sort(key=lambda c: -(k0 * np.sqrt(1 - c * c)).imag)
     starts += [(c, f"TE{n + 1}") for n, c in enumerate(te_roots[:n_te])]
@@ -831,7 +846,7 @@ def _mode_quantities(guide: _Guide, c, k0):
     npp, ntp = n_sum[0, 0], n_sum[1, 0]
     ephi = -ntp / (s * npp)
     hphi = -1.0 / s
-    hr = c * n_diff[1, 0] / (s * npp)
+    hr = -c * n_diff[1, 0] / (s * npp)
     frac = abs(core[0, 0]) ** 2 / (abs(core[0, 0]) ** 2 + abs(core[1, 0]) ** 2)
     return kn, lam, ephi, hphi, hr, frac
 
