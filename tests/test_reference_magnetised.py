@@ -318,9 +318,9 @@ def test_east_beats_west_at_night(night_east_west):
 
 @pytest.mark.slow
 def test_no_mode_lost_or_duplicated(night_east_west):
-    # The modes followed from B0 = 0 are distinct, and a search from a lattice of starting points
-    # at the full field (secant iteration on D(C), an independent route to the roots) finds no
-    # root below 6 dB/Mm that the continuation missed. Each mode's fields obey the ground's
+    # The modes are distinct, and Newton's method from a finer lattice of starting points at the
+    # full field (another route to the roots than the continuation and the module's own secant
+    # lattice) finds no root below 6 dB/Mm that is not in the set. Each mode's fields obey the ground's
     # Leontovich condition Ey = Zs Hx (Ephi = Zs Hr), which the field ratios do not use directly.
     f = 17.3e3
     z = grid()
@@ -332,9 +332,9 @@ def test_no_mode_lost_or_duplicated(night_east_west):
     guide = mg._Guide(mg._profile(z, eps, f), f, SEA, "leontovich")
     k0 = 2 * math.pi * f / C0
     found = []
-    for re in np.linspace(0.05, 0.45, 9):
-        for im in (0.0, 0.02, 0.05):
-            root, ok = mg._secant(guide.det, complex(re, im))
+    for re in np.linspace(0.02, 0.5, 25):
+        for im in (0.005, 0.02, 0.05):
+            root, ok = mg._newton(guide.det, complex(re, im), max_step=0.05)
             if not ok:
                 continue
             root = mg._canonical(root)
@@ -343,7 +343,7 @@ def test_no_mode_lost_or_duplicated(night_east_west):
                 found.append(root)
     assert found
     for root in found:
-        assert np.min(np.abs(c - root)) < 1e-6, f"root C = {root:.6f} missed by the continuation"
+        assert np.min(np.abs(c - root)) < 1e-6, f"root C = {root:.6f} missed by the mode search"
     zs = dipole.surface_impedance(f, *SEA)
     assert np.allclose(ms.ephi_ratio, zs * ms.hr_ratio / ETA0, rtol=1e-5)
 
