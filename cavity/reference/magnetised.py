@@ -776,7 +776,10 @@ def _lattice_roots(fun, attenuation, max_attenuation):
     found = []
     for re in np.linspace(0.005, 0.65, 14):
         for im in (0.0, 0.03, 0.08):
-            root, ok = _secant(fun, complex(re, im), max_move=0.15)
+            try:
+                root, ok = _secant(fun, complex(re, im), max_move=0.15)
+            except SolverError:  # a start where the top medium's upgoing pair is ambiguous
+                continue
             # C = 0 (grazing) is where the free-space split is singular, not a mode of a lossy guide.
             if not ok or abs(root) < 1e-4:
                 continue
