@@ -16,9 +16,10 @@ import pytest
 
 from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, ETA0
 from cavity.errors import ScenarioError
-from cavity.reference import dipole, magnetised as mg, modes, plates
+from cavity.reference import dipole, modes, plates
+from cavity.reference import magnetised as mg
 
-SEA = (5.0, 70.0)  # ITU-R P.527 class values (physics.md 5)
+SEA = (5.0, 70.0)  # ITU-R P.527 class values (cavity/ground.py)
 LAND = (1e-3, 15.0)
 DAY = (71.8, 0.335)  # Thomson, Clilverd and Rodger 2011
 NIGHT = (85.1, 0.63)  # Thomson, Clilverd and McRae 2007
@@ -112,7 +113,7 @@ def test_booker_quartic_matches_appleton_hartree():
 
 
 def test_path_frame_of_the_field():
-    # physics.md 11 / issue text: B_r = Be sin b + Bn cos b, B_phi = -Be cos b + Bn sin b, B_z = Bu;
+    # Path frame (module docstring): B_r = Be sin b + Bn cos b, B_phi = -Be cos b + Bn sin b, B_z = Bu;
     # phi = z x r is to the left of the direction of travel, so travelling east under a northward
     # horizontal field gives B_phi = +F cos I, and a downward dip gives B_z = -F sin I.
     f, dip = 48e-6, 20.0
@@ -351,7 +352,7 @@ def test_no_mode_lost_or_duplicated(night_east_west):
 @pytest.mark.slow
 def test_vertical_field_same_in_every_direction():
     # A vertical B0 has no preferred horizontal direction: every azimuth gives the same modes (a
-    # check of the frame conversion; physics.md 11). A dip of 60 deg does not.
+    # check of the frame conversion). A dip of 60 deg does not.
     f = 22.7e3
     z = grid(dz_m=200.0)
     ne, nu = wait_spies(z, *NIGHT)

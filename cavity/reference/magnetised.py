@@ -85,22 +85,29 @@ from dataclasses import dataclass, field
 import numpy as np
 from scipy.special import hankel2e
 
-from cavity.constants import C0, EARTH_RADIUS_M, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, ETA0
+from cavity.constants import (
+    C0,
+    EARTH_RADIUS_M,
+    ELECTRON_CHARGE,
+    ELECTRON_MASS,
+    EPS0,
+    ETA0,
+)
 from cavity.errors import ScenarioError, SolverError
 from cavity.reference.dipole import _check_frequency, _positive, surface_impedance
 
 __all__ = [
-    "MagnetisedModes",
     "GroundFields",
+    "MagnetisedModes",
     "enu_to_path_frame",
     "field_from_dip_azimuth",
     "ground_field",
     "ground_reflection",
     "ionosphere_reflection",
+    "layer_matrix",
     "magnetised_modes",
     "magnetoionic_permittivity",
     "modal_determinant",
-    "layer_matrix",
 ]
 
 log = logging.getLogger(__name__)
@@ -726,7 +733,7 @@ def magnetised_modes(
     out = [_mode_quantities(final, c, k0) for c in roots]
     kept = [i for i, q in enumerate(out) if -DB_PER_NEPER * q[0].imag * 1e6 <= max_attenuation_db_per_mm]
     order = sorted(kept, key=lambda i: -out[i][0].imag)
-    arr = lambda j, dtype=complex: np.array([out[i][j] for i in order], dtype=dtype)  # noqa: E731
+    arr = lambda j, dtype=complex: np.array([out[i][j] for i in order], dtype=dtype)
     return MagnetisedModes(
         frequency_hz=f,
         b_path_frame_t=b.copy(),
