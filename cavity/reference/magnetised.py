@@ -702,6 +702,8 @@ def magnetised_modes(
     iso_guide = guide_at(0.0)
     starts = []
     for n, c in enumerate(_isotropic_starts(z, ne, nu, f, ground, earth_flattening, earth_radius_m, n_tm)):
+        if attenuation(c) > 1.5 * window:  # the isotropic values are close: skip the refinement
+            continue
         root, ok = _newton(lambda x: iso_guide.scalar(x, "TM"), c, max_iter=60)
         if ok and attenuation(root) <= window:
             starts.append((_canonical(root), f"TM{n + 1}"))
