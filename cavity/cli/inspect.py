@@ -6,6 +6,7 @@ import click
 
 from cavity.cli.common import friendly_errors
 
+
 def _latlon(lat: float, lon: float) -> str:
     lon = (lon + 180.0) % 360.0 - 180.0
     return f"{abs(lat):.3f} {'N' if lat >= 0 else 'S'}, {abs(lon):.3f} {'E' if lon >= 0 else 'W'}"
