@@ -224,8 +224,9 @@ def receiver_rows(
     -------
     list of dict
         Keys: receiver, frequency_khz, range_km, bearing_deg (NaN if given by range only), ez_db,
-        ez_uv_per_m, b_db (NaN if absent), phase_deg, daylight, and margin_db / snr_db / run when
-        asked for.
+        ez_uv_per_m, b_db (NaN if absent), phase_deg (the file's unwrapped phase), phase_re_c_deg
+        (:func:`display_phase_deg`, the phase tables show), daylight, and margin_db / snr_db / run
+        when asked for.
     """
     if (noise_db is None) != (bandwidth_hz is None):
         raise CavityError("noise and bandwidth go together: give both --noise and --bandwidth, or neither")
@@ -257,6 +258,7 @@ def receiver_rows(
                 "ez_uv_per_m": float(10.0 ** (ez[i, k] / 20.0)),
                 "b_db": float(b[i, k]),
                 "phase_deg": float(phase[i, k]),
+                "phase_re_c_deg": float(display_phase_deg(phase[i, k], ranges[i], f)),
                 "daylight": daylight[i],
             }
             if required_db is not None:
@@ -284,7 +286,7 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
         Column("ez_db", "Ez (dB re 1 uV/m)", "ez_db_re_1uv_per_m", 3, 1),
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
-        Column("phase_deg", "Ez phase (deg)", "ez_phase_deg", 2, 1),
+        Column("phase_re_c_deg", f"{PHASE_QUANTITY} (deg)", "ez_phase_re_c_delay_deg", 2, 1),
         Column("daylight", "Day/night", "day_night"),
     ]
     if "margin_db" in keys:
@@ -354,8 +356,7 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
             f"SNR = Ez - (N0 + 10 log10(B)) with noise density N0 = {noise_db:g} dB re 1 uV/m per sqrt(Hz) "
             f"and bandwidth B = {bandwidth_hz:g} Hz: noise {band:.1f} dB re 1 uV/m in the band."
         )
-    notes.append("Fields are RMS at the ground; phase relative to the transmitter current (exp(+j omega t)), "
-                 "unwrapped along the path (whole turns included).")
+    notes.append(f"Fields are RMS at the ground; {PHASE_DEFINITION}.")
     cautions = list(dict.fromkeys(_text(ds.attrs.get("cautions", "")).strip() for ds in datasets))
     cautions = [c for c in cautions if c]
     if cautions:
@@ -740,6 +741,56 @@ def relative_phase_deg(phase_deg, range_km, frequency_khz):
     return np.asarray(phase_deg, float) + 360.0 * float(frequency_khz) * 1e3 * np.asarray(range_km, float) * 1e3 / C0
 
 
+def wrap_phase_deg(phase_deg):
+    """Phase wrapped to the interval (-180, 180] deg."""
+    return 180.0 - np.mod(180.0 - np.asarray(phase_deg, dtype=float), 360.0)
+
+
+#: Name of the one phase quantity shown in tables and plots (see :func:`display_phase_deg`).
+PHASE_QUANTITY = "Ez phase re c delay"
+#: Its definition, for table notes and figure captions.
+PHASE_DEFINITION = ("phase re c delay = Ez phase + 360 f d / c (the speed-of-light delay removed; "
+                    "exp(+j omega t), relative to the transmitter current), wrapped to (-180, 180] deg; "
+                    "the result file keeps the unwrapped phase")
+
+
+def display_phase_deg(phase_deg, range_km, frequency_khz):
+    """The phase shown in tables and plots: :func:`relative_phase_deg` wrapped to (-180, 180] deg.
+
+    One quantity everywhere (``cavity table``, ``plot``, ``compare``, the memo), so a number in a
+    table can be found on a plot. Result files keep the unwrapped phase.
+    """
+    return wrap_phase_deg(relative_phase_deg(phase_deg, range_km, frequency_khz))
+
+
+def _break_at_wraps(x, y):
+    """Insert NaN between samples where a wrapped phase jumps by more than 180 deg (no vertical lines)."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    if y.size < 2:
+        return x, y
+    cut = np.flatnonzero(np.abs(np.diff(y)) > 180.0) + 1
+    return np.insert(x, cut, np.nan), np.insert(y, cut, np.nan)
+
+
+def near_field_km(frequency_khz) -> float:
+    """Range within which the near field still turns the phase: one wavelength, km.
+
+    On the ground plane a short vertical dipole's Ez is proportional to
+    (1 + 1/(jkd) + 1/(jkd)^2) exp(-jkd) / d: at kd << 1 the static term leads the radiation term by
+    180 deg, and the phase settles within 10 deg of the far field only beyond d = one wavelength
+    (kd = 2 pi). The steep phase rise at the start of a plot is this, not a wrap.
+    """
+    return C0 / (float(frequency_khz) * 1e3) / 1e3
+
+
+def _mark_near_field(ax_a, ax_p, frequency_khz) -> None:
+    d = near_field_km(frequency_khz)
+    for ax in (ax_a, ax_p):
+        ax.axvspan(0.0, d, color="#bbbbbb", alpha=0.35, linewidth=0, zorder=0)
+    ax_p.annotate(f"near field\n(d < {d:.0f} km)", xy=(d, 0.03), xycoords=("data", "axes fraction"),
+                  xytext=(3, 0), textcoords="offset points", fontsize=7, color="#555555", va="bottom")
+
+
 def _mark_receivers(ax, names, ranges, values, colour, *, label_names: bool, y_text: float | None = None):
     for name, d, v in zip(names, ranges, values):
         ax.axvline(d, color="#777777", linewidth=0.6, linestyle=":", zorder=1)
@@ -751,7 +802,8 @@ def _mark_receivers(ax, names, ranges, values, colour, *, label_names: bool, y_t
                         color="#333333")
 
 
-def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None = None) -> Figure:
+def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None = None,
+                  amplitude_limits: tuple[float, float] | None = None) -> Figure:
     """Amplitude and phase against range: one panel pair per path and frequency, receivers marked.
 
     Parameters
@@ -759,10 +811,13 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
     ds : xarray.Dataset
         A result (not a sweep).
     phase : {"relative", "unwrapped"}
-        "relative" plots :func:`relative_phase_deg` (the speed-of-light delay removed), "unwrapped"
-        the file's unwrapped phase.
+        "relative" plots :func:`display_phase_deg` (the speed-of-light delay removed, wrapped to
+        (-180, 180] deg: the quantity of the tables), "unwrapped" the file's unwrapped phase.
     title : str, optional
         Figure title (default: the result's title).
+    amplitude_limits : (float, float), optional
+        y-limits of the amplitude panels, dB re 1 uV/m; give the same to several figures to draw
+        them on common axes (:func:`common_amplitude_limits`).
 
     Returns
     -------
@@ -796,7 +851,7 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
         rx_n = [names[i] for i in on_path]
         rx_d = rx_range[on_path]
         ax_a.plot(r[ok], amp[p, k][ok], color=RUN_COLOURS[1], linewidth=1.2, label="Ez at the ground")
-        limits = _amplitude_limits([amp[p, k][ok]])
+        limits = amplitude_limits if amplitude_limits is not None else _amplitude_limits([amp[p, k][ok]])
         if limits:
             ax_a.set_ylim(*limits)
         _mark_receivers(ax_a, rx_n, rx_d, rx_amp[on_path, k], RUN_COLOURS[0], label_names=True)
@@ -805,21 +860,25 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
         ax_a.grid(True, alpha=0.3)
         okp = np.isfinite(ph[p, k]) & (r > 0)
         if phase == "relative":
-            y = relative_phase_deg(ph[p, k], r, freqs[k])
-            y_rx = relative_phase_deg(rx_ph[on_path, k], rx_d, freqs[k])
-            ax_p.set_ylabel("Ez phase + 360 f d/c (deg)")
+            y = display_phase_deg(ph[p, k], r, freqs[k])
+            y_rx = display_phase_deg(rx_ph[on_path, k], rx_d, freqs[k])
+            ax_p.set_ylabel(f"{PHASE_QUANTITY} (deg)\nwrapped to (-180, 180]")
+            ax_p.set_ylim(-180.0, 180.0)
+            ax_p.set_yticks(np.arange(-180.0, 181.0, 90.0))
+            ax_p.plot(*_break_at_wraps(r[okp], y[okp]), color=RUN_COLOURS[1], linewidth=1.2)
         else:
             y = ph[p, k]
             y_rx = rx_ph[on_path, k]
             ax_p.set_ylabel("Ez phase, unwrapped (deg)")
-        ax_p.plot(r[okp], y[okp], color=RUN_COLOURS[1], linewidth=1.2)
+            ax_p.plot(r[okp], y[okp], color=RUN_COLOURS[1], linewidth=1.2)
+        _mark_near_field(ax_a, ax_p, freqs[k])
         _mark_receivers(ax_p, rx_n, rx_d, y_rx, RUN_COLOURS[0], label_names=False)
         ax_p.set_xlabel("Ground range from the transmitter (km)")
         ax_p.grid(True, alpha=0.3)
         if ok.any():
             ax_a.set_xlim(0.0, float(r[ok].max()))
     heading = title if title is not None else _text(ds.attrs.get("title", "cavity result"))
-    note = ("phase relative to a wave at the speed of light (+360 f d/c)" if phase == "relative"
+    note = ("phase + 360 f d/c (speed-of-light delay removed), wrapped" if phase == "relative"
             else "phase relative to the transmitter current")
     fig.suptitle(f"{heading}\nRMS vertical field at the ground; {note}; dots: receivers", fontsize=10)
     return fig
@@ -877,10 +936,21 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
     return fig
 
 
-def plot_result(ds: xr.Dataset, output, *, phase: str = "relative", dpi: int = 150) -> Path:
+def common_amplitude_limits(datasets: Sequence[xr.Dataset]) -> tuple[float, float] | None:
+    """Amplitude y-limits shared by several results' plots (so day and night read on one scale)."""
+    values = []
+    for ds in datasets:
+        r = np.asarray(ds["range"].values, dtype=float)
+        amp = np.asarray(ds["ez_amplitude"].values, dtype=float).reshape(-1, r.size)
+        values += [row[_finite_span(r, row)] for row in amp]
+    return _amplitude_limits(values)
+
+
+def plot_result(ds: xr.Dataset, output, *, phase: str = "relative", dpi: int = 150,
+                amplitude_limits: tuple[float, float] | None = None) -> Path:
     """Draw :func:`result_figure` and write it (PNG or PDF, atomically); returns the path."""
     _check_figure_output(output)
-    return save_figure(result_figure(ds, phase=phase), output, dpi=dpi)
+    return save_figure(result_figure(ds, phase=phase, amplitude_limits=amplitude_limits), output, dpi=dpi)
 
 
 def plot_comparison(ds_a: xr.Dataset, ds_b: xr.Dataset, output, label_a: str = "A", label_b: str = "B", *,

@@ -50,8 +50,9 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
         map_path = None
 
     curves = []
+    limits = report.common_amplitude_limits(datasets)  # every run on the same amplitude axis
     for ds, label in zip(datasets, labels):
-        path = report.plot_result(ds, folder / f"{stem}_{label}.png")
+        path = report.plot_result(ds, folder / f"{stem}_{label}.png", amplitude_limits=limits)
         written.append(path)
         curves.append((label, path))
     comparison = None

@@ -100,7 +100,11 @@ def test_table_csv_file_parses_and_equals_the_result(tmp_path):
         assert row["receiver"] == names[i]
         assert float(row["frequency_khz"]) == pytest.approx(freqs[k], abs=5e-5)
         assert abs(float(row["ez_db_re_1uv_per_m"]) - ds["receiver_ez_amplitude"].values[i, k]) <= 5e-4
-        assert abs(float(row["ez_phase_deg"]) - ds["receiver_ez_phase"].values[i, k]) <= 5e-3
+        # phase re c delay: the file's phase + 360 f d / c, wrapped by the complex exponential
+        light = 360.0 * freqs[k] * 1e3 * ds["receiver_range"].values[i] * 1e3 / 299792458.0
+        expected = np.degrees(np.angle(np.exp(1j * np.radians(ds["receiver_ez_phase"].values[i, k] + light))))
+        gap = (float(row["ez_phase_re_c_delay_deg"]) - expected + 180.0) % 360.0 - 180.0
+        assert abs(gap) <= 5e-3 and -180.0 < float(row["ez_phase_re_c_delay_deg"]) <= 180.0
         assert abs(float(row["b_db_re_1ft"]) - ds["receiver_b_amplitude"].values[i, k]) <= 5e-4
         assert abs(float(row["range_km"]) - ds["receiver_range"].values[i]) <= 5e-3
         assert abs(float(row["bearing_deg"]) - ds["receiver_bearing"].values[i]) <= 5e-3

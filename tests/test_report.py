@@ -7,6 +7,7 @@ table and plot code against regressions.
 
 from __future__ import annotations
 
+import cmath
 import csv
 import io
 import math
@@ -24,6 +25,9 @@ from cavity.report import (
     comparison_figure,
     comparison_report,
     comparison_rows,
+    common_amplitude_limits,
+    display_phase_deg,
+    near_field_km,
     noise_in_bandwidth_db,
     plot_comparison,
     plot_result,
@@ -131,6 +135,47 @@ def test_relative_phase_removes_the_light_delay():
     # A faster wave (phase velocity above c, as in the waveguide) gains phase on it.
     faster = phase / 1.003
     assert np.all(np.diff(relative_phase_deg(faster, d, f)) > 0)
+
+
+def test_display_phase_is_wrapped_relative_phase():
+    # The one phase of tables and plots: phase + 360 f d / c wrapped to (-180, 180]; checked
+    # against numpy's angle of the complex exponential, which wraps to (-180, 180] by definition.
+    rng = np.random.default_rng(3)
+    phase = rng.uniform(-90000.0, 1000.0, 500)
+    d = rng.uniform(1.0, 5000.0, 500)
+    shown = display_phase_deg(phase, d, 22.3)
+    light = 360.0 * 22.3e3 * d * 1e3 / C0
+    assert np.allclose(np.exp(1j * np.radians(shown)), np.exp(1j * np.radians(phase + light)), atol=1e-9)
+    assert shown.min() > -180.0 and shown.max() <= 180.0
+    assert float(display_phase_deg(-180.0, 0.0, 20.0)) == 180.0  # the closed end of (-180, 180]
+
+
+def test_near_field_band_holds_the_phase_turn():
+    # Short vertical dipole on a perfect ground plane, Ez proportional to
+    # (1 + 1/(jkd) + 1/(jkd)^2) exp(-jkd) / d (Jackson, Classical Electrodynamics, 3rd ed., 9.2;
+    # exp(+j omega t)). Beyond the band the phase is within 10 deg of the far field; inside it the
+    # phase turns by up to 180 deg, the steep rise at the start of a plot.
+    f = 22.3
+    edge = near_field_km(f)
+    k = 2 * np.pi * f * 1e3 / C0
+    def bracket_phase(d_km):
+        kd = k * np.asarray(d_km) * 1e3
+        return np.degrees(np.angle(1 + 1 / (1j * kd) + 1 / (1j * kd) ** 2))
+    assert np.all(np.abs(bracket_phase(np.linspace(edge, 50 * edge, 400))) < 10.0)
+    assert abs(bracket_phase(0.01 * edge)) > 170.0
+
+
+def test_common_amplitude_limits_cover_both_runs():
+    day = synthetic(3.0, e0_db=80.0)
+    night = synthetic(1.0, ionosphere='preset = "night"', e0_db=95.0)
+    lo, hi = common_amplitude_limits([day, night])
+    for ds in (day, night):
+        a = ds["ez_amplitude"].values[0, 0, 1:]
+        assert lo < np.percentile(a, 1) and hi > np.percentile(a, 99)
+    fig_d = result_figure(day, amplitude_limits=(lo, hi))
+    fig_n = result_figure(night, amplitude_limits=(lo, hi))
+    assert fig_d.axes[0].get_ylim() == fig_n.axes[0].get_ylim() == (lo, hi)
+    assert fig_d.axes[1].get_ylim() == fig_n.axes[1].get_ylim() == (-180.0, 180.0)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -242,7 +287,9 @@ def test_csv_table_parses_and_equals_the_file():
         assert float(row["frequency_khz"]) == float(ds["frequency"].values[k])
         assert abs(float(row["ez_db_re_1uv_per_m"]) - ez) <= 0.0005
         assert abs(float(row["b_db_re_1ft"]) - float(ds["receiver_b_amplitude"].values[i, k])) <= 0.0005
-        assert abs(float(row["ez_phase_deg"]) - float(ds["receiver_ez_phase"].values[i, k])) <= 0.005
+        light = 360.0 * float(ds["frequency"].values[k]) * 1e3 * float(ds["receiver_range"].values[i]) * 1e3 / C0
+        expected = math.degrees(cmath.phase(cmath.exp(1j * math.radians(float(ds["receiver_ez_phase"].values[i, k]) + light))))
+        assert abs((float(row["ez_phase_re_c_delay_deg"]) - expected + 180.0) % 360.0 - 180.0) <= 0.005
         assert abs(float(row["range_km"]) - float(ds["receiver_range"].values[i])) <= 0.005
         assert float(row["ez_uv_per_m"]) == pytest.approx(10 ** (ez / 20), rel=1e-5)
         assert abs(float(row["margin_db"]) - (ez - 45.5)) <= 0.0005
@@ -357,7 +404,12 @@ def test_result_figure_draws_the_file_values():
         assert np.array_equal(x, r[1:]) and np.array_equal(y, ds["ez_amplitude"].values[0, k, 1:])
         x, y = ax_p.lines[0].get_data()
         expected = relative_phase_deg(ds["ez_phase"].values[0, k, 1:], r[1:], ds["frequency"].values[k])
-        assert np.allclose(y, expected)
+        # wrapped to (-180, 180], with NaN breaks where it wraps (no vertical lines across the panel)
+        drawn = np.isfinite(y)
+        assert np.array_equal(x[drawn], r[1:])
+        assert np.allclose(np.exp(1j * np.radians(y[drawn])), np.exp(1j * np.radians(expected)))
+        assert y[drawn].min() > -180.0 and y[drawn].max() <= 180.0
+        assert ax_p.get_ylim() == (-180.0, 180.0)
         assert "dB re 1 uV/m" in ax_a.get_ylabel() and "(km)" in ax_p.get_xlabel()
         assert "(deg)" in ax_p.get_ylabel()
         assert f"{ds['frequency'].values[k]:g} kHz" in ax_a.get_title()

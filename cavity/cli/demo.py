@@ -71,7 +71,8 @@ def command(folder, overwrite, quiet):
     from cavity.maps import draw_map
     from cavity.paths import build_paths
     from cavity.report import (
-        attenuation_rows, comparison_report, plot_comparison, plot_result, receiver_table, write_text,
+        attenuation_rows, common_amplitude_limits, comparison_report, plot_comparison, plot_result,
+        receiver_table, write_text,
     )
     from cavity.results import write_result
 
@@ -100,8 +101,9 @@ def command(folder, overwrite, quiet):
     written.append(plot_comparison(day, night, targets["comparison.png"], "day", "night"))
     text = comparison_report(day, night, "day", "night")
     written.append(write_text(text, targets["comparison.md"]))
-    written.append(plot_result(day, targets["plot_day.png"]))
-    written.append(plot_result(night, targets["plot_night.png"]))
+    limits = common_amplitude_limits([day, night])  # day and night on the same axes
+    written.append(plot_result(day, targets["plot_day.png"], amplitude_limits=limits))
+    written.append(plot_result(night, targets["plot_night.png"], amplitude_limits=limits))
     notes = draw_map(scenarios["day"], build_paths(scenarios["day"]), targets["map.png"])
     written.append(targets["map.png"])
     for note in notes:

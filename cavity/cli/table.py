@@ -75,7 +75,8 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
 
     One row per receiver and frequency: name, range (km), bearing (deg; blank for a receiver given
     by range only), vertical field Ez (dB re 1 uV/m and uV/m, RMS), flux density B (dB re 1 fT),
-    phase (deg, relative to the transmitter current) and day/night/transition at the receiver (from
+    phase re c delay (deg: phase + 360 f d / c wrapped to (-180, 180], as cavity plot draws it)
+    and day/night/transition at the receiver (from
     the solar zenith angle along the path, or the day/night preset; "-" when neither applies).
     With several files a first column names the file each row comes from.
 
