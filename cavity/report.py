@@ -53,6 +53,8 @@ MIN_FIT_POINTS = 5
 FIGURE_FORMATS = {".png": "png", ".pdf": "pdf"}
 #: Table formats.
 TABLE_FORMATS = ("markdown", "csv")
+#: Mark after a negative margin in Markdown tables.
+SHORT_FLAG = "(short)"
 #: Frequencies closer than this are the same, kHz (files store kHz as float).
 FREQUENCY_TOLERANCE_KHZ = 1e-6
 
@@ -189,6 +191,8 @@ class Column:
     decimals: int | None = None
     markdown_decimals: int | None = None
     significant: bool = False
+    #: Markdown only: text appended to a negative value (a flag a reader cannot miss).
+    negative_flag: str | None = None
 
 
 def noise_in_bandwidth_db(noise_density_db: float, bandwidth_hz: float) -> float:
@@ -225,8 +229,9 @@ def receiver_rows(
     list of dict
         Keys: receiver, frequency_khz, range_km, bearing_deg (NaN if given by range only), ez_db,
         ez_uv_per_m, b_db (NaN if absent), phase_deg (the file's unwrapped phase), phase_re_c_deg
-        (:func:`display_phase_deg`, the phase tables show), daylight, and margin_db / snr_db / run
-        when asked for.
+        (:func:`display_phase_deg`, the phase tables show), daylight, path (index) and
+        path_bearing_deg (NaN for a path serving every bearing), and margin_db / snr_db / run when
+        asked for.
     """
     if (noise_db is None) != (bandwidth_hz is None):
         raise CavityError("noise and bandwidth go together: give both --noise and --bandwidth, or neither")
@@ -245,6 +250,9 @@ def receiver_rows(
     b = (np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
          if "receiver_b_amplitude" in ds else np.full((n, freqs.size), np.nan))
     daylight = receiver_daylight(ds)
+    rx_path = _receiver_paths(ds)
+    path_bearing = (np.asarray(ds["path_bearing"].values, dtype=float).reshape(-1) if "path_bearing" in ds
+                    else np.full(ds.sizes.get("path", 1), np.nan))
     noise_band = None if noise_db is None else noise_in_bandwidth_db(noise_db, bandwidth_hz)
     rows = []
     for i, name in enumerate(names):
@@ -260,6 +268,8 @@ def receiver_rows(
                 "phase_deg": float(phase[i, k]),
                 "phase_re_c_deg": float(display_phase_deg(phase[i, k], ranges[i], f)),
                 "daylight": daylight[i],
+                "path": int(rx_path[i]),
+                "path_bearing_deg": float(path_bearing[rx_path[i]]),
             }
             if required_db is not None:
                 row["margin_db"] = float(ez[i, k] - required_db)
@@ -272,8 +282,13 @@ def receiver_rows(
 
 
 def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
-                     noise_db: float | None = None, bandwidth_hz: float | None = None) -> list[Column]:
-    """The columns of a receiver table, for the keys present in ``rows``."""
+                     noise_db: float | None = None, bandwidth_hz: float | None = None,
+                     bearing: str = "receiver") -> list[Column]:
+    """The columns of a receiver table, for the keys present in ``rows``.
+
+    ``bearing``: "receiver" (each receiver's own bearing, every row: CSV), "path" (the path's
+    bearing, shown once per path: Markdown, see :func:`receiver_table`) or "none" (no column).
+    """
     keys = set().union(*(r.keys() for r in rows)) if rows else set()
     columns = []
     if "run" in keys:
@@ -282,7 +297,12 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
         Column("receiver", "Receiver", "receiver"),
         Column("frequency_khz", "Frequency (kHz)", "frequency_khz", 4, 2),
         Column("range_km", "Range (km)", "range_km", 2, 1),
-        Column("bearing_deg", "Bearing (deg)", "bearing_deg", 2, 1),
+    ]
+    if bearing == "receiver":
+        columns.append(Column("bearing_deg", "Bearing (deg)", "bearing_deg", 2, 1))
+    elif bearing == "path":
+        columns.append(Column("path_bearing_shown", "Path bearing (deg)", "path_bearing_deg", 2, 1))
+    columns += [
         Column("ez_db", "Ez (dB re 1 uV/m)", "ez_db_re_1uv_per_m", 3, 1),
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
@@ -291,7 +311,7 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
     ]
     if "margin_db" in keys:
         req = "" if required_db is None else f" over {required_db:g} dB"
-        columns.append(Column("margin_db", f"Margin{req} (dB)", "margin_db", 3, 1))
+        columns.append(Column("margin_db", f"Margin{req} (dB)", "margin_db", 3, 1, negative_flag=SHORT_FLAG))
     if "snr_db" in keys:
         bw = "" if bandwidth_hz is None else f" in {bandwidth_hz:g} Hz"
         columns.append(Column("snr_db", f"SNR{bw} (dB)", "snr_db", 3, 1))
@@ -305,7 +325,10 @@ def _cell(row: dict, column: Column, markdown: bool) -> str:
     digits = column.markdown_decimals if markdown else column.decimals
     if column.significant:
         return _significant(value, digits + 1 if markdown else digits)
-    return _format_number(value, digits)
+    text = _format_number(value, digits)
+    if markdown and column.negative_flag and text and float(value) < 0.0:
+        text += f" {column.negative_flag}"
+    return text
 
 
 def _markdown_escape(text: str) -> str:
@@ -349,7 +372,8 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
     """The lines printed under a Markdown receiver table: definitions used, then the cautions."""
     notes = []
     if required_db is not None:
-        notes.append(f"Margin = Ez - {required_db:g} dB re 1 uV/m (the required field).")
+        notes.append(f"Margin = Ez - {required_db:g} dB re 1 uV/m (the required field); "
+                     f"{SHORT_FLAG} marks a negative margin: the field falls short of the required level.")
     if noise_db is not None and bandwidth_hz is not None:
         band = noise_in_bandwidth_db(noise_db, bandwidth_hz)
         notes.append(
@@ -364,10 +388,95 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
     return notes
 
 
+def run_label(ds: xr.Dataset) -> str:
+    """A reader's label for a run: "day" or "night" (a preset ionosphere), "UTC <time>" (sun along
+    the paths), otherwise the scenario's title."""
+    ion = scenario_document(ds).get("ionosphere", {})
+    ion = ion if isinstance(ion, dict) else {}
+    if "preset" in ion and _preset_daylight(ion["preset"]) != "-":
+        return _preset_daylight(ion["preset"])
+    if "utc" in ion:
+        utc = ion["utc"]
+        return f"UTC {utc:%Y-%m-%d %H:%M}" if hasattr(utc, "strftime") else f"UTC {utc}"
+    return _text(ds.attrs.get("title", "")).strip() or "run"
+
+
+def run_labels(datasets: Sequence[xr.Dataset], fallback: Sequence[str] | None = None) -> list[str]:
+    """:func:`run_label` of each result; when two coincide, the titles, then ``fallback`` (e.g. file names)."""
+    labels = [run_label(ds) for ds in datasets]
+    if len(set(labels)) == len(labels):
+        return labels
+    titles = [_text(ds.attrs.get("title", "")).strip() for ds in datasets]
+    if all(titles) and len(set(titles)) == len(titles):
+        return titles
+    if fallback is not None:
+        return list(fallback)
+    return [f"{label} ({i + 1})" for i, label in enumerate(labels)]
+
+
+def _ionosphere_text(ion: dict) -> str:
+    from profiles.daynight import PRESETS
+
+    def preset(name):
+        p = PRESETS.get(str(name))
+        return f'preset "{name}"' + (f" (h' {p.hprime_km:g} km, beta {p.beta_per_km:g} /km)" if p else "")
+
+    if "preset" in ion:
+        return preset(ion["preset"])
+    if "utc" in ion:
+        return (f"{preset(ion.get('day_preset', 'day'))} by day, {preset(ion.get('night_preset', 'night'))} "
+                "by night, from the sun along each path")
+    if "hprime_km" in ion:
+        return f"exponential, h' {float(ion['hprime_km']):g} km, beta {float(ion.get('beta_per_km', math.nan)):g} /km"
+    if "ceiling_km" in ion:
+        return f"conducting ceiling at {float(ion['ceiling_km']):g} km"
+    if "profile_file" in ion:
+        return f"profile file {ion['profile_file']}"
+    if ion.get("no_ionosphere"):
+        return "none (ground wave only)"
+    return "?"
+
+
+def run_header(ds: xr.Dataset) -> str:
+    """One line naming a run: transmitter, frequency, power, ionosphere and time."""
+    doc = scenario_document(ds)
+    tx = doc.get("transmitter", {}) if isinstance(doc.get("transmitter"), dict) else {}
+    ion = doc.get("ionosphere", {}) if isinstance(doc.get("ionosphere"), dict) else {}
+    power = tx.get("radiated_power_kw")
+    parts = [f"{tx.get('name', _text(ds.attrs.get('title', 'cavity result')))}, {frequency_text(_frequencies(ds))}"
+             + (f", {float(power):g} kW radiated" if power is not None else "")]
+    parts.append(f"ionosphere {_ionosphere_text(ion)}")
+    if "utc" in ion:
+        utc = ion["utc"]
+        parts.append(f"time {utc:%Y-%m-%d %H:%M} UTC" if hasattr(utc, "strftime") else f"time {utc} UTC")
+    else:
+        parts.append("time not set (one ionosphere on every path)")
+    return "; ".join(parts)
+
+
+def _group_by_path(rows: list[dict]) -> list[dict]:
+    """Rows ordered by run, then path, then as given; the path's bearing shown on its first row only."""
+    runs = list(dict.fromkeys(r.get("run") for r in rows))
+    ordered = sorted(enumerate(rows), key=lambda x: (runs.index(x[1].get("run")), x[1].get("path", 0), x[0]))
+    out, seen = [], set()
+    for _, row in ordered:
+        key = (row.get("run"), row.get("path", 0))
+        row = dict(row)
+        row["path_bearing_shown"] = row.get("path_bearing_deg", math.nan) if key not in seen else math.nan
+        seen.add(key)
+        out.append(row)
+    return out
+
+
 def receiver_table(datasets: Sequence[xr.Dataset] | xr.Dataset, fmt: str = "markdown", *,
                    runs: Sequence[str] | None = None, required_db: float | None = None,
                    noise_db: float | None = None, bandwidth_hz: float | None = None) -> str:
     """The receiver table of one or more results as Markdown (with notes and cautions) or CSV.
+
+    Markdown opens with one line per run naming transmitter, frequency, power, ionosphere and time
+    (:func:`run_header`), gives each path's bearing once (in that line when every receiver lies on
+    one path, else on the first row of each path), and flags negative margins; CSV has one row per
+    receiver and frequency with every value on it.
 
     Parameters
     ----------
@@ -375,20 +484,35 @@ def receiver_table(datasets: Sequence[xr.Dataset] | xr.Dataset, fmt: str = "mark
         Results; with more than one, each row starts with its ``runs`` label.
     fmt : {"markdown", "csv"}
     runs : sequence of str, optional
-        A label per dataset (e.g. the file names); default "1", "2", ... when there are several.
+        A label per dataset; default :func:`run_labels` (day/night, UTC or the title) when there are several.
     required_db, noise_db, bandwidth_hz : float, optional
         See :func:`receiver_rows`.
     """
     if not isinstance(datasets, (list, tuple)):
         datasets = [datasets]
     if runs is None:
-        runs = [str(i + 1) for i in range(len(datasets))] if len(datasets) > 1 else [None]
+        runs = run_labels(datasets) if len(datasets) > 1 else [None]
     rows = []
     for ds, run in zip(datasets, runs):
         rows += receiver_rows(ds, required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz, run=run)
-    columns = receiver_columns(rows, required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz)
-    notes = table_notes(datasets, required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz)
-    return format_table(rows, columns, fmt, notes=notes if fmt == "markdown" else ())
+    kwargs = dict(required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz)
+    if fmt != "markdown":
+        return format_table(rows, receiver_columns(rows, **kwargs), fmt)
+    heads = []
+    for ds, run in zip(datasets, runs):
+        heads.append(f"**{run}**: {run_header(ds)}." if run is not None else f"{run_header(ds)}.")
+    bearings = {round(r["path_bearing_deg"], 6) if math.isfinite(r["path_bearing_deg"]) else None for r in rows}
+    paths_per_run = {(r.get("run"), r["path"]) for r in rows}
+    if len(bearings) == 1 and len(paths_per_run) == len({r.get("run") for r in rows}):
+        (only,) = bearings
+        heads.append(f"Every receiver on one path, bearing {only:.1f} deg." if only is not None
+                     else "Receivers given by range only (the path serves every bearing).")
+        columns = receiver_columns(rows, bearing="none", **kwargs)
+    else:
+        rows = _group_by_path(rows)
+        columns = receiver_columns(rows, bearing="path", **kwargs)
+    head = "".join(f"{h}\n\n" for h in heads) if len(heads) > 1 else f"{heads[0]}\n\n"
+    return head + format_table(rows, columns, fmt, notes=table_notes(datasets, **kwargs))
 
 
 # --------------------------------------------------------------------------------------------------

@@ -115,7 +115,7 @@ def test_table_of_two_runs_and_snr(tmp_path):
     result = invoke("table", DAY, NIGHT, "-f", "csv", "--noise", 0, "--bandwidth", 1000)
     assert result.exit_code == 0, result.output
     rows = list(csv.DictReader(io.StringIO(result.stdout)))
-    assert {r["run"] for r in rows} == {"golden_day", "golden_night"}
+    assert {r["run"] for r in rows} == {"day", "night"}  # from the files' preset ionospheres
     for row in rows:
         # SNR = field - (N0 + 10 log10 B): 30 dB of noise in 1 kHz for N0 = 0 dB per sqrt(Hz)
         assert float(row["snr_db"]) == pytest.approx(float(row["ez_db_re_1uv_per_m"]) - 30.0, abs=1e-3)
@@ -156,7 +156,8 @@ def test_table_existing_output_refused(tmp_path):
     one_line_error(invoke("table", DAY, "-o", out), "t.md", "exists", "--overwrite")
     assert out.read_text() == "keep me"
     assert invoke("table", DAY, "-o", out, "--overwrite").exit_code == 0
-    assert out.read_text().startswith("| Receiver")
+    text = out.read_text()
+    assert text.startswith("Merlin Knoll, 12.5, 18.3 kHz, 80 kW radiated; ionosphere") and "\n| Receiver" in text
 
 
 # --------------------------------------------------------------------------------------------------
@@ -171,7 +172,7 @@ def test_compare_writes_figure_and_prints_differences(tmp_path):
     assert result.exit_code == 0, result.output
     png_not_blank(fig)
     assert f"wrote {fig}" in result.stderr and f"wrote {md}" in result.stderr
-    assert "Differences at the receivers (golden_night - golden_day)" in result.stdout
+    assert "Differences at the receivers (night - day)" in result.stdout
     assert "dB per 1000 km" in result.stdout and "1/sqrt(a sin(d/a))" in result.stdout
     assert result.stdout.rstrip().splitlines()[-1].startswith("Cautions:")
     rows = list(csv.DictReader(io.StringIO(md.read_text())))
@@ -188,7 +189,7 @@ def test_compare_fit_range_shown(tmp_path):
     assert result.exit_code == 0, result.output
     assert (tmp_path / "c.pdf").read_bytes()[:5] == b"%PDF-"
     # the window actually fitted lies inside the one asked for
-    table = [line for line in result.stdout.splitlines() if line.startswith("| golden_")]
+    table = [line for line in result.stdout.splitlines() if line.startswith(("| day ", "| night "))]
     assert table
     for line in table:
         cells = [c.strip() for c in line.strip("|").split("|")]
@@ -380,7 +381,7 @@ def test_demo_writes_every_file(monkeypatch, tmp_path):
         i, k = divmod(n, 2)
         assert abs(float(row["ez_db_re_1uv_per_m"]) - day["receiver_ez_amplitude"].values[i, k]) <= 5e-4
     md = (out / "receivers.md").read_text()
-    assert md.startswith("| Run ") and "Cautions:" in md
+    assert md.startswith("**day**: ") and "\n| Run " in md and "Cautions:" in md
     assert "attenuation" in (out / "comparison.md").read_text().lower()
     # a second run refuses to replace them, before any solve
     monkeypatch.setattr("cavity.cli.demo.demo_scenarios", lambda: pytest.fail("solved before checking"))
@@ -499,9 +500,15 @@ def test_memo_report_from_day_and_night(tmp_path, capsys):
     rows = [[c.strip() for c in line.strip().strip("|").split(" | ")] for line in table.splitlines()
             if line.startswith("| day ")]
     assert len(rows) == ez.size
-    column = [c.strip() for c in table.splitlines()[2].strip().strip("|").split(" | ")].index("Ez (dB re 1 uV/m)")
-    for n, row in enumerate(rows):
-        assert abs(float(row[column]) - ez[divmod(n, ez.shape[1])]) <= 0.05
+    header = next(line for line in table.splitlines() if line.startswith("| Run "))
+    header = [c.strip() for c in header.strip().strip("|").split(" | ")]
+    column, name, freq = (header.index(h) for h in ("Ez (dB re 1 uV/m)", "Receiver", "Frequency (kHz)"))
+    ds = open_result(DAY)
+    names = [str(x).replace("|", "\\|") for x in ds["receiver_name"].values]
+    for row in rows:  # rows are grouped by path: look each up by receiver and frequency
+        i = names.index(row[name])
+        k = int(np.argmin(np.abs(ds["frequency"].values - float(row[freq]))))
+        assert abs(float(row[column]) - ez[i, k]) <= 0.05
     # a second run refuses to replace the memo
     assert memo.main([str(day), "-o", str(out)]) == 1
     assert "exists already" in capsys.readouterr().err

@@ -11,6 +11,7 @@ import cmath
 import csv
 import io
 import math
+import tomllib
 from pathlib import Path
 
 import numpy as np
@@ -302,7 +303,8 @@ def test_markdown_table_parses_escapes_and_ends_with_cautions():
     text = receiver_table(ds, "markdown", noise_db=0.0, bandwidth_hz=1000.0)
     table = parse_markdown(text)
     header, body = table[0], table[1:]
-    assert header[:4] == ["Receiver", "Frequency (kHz)", "Range (km)", "Bearing (deg)"]
+    assert header[:3] == ["Receiver", "Frequency (kHz)", "Range (km)"]
+    assert "Bearing (deg)" not in header and "range only" in text.split("\n| ")[0]  # said once, above
     assert "SNR in 1000 Hz (dB)" in header
     assert [r[0] for r in body] == ["Site North", "Site | Mid", "Site South"]  # "|" escaped in the cell
     for i, row in enumerate(body):
@@ -311,7 +313,6 @@ def test_markdown_table_parses_escapes_and_ends_with_cautions():
         assert abs(float(cells["Ez (dB re 1 uV/m)"]) - ez) <= 0.05
         assert float(cells["SNR in 1000 Hz (dB)"]) == pytest.approx(ez - 30.0, abs=0.05)
         assert cells["Day/night"] == "night"
-        assert cells["Bearing (deg)"] == ""
     lines = text.rstrip("\n").splitlines()
     assert lines[-1].startswith("Cautions: Predictions are planning estimates")
     assert any(line.startswith("SNR = Ez - (N0 + 10 log10(B))") for line in lines)
@@ -488,3 +489,43 @@ def test_write_then_table_round_trip(tmp_path):
     ds = synthetic(2.0, (16.0, 24.0))
     path = write_result(ds, tmp_path / "r.nc")
     assert receiver_table(open_result(path), "csv") == receiver_table(ds, "csv")
+
+
+# --------------------------------------------------------------------------------------------------
+# The memo table: header line, bearing once per path, run labels, negative margins
+# --------------------------------------------------------------------------------------------------
+
+
+def test_markdown_table_opens_with_the_run_and_flags_short_margins():
+    day = synthetic(2.0, (16.0,), bearings=[171.0, 171.0, 171.0])
+    night = synthetic(1.0, (16.0,), ionosphere='preset = "night"', e0_db=60.0, bearings=[171.0, 171.0, 171.0])
+    text = receiver_table([day, night], "markdown", required_db=40.0)
+    head = text.split("\n| ")[0]
+    # the header names transmitter, frequency, power and ionosphere as the embedded scenario gives them
+    doc = tomllib.loads(str(day.attrs["scenario"]))
+    for fragment in (doc["transmitter"]["name"], "16 kHz", f"{doc['transmitter']['radiated_power_kw']:g} kW",
+                     'preset "day"', 'preset "night"', "time"):
+        assert fragment in head, fragment
+    rows = parse_markdown(text)
+    header, body = rows[0], rows[1:]
+    assert header[0] == "Run" and {r[0] for r in body} == {"day", "night"}  # labels, not file names
+    assert "Bearing (deg)" not in header and "range only" in head  # once, in the header
+    margin = header.index("Margin over 40 dB (dB)")
+    ez = header.index("Ez (dB re 1 uV/m)")
+    for r in body:
+        short = float(r[ez]) < 40.0
+        assert r[margin].endswith("(short)") == short
+    assert any(r[margin].endswith("(short)") for r in body)  # the night run falls short far out
+
+
+def test_bearing_shown_once_per_path():
+    ds = open_result(GOLDEN["dawn"])  # two paths: 171.0 deg and 173.7 deg
+    rows = parse_markdown(receiver_table(ds, "markdown"))
+    header, body = rows[0], rows[1:]
+    col = header.index("Path bearing (deg)")
+    shown = [r[col] for r in body if r[col]]
+    bearings = sorted(float(b) for b in ds["path_bearing"].values)
+    assert sorted(float(b) for b in shown) == pytest.approx(bearings, abs=0.05)
+    # CSV keeps every receiver's own bearing on every row
+    csv_rows = list(csv.DictReader(io.StringIO(receiver_table(ds, "csv"))))
+    assert all(r["bearing_deg"] for r in csv_rows)

@@ -122,8 +122,12 @@ def test_table_gives_min_median_max_and_their_instants():
     empty = table_diurnal(all_nan).iloc[2]
     assert empty["instants"] == 0 and math.isnan(empty["ez_min_db"]) and empty["utc_of_min"] == ""
     md = format_diurnal_table(table)
-    assert md.splitlines()[0].startswith("| receiver | range, km | frequency, kHz")
-    assert "| Quarry Hill | 1000 | 21.4 | 48 | 57.1 |" in md
+    # the receiver table's style: "Name (unit)" headers, cells padded to a common width per column
+    lines = md.splitlines()
+    cells = [[c.strip() for c in line.strip("|").split("|")] for line in lines]
+    assert cells[0][:3] == ["Receiver", "Range (km)", "Frequency (kHz)"]
+    assert len({len(line) for line in lines}) == 1  # padded: every line equally long
+    assert ["Quarry Hill", "1000.0", "21.40", "48", "57.1"] in [row[:5] for row in cells]
     csv = format_diurnal_table(table, "csv")
     assert csv.splitlines()[1].startswith("Quarry Hill,1000.00,16.00,49,56.60,")
     with pytest.raises(ValueError, match="fmt"):
@@ -216,7 +220,7 @@ def test_day_and_night_medians_follow_the_sun_along_each_receivers_path():
     close = table.iloc[2]
     assert close["day_instants"] == 2 and close["ez_day_median_db"] == pytest.approx(100.0 - 5.0 - 3.5)
     md = format_diurnal_table(table)
-    assert "night - day, dB" in md.splitlines()[0] and "| +5.0 |" in md
+    assert "Night - day (dB)" in md.splitlines()[0] and md.splitlines()[2].rstrip(" |").endswith(" 5.0")
     assert "night_minus_day_db" not in table_diurnal(synthetic_sweep()).columns
 
 
