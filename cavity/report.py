@@ -670,7 +670,8 @@ def comparison_rows(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", labe
     """Differences B - A at the receivers the two results share (by name), per common frequency.
 
     Keys: receiver, frequency_khz, range_km (A's), a_db, b_db, difference_db (B - A),
-    phase_difference_deg (B - A wrapped to -180..180 deg).
+    phase_difference_deg (B - A wrapped to -180..180 deg), note ("near a <run> modal null" when the
+    receiver lies within :data:`NULL_NEIGHBOURHOOD_KM` of a null of that run's curve, else "").
     """
     freqs = common_frequencies(ds_a, ds_b, label_a, label_b)
     names_a, names_b = _receiver_names(ds_a), _receiver_names(ds_b)
@@ -680,6 +681,7 @@ def comparison_rows(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", labe
     ph_a = ds_a["receiver_ez_phase"].transpose("receiver", "frequency").values
     ph_b = ds_b["receiver_ez_phase"].transpose("receiver", "frequency").values
     range_a = np.asarray(ds_a["receiver_range"].values, dtype=float).reshape(len(names_a))
+    path_a, path_b = _receiver_paths(ds_a), _receiver_paths(ds_b)
     rows = []
     for i, name in enumerate(names_a):
         if name not in names_b:
@@ -695,8 +697,48 @@ def comparison_rows(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", labe
                 "b_db": float(amp_b[j, kb]),
                 "difference_db": float(amp_b[j, kb] - amp_a[i, ka]),
                 "phase_difference_deg": float(_wrap_deg(ph_b[j, kb] - ph_a[i, ka])),
+                "note": "; ".join(n for n in (
+                    _null_note(ds_a, label_a, ka, int(path_a[i]), float(range_a[i])),
+                    _null_note(ds_b, label_b, kb, int(path_b[j]), float(range_a[i]))) if n),
             })
     return rows
+
+
+#: A receiver within this distance of a modal null is marked, km.
+NULL_NEIGHBOURHOOD_KM = 30.0
+#: A local minimum this far below the median of the field over +-NULL_WINDOW_KM is a modal null, dB.
+NULL_DEPTH_DB = 6.0
+NULL_WINDOW_KM = 150.0
+
+
+def modal_nulls_km(range_km, amplitude_db) -> np.ndarray:
+    """Ranges of the modal nulls of a field curve, km.
+
+    A null is a local minimum at least :data:`NULL_DEPTH_DB` below the median of the field over
+    +-:data:`NULL_WINDOW_KM` around it: modes cancelling there, where a small change of h' moves the
+    minimum and the field by many dB (the cautions' "near modal minima").
+    """
+    d = np.asarray(range_km, float)
+    a = np.asarray(amplitude_db, float)
+    ok = np.isfinite(d) & np.isfinite(a) & (d > 0)
+    d, a = d[ok], a[ok]
+    out = []
+    for i in range(1, d.size - 1):
+        if not (a[i] <= a[i - 1] and a[i] < a[i + 1]):
+            continue
+        window = np.abs(d - d[i]) <= NULL_WINDOW_KM
+        if float(np.median(a[window])) - a[i] >= NULL_DEPTH_DB:
+            out.append(float(d[i]))
+    return np.asarray(out)
+
+
+def _null_note(ds: xr.Dataset, label: str, k: int, path: int, range_km: float) -> str:
+    r = np.asarray(ds["range"].values, dtype=float)
+    amp = ds["ez_amplitude"].transpose("path", "frequency", "range").values[path, k]
+    nulls = modal_nulls_km(r, amp)
+    if nulls.size and float(np.min(np.abs(nulls - range_km))) <= NULL_NEIGHBOURHOOD_KM:
+        return f"near a {label} modal null"
+    return ""
 
 
 def comparison_columns(label_a: str = "A", label_b: str = "B") -> list[Column]:
@@ -709,7 +751,18 @@ def comparison_columns(label_a: str = "A", label_b: str = "B") -> list[Column]:
         Column("b_db", f"{label_b} Ez (dB re 1 uV/m)", "b_ez_db_re_1uv_per_m", 3, 1),
         Column("difference_db", f"{label_b} - {label_a} (dB)", "difference_db", 3, 1),
         Column("phase_difference_deg", f"{label_b} - {label_a} phase (deg)", "phase_difference_deg", 2, 1),
+        Column("note", "Note", "note"),
     ]
+
+
+def fit_caveat(fit: AttenuationFit) -> str:
+    """"" for a fit that describes the guide's loss; otherwise why it is only a rough slope."""
+    reasons = []
+    if fit.rms_residual_db > SHAKY_FIT_RESIDUAL_DB:
+        reasons.append(f"residual above {SHAKY_FIT_RESIDUAL_DB:g} dB")
+    if fit.stop_km - fit.start_km < 1000.0:
+        reasons.append("window under 1000 km")
+    return f"rough slope: modal interference ({', '.join(reasons)})" if reasons else ""
 
 
 def attenuation_rows(datasets: Sequence[xr.Dataset], labels: Sequence[str], *, start_km: float | None = None,
@@ -730,7 +783,7 @@ def attenuation_rows(datasets: Sequence[xr.Dataset], labels: Sequence[str], *, s
                     "run": label, "path": path_label, "frequency_khz": float(f),
                     "rate_db_per_1000km": fit.rate_db_per_1000km, "start_km": fit.start_km,
                     "stop_km": fit.stop_km, "rms_residual_db": fit.rms_residual_db,
-                    "spreading": fit.spreading_text(), "fit": fit,
+                    "spreading": fit.spreading_text(), "fit": fit, "note": fit_caveat(fit),
                 })
     return rows
 
@@ -744,6 +797,7 @@ ATTENUATION_COLUMNS = [
     Column("stop_km", "Fit to (km)", "fit_stop_km", 1, 0),
     Column("rms_residual_db", "RMS residual (dB)", "rms_residual_db", 3, 2),
     Column("spreading", "Spreading removed", "spreading_removed"),
+    Column("note", "Note", "note"),
 ]
 
 
@@ -769,12 +823,13 @@ def comparison_report(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         "(1/sqrt(d) on a flat earth, 1/sqrt(a sin(d/a)) on the sphere):\n\n"
     )
     text += format_table(fits, ATTENUATION_COLUMNS)
-    if any(f["stop_km"] - f["start_km"] < 1000.0 or f["rms_residual_db"] > SHAKY_FIT_RESIDUAL_DB for f in fits):
-        text += (
-            f"\nA window shorter than 1000 km or an RMS residual above {SHAKY_FIT_RESIDUAL_DB:g} dB means the "
-            "curve is dominated by modal interference there: read such a rate as a rough slope, not as the "
-            "waveguide's attenuation.\n"
-        )
+    if any(f["note"] for f in fits):
+        text += ("\nRows marked \"rough slope\": the curve is dominated by modal interference in the window, "
+                 "so the rate is a rough slope, not the waveguide's attenuation.\n")
+    if any(r["note"] for r in rows):
+        text += ("\nRows marked \"near a ... modal null\": the receiver lies within "
+                 f"{NULL_NEIGHBOURHOOD_KM:g} km of a deep minimum of that run's curve, where a small change of "
+                 "h' moves the field by many dB; plan on the path level, not on that value.\n")
     cautions = table_notes([ds_a, ds_b])[-1:]
     for note in cautions:
         if note.startswith("Cautions"):
@@ -1008,21 +1063,80 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
     return fig
 
 
+#: Ground strip colours and names by conductivity (S/m): sea at or above 1 S/m, perfect = inf.
+GROUND_STRIP = (("sea", "#2f6fb0"), ("land", "#b08a4e"), ("perfect", "#777777"))
+#: A comparison's y-axis spans at most this much below its upper limit, dB; deeper nulls are clipped
+#: at the floor and marked with their depth.
+COMPARISON_SPAN_DB = 60.0
+
+
+def ground_classes_along(ds: xr.Dataset, path: int = 0) -> np.ndarray:
+    """"sea", "land" or "perfect" at each range of a path, from the ground conductivity the run used."""
+    sigma = np.asarray(ds["ground_conductivity"].values, dtype=float).reshape(-1, ds.sizes["range"])[path]
+    return np.where(np.isinf(sigma), "perfect", np.where(sigma >= 1.0, "sea", "land"))
+
+
+def comparison_title(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", label_b: str = "B") -> str:
+    """Station, frequency and power from the files' scenarios, then what is compared."""
+    def station(ds):
+        tx = scenario_document(ds).get("transmitter", {})
+        tx = tx if isinstance(tx, dict) else {}
+        power = tx.get("radiated_power_kw")
+        return (f"{tx.get('name', _text(ds.attrs.get('title', '?')))}, {frequency_text(_frequencies(ds))}"
+                + (f", {float(power):g} kW radiated" if power is not None else ""))
+
+    sa, sb = station(ds_a), station(ds_b)
+    if sa == sb:
+        return f"{sa}: {label_a} and {label_b}"
+    return f"{label_a}: {sa}; {label_b}: {sb}"
+
+
+def _comparison_limits(curves: list[tuple[np.ndarray, np.ndarray]], near_km: float) -> tuple[float, float] | None:
+    """y-limits of a comparison: the near-field rise clipped at the top; at the bottom the lowest
+    value beyond the near field, unless that lies more than :data:`COMPARISON_SPAN_DB` below the top."""
+    far = [a[(r > near_km) & np.isfinite(a)] for r, a in curves]
+    far = [v for v in far if v.size]
+    if not far:
+        return None
+    values = np.concatenate(far)
+    hi = float(np.percentile(values, 99.0)) + 6.0
+    lo = max(float(values.min()) - 3.0, hi - COMPARISON_SPAN_DB)
+    return lo, hi
+
+
 def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", label_b: str = "B", *,
                       fits: Sequence[dict] | None = None, title: str | None = None) -> Figure:
     """Two results' amplitude against range on one panel per common frequency, receivers marked.
 
     ``fits`` (rows of :func:`attenuation_rows`) adds each fitted line over its window, thin and
-    dashed, labelled with its rate.
+    dashed, labelled with its rate (and "rough" when its residual says modal interference). The
+    y-axis keeps every null beyond the near field in view down to :data:`COMPARISON_SPAN_DB` below
+    the top; a deeper one is clipped at the floor and marked with its depth. Under each panel a strip
+    shows the ground (sea or land) along each run's path, which explains small kinks at coasts.
     """
     from matplotlib.figure import Figure
+    from matplotlib.patches import Patch
 
     freqs = common_frequencies(ds_a, ds_b, label_a, label_b)
-    fig = Figure(figsize=(9.5, 1.2 + 4.4 * len(freqs)), layout="constrained")
-    axes = fig.subplots(len(freqs), 1, squeeze=False)[:, 0]
-    for ax, f in zip(axes, freqs):
-        plotted = []
-        for ds, label, colour in ((ds_a, label_a, RUN_COLOURS[0]), (ds_b, label_b, RUN_COLOURS[1])):
+    runs = ((ds_a, label_a, RUN_COLOURS[0]), (ds_b, label_b, RUN_COLOURS[1]))
+    strips = []  # (label, range, classes) per run and path; one strip when both runs share the ground
+    for ds, label, _ in runs:
+        r = np.asarray(ds["range"].values, dtype=float)
+        for p, path_label in enumerate(_path_labels(ds)):
+            cls = ground_classes_along(ds, p)
+            name = label if len(_path_labels(ds)) == 1 else f"{label}, {path_label}"
+            if not any(np.array_equal(cls, c) and np.array_equal(r, rr) for _, rr, c in strips):
+                strips.append((name, r, cls))
+    if len(strips) == 1:
+        strips = [("ground", strips[0][1], strips[0][2])]
+    fig = Figure(figsize=(9.5, 1.4 + (4.4 + 0.3 * len(strips)) * len(freqs)), layout="constrained")
+    axes = fig.subplots(2 * len(freqs), 1, squeeze=False,
+                        gridspec_kw={"height_ratios": [12, 0.8 * len(strips)] * len(freqs)})[:, 0]
+    for n, f in enumerate(freqs):
+        ax, ax_g = axes[2 * n], axes[2 * n + 1]
+        ax_g.sharex(ax)
+        curves = []
+        for ds, label, colour in runs:
             r = np.asarray(ds["range"].values, dtype=float)
             k = _frequency_index(_frequencies(ds), f, label)
             amp = ds["ez_amplitude"].transpose("path", "frequency", "range").values
@@ -1032,7 +1146,7 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
                 text = label if len(labels) == 1 else f"{label}, {path_label}"
                 ax.plot(r[ok], amp[p, k][ok], color=colour, linestyle=PATH_STYLES[p % len(PATH_STYLES)],
                         linewidth=1.2, label=text)
-                plotted.append(amp[p, k][ok])
+                curves.append((r[ok], amp[p, k][ok], colour))
             names = _receiver_names(ds)
             rx_d = np.asarray(ds["receiver_range"].values, dtype=float).reshape(len(names))
             rx_a = ds["receiver_ez_amplitude"].transpose("receiver", "frequency").values[:, k]
@@ -1043,20 +1157,44 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
             fit = row["fit"]
             colour = RUN_COLOURS[0] if row["run"] == label_a else RUN_COLOURS[1]
             d = np.linspace(fit.start_km, fit.stop_km, 50)
+            rough = (f" (rough: residual {fit.rms_residual_db:.1f} dB, modal interference)"
+                     if fit_caveat(fit) else "")
             ax.plot(d, fit.line_db(d), color=colour, linestyle=(0, (4, 2)), linewidth=0.9, alpha=0.9,
-                    label=f"fit {row['run']}: {fit.rate_db_per_1000km:.2f} dB/1000 km")
-        limits = _amplitude_limits(plotted)
+                    label=f"fit {row['run']}: {fit.rate_db_per_1000km:.2f} dB/1000 km{rough}")
+        limits = _comparison_limits([(c[0], c[1]) for c in curves], near_field_km(f))
         if limits:
             ax.set_ylim(*limits)
+            for r_c, a_c, colour in curves:  # nulls below the floor: a mark at the floor with their depth
+                below = (a_c < limits[0]) & (r_c > near_field_km(f))
+                if not below.any():
+                    continue
+                edges = np.flatnonzero(np.diff(np.concatenate([[0], below.astype(int), [0]])))
+                for i0, i1 in zip(edges[::2], edges[1::2]):
+                    j = i0 + int(np.argmin(a_c[i0:i1]))
+                    ax.plot([r_c[j]], [limits[0]], marker="v", color=colour, markersize=7, clip_on=False, zorder=5)
+                    ax.annotate(f"null {a_c[j]:.0f} dB", xy=(r_c[j], limits[0]), xytext=(4, 4),
+                                textcoords="offset points", fontsize=7, color=colour)
         ax.set_xlim(0.0, max(float(np.nanmax(ds_a["range"].values)), float(np.nanmax(ds_b["range"].values))))
         ax.set_ylabel("Ez (dB re 1 uV/m, RMS)")
-        ax.set_xlabel("Ground range from the transmitter (km)")
         ax.set_title(f"{f:g} kHz", fontsize=10)
         ax.grid(True, alpha=0.3)
-        ax.legend(fontsize=8, loc="lower left", framealpha=0.85)
-    heading = title if title is not None else f"{label_a} and {label_b}"
+        ax.tick_params(labelbottom=False)
+        ax.legend(fontsize=8, loc="lower right", framealpha=0.85)
+        colours = dict(GROUND_STRIP)
+        for row, (name, r_s, cls) in enumerate(strips):
+            for kind, colour in GROUND_STRIP:
+                on = cls == kind
+                if on.any():
+                    ax_g.fill_between(r_s, row, row + 0.9, where=on, color=colour, step="mid", linewidth=0)
+        ax_g.set_ylim(len(strips), 0)
+        ax_g.set_yticks(np.arange(len(strips)) + 0.45, [name for name, _, _ in strips], fontsize=7)
+        ax_g.set_xlabel("Ground range from the transmitter (km)")
+        present = [k for k, _ in GROUND_STRIP if any((c == k).any() for _, _, c in strips)]
+        ax_g.legend(handles=[Patch(color=colours[k], label=k) for k in present], fontsize=7, ncol=len(present),
+                    loc="center left", bbox_to_anchor=(1.0, 0.5), frameon=False)
+    heading = title if title is not None else comparison_title(ds_a, ds_b, label_a, label_b)
     fig.suptitle(f"{heading}\nRMS vertical field at the ground; dots: receivers; "
-                 "fits: spreading removed, loss per 1000 km", fontsize=10)
+                 "fits: spreading removed, loss per 1000 km; strip: ground along the path", fontsize=10)
     return fig
 
 

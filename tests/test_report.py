@@ -22,6 +22,7 @@ from cavity.errors import CavityError
 from cavity.report import (
     EARTH_RADIUS_KM,
     attenuation_rate,
+    attenuation_rows,
     common_frequencies,
     comparison_figure,
     comparison_report,
@@ -439,6 +440,79 @@ def test_comparison_figure(tmp_path):
     fig = comparison_figure(day, night, "day", "night")
     labels = [line.get_label() for line in fig.axes[0].lines]
     assert "day" in labels and "night" in labels
+
+
+def with_null(ds, at_km, depth_db, width_km=15.0):
+    """A copy of a result with a Gaussian dip cut into its field curves (a synthetic modal null)."""
+    out = ds.copy(deep=True)
+    r = out["range"].values
+    out["ez_amplitude"].values[...] -= depth_db * np.exp(-0.5 * ((r - at_km) / width_km) ** 2)
+    return out
+
+
+def test_comparison_title_names_station_frequency_and_power():
+    day = synthetic(2.5, (20.0,))
+    night = synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0)
+    doc = tomllib.loads(str(day.attrs["scenario"]))
+    title = comparison_figure(day, night, "day", "night")._suptitle.get_text()
+    assert doc["transmitter"]["name"] in title and "20 kHz" in title
+    assert f"{doc['transmitter']['radiated_power_kw']:g} kW" in title and "day and night" in title
+
+
+def test_comparison_keeps_a_night_null_in_view_and_marks_a_deeper_one():
+    day = synthetic(2.5, (20.0,))
+    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0), 1200.0, 35.0)
+    ax = comparison_figure(day, night, "day", "night").axes[0]
+    floor = ax.get_ylim()[0]
+    r = night["range"].values
+    far = r > near_field_km(20.0)
+    assert floor <= night["ez_amplitude"].values[0, 0][far].min()  # the whole null is on the axes
+    # a null deeper than the axis span is clipped at the floor and marked with its depth
+    deep = with_null(night, 2000.0, 120.0)
+    ax = comparison_figure(day, deep, "day", "night").axes[0]
+    floor = ax.get_ylim()[0]
+    assert floor > deep["ez_amplitude"].values[0, 0][far].min()
+    marks = [line for line in ax.lines if line.get_marker() == "v"]
+    assert marks and all(line.get_ydata()[0] == floor for line in marks)
+    assert any(abs(line.get_xdata()[0] - 2000.0) <= 10.0 for line in marks)
+    assert any(t.get_text().startswith("null ") for t in ax.texts)
+
+
+def test_comparison_ground_strip_follows_the_ground_used():
+    day = synthetic(2.5, (20.0,))
+    night = synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0)
+    for ds in (day, night):  # land (1e-3 S/m, ITU-R P.527 medium dry ground) from 1000 to 2000 km
+        r = ds["range"].values
+        ds["ground_conductivity"].values[:, (r >= 1000) & (r < 2000)] = 1e-3
+    from cavity.report import ground_classes_along
+
+    cls = ground_classes_along(day)
+    r = day["range"].values
+    assert set(cls[(r >= 1000) & (r < 2000)]) == {"land"} and set(cls[r < 1000]) == {"sea"}
+    strip = comparison_figure(day, night, "day", "night").axes[1]
+    assert [t.get_text() for t in strip.get_yticklabels()] == ["ground"]  # shared by both runs: one strip
+    legend = [t.get_text() for t in strip.get_legend().get_texts()]
+    assert legend == ["sea", "land"]
+
+
+def test_rough_fits_and_receivers_near_nulls_are_marked_on_their_rows():
+    # A 6 dB ripple over a 700 km period leaves a residual above 2 dB: common practice reads such a
+    # slope as modal interference, not the guide's attenuation.
+    day = synthetic(2.5, (20.0,))
+    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0, ripple_db=6.0),
+                      1500.0, 25.0)
+    fits = attenuation_rows([day, night], ["day", "night"])
+    notes = {row["run"]: row["note"] for row in fits}
+    assert notes["day"] == "" and notes["night"].startswith("rough slope")
+    legend = [line.get_label() for line in comparison_figure(day, night, "day", "night", fits=fits).axes[0].lines]
+    assert any(lbl.startswith("fit night") and "rough" in lbl for lbl in legend)
+    assert any(lbl.startswith("fit day") and "rough" not in lbl for lbl in legend)
+    rows = comparison_rows(day, night, "day", "night")
+    marked = {row["receiver"]: row["note"] for row in rows}
+    assert marked["Site | Mid"] == "near a night modal null"  # receiver at 1500 km, the null's centre
+    assert marked["Site North"] == "" and marked["Site South"] == ""
+    text = comparison_report(day, night, "day", "night")
+    assert "near a night modal null" in text and "rough slope" in text
 
 
 # --------------------------------------------------------------------------------------------------
