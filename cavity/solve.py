@@ -163,8 +163,12 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
 
 
 def path_progress(progress, paths) -> list:
-    """One progress callback per path, mapping its own 0..1 onto its share (by range) of the whole."""
-    weights = np.array([p.max_range_m for p in paths], float)
+    """One progress callback per path, mapping its own 0..1 onto its share of the whole.
+
+    A path's share is its cost: columns x steps, both in proportion to its range (same cell and
+    frequency), so range squared.
+    """
+    weights = np.array([p.max_range_m for p in paths], float) ** 2
     weights = weights / weights.sum()
     starts = np.concatenate([[0.0], np.cumsum(weights)[:-1]])
 

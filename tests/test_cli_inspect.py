@@ -108,3 +108,22 @@ def test_missing_file_one_line(tmp_path):
 def test_help_has_example():
     result = CliRunner().invoke(main, ["inspect", "--help"])
     assert result.exit_code == 0 and "Example: cavity inspect examples/northbay.toml" in result.output
+
+
+def test_inspect_estimates_the_run_time_from_the_cost_model():
+    # The estimate is the cost model (grid.expected_cell_updates) over the reference engine rates
+    # that `cavity bench` measured, and says so.
+    from cavity import load_scenario
+    from cavity.bench import REFERENCE_ENGINE_RATES
+    from cavity.cli.inspect import describe
+    from cavity.paths import build_paths
+    from cavity.solve import plan_path
+
+    scenario = load_scenario(Path(__file__).resolve().parent.parent / "examples" / "uniform_night.toml")
+    line = next(x for x in describe(scenario) if "run time" in x)
+    assert "estimate" in line and "cavity bench" in line
+    updates = sum(plan_path(scenario, p).grid.expected_cell_updates for p in build_paths(scenario))
+    fast, slow = updates / max(REFERENCE_ENGINE_RATES), updates / min(REFERENCE_ENGINE_RATES)
+    shown = [float(w) for w in line.replace("min", " min").split() if w.replace(".", "").isdigit()]
+    assert shown[0] == pytest.approx(fast if fast < 120 else fast / 60, abs=0.6)
+    assert shown[1] == pytest.approx(slow if slow < 120 else slow / 60, abs=0.6)

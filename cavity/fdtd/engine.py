@@ -434,6 +434,10 @@ class Simulation:
         step = 0
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
         n_cols = nr
+        # progress in units of the cost model (columns stepped), so that elapsed time / fraction done
+        # predicts the time left: steps get dearer as the wave reaches more columns
+        expected_cols = p.expected_cell_updates / p.nz
+        done_cols = 0.0
         while step < n_max:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
@@ -482,6 +486,7 @@ class Simulation:
                 else:
                     m_series.append(i_series[-1] * self.plan.dz_m)
             step += 1
+            done_cols += n_cols
 
             if step % guard_every == 0:
                 src_peak = self._guard(step, t_e, src_peak, wave.end_s)
@@ -492,8 +497,9 @@ class Simulation:
                     break
                 last = now
             if progress is not None and step % 200 == 0:
-                frac = step / n_min if step < n_min else 0.9 + 0.1 * (step - n_min) / max(1, n_max - n_min)
-                progress(min(frac, 0.999), f"step {step}")
+                if done_cols > 0.98 * expected_cols:  # converging later than usual: two more checks
+                    expected_cols = done_cols + 2.0 * check_every * nr
+                progress(min(done_cols / expected_cols, 0.999), f"step {step}")
         wall = time.perf_counter() - t0
         if progress is not None:
             progress(1.0, "done")
