@@ -172,3 +172,21 @@ def test_help_has_example():
     assert result.exit_code == 0
     assert "Example" in result.output and "cavity profile --preset night" in result.output
     assert "profile" in CliRunner().invoke(main, ["--help"]).output
+
+
+def test_profile_and_scenario_refuse_the_same_hprime_and_beta(tmp_path):
+    # One source of the allowed ranges: what a scenario refuses, `cavity profile` refuses too.
+    from cavity.errors import ScenarioError
+    from cavity.scenario import BETA_RANGE_PER_KM, HPRIME_RANGE_KM, load_scenario
+
+    text = ('title = "Invented range check"\n[transmitter]\nname = "T"\nfrequency_khz = 20.0\n'
+            'radiated_power_kw = 1.0\n[[receiver]]\nname = "R"\nrange_km = 500.0\n'
+            '[ionosphere]\nhprime_km = {h}\nbeta_per_km = {b}\n[ground]\nkind = "sea"\n')
+    for h, b, bad in ((45.0, 0.5, "--hprime"), (74.0, 1.8, "--beta")):
+        with pytest.raises(ScenarioError):
+            load_scenario(text.format(h=h, b=b))
+        result = run("--hprime", h, "--beta", b)
+        assert result.exit_code == 2 and bad in result.output
+        low, high = HPRIME_RANGE_KM if bad == "--hprime" else BETA_RANGE_PER_KM
+        assert f"{low}" in result.output and f"{high}" in result.output
+    assert run("--hprime", HPRIME_RANGE_KM[1], "--beta", BETA_RANGE_PER_KM[1]).exit_code == 0
