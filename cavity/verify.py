@@ -329,14 +329,32 @@ def run_checks(full: bool = False, only: list[str] | None = None, progress=None)
     return out
 
 
+#: Widest line of :func:`format_table`, characters.
+TABLE_WIDTH = 100
+
+
 def format_table(results: list[CheckResult]) -> str:
-    """Plain-text table: check, source, expected, obtained, tolerance, pass/fail, seconds."""
-    header = ["check", "source", "expected", "obtained", "tolerance", "result", "s"]
-    rows = [[r.name, r.source, r.expected, r.obtained, r.tolerance, "pass" if r.passed else "FAIL",
-             f"{r.seconds:.0f}"] for r in results]
-    widths = [max(len(str(x)) for x in col) for col in zip(header, *rows)]
-    lines = ["  ".join(str(c).ljust(w) for c, w in zip(row, widths)).rstrip() for row in [header, *rows]]
-    lines.insert(1, "  ".join("-" * w for w in widths))
+    """Plain-text table at most :data:`TABLE_WIDTH` characters wide: check, expected, obtained,
+    tolerance, result and time (s), cells wrapped onto more lines; sources numbered below it."""
+    import textwrap
+
+    sources = list(dict.fromkeys(r.source for r in results))
+    header = ["Check [source]", "Expected", "Obtained", "Tolerance", "Result", "Time (s)"]
+    widths = [22, 22, 22, 10, 6, 8]
+    rows = [[f"{r.name} [{sources.index(r.source) + 1}]", r.expected, r.obtained, r.tolerance,
+             "pass" if r.passed else "FAIL", f"{r.seconds:.0f}"] for r in results]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip(),
+             "  ".join("-" * w for w in widths)]
+    for row in rows:
+        cells = [textwrap.wrap(str(c), w) or [""] for c, w in zip(row, widths)]
+        for k in range(max(len(c) for c in cells)):
+            parts = [(c[k] if k < len(c) else "").ljust(w) for c, w in zip(cells, widths)]
+            lines.append("  ".join(parts).rstrip())
+    lines.append("")
+    lines.append("Sources:")
+    for n, source in enumerate(sources, 1):
+        lines += textwrap.wrap(source, TABLE_WIDTH - 6, initial_indent=f"[{n}]".ljust(5) + " ",
+                               subsequent_indent=" " * 6)
     return "\n".join(lines)
 
 

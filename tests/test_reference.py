@@ -386,3 +386,20 @@ def test_ground_wave_values_of_the_design_note():
     f_db = db(groundwave.attenuation_function(r, f, sigma, eps_r))
     assert np.all(np.abs(f_db - db(ratio)) < 0.25)  # F omits terms of order 1/(k d)
     assert np.all(np.abs(f_db[1:] - db(ratio[1:])) < 0.12)
+
+
+def test_verify_table_fits_100_columns_with_labelled_columns():
+    from cavity.verify import TABLE_WIDTH, CheckResult, format_table
+
+    long = "x" * 150
+    results = [CheckResult("calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); " + long,
+                           "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km", "worst 0.042 dB", "0.2 dB",
+                           True, 6.4),
+               CheckResult("plasma stability", "Yu and Simpson 2010", "bounded for 100000 steps",
+                           "max |Ez| 2.9e-06", "finite, no growth", False, 20.0)]
+    text = format_table(results)
+    assert max(len(line) for line in text.splitlines()) <= TABLE_WIDTH <= 100
+    header = text.splitlines()[0]
+    for label in ("Check", "Expected", "Obtained", "Tolerance", "Result", "Time (s)"):
+        assert label in header
+    assert "FAIL" in text and "pass" in text and "[1]" in text and "[2]" in text
