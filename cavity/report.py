@@ -15,7 +15,7 @@ Definitions used by the tables:
 
 Attenuation rates (:func:`attenuation_rate`) are least-squares slopes of the field in dB against
 range after the geometric spreading is removed: 1/sqrt(d) on a flat earth, 1/sqrt(a sin(d/a)) on the
-sphere (the solver's spherical correction, design notes physics section 7), so that what remains is
+sphere (the solver's spherical correction, docs/physics.md 7), so that what remains is
 the waveguide's own loss per 1000 km.
 """
 
@@ -41,7 +41,7 @@ if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
     from matplotlib.figure import Figure
 
-#: Earth radius of the solver's curvature model, km (design notes physics section 7).
+#: Earth radius of the solver's curvature model, km (docs/physics.md 7).
 EARTH_RADIUS_KM = 6371.0
 #: Default range window of the attenuation fit, km.
 DEFAULT_FIT_KM = (1000.0, 3000.0)
@@ -561,7 +561,7 @@ def spreading_db(range_km, spreading: str = "sphere") -> np.ndarray:
     """Geometric spreading loss of a cylindrical wave relative to 1 km, dB.
 
     ``10 log10(d / 1 km)`` on a flat earth; on a sphere of radius a the wavefront's circumference is
-    2 pi a sin(d/a), so ``10 log10(a sin(d/a) / 1 km)`` (design notes, physics section 7).
+    2 pi a sin(d/a), so ``10 log10(a sin(d/a) / 1 km)`` (docs/physics.md 7).
     """
     d = np.asarray(range_km, dtype=float)
     if spreading == "sphere":

@@ -1,10 +1,10 @@
 """Scenario -> paths -> one time-domain solve per path -> result dataset.
 
 The orchestration a notebook and the CLI share: :func:`simulate` turns a validated scenario into the
-:class:`xarray.Dataset` of the result-file contract (conventions.md). Calibration: the engine returns
+:class:`xarray.Dataset` of the result-file contract (README, "Result file reference"). Calibration: the engine returns
 fields per unit current moment; they are scaled here by the RMS moment of a short monopole that
-radiates the transmitter's power over perfect ground (physics.md 6), then corrected from flat to
-spherical spreading when earth curvature is on (physics.md 7).
+radiates the transmitter's power over perfect ground (docs/physics.md 6), then corrected from flat to
+spherical spreading when earth curvature is on (docs/physics.md 7).
 """
 
 from __future__ import annotations
@@ -206,7 +206,7 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
 
     Returns
     -------
-    xarray.Dataset following the result-file contract (conventions.md), not yet written. A scenario
+    xarray.Dataset following the result-file contract (README, "Result file reference"), not yet written. A scenario
     whose ``[source]`` is a lightning stroke is solved by :func:`cavity.sferic.simulate_sferic`.
     """
     if _is_lightning(scenario):

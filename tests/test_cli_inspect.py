@@ -59,7 +59,7 @@ def test_uniform_grid_is_the_engines_plan():
     # the default cells per wavelength at 19.6 kHz: dr = c / f / 24 = 637.3 m (common practice: 20 or more)
     assert cells[2] == "637"
     # Courant: dt must stay below the 2-D Cartesian limit dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and
-    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (physics notes, section 2)
+    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (docs/physics.md 2)
     assert plan.dt_s < plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
     assert "Marker 3000" in result.stdout and "by range" in result.stdout
 

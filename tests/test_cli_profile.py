@@ -39,7 +39,7 @@ def test_preset_day_prints_reflection_height_and_table():
     # Wait-Spies closed form with the published constant 2.506e5 /s: 71.8 + ln(2 pi 20e3/2.506e5)/0.335.
     expected_km = 71.8 + math.log(2 * math.pi * 20e3 / 2.506e5) / 0.335
     assert float(table_row(out, "20")[1]) == pytest.approx(expected_km, abs=0.01)
-    # nu(70 km) = 5.0e6 /s (Wait and Spies 1964; physics.md 9.1).
+    # nu(70 km) = 5.0e6 /s (Wait and Spies 1964; docs/physics.md 9.1).
     row = table_row(out, "70")
     assert float(row[2]) == pytest.approx(5.0e6, rel=1e-3)
     # Ne(60 km) for h' = 71.8, beta = 0.335 from the Wait-Spies formula: 3.388e7 m^-3.

@@ -108,7 +108,7 @@ def synthetic(rate_db_per_1000km=2.0, freqs_khz=(20.0,), *, spreading="sphere", 
 
 
 def test_spreading_on_sphere_and_flat():
-    # Spherical spreading 1/sqrt(a sin(d/a)) against flat 1/sqrt(d) (design notes physics 7: the
+    # Spherical spreading 1/sqrt(a sin(d/a)) against flat 1/sqrt(d) (docs/physics.md 7: the
     # correction sqrt(d / (a sin(d/a))) is +0.5 dB at 5 Mm, +2 dB at 10 Mm, from memory).
     d = np.array([5000.0, 10000.0])
     extra = spreading_db(d, "flat") - spreading_db(d, "sphere")  # power ratio of the two, dB

@@ -59,7 +59,7 @@ def minutes(a: datetime, b: datetime) -> float:
 def test_day_length_at_midsummer_matches_the_sunrise_equation():
     # Sunrise equation for the geometric horizon: cos H0 = -tan(phi) tan(delta) (Meeus 1998,
     # Astronomical Algorithms, ch. 15, with h0 = 0); delta = 23.439 deg at the June solstice
-    # (the obliquity; physics.md check value 23.439 deg zenith at 0N 0E, 2024-06-21 12:00 UTC).
+    # (the obliquity; docs/physics.md check value 23.439 deg zenith at 0N 0E, 2024-06-21 12:00 UTC).
     phi, delta = math.radians(51.5), math.radians(23.439)
     expected_h = 2 * math.degrees(math.acos(-math.tan(phi) * math.tan(delta))) / 15.0  # 16.40 h
     events = sun_crossings(51.5, 0.0, datetime(2024, 6, 21, tzinfo=UTC), datetime(2024, 6, 22, tzinfo=UTC))

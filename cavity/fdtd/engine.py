@@ -26,7 +26,7 @@ from cavity.fdtd.source import GaussianPulse, ToneBursts
 
 log = logging.getLogger(__name__)
 
-#: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (physics.md 1: 3182.6)
+#: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (docs/physics.md 1: 3182.6)
 WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
 #: Loss tangent below which a row is stepped as vacuum (see Simulation._build).
 PLASMA_THRESHOLD = 1e-6

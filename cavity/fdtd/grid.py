@@ -7,7 +7,7 @@ Layout (Taflove and Hagness 2005, ch. 12 body-of-revolution FDTD, m = 0):
 - ``hphi[i, j]`` at (r = (i + 1/2) dr, z = (j + 1/2) dz).
 
 The stability limit of this scheme is below the 2-D Cartesian one because of the on-axis update
-(physics.md 2: c dt = 0.6728 d for dr = dz = d); it is found here by power iteration on the
+(docs/physics.md 2: c dt = 0.6728 d for dr = dz = d); it is found here by power iteration on the
 discrete curl-curl operator, so any aspect ratio dr/dz is handled.
 """
 
@@ -26,11 +26,11 @@ from cavity.errors import ResourceError, SolverError
 #: the radial dispersion correction, 24 keeps a 3,000 km day (night) guide within 0.8 dB (1.1 dB) of
 #: the normal-mode reference; 20 gives 1.1 dB by day (README, "Accuracy and speed").
 DEFAULT_CELLS_PER_WAVELENGTH = 24.0
-#: Largest vertical cell: resolves the profile scale 1/beta (physics.md 2).
+#: Largest vertical cell: resolves the profile scale 1/beta (docs/physics.md 2).
 MAX_DZ_M = 500.0
 #: Fraction of the stability limit used for the time step.
 COURANT_SAFETY = 0.95
-#: Default absorbing-layer thickness in cells (physics.md 4: 20 cells, m = 3).
+#: Default absorbing-layer thickness in cells (docs/physics.md 4: 20 cells, m = 3).
 DEFAULT_PML_CELLS = 20
 #: Bytes per grid cell of the engine (float32 fields, coefficients and auxiliary arrays).
 BYTES_PER_CELL = 4 * 16
