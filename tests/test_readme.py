@@ -82,3 +82,17 @@ def test_readme_commands_run_in_order(tmp_path):
     assert any("memo_report.py" in c for c in ran)
     for name in ("receivers.md", "receivers.csv", "day-night.png", "comparison.md", "memo.md"):
         assert (tmp_path / name).is_file(), name
+
+
+def test_demo_time_is_stated_the_same_everywhere():
+    from click.testing import CliRunner
+
+    from cavity.cli import main
+
+    text = README.read_text(encoding="utf-8")
+    quick_start = text.split("## Using it")[0]
+    demo_section = text.split("### The demo")[1].split("###")[0]
+    help_text = CliRunner().invoke(main, ["demo", "--help"]).output
+    for where in (quick_start, demo_section, help_text):
+        assert "2-3 min" in where
+    assert "a few minutes" not in help_text and "about a minute" not in quick_start
