@@ -1200,12 +1200,14 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
 
 def common_amplitude_limits(datasets: Sequence[xr.Dataset]) -> tuple[float, float] | None:
     """Amplitude y-limits shared by several results' plots (so day and night read on one scale)."""
-    values = []
+    curves, near = [], 0.0
     for ds in datasets:
         r = np.asarray(ds["range"].values, dtype=float)
         amp = np.asarray(ds["ez_amplitude"].values, dtype=float).reshape(-1, r.size)
-        values += [row[_finite_span(r, row)] for row in amp]
-    return _amplitude_limits(values)
+        curves += [(r, row) for row in amp]
+        near = max(near, near_field_km(float(_frequencies(ds).min())))
+    # as on a comparison: every null beyond the near field in view, down to COMPARISON_SPAN_DB
+    return _comparison_limits(curves, near)
 
 
 def plot_result(ds: xr.Dataset, output, *, phase: str = "relative", dpi: int = 150,
