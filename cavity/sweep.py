@@ -106,13 +106,13 @@ class SweepPoint:
 
     @property
     def name(self) -> str:
-        """How the point is named to the user, e.g. ``2026-03-20T06:15:00Z 19.6 kHz``."""
+        """How the point is named to the user, e.g. ``2026-03-20T03:15:00Z 14.3 kHz``."""
         f = f"{self.frequency_hz / 1e3:g} kHz"
         return f"{_utc_text(self.utc)} {f}" if self.utc is not None else f
 
     @property
     def key(self) -> str:
-        """A file-name-safe identity of the point, e.g. ``t20260320T061500Z_f19.6kHz``."""
+        """A file-name-safe identity of the point, e.g. ``t20260320T031500Z_f14.3kHz``."""
         f = f"f{self.frequency_hz / 1e3:g}kHz"
         return f"t{self.utc:%Y%m%dT%H%M%SZ}_{f}" if self.utc is not None else f
 

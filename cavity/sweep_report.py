@@ -123,7 +123,7 @@ def path_levels(ds: xr.Dataset) -> tuple[xr.DataArray, list[str]] | None:
     -------
     (xarray.DataArray, list of str) or None
         Levels in dB re 1 uV/m on (path, frequency, time) (NaN for a path without receivers) and
-        labels such as ``"to Gannet Reach, 1515-3029 km"``; None when the dataset holds no field
+        labels such as ``"to Oryx Hollow, 1493-2986 km"``; None when the dataset holds no field
         along range (a file reduced to receiver values).
     """
     import xarray as xr

@@ -157,7 +157,8 @@ def test_table_existing_output_refused(tmp_path):
     assert out.read_text() == "keep me"
     assert invoke("table", DAY, "-o", out, "--overwrite").exit_code == 0
     text = out.read_text()
-    assert text.startswith("Merlin Knoll, 12.5, 18.3 kHz, 80 kW radiated; ionosphere") and "\n| Receiver" in text
+    freqs = ", ".join(f"{f:g}" for f in open_result(DAY)["frequency"].values)
+    assert text.startswith(f"Merlin Knoll, {freqs} kHz, 80 kW radiated; ionosphere") and "\n| Receiver" in text
 
 
 # --------------------------------------------------------------------------------------------------
@@ -199,12 +200,12 @@ def test_compare_fit_range_shown(tmp_path):
 def test_compare_different_frequencies_names_both_sets(tmp_path):
     result = invoke("compare", DAWN, DAWN, "-o", tmp_path / "same.png")
     assert result.exit_code == 0, result.output  # same frequency: fine
-    single = tmp_path / "f18.nc"
+    single = tmp_path / "f14.nc"
     from cavity.results import write_result
 
     write_result(open_result(DAY).isel(frequency=[1]), single)
     line = one_line_error(invoke("compare", DAWN, single, "-o", tmp_path / "c.png"))
-    assert "golden_dawn has 12.5 kHz and f18 has 18.3 kHz" in line
+    assert "golden_dawn has 10.5 kHz and f14 has 14.3 kHz" in line
     assert not (tmp_path / "c.png").exists()
 
 

@@ -27,7 +27,7 @@ UTC = timezone.utc
 
 
 def synthetic_sweep(tx=(0.0, 0.0), receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0)),
-                    start=datetime(2026, 3, 20, tzinfo=UTC), hours=24, step_min=30, freqs=(16.0, 21.4)):
+                    start=datetime(2026, 3, 20, tzinfo=UTC), hours=24, step_min=30, freqs=(16.0, 27.6)):
     """A sweep-shaped dataset: receiver amplitudes (receiver, frequency, time), as a sweep file holds."""
     n = hours * 60 // step_min + 1
     times = np.array([np.datetime64((start + timedelta(minutes=step_min * k)).replace(tzinfo=None), "ns") for k in range(n)])
@@ -110,7 +110,7 @@ def test_table_gives_min_median_max_and_their_instants():
     ds["receiver_ez_amplitude"][0, 1, 5] = np.nan  # a failed point
     table = table_diurnal(ds)
     assert list(table["receiver"]) == ["Quarry Hill", "Quarry Hill", "Saltmarsh", "Saltmarsh"]
-    assert list(table["frequency_khz"]) == [16.0, 21.4, 16.0, 21.4]
+    assert list(table["frequency_khz"]) == [16.0, 27.6, 16.0, 27.6]
     row = table.iloc[0]
     # 60 + 1.6 + 5 cos(2 pi t / 24 h): maximum at 00:00 and 24:00, minimum at 12:00
     assert row["ez_max_db"] == pytest.approx(66.6) and row["ez_min_db"] == pytest.approx(56.6)
@@ -127,7 +127,8 @@ def test_table_gives_min_median_max_and_their_instants():
     cells = [[c.strip() for c in line.strip("|").split("|")] for line in lines]
     assert cells[0][:3] == ["Receiver", "Range (km)", "Frequency (kHz)"]
     assert len({len(line) for line in lines}) == 1  # padded: every line equally long
-    assert ["Quarry Hill", "1000.0", "21.40", "48", "57.1"] in [row[:5] for row in cells]
+    # frequency 27.6 kHz: 60 + 2.76 - 5 = 57.76 dB at its minimum (the synthetic formula above)
+    assert ["Quarry Hill", "1000.0", "27.60", "48", "57.8"] in [row[:5] for row in cells]
     csv = format_diurnal_table(table, "csv")
     assert csv.splitlines()[1].startswith("Quarry Hill,1000.00,16.00,49,56.60,")
     with pytest.raises(ValueError, match="fmt"):
@@ -187,7 +188,7 @@ def sweep_with_paths():
             "ez_amplitude": (("path", "frequency", "range", "time"), ez),
             "solar_zenith_angle": (("path", "range", "time"), chi),
         },
-        coords={"time": ("time", times), "frequency": ("frequency", np.array([19.6])), "range": ("range", r)},
+        coords={"time": ("time", times), "frequency": ("frequency", np.array([14.3])), "range": ("range", r)},
         attrs={"title": "Invented sweep with paths"},
     )
 

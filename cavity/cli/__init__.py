@@ -56,5 +56,5 @@ def main():
 
     A planning aid, not a guarantee of service: see the cautions in the README.
 
-    Example: cavity inspect examples/northbay.toml
+    Example: cavity inspect examples/quillon_head.toml
     """

@@ -49,7 +49,7 @@ def _simulate(scenario, quiet: bool, label: str):
 def command(folder, overwrite, quiet):
     """Run the bundled invented demo by day and by night and write a memo's worth of files.
 
-    One transmitter (Fulmar Sound, 22.3 kHz, 150 kW) and three listening posts at about 470, 1,500 and
+    One transmitter (Velmory Sound, 27.6 kHz, 150 kW) and three listening posts at about 470, 1,500 and
     3,000 km on one great circle over land and sea (ground from the land/sea mask), solved under the
     published midday and night ionospheres. Every name is made up. Written to FOLDER:
 
@@ -61,8 +61,8 @@ def command(folder, overwrite, quiet):
       plot_day.png, plot_night.png amplitude and phase against range
       map.png                     transmitter, receivers and the path by ground class
 
-    Takes 2-3 minutes on two cores (measured 2 min 20 s on a shared 2-core machine: two solves of
-    about 1.7 x 10^10 cell updates each; cavity inspect estimates a run before it starts).
+    Takes 3-10 min on two cores (measured 9 min 37 s on a busy shared 2-core machine, 2 min 57 s of
+    CPU time: two solves of about 2 x 10^10 cell updates each; cavity inspect estimates a run).
     Existing files are replaced only with --overwrite; nothing is written if the run fails.
 
     \b

@@ -168,7 +168,7 @@ def command(scenario: str) -> None:
     the ionosphere and ground, the paths to solve, and the grid of each solve: cell sizes, time
     step, cells, time steps and memory.
 
-    Example: cavity inspect examples/northbay.toml
+    Example: cavity inspect examples/quillon_head.toml
     """
     from cavity import load_scenario
 

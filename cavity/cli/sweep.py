@@ -12,7 +12,7 @@ from cavity.cli.common import check_output_file, friendly_errors, one_line, prog
 
 
 def _frequencies(values) -> list[float] | None:
-    """``--frequency 16 --frequency 21.4`` or ``--frequency 16,21.4`` -> [16.0, 21.4] (kHz)."""
+    """``--frequency 16 --frequency 27.6`` or ``--frequency 16,27.6`` -> [16.0, 27.6] (kHz)."""
     if not values:
         return None
     out = []
@@ -62,8 +62,8 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
 
     \b
     Example:
-      cavity sweep examples/northbay.toml --start 2026-03-20T00:00Z \\
-          --stop 2026-03-21T00:00Z --step 30min -o northbay_day.nc
+      cavity sweep examples/quillon_head.toml --start 2026-03-20T00:00Z \\
+          --stop 2026-03-21T00:00Z --step 30min -o quillon_head_day.nc
     """
     from pathlib import Path
 
