@@ -114,7 +114,7 @@ def test_inspect_estimates_the_run_time_from_the_cost_model():
     # The estimate is the cost model (grid.expected_cell_updates) over the reference engine rates
     # that `cavity bench` measured, and says so.
     from cavity import load_scenario
-    from cavity.bench import REFERENCE_ENGINE_RATES
+    from cavity.checks.bench import REFERENCE_ENGINE_RATES
     from cavity.cli.inspect import describe
     from cavity.paths import build_paths
     from cavity.solve import plan_path

@@ -1,4 +1,4 @@
-"""Checks of cavity.maps and ``cavity map``: offline rendering, day/night shading, errors."""
+"""Checks of cavity.reports.maps and ``cavity map``: offline rendering, day/night shading, errors."""
 
 from __future__ import annotations
 
@@ -9,8 +9,8 @@ import pytest
 from click.testing import CliRunner
 
 from cavity.errors import CavityError, ScenarioError
-from cavity.maps import NIGHT_SHADE, TWILIGHT_SHADE, draw_map, ring_step_km
 from cavity.paths import build_paths
+from cavity.reports.maps import NIGHT_SHADE, TWILIGHT_SHADE, draw_map, ring_step_km
 from cavity.scenario import load_scenario
 
 

@@ -389,7 +389,7 @@ def test_ground_wave_values_of_the_design_note():
 
 
 def test_verify_table_fits_100_columns_with_labelled_columns():
-    from cavity.verify import TABLE_WIDTH, CheckResult, format_table
+    from cavity.checks.verify import TABLE_WIDTH, CheckResult, format_table
 
     long = "x" * 150
     results = [CheckResult("calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); " + long,

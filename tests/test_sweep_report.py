@@ -15,7 +15,7 @@ import xarray as xr
 from pyproj import Geod
 
 from cavity.errors import ResultFileError
-from cavity.sweep_report import (
+from cavity.reports.sweep import (
     format_diurnal_table,
     path_midpoints,
     plot_diurnal,
@@ -194,7 +194,7 @@ def sweep_with_paths():
 
 
 def test_path_levels_are_medians_over_the_far_half_of_each_path():
-    from cavity.sweep_report import path_levels
+    from cavity.reports.sweep import path_levels
 
     levels, labels = path_levels(sweep_with_paths())
     # far half of path 0: 1200-2400 km; the median of the straight line 100 - 0.01 r over an even
@@ -207,7 +207,7 @@ def test_path_levels_are_medians_over_the_far_half_of_each_path():
 
 
 def test_day_and_night_medians_follow_the_sun_along_each_receivers_path():
-    from cavity.sweep_report import daylight_at_receivers
+    from cavity.reports.sweep import daylight_at_receivers
 
     ds = sweep_with_paths()
     state = daylight_at_receivers(ds)

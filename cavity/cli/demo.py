@@ -69,11 +69,16 @@ def command(folder, overwrite, quiet):
     Example:
       cavity demo -o demo-output
     """
-    from cavity.maps import draw_map
     from cavity.paths import build_paths
-    from cavity.report import (
-        attenuation_rows, common_amplitude_limits, comparison_report, plot_comparison, plot_result,
-        receiver_table, write_text,
+    from cavity.reports.maps import draw_map
+    from cavity.reports.tables import (
+        attenuation_rows,
+        common_amplitude_limits,
+        comparison_report,
+        plot_comparison,
+        plot_result,
+        receiver_table,
+        write_text,
     )
     from cavity.results import write_result
 

@@ -6,6 +6,7 @@ import click
 
 from cavity.cli.common import friendly_errors
 
+
 def _latlon(lat: float, lon: float) -> str:
     lon = (lon + 180.0) % 360.0 - 180.0
     return f"{abs(lat):.3f} {'N' if lat >= 0 else 'S'}, {abs(lon):.3f} {'E' if lon >= 0 else 'W'}"
@@ -143,7 +144,7 @@ def describe(scenario) -> list[str]:
     t_max = max(w[1] for w in windows)
     lines.append(f"  total {updates:.3g} cell updates (columns the wave has not reached are skipped); each solve simulates at least {t_min * 1e3:.1f} ms "
                  f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged")
-    from cavity.bench import REFERENCE_ENGINE_RATES, REFERENCE_MACHINE, estimate_seconds
+    from cavity.checks.bench import REFERENCE_ENGINE_RATES, REFERENCE_MACHINE, estimate_seconds
 
     fast, slow = estimate_seconds(plans)
     lines.append(f"  run time: about {_seconds(fast)} to {_seconds(slow)} of solving (estimate for {REFERENCE_MACHINE}, "

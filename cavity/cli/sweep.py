@@ -68,7 +68,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     from pathlib import Path
 
     import cavity
-    from cavity.sweep import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
+    from cavity.sweeps import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
 
     if (start is None) != (stop is None):
         raise click.UsageError("--start and --stop go together")
@@ -85,7 +85,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     if not quiet:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.sweep")
+        logger = logging.getLogger("cavity.sweeps")
         logger.addHandler(handler)
         logger.setLevel(logging.INFO)
     t0 = time.perf_counter()
@@ -103,7 +103,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
         sys.exit(128 + getattr(exc, "signum", 2))
     finally:
         if handler is not None:
-            logging.getLogger("cavity.sweep").removeHandler(handler)
+            logging.getLogger("cavity.sweeps").removeHandler(handler)
     path = write_sweep(ds, target, overwrite=overwrite)
     missing = ds.attrs.get("sweep_missing_points")
     if missing:

@@ -190,7 +190,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
     Parameters
     ----------
     ds : xarray.Dataset
-        A sweep dataset (from :func:`cavity.sweep.sweep` or a sweep file).
+        A sweep dataset (from :func:`cavity.sweeps.sweep` or a sweep file).
     output_path : str or os.PathLike
         Figure file, .png or .pdf (written atomically).
     quantity : {"ez", "b"}
@@ -274,7 +274,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
         labels += ["sunrise at path midpoint", "sunset at path midpoint"]
     axes[0].legend(handles, labels, fontsize="small", loc="best")
     fig.suptitle(str(ds.attrs.get("title", "sweep")))
-    from cavity.report import save_figure
+    from cavity.files import save_figure
 
     return [str(save_figure(fig, output_path))]
 
@@ -342,7 +342,7 @@ def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
         raise ValueError(f"fmt = {fmt!r} must be 'markdown' or 'csv'")
     if fmt == "csv":
         return table.to_csv(index=False, float_format="%.2f", lineterminator="\n")
-    from cavity.report import Column, format_table
+    from cavity.reports.tables import Column, format_table
 
     columns = [
         Column("receiver", "Receiver", "receiver"),

@@ -276,7 +276,7 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
     ax.set_title(f"{heading}\n{time_text}; azimuthal equidistant about the transmitter; "
                  "coastline from the 1 km land/sea mask", fontsize=10)
 
-    from cavity.report import save_figure  # the one atomic figure writer
+    from cavity.files import save_figure  # the one atomic figure writer
 
     save_figure(fig, path, dpi=dpi)
     return notes
