@@ -32,7 +32,7 @@ if TYPE_CHECKING:  # pragma: no cover
 EZ_REFERENCE_V_PER_M = 1e-6
 B_REFERENCE_T = 1e-15
 
-#: What every result file says about the trust to place in it (design notes, physics section 10).
+#: What every result file says about the trust to place in it (docs/physics.md 10).
 CAUTIONS = (
     "Predictions are planning estimates: h' and beta vary with season, latitude, solar cycle, flares "
     "and particle precipitation; ground maps are coarse; the axisymmetric model has no geomagnetic "

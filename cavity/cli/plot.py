@@ -29,7 +29,8 @@ def diurnal_plot(ds, output) -> None:
               default=Path("plot.png"), show_default=True, help="Figure to write: .png or .pdf.")
 @click.option("--overwrite", is_flag=True, help="Replace an existing figure.")
 @click.option("--phase", type=click.Choice(["relative", "unwrapped"]), default="relative", show_default=True,
-              help="relative: phase + 360 f d/c, the speed-of-light delay removed; unwrapped: as in the file.")
+              help="relative: phase + 360 f d/c (speed-of-light delay removed) wrapped to (-180, 180], "
+                   "as cavity table prints it; unwrapped: as in the file.")
 @click.option("--dpi", type=click.IntRange(50, 600), default=150, show_default=True,
               help="Resolution of a PNG figure, dots per inch.")
 @click.option("--required", "required_db", type=float, metavar="DB",
@@ -46,8 +47,9 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
 
     One pair of panels per path and frequency: the RMS vertical field at the ground in dB re 1 uV/m,
     and its phase in degrees. The phase is shown with the speed-of-light delay removed
-    (phase + 360 f d / c; exp(+j omega t) convention), which makes the guided wave's phase velocity
-    and modal ripples visible; --phase unwrapped shows the file's phase as it is.
+    (phase + 360 f d / c; exp(+j omega t) convention) and wrapped to (-180, 180] deg, the same
+    quantity cavity table prints; the grey band marks the near field (one wavelength), where the
+    phase still turns. --phase unwrapped shows the file's phase as it is.
 
     A sweep file (with a time dimension) gets the sweep's own diurnal figure instead, and a
     coverage file (cavity coverage) its map, with the --required (or SNR) contour.

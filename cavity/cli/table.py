@@ -23,7 +23,7 @@ def open_results(files) -> list:
     return [open_result(f) for f in files]
 
 
-def run_labels(files) -> list[str]:
+def file_labels(files) -> list[str]:
     """Short labels for result files: their stems, or their names when stems repeat."""
     stems = [Path(f).stem for f in files]
     if len(set(stems)) == len(stems):
@@ -79,9 +79,13 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
 
     One row per receiver and frequency: name, range (km), bearing (deg; blank for a receiver given
     by range only), vertical field Ez (dB re 1 uV/m and uV/m, RMS), flux density B (dB re 1 fT),
-    phase (deg, relative to the transmitter current) and day/night/transition at the receiver (from
+    phase re c delay (deg: phase + 360 f d / c wrapped to (-180, 180], as cavity plot draws it)
+    and day/night/transition at the receiver (from
     the solar zenith angle along the path, or the day/night preset; "-" when neither applies).
-    With several files a first column names the file each row comes from.
+    With several files a first column names the run of each row: day or night (a preset
+    ionosphere), its UTC, or the scenario's title. A Markdown table opens with a line per run naming
+    transmitter, frequency, power, ionosphere and time, gives each path's bearing once, and marks
+    a negative margin "(short)".
 
     \b
     --required DB adds   margin = Ez - DB.
@@ -103,7 +107,7 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.reports.tables import is_sweep, receiver_table, write_text
+    from cavity.reports.tables import is_sweep, receiver_table, run_labels, write_text
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")
@@ -135,7 +139,7 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
             )
         text = diurnal_table(sweeps[0], fmt)
     else:
-        labels = run_labels(results) if len(results) > 1 else None
+        labels = run_labels(datasets, fallback=file_labels(results)) if len(results) > 1 else None
         text = receiver_table(datasets, fmt, runs=labels, required_db=required_db, noise_db=noise_db,
                               bandwidth_hz=bandwidth_hz)
     if output is None:
