@@ -75,10 +75,11 @@ def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, 
     absorber/ground memory; -1 if none.
 
     Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
-    nonzero values at most one column further out (H at column i reads Ez at i+1, which is still
-    zero; E at i+1 reads H at i). Stepping only the columns up to the last active one plus the steps
-    until the next search is therefore exact, and skips the still-empty far part of a long path
-    during the first passage of the wave.
+    nonzero values at most ``reach`` columns further out: one for the Yee stencil (H at column i
+    reads Ez at i+1, which is still zero; E at i+1 reads H at i), three for the fourth-order one
+    (H at i reads Ez at i-1, E at i reads H at i-2). Stepping only the columns up to the last
+    active one plus ``reach`` times the steps until the next search is therefore exact, and skips
+    the still-empty far part of a long path during the first passage of the wave.
     """
     for i in range(start, -1, -1):
         if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
@@ -113,7 +114,7 @@ def minimal_e(ez, er, hp, rp, rm, inv_dz, ca, cb):
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
+def step_h(hp, ez, er, inv_dr, inv_dz, ar1, ar2, kz1, kz2, ch, ha, hb, sib_q, sib_w, sib_psi,
            jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
            acc_re, acc_im, cos_h, sin_h, n_cols):
     """One H half-step: Faraday's law, mu0 dH/dt = dEz/dr - dEr/dz, with both absorbers and the DFT.
@@ -121,6 +122,12 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
     Everything a column needs is local to it, so one parallel loop over columns with one barrier.
     Only columns ``0 .. n_cols-1`` are stepped: the caller guarantees that every field and memory
     beyond them is zero and would stay zero (see :func:`last_active_column`).
+
+    Differences from the stencil tables (:mod:`cavity.fdtd.stencil`): dEz/dr at column i is
+    ``ar1[i] (Ez[i+1] - Ez[i]) + ar2[i] (Ez[i+2] - Ez[i-1])`` (Ez[-1] read as Ez[1], the axis
+    mirror), dEr/dz at row j is ``kz1[j] (Er[j+1] - Er[j]) + kz2[j] (Er[j+2] - Er[j-1])``. ``inv_dr``
+    and ``inv_dz`` are the second-order factors used by the ground row (vertical) and the absorber
+    corrections, where the tables are second order and equal to them.
 
     Ground row (z = dz/2) with the impedance ground: Er(0) = -eta (H(n+1/2) + H(n-1/2))/2 + sum_k psi_k,
     the instantaneous part averaged in time (semi-implicit, unconditionally stable) and the memory
@@ -144,6 +151,11 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
     nf = acc_re.shape[0]
     for i in prange(n_cols):
         has_next = i + 1 < nr
+        ic = np.int64(i)
+        ip2 = ic + 2 if ic + 2 < nr else ic  # ar2 = 0 there
+        im1 = ic - 1 if ic > 0 else np.int64(1 if nr > 1 else 0)  # Ez is even about the axis
+        a1 = ar1[i]
+        a2 = ar2[i]
         h_old = hp[i, 0]
         psi_sum = 0.0
         for k in range(nk):
@@ -151,19 +163,27 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
             sib_psi[i, k] = p
             psi_sum += p
         ezn = ez[i + 1, 0] if has_next else np.float32(0.0)
-        curl = (ezn - ez[i, 0]) * inv_dr - er[i, 1] * inv_dz + psi_sum * inv_dz
+        curl = a1 * (ezn - ez[i, 0]) + a2 * (ez[ip2, 0] - ez[im1, 0]) - er[i, 1] * inv_dz + psi_sum * inv_dz
         hp[i, 0] = ha[i] * h_old + hb[i] * curl
         h = hp[i]
         e_r = er[i]
         e_z = ez[i]
         if has_next:
             e_n = ez[i + 1]
-            for j in range(1, nz):
-                v = h[j] + ch * ((e_n[j] - e_z[j]) * inv_dr - (e_r[j + 1] - e_r[j]) * inv_dz)
+            e_n2 = ez[ip2]
+            e_m = ez[im1]
+            for j in range(1, nz - 1):
+                v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j]))
+                                 - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1])))
                 h[j] = v if abs(v) > TINY else np.float32(0.0)
+            j = nz - 1
+            v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j])) - kz1[j] * (e_r[j + 1] - e_r[j]))
+            h[j] = v if abs(v) > TINY else np.float32(0.0)
         else:
-            for j in range(1, nz):
-                h[j] += ch * (-e_z[j] * inv_dr - (e_r[j + 1] - e_r[j]) * inv_dz)
+            for j in range(1, nz - 1):
+                h[j] += ch * (-e_z[j] * a1 - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1])))
+            j = nz - 1
+            h[j] += ch * (-e_z[j] * a1 - kz1[j] * (e_r[j + 1] - e_r[j]))
         for k in range(n_top):
             j = jz0 + k
             d = -(e_r[j + 1] - e_r[j]) * inv_dz
@@ -185,12 +205,17 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
+def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
            jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
            src, acc_re, acc_im, cos_e, sin_e, n_cols):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
 
     Columns ``0 .. n_cols-1`` only, as in :func:`step_h`.
+
+    The curls come first, into this thread's rows of ``scratch`` (threads, 2, nz + 1): the Ez curl
+    (1/r) d(r H)/dr at column i is ``ecoef[i] . (H[i+1], H[i], H[i-1], H[i-2])`` (axis and mirror
+    values folded into the table), the Er curl -dH/dz at row j is
+    ``-(ke1[j] (H[j] - H[j-1]) + ke2[j] (H[j+1] - H[j-2]))`` (:mod:`cavity.fdtd.stencil`).
 
     Vacuum rows (j < jp0): E += c curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
@@ -203,15 +228,13 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
     ``qb`` = eps omega_p^2 (dt/2)/(1 + nu dt/2) per cell, held once per distinct column profile:
     column i uses row ``prof[i]`` of ``qb``, so that a path under one ionosphere reads a single
     cached profile instead of streaming a table the size of the grid.
-    Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
-    on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2). Er curl:
-    -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
-    The plasma never reaches row 0 (``jp0 >= 1``). Inner loops run over row views indexed from zero
-    so that the compiler can vectorise them.
+    Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
+    The plasma never reaches row 0 (``jp0 >= 1``).
 
     Then the top CPML correction of dH/dz for Er (rows >= jz0) and the far-end correction of
     (1/r) d(rH)/dr for Ez (columns >= ir0, stretched as a Cartesian derivative: error of order the
-    layer depth over r). ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
+    layer depth over r); there the stencil is second order and the curls are the layers' d.
+    ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
     cells J(n+1) was computed from the uncorrected E(n+1); it receives qb dE so that the pair stays
     the trapezoidal E-J update of the stretched equations. Finally ``ez[0, 0] -= src`` (the source
     current element on the axis) and the ground-row DFT.
@@ -223,46 +246,61 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
     half = np.float32(0.5)
     one = np.float32(1.0)
     for i in prange(n_cols):
-        im = i - 1 if i > 0 else 0
-        a = rp[i]
-        b = rm[i]
+        tid = nb.get_thread_id()
+        cz = scratch[tid, 0]
+        cr = scratch[tid, 1]
+        ic = np.int64(i)
+        ip = ic + 1 if ic + 1 < nr else ic  # ecoef[i, 0] = 0 there
+        im = ic - 1 if ic > 0 else np.int64(0)
+        im2 = ic - 2 if ic > 1 else np.int64(0)
+        c0 = ecoef[i, 0]
+        c1 = ecoef[i, 1]
+        c2 = ecoef[i, 2]
+        c3 = ecoef[i, 3]
         e_z = ez[i]
         e_r = er[i]
         h = hp[i]
+        hn = hp[ip]
         hm = hp[im]
+        hm2 = hp[im2]
+        for j in range(nz):
+            cz[j] = c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j]
+        cr[0] = np.float32(0.0)
+        for j in range(1, nz):
+            cr[j] = -ke1[j] * (h[j] - h[j - 1])
+        for j in range(2, nz - 1):
+            cr[j] -= ke2[j] * (h[j + 1] - h[j - 2])
         for j in range(jp0):
-            e_z[j] += cez[j] * (a * h[j] - b * hm[j])
+            e_z[j] += cez[j] * cz[j]
         for j in range(1, jp0):
-            e_r[j] -= cer[j] * (h[j] - h[j - 1]) * inv_dz
+            e_r[j] += cer[j] * cr[j]
         ezp = ez[i, jp0:]
-        hp0 = hp[i, jp0:]
-        hpm = hp[im, jp0:]
+        czp = cz[jp0:]
         qb = qb_z[prof_z[i]]
         jj = jz[i]
         for k in range(n):
             e_old = ezp[k]
             g = qb[k]
-            e_new = e_old + ((a * hp0[k] - b * hpm[k]) - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
+            e_new = e_old + (czp[k] - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_z[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             ezp[k] = e_new
         erp = er[i, jp0:]
-        hlo = hp[i, jp0 - 1:]
+        crp = cr[jp0:]
         qb = qb_r[prof_r[i]]
         jj = jr[i]
         for k in range(n):
             e_old = erp[k]
             g = qb[k]
-            curl = -(hp0[k] - hlo[k]) * inv_dz
-            e_new = e_old + (curl - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
+            e_new = e_old + (crp[k] - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_r[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             erp[k] = e_new
         for k in range(n_top):
             j = jz0 + k
-            d = -(h[j] - h[j - 1]) * inv_dz
+            d = cr[j]
             p = b_ze[k] * psi_ze[i, k] + c_ze[k] * d
             psi_ze[i, k] = p
             de = ce_top[i, k] * (kd_ze[k] * d + p)
@@ -272,7 +310,7 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
         if i >= ir0:
             kk = i - ir0
             for j in range(nz):
-                d = a * h[j] - b * hm[j]
+                d = cz[j]
                 p = b_re[kk] * psi_re[kk, j] + c_re[kk] * d
                 psi_re[kk, j] = p
                 de = ce_far[kk, j] * (kd_re[kk] * d + p)
