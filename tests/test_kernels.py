@@ -12,7 +12,6 @@ from cavity.fdtd import kernels as K
 
 RNG = np.random.default_rng(7)
 F32 = np.float32
-K_THREADS = __import__("numba").config.NUMBA_NUM_THREADS
 
 
 def _dez_dr(ez, ar1, ar2):
@@ -50,7 +49,7 @@ def np_step_h(hp, ez, er, inv_dr, inv_dz, ar1, ar2, kz1, kz2, ch, ha, hb, sib_q,
     acc_im -= hp[:, 0][None, :] * sin_h[:, None]
 
 
-def np_step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r,
+def np_step_e(ez, er, hp, ecoef, ke1, ke2, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r,
               prof_r, jr, jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
               src, acc_re, acc_im, cos_e, sin_e, n_cols):
     nr, nz = ez.shape
@@ -121,7 +120,7 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
     ke1[2:jz0] = pos(jz0 - 2) + F32(1.0)
     ke2[2:jz0] = -pos(jz0 - 2) * F32(0.1)
     ke1[0] = ke1[nz] = 0
-    e = dict(ecoef=ecoef, ke1=ke1, ke2=ke2, scratch=np.zeros((K_THREADS, 2, nz + 1), F32), cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3), jp0=jp0,
+    e = dict(ecoef=ecoef, ke1=ke1, ke2=ke2, cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3), jp0=jp0,
              ed_z=1 + pos(n_pl) * 3, qa_z=pos(n_pl), qb_z=pos(5, n_pl), prof_z=RNG.integers(0, 5, nr).astype(np.int32),
              ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl), qb_r=pos(4, n_pl), prof_r=RNG.integers(0, 4, nr).astype(np.int32), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
              psi_ze=r(nr, n_top), ce_top=pos(nr, n_top) * F32(0.3), ir0=ir0, b_re=pos(n_far),
@@ -142,13 +141,13 @@ def test_fused_kernels_match_their_numpy_twins(steps):
     f_n, h_n, e_n = _copy(fields), _copy(h), _copy(e)
     for _ in range(steps):
         K.step_h(f_k["hp"], f_k["ez"], f_k["er"], **h_k)
-        K.step_e(f_k["ez"], f_k["er"], f_k["hp"], e_k["ecoef"], e_k["ke1"], e_k["ke2"], e_k["scratch"], e_k["cez"], e_k["cer"],
+        K.step_e(f_k["ez"], f_k["er"], f_k["hp"], e_k["ecoef"], e_k["ke1"], e_k["ke2"], e_k["cez"], e_k["cer"],
                  e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], e_k["prof_z"], f_k["jz"], e_k["ed_r"],
                  e_k["qa_r"], e_k["qb_r"], e_k["prof_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                              "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
                                                              "acc_re", "acc_im", "cos_e", "sin_e")], f_k["ez"].shape[0])
         np_step_h(f_n["hp"], f_n["ez"], f_n["er"], **h_n)
-        np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["ecoef"], e_n["ke1"], e_n["ke2"], e_n["scratch"], e_n["cez"], e_n["cer"],
+        np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["ecoef"], e_n["ke1"], e_n["ke2"], e_n["cez"], e_n["cer"],
                   e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], e_n["prof_z"], f_n["jz"], e_n["ed_r"],
                   e_n["qa_r"], e_n["qb_r"], e_n["prof_r"], f_n["jr"], *[e_n[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
                                                               "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",

@@ -148,13 +148,6 @@ def radial_dispersion_factor(frequencies_hz, dr: float, dt: float) -> float:
     return float((dr / (C0 * dt)) * math.sin(w * dt / 2) / math.sin(k * dr / 2))
 
 
-def numba_threads() -> int:
-    """Size of numba's thread pool (the kernels index per-thread scratch rows by thread id)."""
-    import numba
-
-    return int(numba.config.NUMBA_NUM_THREADS)
-
-
 def default_waveform(frequencies_hz) -> Callable:
     """Narrow tone bursts for a few carriers, one broadband pulse for a dense set."""
     f = sorted(frequencies_hz)
@@ -449,7 +442,6 @@ class Simulation:
         plasma_z, plasma_r = self.plasma_z, self.plasma_r
         n_cols = nr
         st = self.stencil
-        scratch = np.zeros((max(1, int(numba_threads())), 2, p.nz + 1), np.float32)  # per-thread curl rows
         reach = st.reach_columns * gridmod.FRONT_SEARCH_STEPS + 2
         while step < n_max:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
@@ -480,7 +472,7 @@ class Simulation:
             else:
                 current = 0.0
                 src_kick = np.float32(0.0)
-            K.step_e(self.ez, self.er, self.hp, st.er_coef, st.ke1, st.ke2, scratch, self.cez, self.cer, self.jp0,
+            K.step_e(self.ez, self.er, self.hp, st.er_coef, st.ke1, st.ke2, self.cez, self.cer, self.jp0,
                      *plasma_z, self.jz, *plasma_r, self.jr,
                      self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
                      self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag, n_cols)

@@ -205,17 +205,17 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ar1, ar2, kz1, kz2, ch, ha, hb, sib_q, si
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
+def step_e(ez, er, hp, ecoef, ke1, ke2, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
            jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
            src, acc_re, acc_im, cos_e, sin_e, n_cols):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
 
     Columns ``0 .. n_cols-1`` only, as in :func:`step_h`.
 
-    The curls come first, into this thread's rows of ``scratch`` (threads, 2, nz + 1): the Ez curl
-    (1/r) d(r H)/dr at column i is ``ecoef[i] . (H[i+1], H[i], H[i-1], H[i-2])`` (axis and mirror
-    values folded into the table), the Er curl -dH/dz at row j is
-    ``-(ke1[j] (H[j] - H[j-1]) + ke2[j] (H[j+1] - H[j-2]))`` (:mod:`cavity.fdtd.stencil`).
+    Curls from the stencil tables (:mod:`cavity.fdtd.stencil`): the Ez curl (1/r) d(r H)/dr at
+    column i is ``ecoef[i] . (H[i+1], H[i], H[i-1], H[i-2])`` (axis and mirror values folded into
+    the table), the Er curl -dH/dz at row j is ``-(ke1[j] (H[j] - H[j-1]) + ke2[j] (H[j+1] - H[j-2]))``
+    (``ke2`` = 0 in rows 1 and nz-1, which the wide stencil would read across).
 
     Vacuum rows (j < jp0): E += c curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
@@ -229,12 +229,13 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z
     column i uses row ``prof[i]`` of ``qb``, so that a path under one ionosphere reads a single
     cached profile instead of streaming a table the size of the grid.
     Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
-    The plasma never reaches row 0 (``jp0 >= 1``).
+    The plasma never reaches row 0 (``jp0 >= 1``). Inner loops run over row views indexed from zero
+    so that the compiler can vectorise them.
 
     Then the top CPML correction of dH/dz for Er (rows >= jz0) and the far-end correction of
     (1/r) d(rH)/dr for Ez (columns >= ir0, stretched as a Cartesian derivative: error of order the
-    layer depth over r); there the stencil is second order and the curls are the layers' d.
-    ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
+    layer depth over r); there the stencil is second order. ``ce_top``/``ce_far`` hold each
+    absorber cell's curl coefficient. In plasma
     cells J(n+1) was computed from the uncorrected E(n+1); it receives qb dE so that the pair stays
     the trapezoidal E-J update of the stretched equations. Finally ``ez[0, 0] -= src`` (the source
     current element on the axis) and the ground-row DFT.
@@ -246,9 +247,6 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z
     half = np.float32(0.5)
     one = np.float32(1.0)
     for i in prange(n_cols):
-        tid = nb.get_thread_id()
-        cz = scratch[tid, 0]
-        cr = scratch[tid, 1]
         ic = np.int64(i)
         ip = ic + 1 if ic + 1 < nr else ic  # ecoef[i, 0] = 0 there
         im = ic - 1 if ic > 0 else np.int64(0)
@@ -263,44 +261,78 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z
         hn = hp[ip]
         hm = hp[im]
         hm2 = hp[im2]
-        for j in range(nz):
-            cz[j] = c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j]
-        cr[0] = np.float32(0.0)
-        for j in range(1, nz):
-            cr[j] = -ke1[j] * (h[j] - h[j - 1])
-        for j in range(2, nz - 1):
-            cr[j] -= ke2[j] * (h[j + 1] - h[j - 2])
         for j in range(jp0):
-            e_z[j] += cez[j] * cz[j]
-        for j in range(1, jp0):
-            e_r[j] += cer[j] * cr[j]
+            e_z[j] += cez[j] * (c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j])
+        # vacuum Er rows 1 .. jp0-1; the wide stencil in rows 2 .. nz-2
+        if jp0 > 1:
+            e_r[1] -= cer[1] * ke1[1] * (h[1] - h[0])
+        top4 = min(jp0, nz - 1)
+        for j in range(2, top4):
+            e_r[j] -= cer[j] * (ke1[j] * (h[j] - h[j - 1]) + ke2[j] * (h[j + 1] - h[j - 2]))
+        if jp0 == nz and nz - 1 >= 2:
+            j = nz - 1
+            e_r[j] -= cer[j] * ke1[j] * (h[j] - h[j - 1])
+        # plasma Ez rows
         ezp = ez[i, jp0:]
-        czp = cz[jp0:]
+        h0 = hp[i, jp0:]
+        hnp = hp[ip, jp0:]
+        hmp = hp[im, jp0:]
+        hm2p = hp[im2, jp0:]
         qb = qb_z[prof_z[i]]
         jj = jz[i]
         for k in range(n):
             e_old = ezp[k]
             g = qb[k]
-            e_new = e_old + (czp[k] - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
+            curl = c0 * hnp[k] + c1 * h0[k] + c2 * hmp[k] + c3 * hm2p[k]
+            e_new = e_old + (curl - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_z[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             ezp[k] = e_new
+        # plasma Er rows jp0 .. nz-1: the wide stencil in rows 2 .. nz-2 (k_lo .. n-2), second
+        # order in row 1 (when the plasma starts there) and in row nz-1
         erp = er[i, jp0:]
-        crp = cr[jp0:]
         qb = qb_r[prof_r[i]]
         jj = jr[i]
+        k_lo = max(0, 2 - jp0)
         for k in range(n):
+            if k >= k_lo and k < n - 1:
+                continue
+            j = jp0 + k
             e_old = erp[k]
             g = qb[k]
-            e_new = e_old + (crp[k] - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
+            curl = -ke1[j] * (h[j] - h[j - 1])
+            e_new = e_old + (curl - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_r[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             erp[k] = e_new
+        if n - 1 > k_lo:
+            j0 = jp0 + k_lo
+            m_n = n - 1 - k_lo
+            ew = er[i, j0:]
+            jw = jr[i, k_lo:]
+            qbw = qb[k_lo:]
+            qaw = qa_r[k_lo:]
+            edw = ed_r[k_lo:]
+            h1 = hp[i, j0:]
+            hlo = hp[i, j0 - 1:]
+            hup = hp[i, j0 + 1:]
+            hlo2 = hp[i, j0 - 2:]
+            e1 = ke1[j0:]
+            e2 = ke2[j0:]
+            for m in range(m_n):
+                e_old = ew[m]
+                g = qbw[m]
+                curl = -(e1[m] * (h1[m] - hlo[m]) + e2[m] * (hup[m] - hlo2[m]))
+                e_new = e_old + (curl - g * e_old - half * (one + qaw[m]) * jw[m]) / (edw[m] + half * g)
+                e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
+                j_new = qaw[m] * jw[m] + g * (e_new + e_old)
+                jw[m] = j_new if abs(j_new) > TINY else np.float32(0.0)
+                ew[m] = e_new
         for k in range(n_top):
             j = jz0 + k
-            d = cr[j]
+            d = -ke1[j] * (h[j] - h[j - 1])
             p = b_ze[k] * psi_ze[i, k] + c_ze[k] * d
             psi_ze[i, k] = p
             de = ce_top[i, k] * (kd_ze[k] * d + p)
@@ -310,7 +342,7 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, scratch, cez, cer, jp0, ed_z, qa_z, qb_z
         if i >= ir0:
             kk = i - ir0
             for j in range(nz):
-                d = cz[j]
+                d = c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j]
                 p = b_re[kk] * psi_re[kk, j] + c_re[kk] * d
                 psi_re[kk, j] = p
                 de = ce_far[kk, j] * (kd_re[kk] * d + p)
