@@ -243,6 +243,8 @@ def receiver_rows(
     phase = np.asarray(ds["receiver_ez_phase"].transpose("receiver", "frequency").values, dtype=float)
     b = (np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
          if "receiver_b_amplitude" in ds else np.full((n, freqs.size), np.nan))
+    unc = (np.asarray(ds["receiver_ez_uncertainty"].transpose("receiver", "frequency").values, dtype=float)
+           if "receiver_ez_uncertainty" in ds else None)
     daylight = receiver_daylight(ds)
     noise_band = None if noise_db is None else noise_in_bandwidth_db(noise_db, bandwidth_hz)
     rows = []
@@ -259,6 +261,8 @@ def receiver_rows(
                 "phase_deg": float(phase[i, k]),
                 "daylight": daylight[i],
             }
+            if unc is not None:
+                row["ez_uncertainty_db"] = float(unc[i, k])
             if required_db is not None:
                 row["margin_db"] = float(ez[i, k] - required_db)
             if noise_band is not None:
@@ -282,6 +286,10 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
         Column("range_km", "Range (km)", "range_km", 2, 1),
         Column("bearing_deg", "Bearing (deg)", "bearing_deg", 2, 1),
         Column("ez_db", "Ez (dB re 1 uV/m)", "ez_db_re_1uv_per_m", 3, 1),
+    ]
+    if "ez_uncertainty_db" in keys:
+        columns.append(Column("ez_uncertainty_db", "+- (dB)", "ez_uncertainty_db", 3, 1))
+    columns += [
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
         Column("phase_deg", "Ez phase (deg)", "ez_phase_deg", 2, 1),
@@ -356,6 +364,10 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
         )
     notes.append("Fields are RMS at the ground; phase relative to the transmitter current (exp(+j omega t)), "
                  "unwrapped along the path (whole turns included).")
+    if any("receiver_ez_uncertainty" in ds for ds in datasets):
+        notes.append("+- is the numerical uncertainty of Ez (grid convergence index from a companion solve on a "
+                     "1.5 times coarser grid); empty when it was not computed. It does not cover the "
+                     "uncertainty of the ionosphere and ground given.")
     cautions = list(dict.fromkeys(_text(ds.attrs.get("cautions", "")).strip() for ds in datasets))
     cautions = [c for c in cautions if c]
     if cautions:
