@@ -296,8 +296,10 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z,
         jj = jr[i]
         k_lo = max(0, 2 - jp0)
         for k in range(n):
-            if k >= k_lo and k < n - 1:
-                continue
+            if k >= k_lo:
+                k = n - 1  # after the rows below the wide stencil, only the top row
+                if k < k_lo:
+                    break
             j = jp0 + k
             e_old = erp[k]
             g = qb[k]
@@ -307,6 +309,8 @@ def step_e(ez, er, hp, ecoef, ke1, ke2, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z,
             j_new = qa_r[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             erp[k] = e_new
+            if k == n - 1:
+                break
         if n - 1 > k_lo:
             j0 = jp0 + k_lo
             m_n = n - 1 - k_lo
