@@ -23,9 +23,10 @@ from cavity.constants import C0
 from cavity.errors import ResourceError, SolverError
 
 #: Default resolution along range, cells per free-space wavelength at the highest frequency. With
-#: the radial dispersion correction, 24 keeps a 3,000 km day (night) guide within 0.8 dB (1.1 dB) of
-#: the normal-mode reference; 20 gives 1.1 dB by day (README, "Accuracy and speed").
-DEFAULT_CELLS_PER_WAVELENGTH = 24.0
+#: the fourth-order stencil, 16 keeps 3,000 km day and several-mode night guides within 0.15 dB of
+#: the normal-mode reference and conducting plates within a few tenths of a dB of the mode sum
+#: (README, "Accuracy and speed": the measured table for the three kinds of guide).
+DEFAULT_CELLS_PER_WAVELENGTH = 16.0
 #: Largest vertical cell: resolves the profile scale 1/beta (physics.md 2).
 MAX_DZ_M = 500.0
 #: Fraction of the stability limit used for the time step.
