@@ -41,8 +41,9 @@ def test_gci_envelope_and_floor():
     coarse[100] = 10 ** (1.25 / 20)  # 1.25 dB at one range -> 1 dB estimate x Fs 3
     got = unc.grid_convergence_index_db(r, fine, r, coarse)[0]
     assert got[100] == pytest.approx(3.0, rel=1e-6)
-    assert got[100 + 25] == pytest.approx(3.0, rel=1e-6) and got[100 - 25] == pytest.approx(3.0, rel=1e-6)
-    assert got[100 + 27] == pytest.approx(unc.FLOOR_DB)
+    # the running maximum reaches +-ENVELOPE_KM (5 km at 1 km spacing), the floor holds beyond
+    assert got[100 + 5] == pytest.approx(3.0, rel=1e-6) and got[100 - 5] == pytest.approx(3.0, rel=1e-6)
+    assert got[100 + 6] == pytest.approx(unc.FLOOR_DB) and got[100 - 6] == pytest.approx(unc.FLOOR_DB)
 
 
 # ----------------------------------------------------------------------------------- long checks
