@@ -39,9 +39,10 @@ BYTES_PER_CELL = 4 * 16
 #: beyond the last active one (:func:`cavity.fdtd.kernels.last_active_column`).
 FRONT_SEARCH_STEPS = 64
 #: Columns stepped ahead of the front c t on average: the numerical precursor that runs ahead of it
-#: until flushed to zero (measured 55-110 columns on the 3,000 km day grid at 625 m) and the
-#: search margin. Used only to predict run times.
-FRONT_LEAD_COLUMNS = 100 + FRONT_SEARCH_STEPS
+#: until flushed to zero (measured 55-110 columns on the 3,000 km day grid at 625 m with the Yee
+#: stencil) and the search margin, three columns per step between searches with the fourth-order
+#: stencil (:data:`cavity.fdtd.stencil.REACH_COLUMNS`). Used only to predict run times.
+FRONT_LEAD_COLUMNS = 100 + 3 * FRONT_SEARCH_STEPS
 
 
 @functools.lru_cache(maxsize=64)
