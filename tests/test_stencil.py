@@ -80,13 +80,14 @@ def _yee_grazing_error(angle_deg, dr, dz):
 
 @pytest.mark.parametrize("angle_deg", [0.0, 15.0, 30.0, 45.0, 60.0])
 def test_derived_phase_velocity_error_is_small_at_every_angle(angle_deg):
-    """Default grid at 20 kHz: the (2,4) stencil with its dispersion factor is within 2e-5 of c at
-    0-60 deg from grazing (derived: about 1e-5); the Yee stencil with the former grazing correction
-    is exact at 0 deg only and 2e-4 to 7e-4 off at 15-45 deg."""
+    """Default grid at 20 kHz (16 cells per wavelength): the (2,4) stencil with its dispersion
+    factor is within 1e-4 of c at 0-60 deg from grazing (derived: 6e-5 at most); the Yee stencil
+    with the former grazing correction on the same grid is exact at 0 deg only and 5e-4 to 1.8e-3
+    off at 15-45 deg."""
     dr, dz, dt = _default_grid()
     gamma = stencil.dispersion_factor([F_HZ], dr, dz, dt, 4)
     err4 = float(stencil.phase_velocity_error(F_HZ, angle_deg, dr, dz, dt, 4, gamma))
-    assert abs(err4) < 2e-5
+    assert abs(err4) < 1e-4
     yee = _yee_grazing_error(angle_deg, dr, dz)
     if angle_deg == 0.0:
         assert abs(yee) < 1e-9
@@ -156,12 +157,19 @@ def test_fourth_order_stability_limit_below_cartesian_and_sharp(aspect):
         er[:, 0] = er[:, -1] = 0
         h = np.zeros((n, n))
         start = math.sqrt(np.sum(ez**2) + np.sum(er**2))
-        for _ in range(3000):
-            h += cdt * stencil.curl_e(st, ez, er)
-            cz, cr = stencil.curl_h(st, h)
-            ez += cdt * cz
-            er += cdt * cr
-        return math.sqrt(np.sum(ez**2) + np.sum(er**2)) / start
+        with np.errstate(all="ignore"):  # above the limit the fields overflow
+            return _leapfrog(st, ez, er, h, cdt) / start
 
     assert growth(0.99 * limit) < 1e3
-    assert growth(1.02 * limit) > 1e6
+    above = growth(1.02 * limit)
+    assert not math.isfinite(above) or above > 1e6  # grows without bound (overflow gives inf or NaN)
+
+
+def _leapfrog(st, ez, er, h, cdt, steps=3000):
+    """Leapfrog time stepping (c = 1) of the stencil's curl operators; the final field norm."""
+    for _ in range(steps):
+        h += cdt * stencil.curl_e(st, ez, er)
+        cz, cr = stencil.curl_h(st, h)
+        ez += cdt * cz
+        er += cdt * cr
+    return math.sqrt(np.sum(ez**2) + np.sum(er**2))
