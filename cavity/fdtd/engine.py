@@ -13,8 +13,8 @@ from __future__ import annotations
 import logging
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Callable
 
 import numpy as np
 
@@ -301,7 +301,7 @@ class Simulation:
                                      jz0=nz - p.pml_z_cells, radial_gamma_only=(order == 2))
         st = self.stencil
         # second-order factors of the ground row and the absorbers (equal to the tables there)
-        self.inv_dr, self.inv_dz = np.float32(st.ar1[-1]), np.float32(st.kz1[-1])
+        self.inv_dr, self.inv_dz = f32(st.ar1[-1]), f32(st.kz1[-1])
 
         # plasma
         wp2_z, nu_z = _on_grid(m, self.r_ez, self.z_ez)
@@ -392,8 +392,6 @@ class Simulation:
         self.ch_far = ch_far
 
         # source: current element I in the axis cell of radius dr/2 and height dz (moment I dz)
-        # (the axis cell's area is the stencil's: the adjoint axis update of the fourth-order scheme
-        # weighs that cell 3 dr^2/32 instead of dr^2/8)
         self.src_coef = float(self.cez[0]) / st.axis_area_m2
         self.src_coef_rows = self.cez.astype(float) / st.axis_area_m2
 
@@ -433,16 +431,26 @@ class Simulation:
         # point source: the whole current record at once (zero after the waveform's end)
         n_src = min(n_max, int(math.ceil(float(wave.end_s) / dt)) + 1)
         src = None if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
+        src_kick = np.zeros(max(1, n_line), np.float32)  # this step's source term per axis cell (kernels.step_e)
         # DFT kernels exp(-j w t) at the H and E instants, advanced by one rotation per step
         rot_h = np.exp(-0.5j * w * dt)
         rot_step = np.exp(-1j * w * dt)
         rot_half = np.exp(-0.5j * w * dt)
         t0 = time.perf_counter()
         step = 0
-        plasma_z, plasma_r = self.plasma_z, self.plasma_r
-        n_cols = nr
+        # the kernels' argument groups (kernels.Fields ...): the same arrays every step, named
+        fields = K.Fields(self.ez, self.er, self.hp, self.jz, self.jr)
         st = self.stencil
-        reach = st.reach_columns * gridmod.FRONT_SEARCH_STEPS + 2
+        curl_h = K.HCurl(self.inv_dr, self.inv_dz, st.ar1, st.ar2, st.kz1, st.kz2, self.ch, self.ha, self.hb)
+        ground = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi)
+        top_h = K.Absorber(self.jz0, *self.pz_h, self.psi_zh, np.zeros((0, 0), np.float32))
+        far_h = K.Absorber(self.ir0, *self.pr_h, self.psi_rh, self.ch_far)
+        reach = st.reach_columns * gridmod.FRONT_SEARCH_STEPS + 2  # columns a step can reach outward
+        curl_e = K.ECurl(st.er_coef, st.ke1, st.ke2, self.cez, self.cer, self.jp0)
+        plasma_z, plasma_r = K.Plasma(*self.plasma_z), K.Plasma(*self.plasma_r)
+        top_e = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, self.ce_top)
+        far_e = K.Absorber(self.ir0, *self.pr_e, self.psi_re, self.ce_far)
+        n_cols = nr
         while step < n_max:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
@@ -456,28 +464,22 @@ class Simulation:
             if step % 1024 == 0:  # re-anchor the rotors against round-off
                 rot_h = np.exp(-1j * w * t_h)
             rot_e = rot_h * rot_half
-            K.step_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, st.ar1, st.ar2, st.kz1, st.kz2, self.ch,
-                     self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi,
-                     self.jz0, *self.pz_h, self.psi_zh, self.ir0, *self.pr_h, self.psi_rh, self.ch_far,
-                     acc_h[0], acc_h[1], rot_h.real, -rot_h.imag, n_cols)
+            K.step_h(fields, curl_h, ground, top_h, far_h, K.Dft(acc_h[0], acc_h[1], rot_h.real, -rot_h.imag), n_cols)
+            # every source enters the kernel the same way: current elements in the axis cells from
+            # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
-                kicks = (self.src_coef_rows[:n_line] * currents).astype(np.float32)
+                src_kick[:] = self.src_coef_rows[:n_line] * currents
                 current = float(currents.sum())
-                src_kick = kicks[0]
             elif step < n_src:
                 current = src[step]
-                src_kick = np.float32(self.src_coef * current)
+                src_kick[0] = self.src_coef * current
             else:
                 current = 0.0
-                src_kick = np.float32(0.0)
-            K.step_e(self.ez, self.er, self.hp, st.er_coef, st.ke1, st.ke2, self.cez, self.cer, self.jp0,
-                     *plasma_z, self.jz, *plasma_r, self.jr,
-                     self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
-                     self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag, n_cols)
-            if line_source and n_line > 1:
-                self.ez[0, 1:n_line] -= kicks[1:]  # rows above the ground row do not enter this step's DFT
+                src_kick[0] = 0.0
+            K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
+                     K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
             if current != 0.0:
                 acc_i += current * rot_h
             rot_h = rot_h * rot_step
