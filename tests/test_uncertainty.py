@@ -15,8 +15,8 @@ import numpy as np
 import pytest
 
 from cavity import uncertainty as unc
-from cavity.fdtd import engine as eng
 from cavity.checks.verify import _db, _deep_null_mask, ionosphere_run, mode_reference
+from cavity.fdtd import engine as eng
 
 
 def test_gci_recovers_the_error_of_a_second_order_sequence():
