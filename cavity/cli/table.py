@@ -69,8 +69,12 @@ def diurnal_table(ds, fmt: str) -> str:
               help="Noise as a spectral density, dB re 1 uV/m per sqrt(Hz); give with --bandwidth.")
 @click.option("--bandwidth", "bandwidth_hz", type=click.FloatRange(min=0.0, min_open=True), metavar="HZ",
               help="Receiver bandwidth, Hz; with --noise adds an SNR column.")
+@click.option("--snr", "snr_db", type=float, default=0.0, show_default=True, callback=_finite, metavar="DB",
+              help="Coverage files: the required signal-to-noise ratio with --noise/--bandwidth, dB.")
+@click.option("--sector-deg", "sector_deg", type=float, default=45.0, show_default=True, metavar="DEG",
+              help="Coverage files: width of the bearing sectors, degrees.")
 @friendly_errors
-def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz):
+def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz, snr_db, sector_deg):
     """Print a table of the field at every receiver and frequency of RESULT file(s).
 
     One row per receiver and frequency: name, range (km), bearing (deg; blank for a receiver given
@@ -88,6 +92,10 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
 
     A Markdown table ends with the definitions used and the cautions line; CSV holds only the
     table (one header line), with more digits.
+
+    Coverage files (cavity coverage) get their summary instead: the area at or above the level
+    (--required, or --noise/--bandwidth with --snr) and per bearing sector the farthest range at
+    or above it; several coverage files (e.g. day and night) side by side.
 
     \b
     Examples:
@@ -107,7 +115,20 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
             raise click.ClickException(f"output folder {folder} does not exist")
     datasets = open_results(results)
     sweeps = [ds for ds in datasets if is_sweep(ds)]
-    if sweeps:
+    from cavity.sweeps.coverage import is_coverage
+
+    maps = [ds for ds in datasets if is_coverage(ds)]
+    if maps:
+        from cavity.reports.coverage import coverage_summary, make_level
+
+        if len(maps) != len(datasets):
+            raise click.UsageError("coverage files are tabulated together, without other result files")
+        level = make_level(required_db, noise_db, bandwidth_hz, snr_db)
+        if level is None:
+            raise click.UsageError("a coverage summary needs a level: give --required DB or --noise DB --bandwidth HZ")
+        labels = run_labels(results) if len(results) > 1 else None
+        text = coverage_summary(datasets, level, fmt, runs=labels, sector_deg=sector_deg)
+    elif sweeps:
         if len(datasets) > 1 or required_db is not None or noise_db is not None:
             raise click.UsageError(
                 "a sweep file (time dimension) is tabulated on its own, without --required/--noise"
