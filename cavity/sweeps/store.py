@@ -41,7 +41,17 @@ def part_path(parts_dir: Path, point: SweepPoint) -> Path:
 
 #: Subfolder of the parts folder that keeps each distinct path solve, by its key.
 SOLVES_SUBDIR = "path-solves"
-_SOLUTION_ARRAYS = ("range_m", "ez", "b", "receiver_ez", "receiver_b", "electron_density", "collision_frequency")
+_SOLUTION_ARRAYS = (
+    "range_m",
+    "ez",
+    "b",
+    "receiver_ez",
+    "receiver_b",
+    "electron_density",
+    "collision_frequency",
+    "ez_uncertainty_db",
+    "receiver_ez_uncertainty_db",
+)
 _ENGINE_ARRAYS = ("range_m", "frequencies_hz", "ez", "hphi", "probe_ranges_m")
 
 
