@@ -124,11 +124,20 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     settings = engine_settings(scenario, path, drive=drive)
     want_uncertainty = (bool(getattr(scenario.solver, "uncertainty", False)) and drive.stroke is None
                         and waveform is None)
-    main_progress = progress
-    if progress is not None and want_uncertainty:
-        def main_progress(fraction, text=""):
-            progress(0.75 * fraction, text)
     sim = eng.Simulation(medium, settings)
+    coarse = None
+    main_share = 1.0
+    if want_uncertainty:
+        r = unc.COMPANION_CELL_RATIO
+        coarse = dataclasses.replace(settings, dr_m=r * sim.plan.dr_m, dz_m=r * sim.plan.dz_m,
+                                     probe_ranges_m=(), record_time_series=False)
+        # progress shares from the engine's cost model, so that the time left counts the companion
+        main_cost = sim.plan.expected_cell_updates
+        main_share = main_cost / (main_cost + eng.make_plan(medium, coarse).grid.expected_cell_updates)
+    main_progress = progress
+    if progress is not None and coarse is not None:
+        def main_progress(fraction, text=""):
+            progress(main_share * fraction, text)
     if drive.stroke is None:
         log.info(
             "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, >= %d steps, ~%.2f GB",
@@ -145,12 +154,9 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     fit_error = sim.impedance_fit_error
     del sim  # the companion solve reuses the memory
     companion = None
-    if want_uncertainty:
-        r = unc.COMPANION_CELL_RATIO
-        coarse = dataclasses.replace(settings, dr_m=r * res.plan.dr_m, dz_m=r * res.plan.dz_m,
-                                     probe_ranges_m=(), record_time_series=False)
-        sub = None if progress is None else (lambda fraction, text="": progress(0.75 + 0.25 * fraction,
-                                                                                  f"uncertainty: {text}"))
+    if coarse is not None:
+        sub = None if progress is None else (
+            lambda fraction, text="": progress(main_share + (1.0 - main_share) * fraction, f"uncertainty: {text}"))
         companion = eng.run(medium, coarse, sub)
         res.wall_time_s += companion.wall_time_s
     raw = None

@@ -19,10 +19,10 @@ from cavity.cli.common import progress_callback, solver_log, time_left_s
 from cavity.solve import simulate
 
 SMALL = """
-title = "Invented progress check: 19.6 kHz over sea by night"
+title = "Invented progress check: 17.3 kHz over sea by night"
 [transmitter]
 name = "Test mast"
-frequency_khz = 19.6
+frequency_khz = 17.3
 radiated_power_kw = 10.0
 [[receiver]]
 name = "Marker 1200"
