@@ -74,6 +74,11 @@ VARIABLES: dict[str, dict[str, str]] = {
     "ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the ground, {_PHASE}, unwrapped along range"},
     "b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the ground, {_DB_B}"},
     "b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
+    # the other horizontal components (magnetised ionosphere only: [geomagnetic] model other than "none")
+    "b_radial_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density along the path (radial) at the ground, {_DB_B}"},
+    "b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
+    "ephi_amplitude": {"units": "1", "long_name": f"horizontal electric field across the path (azimuthal) at the ground, {_DB_E}"},
+    "ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the ground, {_PHASE}, unwrapped along range"},
     # receivers
     "receiver_name": {"long_name": "receiver name"},
     "receiver_range": {"units": "km", "long_name": "ground range of the receiver from the transmitter"},
@@ -85,6 +90,10 @@ VARIABLES: dict[str, dict[str, str]] = {
     "receiver_ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
     "receiver_b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the receiver, {_DB_B}"},
     "receiver_b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
+    "receiver_b_radial_amplitude": {"units": "1", "long_name": f"radial horizontal magnetic flux density at the receiver, {_DB_B}"},
+    "receiver_b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the receiver, {_PHASE}"},
+    "receiver_ephi_amplitude": {"units": "1", "long_name": f"azimuthal horizontal electric field at the receiver, {_DB_E}"},
+    "receiver_ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the receiver, {_PHASE}"},
     "receiver_ez_time_series": {"units": "V m-1", "long_name": "vertical electric field at the receiver against time (instantaneous value)"},
     # sferics (cavity.sferic): waveforms, their spectra and the source
     "receiver_b_time_series": {"units": "T", "long_name": "horizontal magnetic flux density at the receiver against time (instantaneous value)"},
@@ -101,6 +110,9 @@ VARIABLES: dict[str, dict[str, str]] = {
     "solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the ground", "standard_name": "solar_zenith_angle"},
     "hprime": {"units": "km", "long_name": "Wait-Spies reference height h'"},
     "beta": {"units": "km-1", "long_name": "Wait-Spies sharpness beta"},
+    "geomagnetic_field_r": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, component along the path (direction of travel)"},
+    "geomagnetic_field_phi": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, horizontal component across the path (to the left of the direction of travel)"},
+    "geomagnetic_field_z": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, upward component"},
 }
 
 #: Variables every result file holds (the conventions' minimum).
@@ -241,6 +253,12 @@ def assemble_dataset(
     beta_per_km=None,
     time_s=None,
     receiver_ez_time_series_v_per_m=None,
+    b_radial_t=None,
+    ephi_v_per_m=None,
+    receiver_b_radial_t=None,
+    receiver_ephi_v_per_m=None,
+    geomagnetic_field_nt=None,
+    geomagnetic_attributes=None,
 ) -> xr.Dataset:
     """Build a result Dataset (the file contract) from the solver's plain arrays, SI units in.
 
@@ -285,6 +303,12 @@ def assemble_dataset(
         NaN allowed (not defined there).
     time_s : (T,) array, optional
         Sample times of ``receiver_ez_time_series_v_per_m`` ((N, T) array, V/m), given together.
+    b_radial_t, ephi_v_per_m : (P, F, R) complex arrays, optional
+        Magnetised runs: the radial flux density mu0 Hr (T) and the azimuthal electric field (V/m)
+        at the ground; ``receiver_b_radial_t``, ``receiver_ephi_v_per_m`` (N, F) at the receivers.
+    geomagnetic_field_nt : (P, R, 3) array, optional
+        The geomagnetic field per path and range in the path frame (r, phi, z), nT;
+        ``geomagnetic_attributes`` the global attributes naming its model and epoch.
 
     Returns
     -------
@@ -384,6 +408,23 @@ def assemble_dataset(
             _array("receiver_ez_time_series_v_per_m", receiver_ez_time_series_v_per_m, (N, t.size)),
         )
 
+    extra_fields = (("b_radial", b_radial_t, receiver_b_radial_t, B_REFERENCE_T),
+                    ("ephi", ephi_v_per_m, receiver_ephi_v_per_m, EZ_REFERENCE_V_PER_M))
+    for name, along, at_rx, reference in extra_fields:
+        if (along is None) != (at_rx is None):
+            raise ValueError(f"{name}: the field along the paths and at the receivers go together")
+        if along is None:
+            continue
+        db, deg = phasor_to_db_phase(_array(name, along, (P, F, R), complex, allow_nan=True), reference, unwrap_axis=-1)
+        rx_db, rx_deg = phasor_to_db_phase(_array(f"receiver_{name}", at_rx, (N, F), complex, allow_nan=True), reference)
+        data_vars[f"{name}_amplitude"] = (("path", "frequency", "range"), db)
+        data_vars[f"{name}_phase"] = (("path", "frequency", "range"), deg)
+        data_vars[f"receiver_{name}_amplitude"] = (("receiver", "frequency"), rx_db)
+        data_vars[f"receiver_{name}_phase"] = (("receiver", "frequency"), rx_deg)
+    if geomagnetic_field_nt is not None:
+        field = _array("geomagnetic_field_nt", geomagnetic_field_nt, (P, R, 3))
+        for c, name in enumerate(("r", "phi", "z")):
+            data_vars[f"geomagnetic_field_{name}"] = (("path", "range"), field[:, :, c])
     ds = xr.Dataset(data_vars, coords=coords)
     ds.attrs = {
         "title": scenario.title,
@@ -394,6 +435,7 @@ def assemble_dataset(
         "cautions": CAUTIONS,
         "references": REFERENCES,
         **solver.attributes(),
+        **(geomagnetic_attributes or {}),
     }
     return apply_metadata(ds)
 
