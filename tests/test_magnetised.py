@@ -83,7 +83,7 @@ def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp
     u_new = {"z": uz.copy(), "r": ur.copy(), "p": up.copy()}
     for i in range(nr):
         ie = i if shift > 0 else i - 1
-        q = coef[tab[i]]  # (n_pl, 21)
+        q = coef[tab[i]].T  # (n_pl, 21)
         t = q[:, :9].reshape(-1, 3, 3)
         w = q[:, 9:18].reshape(-1, 3, 3)
         g = q[:, 18:]
@@ -106,7 +106,7 @@ def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp
         if ie >= 0:
             e_new["r"][ie, rows], u_new["r"][ie] = e[:, 0], u[:, 0]
     if shift < 0:  # the last Er column belongs to no triple: its own update with Jr alone (table row 0)
-        q = coef[0]
+        q = coef[0].T
         s = wsq[1, nr - 1]
         c = cr[nr - 1, rows]
         e_old, u_old = er[nr - 1, rows], ur[nr - 1]
@@ -141,7 +141,7 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
     present = np.ones((ntab, n_pl, 3), bool)
     present[1, :, 1] = False  # an axis-like triple without Ephi
     present[0, :, 1:] = False  # the lone Er column (shift -1)
-    coef = media.magnetised_coefficients(eps, wp2, nu, gyro, present, 0.5).astype(F32)
+    coef = np.ascontiguousarray(media.magnetised_coefficients(eps, wp2, nu, gyro, present, 0.5).transpose(0, 2, 1).astype(F32))
     tab = RNG.integers(2, ntab, nr).astype(np.int32)
     tab[0] = 1
     wsq = RNG.uniform(0.5, 2.0, (3, nr)).astype(F32)

@@ -441,7 +441,7 @@ class Simulation:
             w[self.ir0:] = 0.0
         self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
         if n_pl == 0:
-            self.mag_coef = np.zeros((1, 0, 21), f32)
+            self.mag_coef = np.zeros((1, 21, 0), f32)
             self.tab_p = self.tab_m = np.zeros(nr, np.int32)
             self.t_left = 0
             return
@@ -490,8 +490,9 @@ class Simulation:
         gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
         if self.field_off_in_absorbers:
             gyro[:, max(self.jz0 - self.jp0, 0):, :] = 0.0
+        # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
         self.mag_coef = np.ascontiguousarray(
-            media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).astype(f32))
+            media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32))
 
     # ------------------------------------------------------------------ stepping
     def run(self, progress: Callable[[float, str], None] | None = None) -> EngineResult:

@@ -374,13 +374,13 @@ def step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
 def _triple(c, t, k, ez_old, er_old, ep_old, cz, cr, cp, uz, ur, up, e_z, e_r, e_p, sz, sr, sp):
     """One E-J collocated trapezoidal update of a triple (Ez, Er, Ephi with their currents).
 
-    ``c[t, k]`` holds T (9, row-major in (r, phi, z)), W (9) and g (3): v' = T v + W s (E + e C/2),
+    ``c[t, :, k]`` holds T (9, row-major in (r, phi, z)), W (9) and g (3): v' = T v + W s (E + e C/2),
     E' = E + e C - g (u' + u), with C the (stretched) curls, u the stored scaled currents and
     v = s u; ``s`` = sqrt(r) of each node (the cylindrical volume weight; dr/8 on the axis), so that
     the gyration, skew-symmetric in v, conserves the energy of the grid (see
     :func:`cavity.fdtd.media.magnetised_coefficients`). Returns the new (Ez, Er, Ephi, uz, ur, uphi).
     """
-    q = c[t, k]
+    q = c[t, :, k]
     half = np.float32(0.5)
     vr = sr * ur
     vp = sp * up
@@ -418,18 +418,21 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
     centred in range on average). Each triple is one local implicit update (:func:`_triple`);
     every E node belongs to exactly one triple, so the step is passive and the columns stay
     independent. The currents are stored scaled, u = J / sqrt(eps omega_p^2), at their own E
-    nodes (``uz``, ``ur``, ``up``); ``coef[tab[i]]`` holds the coefficients of the triple anchored
-    at Ez column i, and ``wsq`` (3, nr) the square roots of the volume weights of the Ez, Er and
-    Ephi nodes of each column (1 where a node is absent).
+    nodes (``uz``, ``ur``, ``up``); ``coef[tab[i]]`` (21, plasma rows) holds the coefficients of
+    the triples anchored at Ez column i, and ``wsq`` (3, nr) the square roots of the volume weights
+    of the Ez, Er and Ephi nodes of each column.
 
     Absorbers (Roden and Gedney 2000) stretch the curls before the update: the top layer the
     z derivatives of Er and Ephi, the far-end layer the radial operators of Ez and Ephi.
-    Finally ``ez[0, 0] -= src`` and the ground-row DFT of Ez.
+    Finally ``ez[0, 0] -= src`` and the ground-row DFT of Ez. Curls are gathered per column first
+    and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it.
     """
     nr, nz = ez.shape
     n = nz - jp0
+    n_top = psi_ze.shape[1]
     nf = acc_re.shape[0]
     zero = np.float32(0.0)
+    half = np.float32(0.5)
     for i in prange(n_cols):
         ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
         a = rp[i]
@@ -439,87 +442,126 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
         hm = hp[im]
         far = i >= ir0
         kk = i - ir0
-        # vacuum rows: plain curl updates (Ez, Ephi of column i; Er of column ie)
-        for j in range(jp0):
-            c = a * h[j] - b * hm[j]
-            if far:
-                p = b_re[kk] * psi_re[kk, j] + c_re[kk] * c
+        # curls of every row (vacuum and plasma), stretched in the absorbers
+        cz = np.empty(nz, np.float32)
+        cp = np.zeros(nz, np.float32)
+        cr = np.zeros(nz, np.float32)
+        for j in range(nz):
+            cz[j] = a * h[j] - b * hm[j]
+        if far:
+            for j in range(nz):
+                p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz[j]
                 psi_re[kk, j] = p
-                c = c + kd_re[kk] * c + p
-            ez[i, j] += cez[j] * c
+                cz[j] = cz[j] + kd_re[kk] * cz[j] + p
         if i > 0:
-            for j in range(1, jp0):
-                cz_ = (hr[i, j] - hr[i, j - 1]) * inv_dz
-                crr = -(hz[i, j] - hz[i - 1, j]) * inv_dr
-                if j >= jz0:
-                    kt = j - jz0
-                    p = b_ze[kt] * psi_pz[i, kt] + c_ze[kt] * cz_
-                    psi_pz[i, kt] = p
-                    cz_ = cz_ + kd_ze[kt] * cz_ + p
-                if far:
-                    p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * crr
+            g_r = hr[i]
+            g_z = hz[i]
+            g_zm = hz[i - 1]
+            for j in range(1, nz):
+                cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (g_z[j] - g_zm[j]) * inv_dr
+            for k in range(n_top):
+                j = jz0 + k
+                d = (g_r[j] - g_r[j - 1]) * inv_dz
+                p = b_ze[k] * psi_pz[i, k] + c_ze[k] * d
+                psi_pz[i, k] = p
+                cp[j] += kd_ze[k] * d + p
+            if far:
+                for j in range(1, nz):
+                    d = -(g_z[j] - g_zm[j]) * inv_dr
+                    p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * d
                     psi_pr[kk, j] = p
-                    crr = crr + kd_re[kk] * crr + p
-                ephi[i, j] += cer[j] * (cz_ + crr)
+                    cp[j] += kd_re[kk] * d + p
         if ie >= 0:
             he = hp[ie]
+            for j in range(1, nz):
+                cr[j] = -(he[j] - he[j - 1]) * inv_dz
+            for k in range(n_top):
+                j = jz0 + k
+                d = cr[j]
+                p = b_ze[k] * psi_ze[ie, k] + c_ze[k] * d
+                psi_ze[ie, k] = p
+                cr[j] += kd_ze[k] * d + p
+        # vacuum rows
+        e_z = ez[i]
+        for j in range(jp0):
+            e_z[j] += cez[j] * cz[j]
+        if i > 0:
+            e_p = ephi[i]
             for j in range(1, jp0):
-                c = -(he[j] - he[j - 1]) * inv_dz
-                if j >= jz0:
-                    kt = j - jz0
-                    p = b_ze[kt] * psi_ze[ie, kt] + c_ze[kt] * c
-                    psi_ze[ie, kt] = p
-                    c = c + kd_ze[kt] * c + p
-                er[ie, j] += cer[j] * c
+                e_p[j] += cer[j] * cp[j]
+        if ie >= 0:
+            e_r = er[ie]
+            for j in range(1, jp0):
+                e_r[j] += cer[j] * cr[j]
         # plasma rows: one triple per row
         t = tab[i]
-        for k in range(n):
-            j = jp0 + k
-            top = j >= jz0
-            kt = j - jz0
-            # Ez curl
-            cz = a * h[j] - b * hm[j]
-            if far:
-                p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz
-                psi_re[kk, j] = p
-                cz = cz + kd_re[kk] * cz + p
-            # Ephi curl (zero on the axis, where Ephi = 0)
-            cp = zero
-            if i > 0:
-                c1 = (hr[i, j] - hr[i, j - 1]) * inv_dz
-                c2 = -(hz[i, j] - hz[i - 1, j]) * inv_dr
-                if top:
-                    p = b_ze[kt] * psi_pz[i, kt] + c_ze[kt] * c1
-                    psi_pz[i, kt] = p
-                    c1 = c1 + kd_ze[kt] * c1 + p
-                if far:
-                    p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * c2
-                    psi_pr[kk, j] = p
-                    c2 = c2 + kd_re[kk] * c2 + p
-                cp = c1 + c2
-            # Er curl
-            cr = zero
-            er_old = zero
-            ur_old = zero
-            if ie >= 0:
-                cr = -(hp[ie, j] - hp[ie, j - 1]) * inv_dz
-                if top:
-                    p = b_ze[kt] * psi_ze[ie, kt] + c_ze[kt] * cr
-                    psi_ze[ie, kt] = p
-                    cr = cr + kd_ze[kt] * cr + p
-                er_old = er[ie, j]
-                ur_old = ur[ie, k]
-            ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
-                coef, t, k, ez[i, j], er_old, ephi[i, j], cz, cr, cp, uz[i, k], ur_old, up[i, k],
-                cez[j], cer[j], cer[j], wsq[0, i], wsq[1, ie if ie >= 0 else 0], wsq[2, i])
-            ez[i, j] = _flush(ez_new)
-            uz[i, k] = _flush(uz_new)
-            if i > 0:
-                ephi[i, j] = _flush(ep_new)
-                up[i, k] = _flush(up_new)
-            if ie >= 0:
-                er[ie, j] = _flush(er_new)
-                ur[ie, k] = _flush(ur_new)
+        q = coef[t]
+        if i > 0 and ie >= 0:
+            sz, sr, sp = wsq[0, i], wsq[1, ie], wsq[2, i]
+            iz, ir_, ip = np.float32(1.0) / sz, np.float32(1.0) / sr, np.float32(1.0) / sp
+            xz_ = ez[i, jp0:]
+            xr_ = er[ie, jp0:]
+            xp_ = ephi[i, jp0:]
+            wz = uz[i]
+            wr = ur[ie]
+            wp = up[i]
+            ccz = cz[jp0:]
+            ccr = cr[jp0:]
+            ccp = cp[jp0:]
+            ez_c = cez[jp0:]
+            er_c = cer[jp0:]
+            for k in range(n):
+                e_zo = xz_[k]
+                e_ro = xr_[k]
+                e_po = xp_[k]
+                u_z = wz[k]
+                u_r = wr[k]
+                u_p = wp[k]
+                dz_ = ez_c[k] * ccz[k]
+                dr_ = er_c[k] * ccr[k]
+                dp_ = er_c[k] * ccp[k]
+                vr = sr * u_r
+                vp = sp * u_p
+                vz = sz * u_z
+                yr = sr * (e_ro + half * dr_)
+                yp = sp * (e_po + half * dp_)
+                yz = sz * (e_zo + half * dz_)
+                nr_ = (q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz) * ir_
+                np_ = (q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz) * ip
+                nz_ = (q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz) * iz
+                v1 = e_ro + dr_ - q[18, k] * (nr_ + u_r)
+                v2 = e_po + dp_ - q[19, k] * (np_ + u_p)
+                v3 = e_zo + dz_ - q[20, k] * (nz_ + u_z)
+                xr_[k] = v1 if abs(v1) > TINY else zero
+                xp_[k] = v2 if abs(v2) > TINY else zero
+                xz_[k] = v3 if abs(v3) > TINY else zero
+                wr[k] = nr_ if abs(nr_) > TINY else zero
+                wp[k] = np_ if abs(np_) > TINY else zero
+                wz[k] = nz_ if abs(nz_) > TINY else zero
+        else:
+            # the axis column and the column without an Er partner: absent components are zero
+            one = np.float32(1.0)
+            for k in range(n):
+                j = jp0 + k
+                er_old = zero
+                ur_old = zero
+                sr = one
+                if ie >= 0:
+                    er_old = er[ie, j]
+                    ur_old = ur[ie, k]
+                    sr = wsq[1, ie]
+                sp = wsq[2, i] if i > 0 else one
+                ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
+                    coef, t, k, ez[i, j], er_old, ephi[i, j], cz[j], cr[j], cp[j], uz[i, k], ur_old, up[i, k],
+                    cez[j], cer[j], cer[j], wsq[0, i], sr, sp)
+                ez[i, j] = _flush(ez_new)
+                uz[i, k] = _flush(uz_new)
+                if i > 0:
+                    ephi[i, j] = _flush(ep_new)
+                    up[i, k] = _flush(up_new)
+                if ie >= 0:
+                    er[ie, j] = _flush(er_new)
+                    ur[ie, k] = _flush(ur_new)
         if i == 0:
             ez[0, 0] -= src
         v = np.float64(ez[i, 0])
