@@ -243,6 +243,10 @@ def receiver_rows(
     phase = np.asarray(ds["receiver_ez_phase"].transpose("receiver", "frequency").values, dtype=float)
     b = (np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
          if "receiver_b_amplitude" in ds else np.full((n, freqs.size), np.nan))
+    # with a geomagnetic field: the other horizontal B component and the azimuthal E at the ground
+    extra = {key: np.asarray(ds[name].transpose("receiver", "frequency").values, dtype=float)
+             for key, name in (("b_radial_db", "receiver_b_radial_amplitude"), ("ephi_db", "receiver_ephi_amplitude"))
+             if name in ds}
     daylight = receiver_daylight(ds)
     noise_band = None if noise_db is None else noise_in_bandwidth_db(noise_db, bandwidth_hz)
     rows = []
@@ -259,6 +263,8 @@ def receiver_rows(
                 "phase_deg": float(phase[i, k]),
                 "daylight": daylight[i],
             }
+            for key, values in extra.items():
+                row[key] = float(values[i, k])
             if required_db is not None:
                 row["margin_db"] = float(ez[i, k] - required_db)
             if noise_band is not None:
@@ -284,6 +290,12 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
         Column("ez_db", "Ez (dB re 1 uV/m)", "ez_db_re_1uv_per_m", 3, 1),
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
+    ]
+    if "b_radial_db" in keys:
+        columns.append(Column("b_radial_db", "B along path (dB re 1 fT)", "b_radial_db_re_1ft", 3, 1))
+    if "ephi_db" in keys:
+        columns.append(Column("ephi_db", "E across path (dB re 1 uV/m)", "ephi_db_re_1uv_per_m", 3, 1))
+    columns += [
         Column("phase_deg", "Ez phase (deg)", "ez_phase_deg", 2, 1),
         Column("daylight", "Day/night", "day_night"),
     ]

@@ -35,8 +35,9 @@ B_REFERENCE_T = 1e-15
 #: What every result file says about the trust to place in it (design notes, physics section 10).
 CAUTIONS = (
     "Predictions are planning estimates: h' and beta vary with season, latitude, solar cycle, flares "
-    "and particle precipitation; ground maps are coarse; the axisymmetric model has no geomagnetic "
-    "anisotropy. Near modal minima errors reach many dB. Decisions on coverage, interference or "
+    "and particle precipitation; ground maps are coarse; the geomagnetic field is the IGRF at one "
+    "height, and the axisymmetric model takes the medium along each path's bearing for the whole ring "
+    "around the transmitter. Near modal minima errors reach many dB. Decisions on coverage, interference or "
     "safety-of-life navigation and timing rest on measurements, ITU-R methods and licensed engineers. "
     "Near transmitters, RF exposure limits apply (ICNIRP 2010, Health Physics 99, 818: general public "
     "83 V/m, 27 uT at 3 kHz-10 MHz); follow local regulations."
@@ -44,7 +45,8 @@ CAUTIONS = (
 
 REFERENCES = (
     "Wait and Spies (1964) NBS Technical Note 300 (exponential D region); Yu and Simpson (2010) IEEE "
-    "TAP 58(2) 469 (plasma current update); Roden and Gedney (2000) MOTL 27(5) 334 (CPML); Maloney and "
+    "TAP 58(2) 469 (plasma current update, isotropic and magnetised); Alken et al. (2021) Earth Planets "
+    "Space 73:49 (IGRF); Roden and Gedney (2000) MOTL 27(5) 334 (CPML); Maloney and "
     "Smith (1992) IEEE TAP 40(1) (surface impedance); Richter (1966) Radio Science (earth flattening)"
 )
 
