@@ -83,3 +83,103 @@ def test_uniform_field_strength_dip_and_azimuth_round_trip():
     # eastward in the northern hemisphere: the horizontal field points to the left (phi), downward dip
     br, bp, bz = uniform_field(50000.0, 60.0, 90.0)
     assert bp > 0 and abs(br) < 1e-9 and bz < 0
+
+
+# ---------------------------------------------------------------------------------------------
+# the [geomagnetic] section
+# ---------------------------------------------------------------------------------------------
+
+_POSITIONED = """title = "t"
+[transmitter]
+name = "Tx"
+latitude_deg = 30.0
+longitude_deg = -20.0
+frequency_khz = 17.3
+radiated_power_kw = 10.0
+[[receiver]]
+name = "R"
+latitude_deg = 30.0
+longitude_deg = -10.0
+[ionosphere]
+preset = "night"
+[ground]
+kind = "sea"
+"""
+_BY_RANGE = _POSITIONED.replace('latitude_deg = 30.0\nlongitude_deg = -10.0', 'range_km = 900.0')
+
+
+def _load(text):
+    from cavity.scenario import load_scenario
+
+    return load_scenario(text)
+
+
+def test_default_model_follows_the_geometry():
+    from cavity.geomag import DEFAULT_EPOCH
+
+    s = _load(_POSITIONED)
+    assert s.geomagnetic.model == "igrf" and s.geomagnetic.epoch == DEFAULT_EPOCH
+    assert s.geomagnetic.epoch_source == "default" and s.geomagnetic.altitude_km == 80.0
+    assert _load(_BY_RANGE).geomagnetic.model == "none"
+
+
+def test_epoch_from_utc_then_date():
+    from datetime import date
+
+    s = _load(_POSITIONED.replace('preset = "night"', "utc = 2026-07-01T23:30:00Z"))
+    assert s.geomagnetic.epoch == date(2026, 7, 1) and s.geomagnetic.epoch_source == "ionosphere.utc"
+    s = _load(_POSITIONED + "[geomagnetic]\ndate = 2024-03-05\n")
+    assert s.geomagnetic.epoch == date(2024, 3, 5) and s.geomagnetic.epoch_source == "geomagnetic.date"
+    assert _load(s.to_toml()) == s
+
+
+def test_uniform_round_trip_and_frame():
+    s = _load(_BY_RANGE + '[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = 90.0\n')
+    assert _load(s.to_toml()) == s
+    from cavity.paths import build_paths
+
+    (path,) = build_paths(s)
+    f = path.geomagnetic
+    assert f.b_phi_nt[0] == pytest.approx(40000 * math.cos(math.radians(20)))
+    assert f.b_z_nt[0] == pytest.approx(-40000 * math.sin(math.radians(20)))
+
+
+@pytest.mark.parametrize("section, message", [
+    ('[geomagnetic]\nmodel = "dipole"\n', 'geomagnetic.model = "dipole" is not a field model'),
+    ('[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 95.0\nazimuth_deg = 0.0\n',
+     "geomagnetic.dip_deg = 95.0 is outside the allowed range -90 to 90"),
+    ('[geomagnetic]\nmodel = "uniform"\ndip_deg = 10.0\nazimuth_deg = 0.0\n', "geomagnetic.strength_nt is missing"),
+    ('[geomagnetic]\nmodel = "uniform"\nstrength_nt = 1.0\ndip_deg = 10.0\nazimuth_deg = 360.0\n',
+     "geomagnetic.azimuth_deg = 360.0 is outside"),
+    ('[geomagnetic]\nstrength_nt = 40000.0\n', 'is only used with model = "uniform"'),
+    ('[geomagnetic]\ndate = 2031-01-01\n', "geomagnetic.date = 2031-01-01 is outside the allowed range"),
+    ('[geomagnetic]\ndate = "2026-01-01"\n', "geomagnetic.date = \"2026-01-01\" must be a date"),
+    ('[geomagnetic]\naltitude_km = 20.0\n', "geomagnetic.altitude_km = 20.0 is outside the allowed range 50 to 150 km"),
+    ('[geomagnetic]\nmodle = "igrf"\n', "geomagnetic.modle: unknown key; did you mean 'model'?"),
+])
+def test_bad_sections_give_one_line(section, message):
+    from cavity.errors import ScenarioError
+
+    with pytest.raises(ScenarioError) as info:
+        _load(_POSITIONED + section)
+    assert message in str(info.value) and "\n" not in str(info.value)
+
+
+def test_igrf_needs_directions():
+    from cavity.errors import ScenarioError
+
+    with pytest.raises(ScenarioError, match=r'receiver\[1\].range_km = 900.0 gives no direction, but geomagnetic model = "igrf"'):
+        _load(_BY_RANGE + '[geomagnetic]\nmodel = "igrf"\n')
+
+
+def test_solve_key_changes_with_the_field():
+    from cavity.paths import build_paths
+    from cavity.solve import solve_key
+
+    keys = set()
+    for az in (90.0, 270.0):
+        s = _load(_BY_RANGE + f'[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = {az}\n')
+        keys.add(solve_key(s, build_paths(s)[0]))
+    s = _load(_BY_RANGE)
+    keys.add(solve_key(s, build_paths(s)[0]))
+    assert len(keys) == 3
