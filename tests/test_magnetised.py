@@ -371,3 +371,52 @@ def test_dense_magnetised_slab_stays_stable_for_1e5_steps(strength_t):
     b = strength_t * np.array([0.5, 0.6, -0.62]) / np.linalg.norm([0.5, 0.6, -0.62])
     sim, dt = _dense_slab_run(b, 100000)
     assert np.abs(sim.ez).max() < 1e-3 and np.isfinite(sim.ephi).all()
+
+
+def _uniform_scenario(range_km, dip_deg, azimuth_deg, *, night=True, ground="sea", cell_m=1000.0, strength_nt=50000.0):
+    from cavity.scenario import load_scenario
+
+    return load_scenario(f"""title = "magnetised check"
+[transmitter]
+name = "Tx"
+frequency_khz = 20.0
+radiated_power_kw = 100.0
+[[receiver]]
+name = "R"
+range_km = {range_km}
+[ionosphere]
+preset = "{'night' if night else 'day'}"
+[ground]
+kind = "{ground}"
+[geomagnetic]
+model = "uniform"
+strength_nt = {strength_nt}
+dip_deg = {dip_deg}
+azimuth_deg = {azimuth_deg}
+[solver]
+cell_m = {cell_m}
+""")
+
+
+@pytest.mark.slow
+def test_vertical_field_gives_the_same_answer_in_every_direction():
+    # With a vertical field there is no preferred horizontal direction (physics): the azimuth of
+    # travel must not matter.
+    from cavity.solve import simulate
+
+    runs = [simulate(_uniform_scenario(400.0, 90.0, az))["ez_amplitude"].values[0, 0] for az in (0.0, 90.0, 225.0)]
+    assert np.max(np.abs(runs[1] - runs[0])) < 0.01 and np.max(np.abs(runs[2] - runs[0])) < 0.01
+
+
+@pytest.mark.slow
+def test_eastward_beats_westward_at_night_with_a_low_dip():
+    # At night, at low and middle latitudes, eastward VLF propagation is attenuated less than
+    # westward (common practice; a few tenths to about 1 dB per 1000 km, from memory).
+    from cavity.solve import simulate
+
+    east = simulate(_uniform_scenario(1500.0, 20.0, 90.0))
+    west = simulate(_uniform_scenario(1500.0, 20.0, 270.0))
+    r = east["range"].values
+    far = (r >= 600.0) & (r <= 1500.0)
+    diff = east["ez_amplitude"].values[0, 0, far] - west["ez_amplitude"].values[0, 0, far]
+    assert np.median(diff) > 0.3
