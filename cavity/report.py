@@ -813,6 +813,16 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
             ax_a.set_ylim(*limits)
         _mark_receivers(ax_a, rx_n, rx_d, rx_amp[on_path, k], RUN_COLOURS[0], label_names=True)
         ax_a.set_ylabel("Ez (dB re 1 uV/m, RMS)")
+        if "b_radial_amplitude" in ds:
+            # with a geomagnetic field both horizontal B components reach a loop antenna
+            ax_b = ax_a.twinx()
+            for name, text, style in (("b_amplitude", "B across the path", "--"), ("b_radial_amplitude", "B along the path", ":")):
+                values = ds[name].transpose("path", "frequency", "range").values[p, k]
+                fine = np.isfinite(values)
+                ax_b.plot(r[fine], values[fine], color=RUN_COLOURS[2 % len(RUN_COLOURS)], linestyle=style,
+                          linewidth=1.0, label=text)
+            ax_b.set_ylabel("B (dB re 1 fT, RMS)")
+            ax_b.legend(loc="upper right", fontsize=8)
         ax_a.set_title(f"{labels[p]}, {freqs[k]:g} kHz", fontsize=10)
         ax_a.grid(True, alpha=0.3)
         okp = np.isfinite(ph[p, k]) & (r > 0)
