@@ -178,6 +178,29 @@ def gyro_matrix(omega_b):
                      np.stack([-wp, wr, zero], -1)], -2)
 
 
+def _inverse3(a):
+    """Inverses of stacked 3x3 matrices by the adjugate, element by element (bit-reproducible,
+    unlike LAPACK or matmul paths that depend on memory alignment and threads)."""
+    c = np.empty_like(a)
+    for i in range(3):
+        for j in range(3):
+            r = [k for k in range(3) if k != j]
+            q = [k for k in range(3) if k != i]
+            minor = a[..., r[0], q[0]] * a[..., r[1], q[1]] - a[..., r[0], q[1]] * a[..., r[1], q[0]]
+            c[..., i, j] = minor if (i + j) % 2 == 0 else -minor
+    det = a[..., 0, 0] * c[..., 0, 0] + a[..., 0, 1] * c[..., 1, 0] + a[..., 0, 2] * c[..., 2, 0]
+    return c / det[..., None, None]
+
+
+def _product3(a, b):
+    """Products of stacked 3x3 matrices, element by element (see :func:`_inverse3`)."""
+    out = np.empty(np.broadcast_shapes(a.shape, b.shape))
+    for i in range(3):
+        for j in range(3):
+            out[..., i, j] = a[..., i, 0] * b[..., 0, j] + a[..., i, 1] * b[..., 1, j] + a[..., i, 2] * b[..., 2, j]
+    return out
+
+
 def magnetised_coefficients(eps_eff, omega_p2, nu, omega_b, present, dt):
     """E-J collocated trapezoidal update of a magnetised collisional cold plasma, per triple.
 
@@ -220,8 +243,8 @@ def magnetised_coefficients(eps_eff, omega_p2, nu, omega_b, present, dt):
     eye = np.broadcast_to(np.eye(3), omega.shape)
     diag = np.where(pres, 0.5 * dt * nu + 0.25 * dt**2 * wp2, 0.0)
     p = -0.5 * dt * omega + eye * diag[..., None, :]
-    inv = np.linalg.inv(eye + p)
-    t = inv @ (eye - p)
+    inv = _inverse3(eye + p)
+    t = _product3(inv, eye - p)
     w = inv * (dt * d)[..., None, :]
     t = t * pres[..., :, None] * pres[..., None, :]
     w = w * pres[..., :, None] * pres[..., None, :]
