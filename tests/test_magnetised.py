@@ -188,7 +188,7 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
                     e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"], e_["coef"], e_["tab"], shift, e_["wsq"],
                     f_["uz"], f_["ur"], f_["up"], *[e_[k] for k in e_keys]]
             if fn_ is K.step_e_mag:
-                fn_(*args, nr)
+                fn_(*args, nr, np.zeros((3, nr, f_["ez"].shape[1]), F32))
                 if shift < 0:
                     K.step_er_alone(f_["er"], f_["hp"], e_["inv_dz"], e_["cer"], e_["jp0"], e_["coef"], 0, e_["wsq"],
                                     f_["ur"], e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], nr - 1)

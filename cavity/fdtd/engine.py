@@ -413,6 +413,7 @@ class Simulation:
         self.ephi = np.zeros((nr, nz + 1), f32)
         self.hr = np.zeros((nr, nz), f32)
         self.hz = np.zeros((nr, nz + 1), f32)
+        self.scratch = np.zeros((3, nr, nz), f32)  # curls of step_e_mag
         n_pl = nz - self.jp0
         self.jphi = np.zeros((nr, n_pl), f32)
         # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
@@ -585,7 +586,7 @@ class Simulation:
                              self.tab_p if shift > 0 else self.tab_m, shift, self.wsq, self.jz, self.jr, self.jphi,
                              self.jz0, *self.pz_e, self.psi_ze, self.psi_pz, self.ir0, *self.pr_e,
                              self.psi_re, self.psi_pr, src_kick, acc_e[0], acc_e[1], rot_e.real,
-                             -rot_e.imag, n_cols)
+                             -rot_e.imag, n_cols, self.scratch)
                 if shift < 0 and n_cols >= nr:
                     K.step_er_alone(self.er, self.hp, self.inv_dz, self.cer, self.jp0, self.mag_coef,
                                     self.t_left, self.wsq, self.jr, self.jz0, *self.pz_e, self.psi_ze, nr - 1)

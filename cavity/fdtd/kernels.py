@@ -405,7 +405,7 @@ def _flush(v):
 @nb.njit(parallel=True, **_OPTS)
 def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, coef, tab, shift, wsq, uz, ur, up,
                jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz, ir0, b_re, c_re, kd_re, psi_re, psi_pr,
-               src, acc_re, acc_im, cos_e, sin_e, n_cols):
+               src, acc_re, acc_im, cos_e, sin_e, n_cols, scratch):
     """E half-step of the six-component scheme with the magnetised plasma current.
 
     Ampere's law for Ez, Er (as :func:`step_e`) and eps dEphi/dt = dHr/dz - dHz/dr - Jphi. In the
@@ -425,7 +425,8 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
     Absorbers (Roden and Gedney 2000) stretch the curls before the update: the top layer the
     z derivatives of Er and Ephi, the far-end layer the radial operators of Ez and Ephi.
     Finally ``ez[0, 0] -= src`` and the ground-row DFT of Ez. Curls are gathered per column first
-    and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it.
+    and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it;
+    ``scratch`` (3, nr, nz) float32 holds the curls (no allocation in the loop).
     """
     nr, nz = ez.shape
     n = nz - jp0
@@ -443,11 +444,13 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
         far = i >= ir0
         kk = i - ir0
         # curls of every row (vacuum and plasma), stretched in the absorbers
-        cz = np.empty(nz, np.float32)
-        cp = np.zeros(nz, np.float32)
-        cr = np.zeros(nz, np.float32)
+        cz = scratch[0, i]
+        cp = scratch[1, i]
+        cr = scratch[2, i]
         for j in range(nz):
             cz[j] = a * h[j] - b * hm[j]
+            cp[j] = zero
+            cr[j] = zero
         if far:
             for j in range(nz):
                 p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz[j]
