@@ -247,6 +247,10 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         duration_s=t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=_max_log_slope(medium), ceiling=ceiling,
         pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength, courant_safety=s.courant_safety,
     )
+    if medium.magnetic_field_t is not None:
+        import dataclasses
+
+        grid = dataclasses.replace(grid, magnetised=True)
     return RunPlan(grid, waveform, f, t_min, t_max)
 
 
