@@ -10,6 +10,11 @@ Heavy modules (numba kernels, matplotlib, cartopy) are imported on first use, so
 ``import cavity`` stays fast.
 """
 
+from __future__ import annotations
+
+import os
+from typing import TYPE_CHECKING, Any
+
 from cavity.errors import (
     CavityError,
     ResourceError,
@@ -17,8 +22,12 @@ from cavity.errors import (
     ScenarioError,
     SolverError,
 )
+from cavity.version import __version__
 
-__version__ = "0.1.0"
+if TYPE_CHECKING:  # pragma: no cover
+    import xarray as xr
+
+    from cavity.scenario import Scenario
 
 __all__ = [
     "CavityError",
@@ -34,29 +43,29 @@ __all__ = [
 ]
 
 
-def load_scenario(source):
+def load_scenario(source: str | os.PathLike) -> Scenario:
     """Load and validate a scenario from a TOML file path (or TOML text); see :mod:`cavity.scenario`."""
     from cavity.scenario import load_scenario as _load
 
     return _load(source)
 
 
-def simulate(scenario, **kwargs):
+def simulate(scenario: Scenario, **kwargs: Any) -> xr.Dataset:
     """Run the waveguide solver for a scenario and return the result dataset; see :mod:`cavity.solve`."""
     from cavity.solve import simulate as _simulate
 
     return _simulate(scenario, **kwargs)
 
 
-def open_result(path):
+def open_result(path: str | os.PathLike) -> xr.Dataset:
     """Open a result file written by this tool; see :mod:`cavity.results`."""
     from cavity.results import open_result as _open
 
     return _open(path)
 
 
-def sweep(scenario, **kwargs):
-    """Solve many variants of a scenario (hours, frequencies) on dask workers; see :mod:`cavity.sweep`."""
-    from cavity.sweep import sweep as _sweep
+def sweep(scenario: Scenario, **kwargs: Any) -> xr.Dataset:
+    """Solve many variants of a scenario (hours, frequencies) on dask workers; see :mod:`cavity.sweeps`."""
+    from cavity.sweeps import sweep as _sweep
 
     return _sweep(scenario, **kwargs)

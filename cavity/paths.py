@@ -18,6 +18,7 @@ import numpy as np
 
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
+from cavity.medium import ionosphere_along
 
 #: Margin beyond the farthest receiver of a path: ``farthest * (1 + fraction) + extra``.
 RANGE_MARGIN_FRACTION = 0.05
@@ -217,25 +218,6 @@ def _ground_along(scenario, range_m, lats, lons):
     return kinds.astype(str), sigma, eps
 
 
-def _ionosphere_along(scenario, lats, lons, n):
-    """(chi, h', beta, daylight) per sample for the scenario's ionosphere form."""
-    from profiles.daynight import daylight_class, linear_transition, preset
-
-    ion = scenario.ionosphere
-    if ion.form == "exponential":
-        return None, np.full(n, ion.hprime_km, dtype=float), np.full(n, ion.beta_per_km, dtype=float), None
-    if ion.form == "preset":
-        p = preset(ion.preset)
-        return None, np.full(n, p.hprime_km, dtype=float), np.full(n, p.beta_per_km, dtype=float), None
-    if ion.form == "utc":
-        from cavity.geo import solar_zenith_deg
-
-        chi = np.asarray(solar_zenith_deg(ion.utc, lats, lons), dtype=float)
-        hprime, beta = linear_transition(chi, day=preset(ion.day_preset), night=preset(ion.night_preset))
-        return chi, np.asarray(hprime, dtype=float), np.asarray(beta, dtype=float), np.asarray(daylight_class(chi)).astype(str)
-    return None, None, None, None
-
-
 def _max_range(farthest_m: float, scenario) -> float:
     planned = farthest_m * (1.0 + RANGE_MARGIN_FRACTION) + RANGE_MARGIN_EXTRA_M
     if scenario.solver.max_range_m is not None:
@@ -290,7 +272,7 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         max_range = _max_range(max(ranges), scenario)
         r = sample_ranges_m(max_range, sample_km)
         kinds, sigma, eps = _ground_along(scenario, r, None, None)
-        chi, hprime, beta, daylight = _ionosphere_along(scenario, None, None, r.size)
+        chi, hprime, beta, daylight = ionosphere_along(scenario, None, None, r.size)
         label = "all bearings" if scenario.ground.segments else "uniform"
         from cavity.geomag import field_along
 
@@ -325,7 +307,7 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         r = sample_ranges_m(max_range, sample_km)
         lats, lons = points_along(tx.latitude_deg, tx.longitude_deg, bearing, r)
         kinds, sigma, eps = _ground_along(scenario, r, lats, lons)
-        chi, hprime, beta, daylight = _ionosphere_along(scenario, lats, lons, r.size)
+        chi, hprime, beta, daylight = ionosphere_along(scenario, lats, lons, r.size)
         heading = headings_along(tx.latitude_deg, tx.longitude_deg, bearing, r)
         path = PathModel(
             label=f"bearing {bearing:.1f} deg", bearing_deg=bearing,

@@ -11,7 +11,6 @@ it, so a result file is either complete or absent.
 from __future__ import annotations
 
 import os
-import uuid
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass
 from datetime import datetime, timezone
@@ -20,8 +19,9 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from cavity import __version__
 from cavity.errors import ResultFileError
+from cavity.files import replacing
+from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -521,19 +521,13 @@ def write_result(ds: xr.Dataset, path: str | os.PathLike, *, overwrite: bool = F
     ds.attrs["history"] = "\n".join(
         line for line in (str(ds.attrs.get("history", "")), f"{_now()} cavity {__version__}: written to {target.name}") if line
     )
-    temporary = folder / f".{target.name}.{uuid.uuid4().hex[:12]}.tmp"
     try:
-        ds.to_netcdf(temporary, mode="w", format="NETCDF4", engine="netcdf4", encoding=_encoding(ds))
-        with open(temporary, "rb") as handle:
-            os.fsync(handle.fileno())
-        os.replace(temporary, target)
+        with replacing(target, fsync=True) as temporary:
+            ds.to_netcdf(temporary, mode="w", format="NETCDF4", engine="netcdf4", encoding=_encoding(ds))
     except PermissionError:
         raise ResultFileError(f"cannot write {target.name}: folder {folder} is not writable") from None
     except OSError as exc:
         raise ResultFileError(f"cannot write {target}: {exc.strerror or exc}") from None
-    finally:
-        if temporary.exists():
-            temporary.unlink()
     return target
 
 

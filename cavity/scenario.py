@@ -30,8 +30,8 @@ from pathlib import Path
 from typing import Any
 
 from cavity.constants import C0
-from cavity.fdtd.grid import DEFAULT_CELLS_PER_WAVELENGTH
 from cavity.errors import ScenarioError
+from cavity.fdtd.grid import DEFAULT_CELLS_PER_WAVELENGTH
 from cavity.ground import GROUND_CLASSES
 
 # Allowed ranges, in the file's units (km, kHz, kW, degrees).

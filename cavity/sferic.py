@@ -29,17 +29,12 @@ file holds.
 
 from __future__ import annotations
 
-import dataclasses
-import importlib
 import logging
 import math
-import time
-from collections.abc import Sequence
 
 import numpy as np
 
 from cavity.constants import C0, MU0
-from cavity.errors import ResultFileError, ScenarioError
 
 log = logging.getLogger(__name__)
 
@@ -210,123 +205,55 @@ def tail_level_db(values) -> float:
 
 
 # --------------------------------------------------------------------------------------------------
-# Running
+# Sferic variables of a result
 # --------------------------------------------------------------------------------------------------
 
 
-def engine_settings(scenario, path, stroke):
-    """Engine settings for one path of a lightning scenario: probes at its receivers, fixed record."""
-    from cavity.fdtd import engine as eng
+def record_settings(scenario) -> dict:
+    """Engine settings a lightning run needs beyond a carrier's: range cell from the band's top, fixed record.
 
+    The band's upper edge (or the highest carrier, if above) sets the range cell at the scenario's
+    ``cells_per_wavelength`` unless ``cell_m`` is given; every step is recorded at the receivers (the
+    low-pass and resampling happen in :func:`sferic_variables`) and the run never stops early.
+    """
     sv, src = scenario.solver, scenario.source
-    f_tx = tuple(scenario.transmitter.frequencies_hz)
-    f_top = max(src.band_hz[1], max(f_tx))
-    dr = sv.cell_m or C0 / f_top / sv.cells_per_wavelength
-    return eng.Settings(
-        frequencies_hz=f_tx,
-        max_range_m=float(path.max_range_m),
-        top_m=float(scenario.planned_top_m()),
-        dr_m=dr,
-        dz_m=sv.cell_m,
-        cells_per_wavelength=sv.cells_per_wavelength,
-        earth_curvature=sv.earth_curvature,
-        pml_cells=sv.pml_cells,
-        waveform=stroke,
-        probe_ranges_m=tuple(float(r) for r in path.receiver_ranges_m),
-        record_time_series=True,
-        time_series_rate_hz=None,  # every step: the low-pass and resampling happen here
-        convergence_db=0.0,  # never stop early: the record has a fixed length
-        max_duration_s=float(src.record_s),
-    )
+    f_top = max(src.band_hz[1], max(scenario.transmitter.frequencies_hz))
+    return {
+        "dr_m": sv.cell_m or C0 / f_top / sv.cells_per_wavelength,
+        "record_time_series": True,
+        "time_series_rate_hz": None,  # every step: the low-pass and resampling happen here
+        "convergence_db": 0.0,  # never stop early: the record has a fixed length
+        "max_duration_s": float(src.record_s),
+    }
 
 
-def plan_path(scenario, path):
-    """The solve one path of a lightning scenario needs (grid, time step, record), without allocating it."""
-    sim_mod = importlib.import_module("cavity.solve")
-    from cavity.fdtd import engine as eng
-
-    return eng.make_plan(sim_mod.path_medium(scenario, path), engine_settings(scenario, path, stroke_for(scenario.source)))
-
-
-def _solve_path(scenario, path, stroke, progress):
-    """One engine run: the calibrated carrier response (as :func:`cavity.solve.solve_path`) and the raw series."""
-    sim_mod = importlib.import_module("cavity.solve")
-    from cavity.fdtd import engine as eng
-    from cavity.fdtd import media
-    from cavity.fdtd.source import moment_for_power
-
-    medium = sim_mod.path_medium(scenario, path)
-    settings = engine_settings(scenario, path, stroke)
-    sim = eng.Simulation(medium, settings)
-    log.info(
-        "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, %d steps (%.1f ms record), ~%.2f GB",
-        path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
-        int(math.ceil(sim.t_max / sim.plan.dt_s)), sim.t_max * 1e3, sim.plan.memory_bytes / 1e9,
-    )
-    res = sim.run(progress)
-    res.notes = []  # the record has a fixed length; completeness is judged from the tail below
-    f = res.frequencies_hz
-    scale = np.array([moment_for_power(scenario.transmitter.radiated_power_w, fk) for fk in f])[:, None]
-    if settings.earth_curvature:
-        scale = scale * media.spherical_spreading_correction(res.range_m)[None, :]
-    ez = res.ez * scale
-    b = MU0 * res.hphi * scale
-    rx_r = np.asarray(path.receiver_ranges_m, float)
-    rx_ez = np.stack([sim_mod.interpolate_phasor(res.range_m, ez[k], rx_r) for k in range(f.size)], axis=1)
-    rx_b = np.stack([sim_mod.interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
-    ne_out = nu_out = None
-    if medium.electron_density is not None:
-        z_out = sim_mod.RESULT_ALTITUDE_KM * 1e3
-        ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
-        nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    # the waveforms are handled here (lightning moment, not a carrier's): hand the generic assembly none
-    bare = dataclasses.replace(res, time_s=None, ez_series=None, hphi_series=None, source_current=None,
-                               source_moment=None)
-    solution = sim_mod.PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, bare, sim.impedance_fit_error, ne_out, nu_out)
-    return solution, res, settings.earth_curvature
-
-
-def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0):
-    """Run a lightning scenario and return its result dataset with waveforms, spectra and cutoffs.
+def sferic_variables(ds, scenario, stroke, solutions, raws, *, earth_curvature: bool):
+    """Add the waveforms, spectra and cutoffs at the receivers to a lightning run's result dataset.
 
     Parameters
     ----------
+    ds : xarray.Dataset
+        The result dataset of the run's carrier response (the file contract).
     scenario : cavity.scenario.Scenario
         With ``source.kind == "lightning"``.
-    progress : callable(fraction, text), optional
-    sample_km, bearing_tolerance_deg : passed to :func:`cavity.paths.build_paths`.
+    stroke : cavity.fdtd.lightning.HeidlerStroke
+        The waveform the engine ran (:func:`stroke_for`).
+    solutions : sequence
+        Per path, an object with ``path`` (its ``receiver_indices``).
+    raws : sequence of cavity.fdtd.engine.EngineResult
+        Per path, the engine's result with the probe time series at the receivers.
+    earth_curvature : bool
+        Whether the fields are corrected from flat to spherical spreading.
 
     Returns
     -------
     xarray.Dataset
-        The result-file contract plus the sferic variables listed in this module's docstring.
-
-    Raises
-    ------
-    ScenarioError
-        The scenario has no lightning source.
+        ``ds`` with the sferic variables listed in this module's docstring.
     """
     from cavity.fdtd import media
-    from cavity.paths import build_paths
-    from cavity.results import apply_metadata
-    from cavity.solve import to_dataset
 
-    src = getattr(scenario, "source", None)
-    if src is None or src.kind != "lightning":
-        raise ScenarioError('the scenario has no [source] with kind = "lightning"; use cavity run for a carrier')
-    stroke = stroke_for(src)
-    log.info("%s", stroke.describe())
-    paths = build_paths(scenario, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
-    solutions, raws = [], []
-    curved = True
-    t_start = time.perf_counter()
-    for path, sub in zip(paths, importlib.import_module("cavity.solve").path_progress(progress, paths)):
-        solution, raw, curved = _solve_path(scenario, path, stroke, sub)
-        solutions.append(solution)
-        raws.append(raw)
-    log.info("sferic solved in %.1f s", time.perf_counter() - t_start)
-    ds = to_dataset(scenario, solutions)
-
+    src = scenario.source
+    curved = earth_curvature
     # waveforms on one lag axis, spectra on one frequency axis
     f_lo, f_hi = src.band_hz
     lag_step = 1.0 / (SAMPLES_PER_BAND_EDGE * f_hi)
@@ -401,114 +328,4 @@ def simulate_sferic(scenario, *, progress=None, sample_km: float = 10.0, bearing
         ds.attrs["solver_notes"] = "; ".join(notes)
     elif "solver_notes" in ds.attrs:
         del ds.attrs["solver_notes"]
-    return apply_metadata(ds)
-
-
-# --------------------------------------------------------------------------------------------------
-# Plotting
-# --------------------------------------------------------------------------------------------------
-
-
-def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, component: str = "ez"):
-    """Waveform and spectrum panels per receiver; several runs (day and night) overlaid, cutoffs marked.
-
-    Parameters
-    ----------
-    datasets : xarray.Dataset or sequence of them
-        Sferic result datasets (from :func:`simulate_sferic` or :func:`cavity.open_result`). Receivers
-        are matched by name; the first dataset sets the rows.
-    output : str or os.PathLike
-        Figure file; the format follows the extension (png, pdf, svg).
-    labels : sequence of str, optional
-        Legend labels; default the ionosphere of each run (from its scenario) or its title.
-    component : "ez" or "b"
-        Vertical electric field or horizontal magnetic flux density.
-
-    Returns
-    -------
-    pathlib.Path
-        The file written.
-    """
-    import matplotlib
-
-    matplotlib.use("Agg", force=False)
-    import matplotlib.pyplot as plt
-
-    from cavity.report import save_figure
-
-    if component not in ("ez", "b"):
-        raise ValueError(f"component = {component!r}: choose 'ez' or 'b'")
-    runs = [datasets] if hasattr(datasets, "data_vars") else list(datasets)
-    for ds in runs:
-        if "receiver_ez_time_series" not in ds or "receiver_ez_spectrum" not in ds:
-            raise ResultFileError(f"{ds.attrs.get('title', 'a dataset')!r} holds no sferic waveforms (write it with cavity sferic run)")
-    if labels is None:
-        labels = [_run_label(ds) for ds in runs]
-    names = [str(n) for n in runs[0].receiver_name.values]
-    n_rows = len(names)
-    fig, axes = plt.subplots(n_rows, 2, figsize=(11, 2.6 * n_rows + 0.8), squeeze=False)
-    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
-    series_name, spectrum_name = f"receiver_{component}_time_series", f"receiver_{component}_spectrum"
-    scale, unit = (1e3, "mV/m") if component == "ez" else (1e12, "pT")
-    quantity = "Ez" if component == "ez" else "B"
-    ref = "dB re 1 uV/m/Hz" if component == "ez" else "dB re 1 fT/Hz"
-    for row, name in enumerate(names):
-        ax_t, ax_f = axes[row]
-        r_km = float(runs[0].receiver_range.values[row])
-        arrival_ms = r_km * 1e3 / C0 * 1e3
-        t_end = arrival_ms
-        for k, (ds, label) in enumerate(zip(runs, labels)):
-            match = np.nonzero(ds.receiver_name.values.astype(str) == name)[0]
-            if match.size == 0:
-                continue
-            i = int(match[0])
-            colour = colours[k % len(colours)]
-            lag_ms = ds.lag.values * 1e3
-            ax_t.plot(lag_ms, ds[series_name].values[i] * scale, color=colour, lw=0.9, label=label)
-            t_end = max(t_end, float(lag_ms[-1]))
-            f_khz = ds.spectrum_frequency.values
-            ax_f.plot(f_khz, ds[spectrum_name].values[i], color=colour, lw=0.9, label=label)
-            fc = float(ds.receiver_cutoff_frequency.values[i]) if "receiver_cutoff_frequency" in ds else math.nan
-            if math.isfinite(fc):
-                ax_f.axvline(fc, color=colour, ls="--", lw=0.9)
-                ax_f.annotate(f"cutoff {fc:.2f} kHz", xy=(fc, 1.0), xycoords=("data", "axes fraction"),
-                              xytext=(3, -12 - 11 * k), textcoords="offset points", color=colour, fontsize=8)
-        ax_t.set_xlim(max(0.0, arrival_ms - 0.3), min(t_end, arrival_ms + 5.0))
-        ax_t.set_ylabel(f"{quantity} ({unit})")
-        ax_t.set_title(f"{name}, {r_km:.0f} km: waveform", fontsize=9)
-        ax_t.axhline(0.0, color="0.6", lw=0.5)
-        ax_f.set_xscale("log")
-        ax_f.set_ylabel(f"|{quantity}(f)| ({ref})")
-        ax_f.set_title(f"{name}: spectrum", fontsize=9)
-        ax_f.grid(True, which="both", lw=0.3, alpha=0.6)
-        if row == 0:
-            ax_t.legend(fontsize=8, loc="upper right")
-    axes[-1][0].set_xlabel("time since the stroke (ms)")
-    axes[-1][1].set_xlabel("frequency (kHz)")
-    source = str(runs[0].attrs.get("sferic_source", "lightning stroke"))
-    filt = str(runs[0].attrs.get("sferic_waveform_filter", "")).split(";")[0]
-    fig.suptitle(f"Sferic at the receivers\n{source}\nwaveforms: {filt}; dashed: lowest cutoff from the tail",
-                 fontsize=9)
-    fig.tight_layout()
-    try:
-        return save_figure(fig, output, dpi=120)
-    finally:
-        plt.close(fig)
-
-
-def _run_label(ds) -> str:
-    """A short label for a run: its ionosphere (preset name or h' and beta) or its title."""
-    import tomllib
-
-    try:
-        doc = tomllib.loads(str(ds.attrs.get("scenario", "")))
-        ion = doc.get("ionosphere", {})
-        if "preset" in ion:
-            return f"{ion['preset']}"
-        if "hprime_km" in ion:
-            return f"h' {ion['hprime_km']:g} km, beta {ion['beta_per_km']:g}/km"
-        if "ceiling_km" in ion:
-            return f"ceiling {ion['ceiling_km']:g} km"
-    except (tomllib.TOMLDecodeError, TypeError, KeyError):
-        pass
-    return str(ds.attrs.get("title", "run"))
+    return ds

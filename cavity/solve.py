@@ -9,10 +9,13 @@ spherical spreading when earth curvature is on (physics.md 7).
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -20,11 +23,15 @@ from cavity.constants import MU0
 from cavity.fdtd import engine as eng
 from cavity.fdtd import media
 from cavity.fdtd.source import moment_for_power
+from cavity.medium import PROFILE_STEP_M, path_medium  # noqa: F401  (PROFILE_STEP_M: public here too)
+
+if TYPE_CHECKING:  # pragma: no cover
+    import xarray as xr
+
+    from cavity.scenario import Scenario
 
 log = logging.getLogger(__name__)
 
-#: Altitude sampling of the profile handed to the engine (the engine interpolates onto its grid).
-PROFILE_STEP_M = 250.0
 #: Altitudes recorded in the result file, km (the D region and a margin).
 RESULT_ALTITUDE_KM = np.arange(40.0, 120.0 + 1e-9, 1.0)
 
@@ -43,90 +50,95 @@ class PathSolution:
     engine_fit_error: float  # worst relative error of the recursive ground impedance in band
     electron_density: np.ndarray | None  # (nsample, nalt) on RESULT_ALTITUDE_KM
     collision_frequency: np.ndarray | None
+    raw: eng.EngineResult | None = None  # a lightning run's engine result with the probe time series
     b_radial: np.ndarray | None = None  # (nf, nrange) complex T RMS, magnetised runs only
     ephi: np.ndarray | None = None  # (nf, nrange) complex V/m RMS
     receiver_b_radial: np.ndarray | None = None
     receiver_ephi: np.ndarray | None = None
 
 
-def engine_settings(scenario, path, *, waveform=None) -> eng.Settings:
-    """Solver settings for one path of a scenario (cells, top, absorber, probes)."""
+@dataclass(frozen=True)
+class Excitation:
+    """How the transmitter's place is driven, decided once per run by :func:`excitation`.
+
+    ``waveform`` is the engine's source waveform (None: tone bursts at the carriers); ``stroke`` is
+    set for a lightning ``[source]`` (then ``waveform`` is the stroke too) and makes each path's run a
+    fixed record whose time series become the sferic variables (:mod:`cavity.sferic`).
+    """
+
+    waveform: Any = None  # a callable of time (cavity.fdtd.source) or None
+    stroke: Any = None  # cavity.fdtd.lightning.HeidlerStroke or None
+
+
+def excitation(scenario, waveform=None) -> Excitation:
+    """The scenario's excitation: the one place where a lightning ``[source]`` is told from carriers."""
+    source = getattr(scenario, "source", None)
+    if source is not None and source.kind == "lightning" and waveform is None:
+        from cavity.sferic import stroke_for
+
+        stroke = stroke_for(source)
+        return Excitation(waveform=stroke, stroke=stroke)
+    return Excitation(waveform=waveform)
+
+
+def engine_settings(scenario, path, *, waveform=None, drive: Excitation | None = None) -> eng.Settings:
+    """Solver settings for one path of a scenario (cells, top, absorber, probes; a lightning run's record)."""
+    drive = drive if drive is not None else excitation(scenario, waveform)
     sv = scenario.solver
-    probes = tuple(path.receiver_ranges_m) if sv.receiver_time_series else ()
-    return eng.Settings(
+    common = dict(
         frequencies_hz=tuple(scenario.transmitter.frequencies_hz),
         max_range_m=float(path.max_range_m),
         top_m=float(scenario.planned_top_m()),
-        dr_m=sv.cell_m,
         dz_m=sv.cell_m,
         cells_per_wavelength=sv.cells_per_wavelength,
         earth_curvature=sv.earth_curvature,
         pml_cells=sv.pml_cells,
-        waveform=waveform,
-        probe_ranges_m=probes,
-        record_time_series=bool(probes),
+        waveform=drive.waveform,
     )
+    if drive.stroke is not None:
+        from cavity.sferic import record_settings
 
-
-def path_medium(scenario, path) -> eng.Medium:
-    """The engine's medium for one path: ground per sample and the ionosphere profile per sample."""
-    import profiles
-    from profiles.exponential import ALTITUDE_RANGE_M
-
-    ion = scenario.ionosphere
-    top = scenario.planned_top_m()
-    z = np.arange(0.0, top + 40e3 + PROFILE_STEP_M, PROFILE_STEP_M)
-    z = z[z <= ALTITUDE_RANGE_M[1]]  # profiles end at 500 km; the engine holds the top value above
-    ne = nu = None
-    if path.hprime_km is not None:
-        ne = profiles.electron_density(z[None, :], path.hprime_km[:, None], path.beta_per_km[:, None])
-        nu = np.broadcast_to(profiles.collision_frequency(z)[None, :], ne.shape).copy()
-    elif ion.form == "file":
-        ds = profiles.read_profile(ion.profile_path)
-        ne1, nu1 = profiles.sample_profile(ds, z)
-        ne = np.broadcast_to(np.asarray(ne1, float)[None, :], (path.n_samples, z.size)).copy()
-        nu = np.broadcast_to(np.asarray(nu1, float)[None, :], (path.n_samples, z.size)).copy()
-    field = getattr(path, "geomagnetic", None)
-    b0 = None
-    if field is not None and ne is not None:
-        b0 = np.stack([field.b_r_nt, field.b_phi_nt, field.b_z_nt], axis=1) * 1e-9
-    return eng.Medium(
-        range_m=np.asarray(path.range_m, float),
-        ground_conductivity=np.asarray(path.ground_conductivity_s_per_m, float),
-        ground_permittivity=np.asarray(path.ground_relative_permittivity, float),
-        altitude_m=z if ne is not None else None,
-        electron_density=ne,
-        collision_frequency=nu,
-        ceiling_m=ion.ceiling_m if ion.form == "ceiling" else None,
-        magnetic_field_t=b0,
-    )
-
-
-def _is_lightning(scenario) -> bool:
-    source = getattr(scenario, "source", None)
-    return source is not None and source.kind == "lightning"
+        return eng.Settings(**common, probe_ranges_m=tuple(float(r) for r in path.receiver_ranges_m),
+                            **record_settings(scenario))
+    probes = tuple(path.receiver_ranges_m) if sv.receiver_time_series else ()
+    return eng.Settings(**common, dr_m=sv.cell_m, probe_ranges_m=probes, record_time_series=bool(probes))
 
 
 def plan_path(scenario, path, *, waveform=None) -> eng.RunPlan:
     """The solve a path would need (grid, time step, steps, memory), without allocating it."""
-    if _is_lightning(scenario) and waveform is None:
-        from cavity.sferic import plan_path as lightning_plan
-
-        return lightning_plan(scenario, path)
     return eng.make_plan(path_medium(scenario, path), engine_settings(scenario, path, waveform=waveform))
 
 
-def solve_path(scenario, path, *, progress=None, waveform=None) -> PathSolution:
-    """Run the engine on one path and calibrate its output to the transmitter's power."""
+def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitation | None = None) -> PathSolution:
+    """Run the engine on one path and calibrate its output to the transmitter's power.
+
+    For a lightning run (``drive.stroke``) the solution's ``engine`` holds no time series (the
+    carrier assembly gets none) and ``raw`` holds the engine's full result with the probe series.
+    """
+    drive = drive if drive is not None else excitation(scenario, waveform)
     medium = path_medium(scenario, path)
-    settings = engine_settings(scenario, path, waveform=waveform)
+    settings = engine_settings(scenario, path, drive=drive)
     sim = eng.Simulation(medium, settings)
-    log.info(
-        "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, >= %d steps, ~%.2f GB",
-        path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
-        sim.plan.n_steps, sim.plan.memory_bytes / 1e9,
-    )
+    if drive.stroke is None:
+        log.info(
+            "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, >= %d steps, ~%.2f GB",
+            path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
+            sim.plan.n_steps, sim.plan.memory_bytes / 1e9,
+        )
+    else:
+        log.info(
+            "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, %d steps (%.1f ms record), ~%.2f GB",
+            path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
+            int(math.ceil(sim.t_max / sim.plan.dt_s)), sim.t_max * 1e3, sim.plan.memory_bytes / 1e9,
+        )
     res = sim.run(progress)
+    raw = None
+    if drive.stroke is not None:
+        res.notes = []  # the record has a fixed length; completeness is judged from the tail (cavity.sferic)
+        raw = res
+        # the waveforms are the sferic's (a lightning moment, not a carrier's): the carrier assembly gets none
+        res = dataclasses.replace(res, time_s=None, ez_series=None, hphi_series=None, source_current=None,
+                                  source_moment=None)
     f = res.frequencies_hz
     moment = np.array([moment_for_power(scenario.transmitter.radiated_power_w, fk) for fk in f])
     scale = moment[:, None]
@@ -139,10 +151,11 @@ def solve_path(scenario, path, *, progress=None, waveform=None) -> PathSolution:
     rx_b = np.stack([interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
     ne_out = nu_out = None
     if medium.electron_density is not None:
+        assert medium.altitude_m is not None and medium.collision_frequency is not None  # set together
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, sim.impedance_fit_error, ne_out, nu_out)
+    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, sim.impedance_fit_error, ne_out, nu_out, raw)
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
         sol.ephi = res.ephi * scale
@@ -160,7 +173,7 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
     """
     import hashlib
 
-    if waveform is not None or _is_lightning(scenario):
+    if excitation(scenario, waveform).waveform is not None:
         return None
     medium = path_medium(scenario, path)
     settings = engine_settings(scenario, path)
@@ -202,8 +215,8 @@ def interpolate_phasor(range_m, values, at_m):
     return np.exp(a + 1j * p)
 
 
-def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0,
-             waveform=None):
+def simulate(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None, sample_km: float = 10.0,
+             bearing_tolerance_deg: float = 1.0, waveform: Callable[..., Any] | None = None) -> xr.Dataset:
     """Run the waveguide solver for every path of a scenario and return the result dataset.
 
     Parameters
@@ -218,23 +231,46 @@ def simulate(scenario, *, progress=None, sample_km: float = 10.0, bearing_tolera
     Returns
     -------
     xarray.Dataset following the result-file contract (conventions.md), not yet written. A scenario
-    whose ``[source]`` is a lightning stroke is solved by :func:`cavity.sferic.simulate_sferic`.
+    whose ``[source]`` is a lightning stroke is run as a fixed record and its dataset also holds the
+    sferic's waveforms, spectra and cutoffs at the receivers (:func:`cavity.sferic.sferic_variables`).
     """
-    if _is_lightning(scenario):
-        from cavity.sferic import simulate_sferic
-
-        return simulate_sferic(scenario, progress=progress, sample_km=sample_km,
-                               bearing_tolerance_deg=bearing_tolerance_deg)
     from cavity.paths import build_paths
 
+    drive = excitation(scenario, waveform)
+    if drive.stroke is not None:
+        log.info("%s", drive.stroke.describe())
     paths = build_paths(scenario, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
     solutions = []
     t0 = time.perf_counter()
     for path, sub in zip(paths, path_progress(progress, paths)):
-        solutions.append(solve_path(scenario, path, progress=sub, waveform=waveform))
+        solutions.append(solve_path(scenario, path, progress=sub, drive=drive))
     wall = sum(s.engine.wall_time_s for s in solutions)
     log.info("all paths solved in %.1f s (stepping %.1f s)", time.perf_counter() - t0, wall)
-    return to_dataset(scenario, solutions)
+    ds = to_dataset(scenario, solutions)
+    if drive.stroke is None:
+        return ds
+    from cavity.results import apply_metadata
+    from cavity.sferic import sferic_variables
+
+    ds = sferic_variables(ds, scenario, drive.stroke, solutions, [s.raw for s in solutions],
+                          earth_curvature=scenario.solver.earth_curvature)
+    return apply_metadata(ds)
+
+
+def simulate_sferic(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None,
+                    sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0) -> xr.Dataset:
+    """Run a lightning scenario (:func:`simulate`), refusing a scenario without a lightning ``[source]``.
+
+    Raises
+    ------
+    ScenarioError
+        The scenario has no lightning source.
+    """
+    from cavity.errors import ScenarioError
+
+    if excitation(scenario).stroke is None:
+        raise ScenarioError('the scenario has no [source] with kind = "lightning"; use cavity run for a carrier')
+    return simulate(scenario, progress=progress, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
 
 
 def geomagnetic_attributes(scenario) -> dict:

@@ -23,15 +23,15 @@ def run(*args):
 
 
 def test_bundled_example_prints_receivers_and_grid():
-    with resources.as_file(resources.files("cavity") / "data" / "northbay.toml") as path:
+    with resources.as_file(resources.files("cavity") / "data" / "quillon_head.toml") as path:
         result = run(path)
     assert result.exit_code == 0, result.output
     out = result.stdout
-    assert "Northbay" in out and "19.6 kHz" in out and "200 kW radiated" in out
+    assert "Quillon Head" in out and "14.3 kHz" in out and "200 kW radiated" in out
     # ranges and bearings against pyproj's WGS84 geodesic (reference library)
     geod = Geod(ellps="WGS84")
-    for name, lat, lon in (("Kestrel Point", 53.6, -3.0), ("Harrow Fen", 50.5, 13.0), ("Gannet Reach", 49.3, -50.9)):
-        azimuth, _, distance = geod.inv(-6.5, 57.5, lon, lat)
+    for name, lat, lon in (("Ember Ridge", -16.46, 39.75), ("Saltreed Flats", -16.75, 30.5), ("Oryx Hollow", -19.9, 16.6)):
+        azimuth, _, distance = geod.inv(44.6, -16.35, lon, lat)
         row = next(line for line in out.splitlines() if line.strip().startswith(name))
         assert f"{distance / 1e3:.1f}" in row and f"{azimuth % 360:.1f}" in row
     assert "Paths        3, one per bearing" in out
@@ -56,8 +56,8 @@ def test_uniform_grid_is_the_engines_plan():
     assert cells[4] == f"{plan.dt_s * 1e6:.3f}"
     assert cells[5:8] == [str(plan.nr), "x", str(plan.nz)]
     assert cells[9] == f"{plan.n_steps:,}"
-    # the default cells per wavelength at 19.6 kHz: dr = c / f / 24 = 637.3 m (common practice: 20 or more)
-    assert cells[2] == "637"
+    # the default cells per wavelength at 14.3 kHz: dr = c / f / 24 = 873.5 m (common practice: 20 or more)
+    assert cells[2] == "874"
     # Courant: dt must stay below the 2-D Cartesian limit dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and
     # Hagness 2005, ch. 4); the axisymmetric limit is lower still (physics notes, section 2)
     assert plan.dt_s < plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
@@ -107,4 +107,4 @@ def test_missing_file_one_line(tmp_path):
 
 def test_help_has_example():
     result = CliRunner().invoke(main, ["inspect", "--help"])
-    assert result.exit_code == 0 and "Example: cavity inspect examples/northbay.toml" in result.output
+    assert result.exit_code == 0 and "Example: cavity inspect examples/quillon_head.toml" in result.output

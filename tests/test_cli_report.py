@@ -1,6 +1,6 @@
 """``cavity table``, ``compare``, ``plot`` and ``demo`` through click's CliRunner.
 
-The result files are the golden solver runs in tests/data (small, generated once); the demo is run
+The result files are the golden solver runs in tests/data (small; made by tests/data/make_golden.py); the demo is run
 with those results in place of its two solves (fast), with a tiny real scenario, and in full only
 under ``-m slow``.
 """
@@ -10,7 +10,6 @@ from __future__ import annotations
 import contextlib
 import csv
 import io
-import math
 import shutil
 import sys
 import tempfile
@@ -194,12 +193,12 @@ def test_compare_fit_range_shown(tmp_path):
 def test_compare_different_frequencies_names_both_sets(tmp_path):
     result = invoke("compare", DAWN, DAWN, "-o", tmp_path / "same.png")
     assert result.exit_code == 0, result.output  # same frequency: fine
-    single = tmp_path / "f18.nc"
+    single = tmp_path / "f14.nc"
     from cavity.results import write_result
 
     write_result(open_result(DAY).isel(frequency=[1]), single)
     line = one_line_error(invoke("compare", DAWN, single, "-o", tmp_path / "c.png"))
-    assert "golden_dawn has 12.5 kHz and f18 has 18.3 kHz" in line
+    assert "golden_dawn has 10.5 kHz and f14 has 14.3 kHz" in line
     assert not (tmp_path / "c.png").exists()
 
 
@@ -260,7 +259,7 @@ def test_plot_bad_suffix_is_a_usage_error(tmp_path):
 
 
 # --------------------------------------------------------------------------------------------------
-# Sweep files go to cavity.sweep_report
+# Sweep files go to cavity.reports.sweep
 # --------------------------------------------------------------------------------------------------
 
 
@@ -283,7 +282,7 @@ def sweep_file(monkeypatch):
 
 def test_sweep_files_dispatch_to_the_sweep_reports(sweep_file, monkeypatch, tmp_path):
     calls = []
-    fake = types.ModuleType("cavity.sweep_report")
+    fake = types.ModuleType("cavity.reports.sweep")
     fake.table_diurnal = lambda ds: calls.append(("table", ds.sizes["time"])) or "diurnal table\n"
 
     def plot_diurnal(ds, output):
@@ -291,7 +290,7 @@ def test_sweep_files_dispatch_to_the_sweep_reports(sweep_file, monkeypatch, tmp_
         Path(output).write_bytes(b"figure")
 
     fake.plot_diurnal = plot_diurnal
-    monkeypatch.setitem(sys.modules, "cavity.sweep_report", fake)
+    monkeypatch.setitem(sys.modules, "cavity.reports.sweep", fake)
     result = invoke("table", "sweep.nc")
     assert result.exit_code == 0 and result.stdout == "diurnal table\n"
     result = invoke("plot", "sweep.nc", "-o", tmp_path / "d.png")
@@ -302,7 +301,7 @@ def test_sweep_files_dispatch_to_the_sweep_reports(sweep_file, monkeypatch, tmp_
 
 
 def test_sweep_files_with_the_real_sweep_reports(sweep_file, tmp_path):
-    pytest.importorskip("cavity.sweep_report")
+    pytest.importorskip("cavity.reports.sweep")
     result = invoke("table", "sweep.nc", "-f", "csv")
     assert result.exit_code == 0, result.output
     rows = list(csv.DictReader(io.StringIO(result.stdout)))
@@ -315,9 +314,9 @@ def test_sweep_files_with_the_real_sweep_reports(sweep_file, tmp_path):
 
 
 def test_sweep_files_without_the_sweep_reports(sweep_file, monkeypatch, tmp_path):
-    monkeypatch.setitem(sys.modules, "cavity.sweep_report", None)  # import fails
-    one_line_error(invoke("table", "sweep.nc"), "sweep file", "cavity.sweep_report")
-    one_line_error(invoke("plot", "sweep.nc", "-o", tmp_path / "d.png"), "sweep file", "cavity.sweep_report")
+    monkeypatch.setitem(sys.modules, "cavity.reports.sweep", None)  # import fails
+    one_line_error(invoke("table", "sweep.nc"), "sweep file", "cavity.reports.sweep")
+    one_line_error(invoke("plot", "sweep.nc", "-o", tmp_path / "d.png"), "sweep file", "cavity.reports.sweep")
     one_line_error(invoke("compare", "sweep.nc", "sweep.nc", "-o", tmp_path / "c.png"), "sweep file")
 
 
@@ -440,7 +439,7 @@ def test_full_demo_in_minutes(tmp_path):
     import time
 
     from cavity.cli.demo import DEMO_FILES
-    from cavity.report import attenuation_rows
+    from cavity.reports.tables import attenuation_rows
 
     started = time.perf_counter()
     result = invoke("demo", "-o", tmp_path / "demo-output", "--quiet")

@@ -64,7 +64,7 @@ def examples(n: int) -> settings:
 VALID = {
     "title": "Fuzz base",
     "transmitter": {
-        "name": "Tx", "latitude_deg": 50.0, "longitude_deg": 0.0, "frequency_khz": [16.0, 21.4],
+        "name": "Tx", "latitude_deg": 50.0, "longitude_deg": 0.0, "frequency_khz": [16.0, 27.6],
         "radiated_power_kw": 50.0,
     },
     "receiver": [

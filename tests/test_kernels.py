@@ -63,7 +63,7 @@ def np_step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_
     de = ce_far * (kd_re[:, None] * d + psi_re)
     ez[ir0:] += de
     jz[ir0:] += qb_z[ir0:] * de[:, jp0:]
-    ez[0, 0] -= src
+    ez[0, : src.size] -= src
     acc_re += ez[:, 0][None, :] * cos_e[:, None]
     acc_im -= ez[:, 0][None, :] * sin_e[:, None]
 
@@ -90,9 +90,40 @@ def _state(nr=24, nz=18, jp0=6, jz0=12, ir0=17, nk=3, nf=2):
              ed_r=1 + pos(n_pl) * 3, qa_r=pos(n_pl), qb_r=pos(4, n_pl), prof_r=RNG.integers(0, 4, nr).astype(np.int32), jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top),
              psi_ze=r(nr, n_top), ce_top=pos(nr, n_top) * F32(0.3), ir0=ir0, b_re=pos(n_far),
              c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far), psi_re=r(n_far, nz), ce_far=pos(n_far, nz) * F32(0.3),
-             src=F32(0.05), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
+             src=np.array([0.05, -0.02, 0.01], F32), acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
              cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
     return fields, h, e
+
+
+def _h_groups(f, h):
+    """The H step's argument groups (kernels.Fields ...) over the same arrays as the flat twin's."""
+    fields = K.Fields(f["ez"], f["er"], f["hp"], f["jz"], f["jr"])
+    return (fields, K.HCurl(h["inv_dr"], h["inv_dz"], h["ch"], h["ha"], h["hb"]),
+            K.GroundMemory(h["sib_q"], h["sib_w"], h["sib_psi"]),
+            K.Absorber(h["jz0"], h["b_zh"], h["c_zh"], h["kd_zh"], h["psi_zh"], np.zeros((0, 0), F32)),
+            K.Absorber(h["ir0"], h["b_rh"], h["c_rh"], h["kd_rh"], h["psi_rh"], h["ch_far"]),
+            K.Dft(h["acc_re"], h["acc_im"], h["cos_h"], h["sin_h"]))
+
+
+def _e_groups(f, e):
+    """The E step's argument groups over the same arrays as the flat twin's."""
+    fields = K.Fields(f["ez"], f["er"], f["hp"], f["jz"], f["jr"])
+    return (fields, K.ECurl(e["rp"], e["rm"], e["inv_dz"], e["cez"], e["cer"], e["jp0"]),
+            K.Plasma(e["ed_z"], e["qa_z"], e["qb_z"], e["prof_z"]), K.Plasma(e["ed_r"], e["qa_r"], e["qb_r"], e["prof_r"]),
+            K.Absorber(e["jz0"], e["b_ze"], e["c_ze"], e["kd_ze"], e["psi_ze"], e["ce_top"]),
+            K.Absorber(e["ir0"], e["b_re"], e["c_re"], e["kd_re"], e["psi_re"], e["ce_far"]), e["src"],
+            K.Dft(e["acc_re"], e["acc_im"], e["cos_e"], e["sin_e"]))
+
+
+def test_groups_are_named_not_counted():
+    # a group of the wrong kind cannot stand in for another: numba types NamedTuples by class
+    fields, h, e = _state()
+    groups = list(_h_groups(fields, h))
+    groups[1], groups[2] = groups[2], groups[1]  # HCurl and GroundMemory swapped
+    from numba.core.errors import TypingError
+
+    with pytest.raises(TypingError, match="inv_dr|q"):  # the H step reads curl.inv_dr from a GroundMemory
+        K.step_h(*groups, h["n_cols"])
 
 
 def _copy(d):
@@ -105,12 +136,8 @@ def test_fused_kernels_match_their_numpy_twins(steps):
     f_k, h_k, e_k = _copy(fields), _copy(h), _copy(e)
     f_n, h_n, e_n = _copy(fields), _copy(h), _copy(e)
     for _ in range(steps):
-        K.step_h(f_k["hp"], f_k["ez"], f_k["er"], **h_k)
-        K.step_e(f_k["ez"], f_k["er"], f_k["hp"], e_k["rp"], e_k["rm"], e_k["inv_dz"], e_k["cez"], e_k["cer"],
-                 e_k["jp0"], e_k["ed_z"], e_k["qa_z"], e_k["qb_z"], e_k["prof_z"], f_k["jz"], e_k["ed_r"],
-                 e_k["qa_r"], e_k["qb_r"], e_k["prof_r"], f_k["jr"], *[e_k[k] for k in ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "ce_top", "ir0",
-                                                             "b_re", "c_re", "kd_re", "psi_re", "ce_far", "src",
-                                                             "acc_re", "acc_im", "cos_e", "sin_e")], f_k["ez"].shape[0])
+        K.step_h(*_h_groups(f_k, h_k), h_k["n_cols"])
+        K.step_e(*_e_groups(f_k, e_k), f_k["ez"].shape[0])
         np_step_h(f_n["hp"], f_n["ez"], f_n["er"], **h_n)
         np_step_e(f_n["ez"], f_n["er"], f_n["hp"], e_n["rp"], e_n["rm"], e_n["inv_dz"], e_n["cez"], e_n["cer"],
                   e_n["jp0"], e_n["ed_z"], e_n["qa_z"], e_n["qb_z"], e_n["prof_z"], f_n["jz"], e_n["ed_r"],
@@ -160,7 +187,6 @@ def test_last_active_column_sees_every_kind_of_state():
 def test_stepping_only_the_reached_columns_changes_nothing():
     """The same solve with and without skipping the columns ahead of the wave: identical numbers."""
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 160e3, 250.0)

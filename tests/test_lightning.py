@@ -93,7 +93,7 @@ def test_current_spectrum_matches_the_fourier_integral(stroke):
     assert stroke.current_spectrum(0.0)[0].real == pytest.approx(stroke.charge_transferred_c, rel=1e-9)
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _current_ft(f):
     w = 2 * math.pi * f
     re = quad(heidler, 0, 3e-3, weight="cos", wvar=w, limit=400)[0]

@@ -116,7 +116,7 @@ def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp
         u_new["r"][nr - 1] = u
     ez[:, jp0:], er[:, jp0:nz], ephi[:, jp0:nz] = e_new["z"][:, jp0:], e_new["r"][:, jp0:nz], e_new["p"][:, jp0:nz]
     uz[:], ur[:], up[:] = u_new["z"], u_new["r"], u_new["p"]
-    ez[0, 0] -= src
+    ez[0, :src.size] -= src
     acc_re += ez[:, 0][None, :] * cos_e[:, None]
     acc_im -= ez[:, 0][None, :] * sin_e[:, None]
 
@@ -159,7 +159,7 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
              jp0=jp0, coef=coef, tab=tab, wsq=wsq,
              jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top), psi_ze=r(nr, n_top),
              psi_pz=r(nr, n_top), ir0=ir0, b_re=pos(n_far), c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far),
-             psi_re=r(n_far, nz), psi_pr=r(n_far, nz + 1), src=F32(0.05),
+             psi_re=r(n_far, nz), psi_pr=r(n_far, nz + 1), src=np.array([0.05, -0.02], F32),
              acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
              cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
     e["psi_pz"][0] = 0

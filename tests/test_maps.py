@@ -1,4 +1,4 @@
-"""Checks of cavity.maps and ``cavity map``: offline rendering, day/night shading, errors."""
+"""Checks of cavity.reports.maps and ``cavity map``: offline rendering, day/night shading, errors."""
 
 from __future__ import annotations
 
@@ -7,8 +7,8 @@ import pytest
 from click.testing import CliRunner
 
 from cavity.errors import CavityError, ScenarioError
-from cavity.maps import coastline_file, draw_map
 from cavity.paths import build_paths
+from cavity.reports.maps import coastline_file, draw_map
 from cavity.scenario import load_scenario
 
 

@@ -48,10 +48,10 @@ def far_field(range_m, frequency_hz, power_w=1e3):
     return math.sqrt(90.0 * power_w) / range_m * np.exp(-1j * k * range_m)
 
 
-def build(scenario_name="northbay.toml", paths=3, ground=5.0, **extra):
+def build(scenario_name="quillon_head.toml", paths=3, ground=5.0, **extra):
     s = load_scenario(EXAMPLES / scenario_name)
-    r = np.linspace(1e3, 3200e3, 6400)  # 500 m spacing: less than half a wavelength at 24 kHz
-    f = np.array([19.6e3, 24.0e3])
+    r = np.linspace(1e3, 3200e3, 6400)  # 500 m spacing: less than half a wavelength at 31.5 kHz
+    f = np.array([14.3e3, 31.5e3])
     z = np.linspace(0.0, 120e3, 61)
     ez = np.broadcast_to(far_field(r, f), (paths, f.size, r.size)).copy()
     if paths > 1:
@@ -61,7 +61,7 @@ def build(scenario_name="northbay.toml", paths=3, ground=5.0, **extra):
     ne = np.broadcast_to(1e8 * np.exp(0.3 * (z / 1e3 - 74.0)), (paths, r.size, z.size))
     nu = np.broadcast_to(1.816e11 * np.exp(-0.15 * z / 1e3), (paths, r.size, z.size))
     kwargs = dict(
-        range_m=r, frequency_hz=f, altitude_m=z, path_labels=[f"bearing {b} deg" for b in (152, 113, 272)][:paths],
+        range_m=r, frequency_hz=f, altitude_m=z, path_labels=[f"bearing {b} deg" for b in (268, 266, 258)][:paths],
         ez_v_per_m=ez, b_t=ez / C0, receiver_names=[x.name for x in s.receivers], receiver_range_m=rx_range,
         receiver_ez_v_per_m=rx_ez, receiver_b_t=rx_ez / C0, electron_density_m3=ne, collision_frequency_s=nu,
         ground_conductivity_s_per_m=np.full((paths, r.size), ground), solver=RECORD,
@@ -72,9 +72,9 @@ def build(scenario_name="northbay.toml", paths=3, ground=5.0, **extra):
 
 @pytest.fixture(scope="module")
 def dataset():
-    return build(receiver_path=[0, 1, 2], receiver_bearing_deg=[151.6, 113.2, 271.8],
-                 receiver_latitude_deg=[53.6, 50.5, 49.3], receiver_longitude_deg=[-3.0, 13.0, -50.9],
-                 path_bearing_deg=[151.6, 113.2, 271.8], solar_zenith_angle_deg=np.full((3, 6400), 95.0),
+    return build(receiver_path=[0, 1, 2], receiver_bearing_deg=[268.0, 266.3, 258.2],
+                 receiver_latitude_deg=[-16.46, -16.75, -19.9], receiver_longitude_deg=[39.75, 30.5, 16.6],
+                 path_bearing_deg=[268.0, 266.3, 258.2], solar_zenith_angle_deg=np.full((3, 6400), 95.0),
                  hprime_km=np.full((3, 6400), 80.0), beta_per_km=np.full((3, 6400), 0.5),
                  ground_relative_permittivity=np.full((3, 6400), 70.0),
                  time_s=np.arange(100) * 1e-6, receiver_ez_time_series_v_per_m=np.zeros((3, 100)))

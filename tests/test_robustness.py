@@ -21,9 +21,9 @@ import signal
 import sys
 import textwrap
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable
 
 import numpy as np
 import pytest
@@ -98,7 +98,7 @@ def _png_bytes() -> bytes:
 CATALOGUE: list[Case] = [
     # --- malformed TOML and unreadable scenario files
     Case("toml-unclosed-string", "malformed TOML", ("invalid TOML", "line 1"), 'title = "Greyhaven\n' + scenario(top="")),
-    Case("toml-duplicate-key", "malformed TOML", ("invalid TOML", "line 9"), scenario(transmitter=tx() + "\nfrequency_khz = 21.0")),
+    Case("toml-duplicate-key", "malformed TOML", ("invalid TOML", "line 9"), scenario(transmitter=tx() + "\nfrequency_khz = 30.0")),
     Case("toml-duplicate-table", "malformed TOML", ("invalid TOML", "ground", "twice"), scenario() + '\n[ground]\nkind = "land"\n'),
     Case("toml-unclosed-array", "malformed TOML", ("invalid TOML",), scenario(transmitter=tx(frequency_khz="[16.0, 20.0"))),
     Case("toml-png-as-scenario", "malformed TOML", ("bad.toml", "not UTF-8"), _png_bytes()),
@@ -485,14 +485,14 @@ def test_compare_two_frequencies(tmp_path):
     both frequencies labelled; never a traceback or a silent difference across frequencies."""
     _needs("compare")
     a = _write_result(tmp_path / "f20.nc", 20.0)
-    b = _write_result(tmp_path / "f24.nc", 24.0)
+    b = _write_result(tmp_path / "f31.nc", 31.5)
     result = invoke(_argv("compare", [a, b], tmp_path), tmp_path)
     assert "Traceback" not in result.output + result.stderr
     if result.exit_code != 0:
         line = assert_one_line_error(result, ("frequenc",))
-        assert "20" in line and "24" in line, line
+        assert "20" in line and "31.5" in line, line
     else:
-        assert "20" in result.output and "24" in result.output
+        assert "20" in result.output and "31.5" in result.output
 
 
 # ----------------------------------------------------------------------------------------------

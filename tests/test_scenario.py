@@ -202,7 +202,7 @@ def test_text_errors_have_no_file_prefix():
 
 def test_good_values_in_si(write_scenario):
     text = make(
-        transmitter=tx(frequency_khz="[24.8, 16.0, 21.4, 16.0]", radiated_power_kw="250"),
+        transmitter=tx(frequency_khz="[31.5, 16.0, 27.6, 16.0]", radiated_power_kw="250"),
         receivers=POSITIONED,
         ionosphere="[ionosphere]\nutc = 2026-06-21T14:00:00+02:00\nnight_preset = \"textbook-night\"",
         ground='[ground]\nkind = "custom"\nconductivity_s_per_m = 3e-3\nrelative_permittivity = 15\n'
@@ -212,7 +212,7 @@ def test_good_values_in_si(write_scenario):
         "cells_per_wavelength = 40\nreceiver_time_series = true",
     )
     s = load_scenario(write_scenario(text))
-    assert s.transmitter.frequencies_hz == (16000.0, 21400.0, 24800.0)
+    assert s.transmitter.frequencies_hz == (16000.0, 27600.0, 31500.0)
     assert s.transmitter.radiated_power_w == 250e3
     assert s.receivers[1] == Receiver("B", 45.0, -10.0, None)
     assert s.ionosphere.form == "utc"
@@ -268,7 +268,7 @@ def test_cell_auto_and_defaults(write_scenario):
 def test_receiver_geometry_against_spherical_formula(write_scenario):
     # Great-circle distance and initial bearing on a sphere of radius 6371 km (standard spherical
     # trigonometry); the WGS84 geodesic differs from it by well under 0.5 % and 0.5 deg here.
-    s = load_scenario(EXAMPLES / "northbay.toml")
+    s = load_scenario(EXAMPLES / "quillon_head.toml")
     lat1, lon1 = map(math.radians, (s.transmitter.latitude_deg, s.transmitter.longitude_deg))
     for rx_, geo in zip(s.receivers, s.receiver_geometry()):
         lat2, lon2 = map(math.radians, (rx_.latitude_deg, rx_.longitude_deg))
@@ -281,9 +281,9 @@ def test_receiver_geometry_against_spherical_formula(write_scenario):
 
 
 def test_examples_load_and_bundled_copy_is_identical():
-    bundled = resources.files("cavity") / "data" / "northbay.toml"
-    assert bundled.read_text(encoding="utf-8") == (EXAMPLES / "northbay.toml").read_text(encoding="utf-8")
-    s = load_scenario(EXAMPLES / "northbay.toml")
+    bundled = resources.files("cavity") / "data" / "quillon_head.toml"
+    assert bundled.read_text(encoding="utf-8") == (EXAMPLES / "quillon_head.toml").read_text(encoding="utf-8")
+    s = load_scenario(EXAMPLES / "quillon_head.toml")
     ranges_km = [g.range_m / 1e3 for g in s.receiver_geometry()]
     assert 400 < ranges_km[0] < 600 and 1300 < ranges_km[1] < 1700 and 2700 < ranges_km[2] < 3300
     assert all(10e3 <= f <= 30e3 for f in s.transmitter.frequencies_hz)
@@ -294,7 +294,7 @@ def test_examples_load_and_bundled_copy_is_identical():
         assert all(r.range_m is not None and r.latitude_deg is None for r in u.receivers)
 
 
-@pytest.mark.parametrize("name", ["northbay.toml", "uniform_day.toml", "uniform_night.toml"])
+@pytest.mark.parametrize("name", ["quillon_head.toml", "uniform_day.toml", "uniform_night.toml"])
 def test_round_trip_examples(name):
     s = load_scenario(EXAMPLES / name)
     again = load_scenario(s.to_toml())
@@ -304,7 +304,7 @@ def test_round_trip_examples(name):
 
 def test_round_trip_every_feature(write_scenario):
     text = make(
-        transmitter=tx(frequency_khz="[16.0, 21.4, 24.8]", longitude_deg="359.5"),
+        transmitter=tx(frequency_khz="[16.0, 27.6, 31.5]", longitude_deg="359.5"),
         receivers=rx({"name": '"Far \\"quoted\\" site"', "latitude_deg": "40.0", "longitude_deg": "20.0"},
                      {"name": '"Marker"', "latitude_deg": "44.4", "longitude_deg": "10.1"}),
         ionosphere="[ionosphere]\nutc = 2026-12-21T23:59:59.5Z\nday_preset = \"day-2017\"",

@@ -21,7 +21,7 @@ import pytest
 from click.testing import CliRunner
 from scipy.special import hankel2
 
-from cavity.constants import C0, ETA0, MU0
+from cavity.constants import C0, ETA0
 from cavity.errors import ResultFileError, ScenarioError
 from cavity.fdtd.lightning import HeidlerStroke
 from cavity.sferic import amplitude_spectrum, estimate_cutoff, lowpass, source_group_delay_s
@@ -392,7 +392,7 @@ def test_sferic_result_passes_the_cf_checker(plate_run, tmp_path):
 def test_sferic_figure_and_plot_command(plate_run, tmp_path):
     import cavity
     from cavity.cli import main
-    from cavity.sferic import plot_sferic
+    from cavity.reports.sferic import plot_sferic
 
     result, figure, _, plotted = plate_run
     assert plotted.exit_code == 0, plotted.output
@@ -411,7 +411,8 @@ def test_carrier_scenarios_and_files_are_refused(tmp_path):
     import xarray as xr
 
     from cavity import load_scenario
-    from cavity.sferic import plot_sferic, simulate_sferic
+    from cavity.reports.sferic import plot_sferic
+    from cavity.solve import simulate_sferic
 
     carrier = load_scenario(PLATES.replace('kind = "lightning"\nrecord_ms = 6.0\nband_khz = [0.5, 10.0]', 'kind = "carrier"'))
     with pytest.raises(ScenarioError, match="no \\[source\\] with kind = \"lightning\""):
@@ -430,7 +431,7 @@ def test_plate_guide_cutoff_from_an_impulsive_run():
     # physics.md 9.4: plates 85 km apart, TM1 cutoff c/(2h) = 1763.5 Hz within 1 %, from the sferic
     # at 500 km (22 ms record, flat earth). 15-30 s on one core; measured 1765.7 Hz (+0.13 %).
     from cavity import load_scenario
-    from cavity.sferic import simulate_sferic
+    from cavity.solve import simulate_sferic
 
     text = PLATES.replace("cell_m = 1000.0\n", "").replace("record_ms = 6.0", "record_ms = 22.0").replace(
         "band_khz = [0.5, 10.0]", "band_khz = [0.5, 30.0]")
@@ -453,9 +454,9 @@ def test_night_cutoff_from_an_impulsive_run():
     import profiles
     from cavity import load_scenario
     from cavity.reference import modes
-    from cavity.sferic import simulate_sferic
+    from cavity.solve import simulate_sferic
 
-    text = f"""
+    text = """
 title = "Night sferic check"
 [transmitter]
 name = "Stroke"

@@ -1,6 +1,6 @@
 """The time-domain solver against outside references (physics.md 9), plus engine behaviour.
 
-The checks themselves live in :mod:`cavity.verify` (also run by ``cavity verify``); each names its
+The checks themselves live in :mod:`cavity.checks.verify` (also run by ``cavity verify``); each names its
 source. Long-range comparisons are marked slow (``pytest -m slow``).
 """
 
@@ -9,7 +9,7 @@ import math
 import numpy as np
 import pytest
 
-from cavity import verify
+from cavity.checks import verify
 from cavity.errors import SolverError
 from cavity.fdtd import engine as eng
 

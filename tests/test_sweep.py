@@ -29,24 +29,22 @@ from cavity.cli import main
 from cavity.errors import ScenarioError, SolverError
 from cavity.results import REQUIRED_ATTRIBUTES, REQUIRED_VARIABLES, open_result
 from cavity.solve import simulate
-from cavity.sweep import (
-    SOLVES_SUBDIR,
-    TIME_CALENDAR,
-    TIME_UNITS,
+from cavity.sweeps import (
     SweepError,
     SweepPoint,
     default_parts_dir,
-    local_cluster_size,
     parse_step,
     parse_utc,
-    plan_jobs,
-    point_scenario,
-    solve_path,
     sweep,
     sweep_points,
     sweep_times,
     write_sweep,
 )
+from cavity.sweeps.cluster import local_cluster_size, solve_path
+from cavity.sweeps.combine import TIME_CALENDAR, TIME_UNITS
+from cavity.sweeps.points import point_scenario
+from cavity.sweeps.run import plan_jobs
+from cavity.sweeps.store import SOLVES_SUBDIR
 
 # Invented places: a mast and two listening posts about 100 km east and north of it.
 TINY = """
@@ -236,10 +234,11 @@ def test_local_cluster_size_keeps_workers_times_threads_within_cores():
         local_cluster_size(10, workers=0)
 
 
-def test_callable_module_keeps_cavity_sweep_a_function(tiny):
-    import cavity.sweep  # noqa: F401  (rebinds the package attribute to the module)
+def test_cavity_sweep_is_the_sweep_function_and_the_package_has_another_name(tiny):
+    import cavity.sweeps  # the package's name differs from the function's, so importing it rebinds nothing
 
-    assert callable(cavity.sweep)
+    assert cavity.sweep is not cavity.sweeps and callable(cavity.sweep)
+    assert not callable(cavity.sweeps)
     with pytest.raises(ScenarioError, match="frequency_khz"):
         cavity.sweep(tiny, frequencies_khz=[99.0])
 
@@ -460,7 +459,7 @@ def test_frequencies_on_different_grids_share_the_coarsest_range_axis(write_scen
 
 
 def test_a_sweep_whose_combined_arrays_cannot_fit_is_refused_before_solving(tiny, monkeypatch, tmp_path):
-    from cavity.sweep import combined_memory_bytes
+    from cavity.sweeps.cluster import combined_memory_bytes
 
     # per instant: 2 paths x range samples x (81 altitudes + h', beta, zenith + 4 fields) x 8 bytes
     assert combined_memory_bytes(1, 1, 2, 100) == 2 * 100 * (81 + 3 + 4) * 8
@@ -482,13 +481,13 @@ def test_a_sweep_whose_combined_arrays_cannot_fit_is_refused_before_solving(tiny
 
 
 def test_unreachable_scheduler_is_a_one_line_error(tiny, monkeypatch):
-    monkeypatch.setattr("cavity.sweep.CONNECT_TIMEOUT_S", 2)
+    monkeypatch.setattr("cavity.sweeps.run.CONNECT_TIMEOUT_S", 2)
     with pytest.raises(SweepError, match=r"scheduler = 'tcp://127.0.0.1:9': cannot connect"):
         sweep(tiny, TIMES[:1], [10.0], scheduler="tcp://127.0.0.1:9")
 
 
 def test_sweep_report_reads_the_real_sweep(swept, tmp_path):
-    from cavity.sweep_report import plot_diurnal, table_diurnal
+    from cavity.reports.sweep import plot_diurnal, table_diurnal
 
     ds, _ = swept
     table = table_diurnal(ds)

@@ -15,7 +15,7 @@ import xarray as xr
 from pyproj import Geod
 
 from cavity.errors import ResultFileError
-from cavity.sweep_report import (
+from cavity.reports.sweep import (
     format_diurnal_table,
     path_midpoints,
     plot_diurnal,
@@ -27,7 +27,7 @@ UTC = timezone.utc
 
 
 def synthetic_sweep(tx=(0.0, 0.0), receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0)),
-                    start=datetime(2026, 3, 20, tzinfo=UTC), hours=24, step_min=30, freqs=(16.0, 21.4)):
+                    start=datetime(2026, 3, 20, tzinfo=UTC), hours=24, step_min=30, freqs=(16.0, 27.6)):
     """A sweep-shaped dataset: receiver amplitudes (receiver, frequency, time), as a sweep file holds."""
     n = hours * 60 // step_min + 1
     times = np.array([np.datetime64((start + timedelta(minutes=step_min * k)).replace(tzinfo=None), "ns") for k in range(n)])
@@ -110,7 +110,7 @@ def test_table_gives_min_median_max_and_their_instants():
     ds["receiver_ez_amplitude"][0, 1, 5] = np.nan  # a failed point
     table = table_diurnal(ds)
     assert list(table["receiver"]) == ["Quarry Hill", "Quarry Hill", "Saltmarsh", "Saltmarsh"]
-    assert list(table["frequency_khz"]) == [16.0, 21.4, 16.0, 21.4]
+    assert list(table["frequency_khz"]) == [16.0, 27.6, 16.0, 27.6]
     row = table.iloc[0]
     # 60 + 1.6 + 5 cos(2 pi t / 24 h): maximum at 00:00 and 24:00, minimum at 12:00
     assert row["ez_max_db"] == pytest.approx(66.6) and row["ez_min_db"] == pytest.approx(56.6)
@@ -123,7 +123,8 @@ def test_table_gives_min_median_max_and_their_instants():
     assert empty["instants"] == 0 and math.isnan(empty["ez_min_db"]) and empty["utc_of_min"] == ""
     md = format_diurnal_table(table)
     assert md.splitlines()[0].startswith("| receiver | range, km | frequency, kHz")
-    assert "| Quarry Hill | 1000 | 21.4 | 48 | 57.1 |" in md
+    # frequency 27.6 kHz: 60 + 2.76 - 5 = 57.76 dB at its minimum (the synthetic formula above)
+    assert "| Quarry Hill | 1000 | 27.6 | 48 | 57.8 |" in md
     csv = format_diurnal_table(table, "csv")
     assert csv.splitlines()[1].startswith("Quarry Hill,1000.00,16.00,49,56.60,")
     with pytest.raises(ValueError, match="fmt"):
@@ -183,13 +184,13 @@ def sweep_with_paths():
             "ez_amplitude": (("path", "frequency", "range", "time"), ez),
             "solar_zenith_angle": (("path", "range", "time"), chi),
         },
-        coords={"time": ("time", times), "frequency": ("frequency", np.array([19.6])), "range": ("range", r)},
+        coords={"time": ("time", times), "frequency": ("frequency", np.array([14.3])), "range": ("range", r)},
         attrs={"title": "Invented sweep with paths"},
     )
 
 
 def test_path_levels_are_medians_over_the_far_half_of_each_path():
-    from cavity.sweep_report import path_levels
+    from cavity.reports.sweep import path_levels
 
     levels, labels = path_levels(sweep_with_paths())
     # far half of path 0: 1200-2400 km; the median of the straight line 100 - 0.01 r over an even
@@ -202,7 +203,7 @@ def test_path_levels_are_medians_over_the_far_half_of_each_path():
 
 
 def test_day_and_night_medians_follow_the_sun_along_each_receivers_path():
-    from cavity.sweep_report import daylight_at_receivers
+    from cavity.reports.sweep import daylight_at_receivers
 
     ds = sweep_with_paths()
     state = daylight_at_receivers(ds)

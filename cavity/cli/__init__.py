@@ -12,7 +12,7 @@ import importlib
 
 import click
 
-from cavity import __version__
+from cavity.version import __version__
 
 #: command name -> (module in this package, short help shown by ``cavity --help``)
 COMMANDS: dict[str, tuple[str, str]] = {
@@ -41,7 +41,7 @@ class LazyGroup(click.Group):
         if name not in COMMANDS:
             return None
         module = importlib.import_module(f"cavity.cli.{COMMANDS[name][0]}")
-        return getattr(module, "command")
+        return module.command
 
     def format_commands(self, ctx, formatter):
         rows = [(name, COMMANDS[name][1]) for name in self.list_commands(ctx)]
@@ -56,5 +56,5 @@ def main():
 
     A planning aid, not a guarantee of service: see the cautions in the README.
 
-    Example: cavity inspect examples/northbay.toml
+    Example: cavity inspect examples/quillon_head.toml
     """

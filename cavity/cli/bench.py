@@ -33,7 +33,7 @@ def command(whole, range_km, frequency_khz, cell_m, field):
 
     Example: cavity bench --range-km 5000 --frequency-khz 16
     """
-    from cavity import bench
+    from cavity.checks import bench
 
     r = bench.measure_rates(range_km * 1e3, frequency_khz * 1e3)
     click.echo(f"grid                      {r.nr} x {r.nz} cells, {r.threads} threads")

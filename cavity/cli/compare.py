@@ -41,8 +41,8 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
       cavity compare day.nc night.nc -o day-night.png
       cavity compare day.nc night.nc --fit-range 800 2500 -t comparison.md
     """
-    from cavity.report import comparison_report, is_sweep, plot_comparison, write_text
     from cavity.cli.table import open_results, run_labels
+    from cavity.reports.tables import comparison_report, is_sweep, plot_comparison, write_text
 
     if output.suffix.lower() not in _SUFFIXES:
         raise click.BadParameter(

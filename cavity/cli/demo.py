@@ -49,7 +49,7 @@ def _simulate(scenario, quiet: bool, label: str):
 def command(folder, overwrite, quiet):
     """Run the bundled invented demo by day and by night and write a memo's worth of files.
 
-    One transmitter (Fulmar Sound, 22.3 kHz, 150 kW) and three listening posts at about 470, 1,500 and
+    One transmitter (Velmory Sound, 27.6 kHz, 150 kW) and three listening posts at about 470, 1,500 and
     3,000 km on one great circle over land and sea (ground from the land/sea mask), solved under the
     published midday and night ionospheres. Every name is made up. Written to FOLDER:
 
@@ -68,10 +68,15 @@ def command(folder, overwrite, quiet):
     Example:
       cavity demo -o demo-output
     """
-    from cavity.maps import draw_map
     from cavity.paths import build_paths
-    from cavity.report import (
-        attenuation_rows, comparison_report, plot_comparison, plot_result, receiver_table, write_text,
+    from cavity.reports.maps import draw_map
+    from cavity.reports.tables import (
+        attenuation_rows,
+        comparison_report,
+        plot_comparison,
+        plot_result,
+        receiver_table,
+        write_text,
     )
     from cavity.results import write_result
 

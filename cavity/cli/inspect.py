@@ -6,6 +6,7 @@ import click
 
 from cavity.cli.common import friendly_errors
 
+
 def _latlon(lat: float, lon: float) -> str:
     lon = (lon + 180.0) % 360.0 - 180.0
     return f"{abs(lat):.3f} {'N' if lat >= 0 else 'S'}, {abs(lon):.3f} {'E' if lon >= 0 else 'W'}"
@@ -186,7 +187,7 @@ def command(scenario: str) -> None:
     the ionosphere and ground, the paths to solve, and the grid of each solve: cell sizes, time
     step, cells, time steps and memory.
 
-    Example: cavity inspect examples/northbay.toml
+    Example: cavity inspect examples/quillon_head.toml
     """
     from cavity import load_scenario
 

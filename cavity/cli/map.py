@@ -32,11 +32,11 @@ def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
 
     \b
     Example:
-      cavity map examples/northbay.toml -o northbay-map.png
+      cavity map examples/quillon_head.toml -o quillon_head-map.png
     """
     from cavity import load_scenario
-    from cavity.maps import draw_map
     from cavity.paths import build_paths
+    from cavity.reports.maps import draw_map
 
     if output.suffix.lower() not in _SUFFIXES:
         raise click.BadParameter(

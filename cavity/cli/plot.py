@@ -14,10 +14,10 @@ _SUFFIXES = (".png", ".pdf")
 def diurnal_plot(ds, output) -> None:
     """Plot a sweep file with the sweep module's reporter (imported only when needed)."""
     try:
-        from cavity.sweep_report import plot_diurnal
+        from cavity.reports.sweep import plot_diurnal
     except ImportError:
         raise click.ClickException(
-            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.sweep_report) "
+            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.reports.sweep) "
             "are not installed"
         ) from None
     plot_diurnal(ds, output)
@@ -48,7 +48,7 @@ def command(result, output, overwrite, phase, dpi):
       cavity plot day.nc -o day.png
       cavity plot night.nc -o night.pdf --phase unwrapped
     """
-    from cavity.report import is_sweep, plot_result
+    from cavity.reports.tables import is_sweep, plot_result
     from cavity.results import open_result
 
     if output.suffix.lower() not in _SUFFIXES:
@@ -60,7 +60,7 @@ def command(result, output, overwrite, phase, dpi):
     if is_sweep(ds):
         diurnal_plot(ds, output)
     elif "receiver_ez_spectrum" in ds:  # a lightning run: waveforms and spectra per receiver
-        from cavity.sferic import plot_sferic
+        from cavity.reports.sferic import plot_sferic
 
         plot_sferic([ds], output)
     else:

@@ -132,7 +132,7 @@ def command(hprime_km, beta_per_km, preset_name, file_path, frequencies_khz, hei
 
     \b
     Example:
-      cavity profile --preset night --frequency 10 --frequency 24 -o night.png
+      cavity profile --preset night --frequency 10 --frequency 30 -o night.png
       cavity profile --hprime 74 --beta 0.3 --at 65 --at 75 -o day.nc
     """
     import numpy as np

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-
 import click
 
 from cavity.cli.common import check_output_file, friendly_errors, progress_callback, solver_log

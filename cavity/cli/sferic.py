@@ -42,12 +42,12 @@ def run_command(scenario, output, overwrite, quiet):
     """
     import cavity
     from cavity.results import write_result
-    from cavity.sferic import simulate_sferic
+    from cavity.solve import simulate_sferic
 
     sc = cavity.load_scenario(scenario)
     if output.exists() and not overwrite:
         raise click.ClickException(f"{output} exists; use --overwrite to replace it")
-    with solver_log("cavity.sferic", quiet), progress_callback(quiet, "solving") as update:
+    with solver_log("cavity.solve", quiet), progress_callback(quiet, "solving") as update:
         ds = simulate_sferic(sc, progress=update)
     path = write_result(ds, output, overwrite=overwrite)
     if ds.attrs.get("solver_converged") == "no":
@@ -77,7 +77,7 @@ def plot_command(results, output, labels, component, overwrite):
       cavity sferic plot sferic_day.nc sferic_night.nc -o sferics.png
     """
     import cavity
-    from cavity.sferic import plot_sferic
+    from cavity.reports.sferic import plot_sferic
 
     if output.suffix.lower() not in _FIGURE_SUFFIXES:
         raise click.BadParameter(f"{str(output)!r}: write .png, .pdf or .svg", param_hint="'-o'")

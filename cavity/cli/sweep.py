@@ -12,7 +12,7 @@ from cavity.cli.common import check_output_file, friendly_errors, one_line, prog
 
 
 def _frequencies(values) -> list[float] | None:
-    """``--frequency 16 --frequency 21.4`` or ``--frequency 16,21.4`` -> [16.0, 21.4] (kHz)."""
+    """``--frequency 16 --frequency 27.6`` or ``--frequency 16,27.6`` -> [16.0, 27.6] (kHz)."""
     if not values:
         return None
     out = []
@@ -62,13 +62,13 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
 
     \b
     Example:
-      cavity sweep examples/northbay.toml --start 2026-03-20T00:00Z \\
-          --stop 2026-03-21T00:00Z --step 30min -o northbay_day.nc
+      cavity sweep examples/quillon_head.toml --start 2026-03-20T00:00Z \\
+          --stop 2026-03-21T00:00Z --step 30min -o quillon_head_day.nc
     """
     from pathlib import Path
 
     import cavity
-    from cavity.sweep import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
+    from cavity.sweeps import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
 
     if (start is None) != (stop is None):
         raise click.UsageError("--start and --stop go together")
@@ -85,7 +85,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     if not quiet:
         handler = logging.StreamHandler(sys.stderr)
         handler.setFormatter(logging.Formatter("%(message)s"))
-        logger = logging.getLogger("cavity.sweep")
+        logger = logging.getLogger("cavity.sweeps")
         logger.addHandler(handler)
         logger.setLevel(logging.INFO)
     t0 = time.perf_counter()
@@ -103,7 +103,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
         sys.exit(128 + getattr(exc, "signum", 2))
     finally:
         if handler is not None:
-            logging.getLogger("cavity.sweep").removeHandler(handler)
+            logging.getLogger("cavity.sweeps").removeHandler(handler)
     path = write_sweep(ds, target, overwrite=overwrite)
     missing = ds.attrs.get("sweep_missing_points")
     if missing:

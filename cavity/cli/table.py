@@ -37,10 +37,10 @@ def diurnal_table(ds, fmt: str) -> str:
     import importlib
 
     try:
-        sweep_report = importlib.import_module("cavity.sweep_report")
+        sweep_report = importlib.import_module("cavity.reports.sweep")
     except ImportError:
         raise click.ClickException(
-            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.sweep_report) "
+            "this is a sweep file (it has a time dimension), and the sweep reports (cavity.reports.sweep) "
             "are not installed"
         ) from None
     table = sweep_report.table_diurnal(ds)
@@ -49,7 +49,7 @@ def diurnal_table(ds, fmt: str) -> str:
     formatter = getattr(sweep_report, "format_diurnal_table", None)
     text = formatter(table, fmt) if formatter is not None else table.to_csv(index=False)
     if fmt == "markdown":
-        from cavity.report import table_notes
+        from cavity.reports.tables import table_notes
 
         text += "".join(f"\n{note}\n" for note in table_notes([ds]) if note.startswith("Cautions"))
     return text
@@ -95,7 +95,7 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.report import is_sweep, receiver_table, write_text
+    from cavity.reports.tables import is_sweep, receiver_table, write_text
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")

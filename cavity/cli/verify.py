@@ -23,7 +23,7 @@ def command(full, only, quiet):
 
     Example: cavity verify --only calibration --only two_mode_beat
     """
-    from cavity import verify
+    from cavity.checks import verify
 
     names = [n for n, _ in verify.QUICK + verify.FULL]
     unknown = [n for n in only if n not in names]

@@ -13,8 +13,8 @@ from __future__ import annotations
 import logging
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
-from typing import Callable
 
 import numpy as np
 
@@ -536,13 +536,23 @@ class Simulation:
         # point source: the whole current record at once (zero after the waveform's end)
         n_src = min(n_max, int(math.ceil(float(wave.end_s) / dt)) + 1)
         src = None if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
+        src_kick = np.zeros(max(1, n_line), np.float32)  # this step's source term per axis cell (kernels.step_e)
         # DFT kernels exp(-j w t) at the H and E instants, advanced by one rotation per step
         rot_h = np.exp(-0.5j * w * dt)
         rot_step = np.exp(-1j * w * dt)
         rot_half = np.exp(-0.5j * w * dt)
         t0 = time.perf_counter()
         step = 0
-        plasma_z, plasma_r = self.plasma_z, self.plasma_r
+        # the kernels' argument groups (kernels.Fields ...): the same arrays every step, named
+        fields = K.Fields(self.ez, self.er, self.hp, self.jz, self.jr)
+        curl_h = K.HCurl(self.inv_dr, self.inv_dz, self.ch, self.ha, self.hb)
+        ground = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi)
+        top_h = K.Absorber(self.jz0, *self.pz_h, self.psi_zh, np.zeros((0, 0), np.float32))
+        far_h = K.Absorber(self.ir0, *self.pr_h, self.psi_rh, self.ch_far)
+        curl_e = K.ECurl(self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0)
+        plasma_z, plasma_r = K.Plasma(*self.plasma_z), K.Plasma(*self.plasma_r)
+        top_e = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, self.ce_top)
+        far_e = K.Absorber(self.ir0, *self.pr_e, self.psi_re, self.ce_far)
         n_cols = nr
         while step < n_max:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
@@ -561,27 +571,25 @@ class Simulation:
             if step % 1024 == 0:  # re-anchor the rotors against round-off
                 rot_h = np.exp(-1j * w * t_h)
             rot_e = rot_h * rot_half
-            K.step_h(self.hp, self.ez, self.er, self.inv_dr, self.inv_dz, self.ch,
-                     self.ha, self.hb, self.sib_q, self.sib_w, self.sib_psi,
-                     self.jz0, *self.pz_h, self.psi_zh, self.ir0, *self.pr_h, self.psi_rh, self.ch_far,
-                     acc_h[0], acc_h[1], rot_h.real, -rot_h.imag, n_cols)
+            K.step_h(fields, curl_h, ground, top_h, far_h, K.Dft(acc_h[0], acc_h[1], rot_h.real, -rot_h.imag), n_cols)
             if self.magnetised:
                 K.step_h_te(self.hr, self.hz, self.ephi, self.inv_dz, self.ch, self.qp, self.qm, self.ha, self.hb,
                             self.sib_q, self.sib_w, self.sib_psi_r, self.jz0, *self.pz_h, self.psi_hr,
                             self.ir0, *self.pr_h, self.psi_hz, acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag,
                             n_cols)
+            # every source enters the kernel the same way: current elements in the axis cells from
+            # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
             if line_source:
                 # a vertical channel: currents in the axis cells, moment = sum I_j dz
                 currents = np.asarray(wave.axis_currents(t_h, self.z_ez[:n_line]), float)
-                kicks = (self.src_coef_rows[:n_line] * currents).astype(np.float32)
+                src_kick[:] = self.src_coef_rows[:n_line] * currents
                 current = float(currents.sum())
-                src_kick = kicks[0]
             elif step < n_src:
                 current = src[step]
-                src_kick = np.float32(self.src_coef * current)
+                src_kick[0] = self.src_coef * current
             else:
                 current = 0.0
-                src_kick = np.float32(0.0)
+                src_kick[0] = 0.0
             if self.magnetised:
                 # triples alternate between the Er node after and before each Ez node (kernels.step_e_mag)
                 shift = 1 if step % 2 == 0 else -1
@@ -595,12 +603,8 @@ class Simulation:
                     K.step_er_alone(self.er, self.hp, self.inv_dz, self.cer, self.jp0, self.mag_coef,
                                     self.t_left, self.wsq, self.jr, self.jz0, *self.pz_e, self.psi_ze, nr - 1)
             else:
-                K.step_e(self.ez, self.er, self.hp, self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0,
-                         *plasma_z, self.jz, *plasma_r, self.jr,
-                         self.jz0, *self.pz_e, self.psi_ze, self.ce_top, self.ir0, *self.pr_e, self.psi_re,
-                         self.ce_far, src_kick, acc_e[0], acc_e[1], rot_e.real, -rot_e.imag, n_cols)
-            if line_source and n_line > 1:
-                self.ez[0, 1:n_line] -= kicks[1:]  # rows above the ground row do not enter this step's DFT
+                K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
+                         K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
             if current != 0.0:
                 acc_i += current * rot_h
             rot_h = rot_h * rot_step

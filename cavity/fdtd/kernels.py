@@ -17,6 +17,7 @@ surface-impedance ground (Maloney and Smith 1992).
 from __future__ import annotations
 
 import os
+from typing import NamedTuple
 
 # Idle OpenMP threads sleep instead of spinning: two barriers per time step cost microseconds, while
 # spinning threads steal the cores from working ones whenever the machine is shared (measured 2-4x
@@ -32,6 +33,79 @@ _OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
 #: absorbers; without a floor they reach float32 subnormals (< 1.2e-38), which the CPU handles
 #: hundreds of times more slowly. Fields per unit source current stay above 1e-20 where they matter.
 TINY = np.float32(1e-30)
+
+
+# Argument groups of the fused half-steps. numba takes NamedTuples of arrays and scalars; each kernel
+# unpacks them into locals before its loop, so the compiled loops are the ones of flat arguments, and
+# a group cannot be passed in another's place (its fields are named, not counted).
+
+
+class Fields(NamedTuple):
+    """The arrays stepped in place: Ez, Er, H_phi and the plasma currents jz, jr (float32)."""
+
+    ez: np.ndarray  # (nr, nz)
+    er: np.ndarray  # (nr, nz + 1)
+    hp: np.ndarray  # (nr, nz)
+    jz: np.ndarray  # (nr, nz - jp0)
+    jr: np.ndarray  # (nr, nz - jp0)
+
+
+class HCurl(NamedTuple):
+    """Faraday's-law coefficients: inverse cells, dt/mu0 and the ground row's (ha, hb) per column."""
+
+    inv_dr: float
+    inv_dz: float
+    ch: float
+    ha: np.ndarray  # (nr,)
+    hb: np.ndarray  # (nr,)
+
+
+class GroundMemory(NamedTuple):
+    """The recursive surface-impedance ground (Maloney and Smith 1992): poles q, weights w, memory psi."""
+
+    q: np.ndarray  # (npole,)
+    w: np.ndarray  # (nr, npole)
+    psi: np.ndarray  # (nr, npole)
+
+
+class ECurl(NamedTuple):
+    """Ampere's-law coefficients: (1/r) d(r H)/dr weights, 1/dz, dt/eps per row, first plasma row."""
+
+    rp: np.ndarray  # (nr,)
+    rm: np.ndarray  # (nr,)
+    inv_dz: float
+    cez: np.ndarray  # (nz,)
+    cer: np.ndarray  # (nz + 1,)
+    jp0: int
+
+
+class Plasma(NamedTuple):
+    """One component's plasma update: eps/dt and qa per plasma row, qb per profile, profile per column."""
+
+    ed: np.ndarray  # (nz - jp0,)
+    qa: np.ndarray  # (nz - jp0,)
+    qb: np.ndarray  # (nprofile, nz - jp0)
+    prof: np.ndarray  # (nr,) int32
+
+
+class Absorber(NamedTuple):
+    """One CPML layer (Roden and Gedney 2000): first row/column, b, c, 1/kappa - 1, memory, curl coefficient."""
+
+    start: int
+    b: np.ndarray
+    c: np.ndarray
+    kd: np.ndarray
+    psi: np.ndarray
+    coef: np.ndarray  # per cell; unused (empty) for the top layer of the H step, which uses dt/mu0
+
+
+class Dft(NamedTuple):
+    """Running DFT along the ground row: accumulators (nf, nr) and cos/sin of -omega t this step."""
+
+    acc_re: np.ndarray
+    acc_im: np.ndarray
+    cos: np.ndarray
+    sin: np.ndarray
 
 
 @nb.njit(parallel=True, **_OPTS)
@@ -113,9 +187,7 @@ def minimal_e(ez, er, hp, rp, rm, inv_dz, ca, cb):
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
-           jz0, b_zh, c_zh, kd_zh, psi_zh, ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far,
-           acc_re, acc_im, cos_h, sin_h, n_cols):
+def step_h(fields, curl, ground, top, far, dft, n_cols):
     """One H half-step: Faraday's law, mu0 dH/dt = dEz/dr - dEr/dz, with both absorbers and the DFT.
 
     Everything a column needs is local to it, so one parallel loop over columns with one barrier.
@@ -138,6 +210,12 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
     DFT: ``acc[f, i] += H[i, 0] exp(-j omega_f t)`` with ``cos_h``/``sin_h`` of the current instant.
     """
+    hp, ez, er = fields.hp, fields.ez, fields.er
+    inv_dr, inv_dz, ch, ha, hb = curl.inv_dr, curl.inv_dz, curl.ch, curl.ha, curl.hb
+    sib_q, sib_w, sib_psi = ground.q, ground.w, ground.psi
+    jz0, b_zh, c_zh, kd_zh, psi_zh = top.start, top.b, top.c, top.kd, top.psi
+    ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far = far.start, far.b, far.c, far.kd, far.psi, far.coef
+    acc_re, acc_im, cos_h, sin_h = dft.acc_re, dft.acc_im, dft.cos, dft.sin
     nr, nz = hp.shape
     nk = sib_q.shape[0]
     n_top = psi_zh.shape[1]
@@ -185,9 +263,7 @@ def step_h(hp, ez, er, inv_dr, inv_dz, ch, ha, hb, sib_q, sib_w, sib_psi,
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, jz, ed_r, qa_r, qb_r, prof_r, jr,
-           jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top, ir0, b_re, c_re, kd_re, psi_re, ce_far,
-           src, acc_re, acc_im, cos_e, sin_e, n_cols):
+def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
     """One E half-step: Ampere's law with the plasma current, both absorbers, the source and the DFT.
 
     Columns ``0 .. n_cols-1`` only, as in :func:`step_h`.
@@ -213,9 +289,17 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
     (1/r) d(rH)/dr for Ez (columns >= ir0, stretched as a Cartesian derivative: error of order the
     layer depth over r). ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
     cells J(n+1) was computed from the uncorrected E(n+1); it receives qb dE so that the pair stays
-    the trapezoidal E-J update of the stretched equations. Finally ``ez[0, 0] -= src`` (the source
-    current element on the axis) and the ground-row DFT.
+    the trapezoidal E-J update of the stretched equations. Finally ``ez[0, :len(src)] -= src`` (the
+    source: current elements in the axis cells from the ground up, one for a point source, one per
+    driven cell for a lightning channel) and the ground-row DFT.
     """
+    ez, er, hp, jz, jr = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
+    rp, rm, inv_dz, cez, cer, jp0 = curl.rp, curl.rm, curl.inv_dz, curl.cez, curl.cer, curl.jp0
+    ed_z, qa_z, qb_z, prof_z = plasma_z.ed, plasma_z.qa, plasma_z.qb, plasma_z.prof
+    ed_r, qa_r, qb_r, prof_r = plasma_r.ed, plasma_r.qa, plasma_r.qb, plasma_r.prof
+    jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top = top.start, top.b, top.c, top.kd, top.psi, top.coef
+    ir0, b_re, c_re, kd_re, psi_re, ce_far = far.start, far.b, far.c, far.kd, far.psi, far.coef
+    acc_re, acc_im, cos_e, sin_e = dft.acc_re, dft.acc_im, dft.cos, dft.sin
     nr, nz = ez.shape
     n = nz - jp0
     n_top = psi_ze.shape[1]
@@ -280,7 +364,8 @@ def step_e(ez, er, hp, rp, rm, inv_dz, cez, cer, jp0, ed_z, qa_z, qb_z, prof_z, 
                 if j >= jp0:
                     jz[i, j - jp0] += qb_z[prof_z[i], j - jp0] * de
         if i == 0:
-            e_z[0] -= src
+            for j in range(src.shape[0]):
+                e_z[j] -= src[j]
         v = np.float64(e_z[0])
         for f in range(nf):
             acc_re[f, i] += v * cos_e[f]
@@ -424,7 +509,8 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
 
     Absorbers (Roden and Gedney 2000) stretch the curls before the update: the top layer the
     z derivatives of Er and Ephi, the far-end layer the radial operators of Ez and Ephi.
-    Finally ``ez[0, 0] -= src`` and the ground-row DFT of Ez. Curls are gathered per column first
+    Finally ``ez[0, :len(src)] -= src`` (current elements in the axis cells from the ground up) and
+    the ground-row DFT of Ez. Curls are gathered per column first
     and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it;
     ``scratch`` (3, nr, nz) float32 holds the curls (no allocation in the loop).
     """
@@ -566,7 +652,8 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
                     er[ie, j] = _flush(er_new)
                     ur[ie, k] = _flush(ur_new)
         if i == 0:
-            ez[0, 0] -= src
+            for j in range(src.shape[0]):
+                ez[0, j] -= src[j]
         v = np.float64(ez[i, 0])
         for f in range(nf):
             acc_re[f, i] += v * cos_e[f]

@@ -11,8 +11,9 @@ return stroke (see :mod:`cavity.fdtd.lightning`, when present).
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable, Protocol
+from typing import Protocol
 
 import numpy as np
 

@@ -156,7 +156,7 @@ def _ql_tridiagonal(d, e, z, tol, max_iterations, breakdown):
     """
     n = d.shape[0]
     rows = z.shape[0]
-    for l in range(n):
+    for l in range(n):  # noqa: E741  (l, m: the QL algorithm's published index names)
         iterations = 0
         while True:
             m = l

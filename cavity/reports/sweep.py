@@ -123,7 +123,7 @@ def path_levels(ds: xr.Dataset) -> tuple[xr.DataArray, list[str]] | None:
     -------
     (xarray.DataArray, list of str) or None
         Levels in dB re 1 uV/m on (path, frequency, time) (NaN for a path without receivers) and
-        labels such as ``"to Gannet Reach, 1515-3029 km"``; None when the dataset holds no field
+        labels such as ``"to Oryx Hollow, 1493-2986 km"``; None when the dataset holds no field
         along range (a file reduced to receiver values).
     """
     import xarray as xr
@@ -190,7 +190,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
     Parameters
     ----------
     ds : xarray.Dataset
-        A sweep dataset (from :func:`cavity.sweep.sweep` or a sweep file).
+        A sweep dataset (from :func:`cavity.sweeps.sweep` or a sweep file).
     output_path : str or os.PathLike
         Figure file, .png or .pdf (written atomically).
     quantity : {"ez", "b"}
@@ -274,7 +274,7 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
         labels += ["sunrise at path midpoint", "sunset at path midpoint"]
     axes[0].legend(handles, labels, fontsize="small", loc="best")
     fig.suptitle(str(ds.attrs.get("title", "sweep")))
-    from cavity.report import save_figure
+    from cavity.files import save_figure
 
     return [str(save_figure(fig, output_path))]
 

@@ -243,7 +243,7 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
     ax.legend(handles=legend, loc="lower left", fontsize=8, framealpha=0.85)
     ax.set_title(f"{scenario.title}\n{time_text}; azimuthal equidistant about the transmitter", fontsize=10)
 
-    from cavity.report import save_figure  # the one atomic figure writer
+    from cavity.files import save_figure  # the one atomic figure writer
 
     save_figure(fig, path, dpi=dpi)
     return notes

@@ -24,8 +24,6 @@ from __future__ import annotations
 import csv
 import io
 import math
-import os
-import tempfile
 import tomllib
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -34,23 +32,22 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from cavity.constants import C0
+from cavity.constants import C0, EARTH_RADIUS_M
 from cavity.errors import CavityError
+from cavity.files import FIGURE_FORMATS, check_figure_output, save_figure, write_text  # noqa: F401  (public here too)
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
     from matplotlib.figure import Figure
 
-#: Earth radius of the solver's curvature model, km (design notes physics section 7).
-EARTH_RADIUS_KM = 6371.0
+#: Earth radius of the solver's curvature model, km (:data:`cavity.constants.EARTH_RADIUS_M`).
+EARTH_RADIUS_KM = EARTH_RADIUS_M / 1e3
 #: Default range window of the attenuation fit, km.
 DEFAULT_FIT_KM = (1000.0, 3000.0)
 #: RMS residual above which a fitted rate is flagged as describing modal interference, dB.
 SHAKY_FIT_RESIDUAL_DB = 2.0
 #: Fewest range samples a fit accepts.
 MIN_FIT_POINTS = 5
-#: Figure formats by file suffix.
-FIGURE_FORMATS = {".png": "png", ".pdf": "pdf"}
 #: Table formats.
 TABLE_FORMATS = ("markdown", "csv")
 #: Frequencies closer than this are the same, kHz (files store kHz as float).
@@ -94,7 +91,7 @@ def _frequencies(ds: xr.Dataset) -> np.ndarray:
 
 
 def frequency_text(freqs_khz) -> str:
-    """"16 kHz" or "16, 21.4 kHz": a frequency set for messages."""
+    """"16 kHz" or "16, 27.6 kHz": a frequency set for messages."""
     values = [f"{float(f):g}" for f in np.atleast_1d(freqs_khz)]
     return f"{', '.join(values) or 'none'} kHz"
 
@@ -232,7 +229,7 @@ def receiver_rows(
     if bandwidth_hz is not None and not (math.isfinite(bandwidth_hz) and bandwidth_hz > 0):
         raise CavityError(f"bandwidth = {bandwidth_hz!r} Hz must be a positive number")
     if is_sweep(ds):
-        raise CavityError("this is a sweep file (it has a time dimension); use cavity.sweep_report for its tables")
+        raise CavityError("this is a sweep file (it has a time dimension); use cavity.reports.sweep for its tables")
     names = _receiver_names(ds)
     n = len(names)
     freqs = _frequencies(ds)
@@ -679,56 +676,6 @@ PATH_STYLES = ("-", "--", ":", "-.")
 PHASE_MODES = ("relative", "unwrapped")
 
 
-def _check_figure_output(output) -> tuple[Path, str]:
-    path = Path(os.fspath(output)).expanduser()
-    fmt = FIGURE_FORMATS.get(path.suffix.lower())
-    if fmt is None:
-        raise CavityError(f"output = {str(path)!r} has suffix {path.suffix or '(none)'!r}; write .png or .pdf")
-    if path.is_dir():
-        raise CavityError(f"output = {str(path)!r} is a folder; give a file name ending in .png or .pdf")
-    if not path.parent.exists():
-        raise CavityError(f"output folder {str(path.parent)!r} does not exist")
-    return path, fmt
-
-
-def save_figure(fig: Figure, output, *, dpi: int = 150) -> Path:
-    """Write a figure to PNG or PDF atomically (temporary name in the same folder, then rename)."""
-    path, fmt = _check_figure_output(output)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=path.parent)
-    os.close(fd)
-    try:
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        fig.savefig(tmp, format=fmt, dpi=dpi)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
-
-
-def write_text(text: str, output) -> Path:
-    """Write a text file atomically (temporary name in the same folder, then rename)."""
-    path = Path(os.fspath(output)).expanduser()
-    if path.is_dir():
-        raise CavityError(f"output = {str(path)!r} is a folder; give a file name")
-    if not path.parent.exists():
-        raise CavityError(f"output folder {str(path.parent)!r} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8", newline="") as handle:
-            handle.write(text)
-        umask = os.umask(0)
-        os.umask(umask)
-        os.chmod(tmp, 0o666 & ~umask)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
-    return path
-
-
 def _finite_span(r: np.ndarray, y: np.ndarray) -> np.ndarray:
     """Mask of the plotted samples: finite values beyond zero range."""
     return np.isfinite(y) & (r > 0)
@@ -786,7 +733,7 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
     if phase not in PHASE_MODES:
         raise CavityError(f"phase = {phase!r} is unknown (choose from {', '.join(PHASE_MODES)})")
     if is_sweep(ds):
-        raise CavityError("this is a sweep file (it has a time dimension); use cavity.sweep_report to plot it")
+        raise CavityError("this is a sweep file (it has a time dimension); use cavity.reports.sweep to plot it")
     r = np.asarray(ds["range"].values, dtype=float)
     freqs = _frequencies(ds)
     labels = _path_labels(ds)
@@ -901,14 +848,14 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
 
 def plot_result(ds: xr.Dataset, output, *, phase: str = "relative", dpi: int = 150) -> Path:
     """Draw :func:`result_figure` and write it (PNG or PDF, atomically); returns the path."""
-    _check_figure_output(output)
+    check_figure_output(output)
     return save_figure(result_figure(ds, phase=phase), output, dpi=dpi)
 
 
 def plot_comparison(ds_a: xr.Dataset, ds_b: xr.Dataset, output, label_a: str = "A", label_b: str = "B", *,
                     start_km: float | None = None, stop_km: float | None = None, dpi: int = 150) -> Path:
     """Draw :func:`comparison_figure` with the attenuation fits and write it; returns the path."""
-    _check_figure_output(output)
+    check_figure_output(output)
     freqs = common_frequencies(ds_a, ds_b, label_a, label_b)
     fits = attenuation_rows([ds_a, ds_b], [label_a, label_b], start_km=start_km, stop_km=stop_km, frequencies=freqs)
     return save_figure(comparison_figure(ds_a, ds_b, label_a, label_b, fits=fits), output, dpi=dpi)

@@ -11,8 +11,8 @@ from __future__ import annotations
 import functools
 import math
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Callable
 
 import numpy as np
 

@@ -47,7 +47,6 @@ def memory_bandwidth_gb_per_s(n_bytes: int = 256 * 1024**2, repeats: int = 5) ->
 
 def _day_simulation(max_range_m: float, frequency_hz: float):
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
@@ -131,9 +130,9 @@ def whole_run(max_range_m: float = 3000e3, frequency_hz: float = 20e3, cells_per
     """The 3,000 km day path at 20 kHz over sea with the default grid, against the mode reference.
 
     Returns a dict: wall time of the solve (compile from cache included), steps, cells, peak memory
-    and the error in dB against :func:`cavity.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
+    and the error in dB against :func:`cavity.checks.verify.mode_reference` at 500, 1,000, 2,000, 3,000 km.
     """
-    from cavity import verify
+    from cavity.checks import verify
     from cavity.fdtd import grid as gridmod
 
     kw = {}
@@ -241,7 +240,7 @@ def night_runs_interleaved(repeats: int = 1) -> list[tuple[str, dict]]:
     out = []
     for _ in range(repeats):
         for magnetised in (False, True):
-            code = f"import json; from cavity import bench; print(json.dumps(bench.night_run({magnetised})))"
+            code = f"import json; from cavity.checks import bench; print(json.dumps(bench.night_run({magnetised})))"
             done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
             out.append(("magnetised" if magnetised else "isotropic", json.loads(done.stdout.strip().splitlines()[-1])))
     return out

@@ -1,0 +1,2 @@
+"""Checks of the solver: :mod:`~cavity.checks.verify` (outside references, ``cavity verify``) and
+:mod:`~cavity.checks.bench` (speed, ``cavity bench``)."""
