@@ -295,7 +295,6 @@ def test_steady_current_is_the_cold_plasma_conductivity():
 
 def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, permittivity=70.0):
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)

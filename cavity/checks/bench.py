@@ -171,7 +171,6 @@ BENCH_FIELD_T = (0.0, 50e-6 * math.cos(math.radians(60.0)), -50e-6 * math.sin(ma
 
 def _night_medium(magnetised: bool):
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
@@ -188,7 +187,7 @@ def field_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps: 
     """
     from cavity.fdtd import engine as eng
 
-    out = {"isotropic": [], "magnetised": []}
+    out: dict[str, list[float]] = {"isotropic": [], "magnetised": []}
     sims = {}
     for key in out:
         sim = eng.Simulation(_night_medium(key == "magnetised"), eng.Settings(frequencies_hz=(frequency_hz,),
