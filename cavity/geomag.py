@@ -69,7 +69,8 @@ def igrf_enu(lat_deg, lon_deg, altitude_km, epoch) -> tuple[np.ndarray, np.ndarr
     """
     import ppigrf
 
-    lat = np.asarray(lat_deg, dtype=float)
+    # the spherical-harmonic sums divide by sin(colatitude): step a hair off the poles
+    lat = np.clip(np.asarray(lat_deg, dtype=float), -89.9999, 89.9999)
     lon = np.asarray(lon_deg, dtype=float)
     h = np.asarray(altitude_km, dtype=float)
     shape = np.broadcast_shapes(lat.shape, lon.shape, h.shape)
