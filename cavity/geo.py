@@ -19,7 +19,7 @@ import numpy as np
 
 from cavity.errors import ScenarioError
 
-#: Ellipsoid used for every path of the tool (conventions.md, geometry).
+#: Ellipsoid used for every path of the tool (docs/physics.md 11).
 ELLIPSOID = "WGS84"
 
 #: Latitude south of which land is the Antarctic ice sheet (the continent lies south of about

@@ -1,6 +1,6 @@
 """Ground classes: conductivity and relative permittivity used by the surface-impedance ground.
 
-Values are the usual ITU-R P.527 / P.368 class values (from memory; physics.md 5). "land" is the
+Values are the usual ITU-R P.527 / P.368 class values (from memory; docs/physics.md 5). "land" is the
 medium-dry class, a middle value for continental paths when no better map is at hand.
 """
 

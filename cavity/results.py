@@ -32,7 +32,7 @@ if TYPE_CHECKING:  # pragma: no cover
 EZ_REFERENCE_V_PER_M = 1e-6
 B_REFERENCE_T = 1e-15
 
-#: What every result file says about the trust to place in it (design notes, physics section 10).
+#: What every result file says about the trust to place in it (docs/physics.md 10).
 CAUTIONS = (
     "Predictions are planning estimates: h' and beta vary with season, latitude, solar cycle, flares "
     "and particle precipitation; ground maps are coarse; the geomagnetic field is the IGRF at one "
@@ -115,6 +115,20 @@ VARIABLES: dict[str, dict[str, str]] = {
     "geomagnetic_field_r": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, component along the path (direction of travel)"},
     "geomagnetic_field_phi": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, horizontal component across the path (to the left of the direction of travel)"},
     "geomagnetic_field_z": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, upward component"},
+    # coverage maps (cavity.sweeps.coverage): the map on a latitude/longitude grid and the bearings behind it
+    "latitude": {"units": "degrees_north", "long_name": "latitude of the map grid point", "standard_name": "latitude", "axis": "Y"},
+    "longitude": {"units": "degrees_east", "long_name": "longitude of the map grid point (continuous about the transmitter)", "standard_name": "longitude", "axis": "X"},
+    "bearing": {"units": "degree", "long_name": "bearing of a solved path at the transmitter, clockwise from true north"},
+    "map_range": {"units": "km", "long_name": "ground range of the grid point from the transmitter (WGS84 geodesic; NaN beyond the map's range)"},
+    "map_bearing": {"units": "degree", "long_name": "bearing of the grid point from the transmitter, clockwise from true north (NaN beyond the map's range)"},
+    "map_solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the grid point", "standard_name": "solar_zenith_angle"},
+    "bearing_ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the ground along each solved bearing, {_DB_E}"},
+    "bearing_ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field along each solved bearing, {_PHASE}, unwrapped along range"},
+    "bearing_ground_conductivity": {"units": "S m-1", "long_name": "ground conductivity along each solved bearing"},
+    "bearing_ground_relative_permittivity": {"units": "1", "long_name": "ground relative permittivity along each solved bearing"},
+    "bearing_solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the ground along each solved bearing", "standard_name": "solar_zenith_angle"},
+    "bearing_hprime": {"units": "km", "long_name": "Wait-Spies reference height h' along each solved bearing"},
+    "bearing_beta": {"units": "km-1", "long_name": "Wait-Spies sharpness beta along each solved bearing"},
 }
 
 #: Variables every result file holds (the conventions' minimum).
@@ -122,6 +136,12 @@ REQUIRED_VARIABLES: tuple[str, ...] = (
     "range", "frequency", "altitude", "path", "ez_amplitude", "ez_phase", "b_amplitude", "receiver_name",
     "receiver_range", "receiver_ez_amplitude", "receiver_ez_phase", "electron_density",
     "collision_frequency", "ground_conductivity",
+)
+
+#: Variables every coverage file holds (``cavity coverage``; it has latitude and bearing dimensions).
+COVERAGE_VARIABLES: tuple[str, ...] = (
+    "frequency", "latitude", "longitude", "bearing", "range", "ez_amplitude", "map_range", "map_bearing",
+    "bearing_ez_amplitude", "bearing_ez_phase",
 )
 
 #: Global attributes every result file carries.
@@ -556,7 +576,8 @@ def open_result(path: str | os.PathLike) -> xr.Dataset:
     source = str(ds.attrs.get("source", ""))
     if not source.startswith("cavity"):
         raise ResultFileError(f"{file} is not a cavity result file (its source attribute is {source!r})")
-    missing = [name for name in REQUIRED_VARIABLES if name not in ds.variables]
+    coverage = "latitude" in ds.dims and "bearing" in ds.dims
+    missing = [name for name in (COVERAGE_VARIABLES if coverage else REQUIRED_VARIABLES) if name not in ds.variables]
     if missing:
         raise ResultFileError(f"{file} is not a cavity result file (missing variables: {', '.join(missing)})")
     return ds

@@ -1,10 +1,10 @@
 """Scenario -> paths -> one time-domain solve per path -> result dataset.
 
 The orchestration a notebook and the CLI share: :func:`simulate` turns a validated scenario into the
-:class:`xarray.Dataset` of the result-file contract (conventions.md). Calibration: the engine returns
+:class:`xarray.Dataset` of the result-file contract (README, "Result file reference"). Calibration: the engine returns
 fields per unit current moment; they are scaled here by the RMS moment of a short monopole that
-radiates the transmitter's power over perfect ground (physics.md 6), then corrected from flat to
-spherical spreading when earth curvature is on (physics.md 7).
+radiates the transmitter's power over perfect ground (docs/physics.md 6), then corrected from flat to
+spherical spreading when earth curvature is on (docs/physics.md 7).
 """
 
 from __future__ import annotations
@@ -191,8 +191,12 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
 
 
 def path_progress(progress, paths) -> list:
-    """One progress callback per path, mapping its own 0..1 onto its share (by range) of the whole."""
-    weights = np.array([p.max_range_m for p in paths], float)
+    """One progress callback per path, mapping its own 0..1 onto its share of the whole.
+
+    A path's share is its cost: columns x steps, both in proportion to its range (same cell and
+    frequency), so range squared.
+    """
+    weights = np.array([p.max_range_m for p in paths], float) ** 2
     weights = weights / weights.sum()
     starts = np.concatenate([[0.0], np.cumsum(weights)[:-1]])
 
@@ -230,7 +234,7 @@ def simulate(scenario: Scenario, *, progress: Callable[[float, str], None] | Non
 
     Returns
     -------
-    xarray.Dataset following the result-file contract (conventions.md), not yet written. A scenario
+    xarray.Dataset following the result-file contract (README, "Result file reference"), not yet written. A scenario
     whose ``[source]`` is a lightning stroke is run as a fixed record and its dataset also holds the
     sferic's waveforms, spectra and cutoffs at the receivers (:func:`cavity.sferic.sferic_variables`).
     """

@@ -29,9 +29,10 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
     from cavity.results import open_result
 
     datasets = [open_result(f) for f in files]
-    labels = [f.stem for f in files]
-    if len(set(labels)) < len(labels):
-        labels = [f"{i + 1}-{f.stem}" for i, f in enumerate(files)]
+    stems = [f.stem for f in files]  # figure file names
+    if len(set(stems)) < len(stems):
+        stems = [f"{i + 1}-{f.stem}" for i, f in enumerate(files)]
+    labels = report.run_labels(datasets, fallback=stems)  # what a reader sees: day/night, UTC or title
     folder, stem = output.parent, output.stem
     written: list[Path] = []
     notes: list[str] = []
@@ -50,8 +51,9 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
         map_path = None
 
     curves = []
-    for ds, label in zip(datasets, labels):
-        path = report.plot_result(ds, folder / f"{stem}_{label}.png")
+    limits = report.common_amplitude_limits(datasets)  # every run on the same amplitude axis
+    for ds, label, name in zip(datasets, labels, stems):
+        path = report.plot_result(ds, folder / f"{stem}_{name}.png", amplitude_limits=limits)
         written.append(path)
         curves.append((label, path))
     comparison = None

@@ -59,7 +59,7 @@ def test_uniform_grid_is_the_engines_plan():
     # the default cells per wavelength at 14.3 kHz: dr = c / f / 24 = 873.5 m (common practice: 20 or more)
     assert cells[2] == "874"
     # Courant: dt must stay below the 2-D Cartesian limit dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and
-    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (physics notes, section 2)
+    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (docs/physics.md 2)
     assert plan.dt_s < plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
     assert "Marker 3000" in result.stdout and "by range" in result.stdout
 
@@ -108,3 +108,22 @@ def test_missing_file_one_line(tmp_path):
 def test_help_has_example():
     result = CliRunner().invoke(main, ["inspect", "--help"])
     assert result.exit_code == 0 and "Example: cavity inspect examples/quillon_head.toml" in result.output
+
+
+def test_inspect_estimates_the_run_time_from_the_cost_model():
+    # The estimate is the cost model (grid.expected_cell_updates) over the reference engine rates
+    # that `cavity bench` measured, and says so.
+    from cavity import load_scenario
+    from cavity.checks.bench import REFERENCE_ENGINE_RATES
+    from cavity.cli.inspect import describe
+    from cavity.paths import build_paths
+    from cavity.solve import plan_path
+
+    scenario = load_scenario(Path(__file__).resolve().parent.parent / "examples" / "uniform_night.toml")
+    line = next(x for x in describe(scenario) if "run time" in x)
+    assert "estimate" in line and "cavity bench" in line
+    updates = sum(plan_path(scenario, p).grid.expected_cell_updates for p in build_paths(scenario))
+    fast, slow = updates / max(REFERENCE_ENGINE_RATES), updates / min(REFERENCE_ENGINE_RATES)
+    shown = [float(w) for w in line.replace("min", " min").split() if w.replace(".", "").isdigit()]
+    assert shown[0] == pytest.approx(fast if fast < 120 else fast / 60, abs=0.6)
+    assert shown[1] == pytest.approx(slow if slow < 120 else slow / 60, abs=0.6)

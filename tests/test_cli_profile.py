@@ -39,7 +39,7 @@ def test_preset_day_prints_reflection_height_and_table():
     # Wait-Spies closed form with the published constant 2.506e5 /s: 71.8 + ln(2 pi 20e3/2.506e5)/0.335.
     expected_km = 71.8 + math.log(2 * math.pi * 20e3 / 2.506e5) / 0.335
     assert float(table_row(out, "20")[1]) == pytest.approx(expected_km, abs=0.01)
-    # nu(70 km) = 5.0e6 /s (Wait and Spies 1964; physics.md 9.1).
+    # nu(70 km) = 5.0e6 /s (Wait and Spies 1964; docs/physics.md 9.1).
     row = table_row(out, "70")
     assert float(row[2]) == pytest.approx(5.0e6, rel=1e-3)
     # Ne(60 km) for h' = 71.8, beta = 0.335 from the Wait-Spies formula: 3.388e7 m^-3.
@@ -172,3 +172,21 @@ def test_help_has_example():
     assert result.exit_code == 0
     assert "Example" in result.output and "cavity profile --preset night" in result.output
     assert "profile" in CliRunner().invoke(main, ["--help"]).output
+
+
+def test_profile_and_scenario_refuse_the_same_hprime_and_beta(tmp_path):
+    # One source of the allowed ranges: what a scenario refuses, `cavity profile` refuses too.
+    from cavity.errors import ScenarioError
+    from cavity.scenario import BETA_RANGE_PER_KM, HPRIME_RANGE_KM, load_scenario
+
+    text = ('title = "Invented range check"\n[transmitter]\nname = "T"\nfrequency_khz = 20.0\n'
+            'radiated_power_kw = 1.0\n[[receiver]]\nname = "R"\nrange_km = 500.0\n'
+            '[ionosphere]\nhprime_km = {h}\nbeta_per_km = {b}\n[ground]\nkind = "sea"\n')
+    for h, b, bad in ((45.0, 0.5, "--hprime"), (74.0, 1.8, "--beta")):
+        with pytest.raises(ScenarioError):
+            load_scenario(text.format(h=h, b=b))
+        result = run("--hprime", h, "--beta", b)
+        assert result.exit_code == 2 and bad in result.output
+        low, high = HPRIME_RANGE_KM if bad == "--hprime" else BETA_RANGE_PER_KM
+        assert f"{low}" in result.output and f"{high}" in result.output
+    assert run("--hprime", HPRIME_RANGE_KM[1], "--beta", BETA_RANGE_PER_KM[1]).exit_code == 0

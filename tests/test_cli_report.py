@@ -99,7 +99,11 @@ def test_table_csv_file_parses_and_equals_the_result(tmp_path):
         assert row["receiver"] == names[i]
         assert float(row["frequency_khz"]) == pytest.approx(freqs[k], abs=5e-5)
         assert abs(float(row["ez_db_re_1uv_per_m"]) - ds["receiver_ez_amplitude"].values[i, k]) <= 5e-4
-        assert abs(float(row["ez_phase_deg"]) - ds["receiver_ez_phase"].values[i, k]) <= 5e-3
+        # phase re c delay: the file's phase + 360 f d / c, wrapped by the complex exponential
+        light = 360.0 * freqs[k] * 1e3 * ds["receiver_range"].values[i] * 1e3 / 299792458.0
+        expected = np.degrees(np.angle(np.exp(1j * np.radians(ds["receiver_ez_phase"].values[i, k] + light))))
+        gap = (float(row["ez_phase_re_c_delay_deg"]) - expected + 180.0) % 360.0 - 180.0
+        assert abs(gap) <= 5e-3 and -180.0 < float(row["ez_phase_re_c_delay_deg"]) <= 180.0
         assert abs(float(row["b_db_re_1ft"]) - ds["receiver_b_amplitude"].values[i, k]) <= 5e-4
         assert abs(float(row["range_km"]) - ds["receiver_range"].values[i]) <= 5e-3
         assert abs(float(row["bearing_deg"]) - ds["receiver_bearing"].values[i]) <= 5e-3
@@ -110,7 +114,7 @@ def test_table_of_two_runs_and_snr(tmp_path):
     result = invoke("table", DAY, NIGHT, "-f", "csv", "--noise", 0, "--bandwidth", 1000)
     assert result.exit_code == 0, result.output
     rows = list(csv.DictReader(io.StringIO(result.stdout)))
-    assert {r["run"] for r in rows} == {"golden_day", "golden_night"}
+    assert {r["run"] for r in rows} == {"day", "night"}  # from the files' preset ionospheres
     for row in rows:
         # SNR = field - (N0 + 10 log10 B): 30 dB of noise in 1 kHz for N0 = 0 dB per sqrt(Hz)
         assert float(row["snr_db"]) == pytest.approx(float(row["ez_db_re_1uv_per_m"]) - 30.0, abs=1e-3)
@@ -151,7 +155,9 @@ def test_table_existing_output_refused(tmp_path):
     one_line_error(invoke("table", DAY, "-o", out), "t.md", "exists", "--overwrite")
     assert out.read_text() == "keep me"
     assert invoke("table", DAY, "-o", out, "--overwrite").exit_code == 0
-    assert out.read_text().startswith("| Receiver")
+    text = out.read_text()
+    freqs = ", ".join(f"{f:g}" for f in open_result(DAY)["frequency"].values)
+    assert text.startswith(f"Merlin Knoll, {freqs} kHz, 80 kW radiated; ionosphere") and "\n| Receiver" in text
 
 
 # --------------------------------------------------------------------------------------------------
@@ -166,7 +172,7 @@ def test_compare_writes_figure_and_prints_differences(tmp_path):
     assert result.exit_code == 0, result.output
     png_not_blank(fig)
     assert f"wrote {fig}" in result.stderr and f"wrote {md}" in result.stderr
-    assert "Differences at the receivers (golden_night - golden_day)" in result.stdout
+    assert "Differences at the receivers (night - day)" in result.stdout
     assert "dB per 1000 km" in result.stdout and "1/sqrt(a sin(d/a))" in result.stdout
     assert result.stdout.rstrip().splitlines()[-1].startswith("Cautions:")
     rows = list(csv.DictReader(io.StringIO(md.read_text())))
@@ -183,7 +189,7 @@ def test_compare_fit_range_shown(tmp_path):
     assert result.exit_code == 0, result.output
     assert (tmp_path / "c.pdf").read_bytes()[:5] == b"%PDF-"
     # the window actually fitted lies inside the one asked for
-    table = [line for line in result.stdout.splitlines() if line.startswith("| golden_")]
+    table = [line for line in result.stdout.splitlines() if line.startswith(("| day ", "| night "))]
     assert table
     for line in table:
         cells = [c.strip() for c in line.strip("|").split("|")]
@@ -375,7 +381,7 @@ def test_demo_writes_every_file(monkeypatch, tmp_path):
         i, k = divmod(n, 2)
         assert abs(float(row["ez_db_re_1uv_per_m"]) - day["receiver_ez_amplitude"].values[i, k]) <= 5e-4
     md = (out / "receivers.md").read_text()
-    assert md.startswith("| Run ") and "Cautions:" in md
+    assert md.startswith("**day**: ") and "\n| Run " in md and "Cautions:" in md
     assert "attenuation" in (out / "comparison.md").read_text().lower()
     # a second run refuses to replace them, before any solve
     monkeypatch.setattr("cavity.cli.demo.demo_scenarios", lambda: pytest.fail("solved before checking"))
@@ -494,9 +500,15 @@ def test_memo_report_from_day_and_night(tmp_path, capsys):
     rows = [[c.strip() for c in line.strip().strip("|").split(" | ")] for line in table.splitlines()
             if line.startswith("| day ")]
     assert len(rows) == ez.size
-    column = [c.strip() for c in table.splitlines()[2].strip().strip("|").split(" | ")].index("Ez (dB re 1 uV/m)")
-    for n, row in enumerate(rows):
-        assert abs(float(row[column]) - ez[divmod(n, ez.shape[1])]) <= 0.05
+    header = next(line for line in table.splitlines() if line.startswith("| Run "))
+    header = [c.strip() for c in header.strip().strip("|").split(" | ")]
+    column, name, freq = (header.index(h) for h in ("Ez (dB re 1 uV/m)", "Receiver", "Frequency (kHz)"))
+    ds = open_result(DAY)
+    names = [str(x).replace("|", "\\|") for x in ds["receiver_name"].values]
+    for row in rows:  # rows are grouped by path: look each up by receiver and frequency
+        i = names.index(row[name])
+        k = int(np.argmin(np.abs(ds["frequency"].values - float(row[freq]))))
+        assert abs(float(row[column]) - ez[i, k]) <= 0.05
     # a second run refuses to replace the memo
     assert memo.main([str(day), "-o", str(out)]) == 1
     assert "exists already" in capsys.readouterr().err

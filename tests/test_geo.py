@@ -79,7 +79,7 @@ def test_distance_bearing_rejects_bad_latitude():
         distance_bearing(91.0, 0.0, 0.0, 0.0)
 
 
-# Solar zenith check values of physics.md 8 (geometric, no refraction).
+# Solar zenith check values of docs/physics.md 8 (geometric, no refraction).
 @pytest.mark.parametrize(
     "when, lat, lon, chi",
     [
@@ -88,7 +88,7 @@ def test_distance_bearing_rejects_bad_latitude():
     ],
 )
 def test_solar_zenith_design_check_values(when, lat, lon, chi):
-    # Source: physics.md section 8 values (solstice declination about 23.44 deg).
+    # Source: docs/physics.md section 8 values (solstice declination about 23.44 deg).
     assert abs(solar_zenith_deg(when, lat, lon) - chi) < 0.02  # measured: 0.0003 deg
 
 

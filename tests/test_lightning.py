@@ -19,7 +19,7 @@ from scipy.optimize import brentq, minimize_scalar
 from cavity.constants import C0
 from cavity.fdtd.lightning import HeidlerStroke
 
-# physics.md 6: first return stroke, channel-base current
+# docs/physics.md 6: first return stroke, channel-base current
 I0, TAU1, TAU2, N = 28e3, 1.8e-6, 95e-6, 2.0
 
 

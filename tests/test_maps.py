@@ -2,13 +2,15 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 from click.testing import CliRunner
 
 from cavity.errors import CavityError, ScenarioError
 from cavity.paths import build_paths
-from cavity.reports.maps import coastline_file, draw_map
+from cavity.reports.maps import NIGHT_SHADE, TWILIGHT_SHADE, draw_map, ring_step_km
 from cavity.scenario import load_scenario
 
 
@@ -56,8 +58,7 @@ def test_map_renders_offline_non_blank_png(tmp_path, monkeypatch):
     assert float(image.std()) > 0.1
     assert len(np.unique((image * 255).astype(np.uint8).reshape(-1, 3), axis=0)) > 500
     assert not list(tmp_path.glob(".map.*"))  # no temporary file left behind
-    if coastline_file() is None:
-        assert any("coastlines skipped" in n for n in notes)
+    assert not any("coastline" in n for n in notes)
 
 
 def test_night_shading_darkens_the_map(tmp_path):
@@ -86,22 +87,70 @@ def test_map_errors(tmp_path):
         draw_map(s, build_paths(s), tmp_path / "missing" / "map.png")
 
 
-def test_coastlines_drawn_when_shapefile_on_disk(tmp_path, monkeypatch):
-    # A stand-in Natural Earth coastline shapefile (one line) in the layout cartopy uses.
-    import cartopy
-    import shapefile
+def test_coastline_frame_rings_and_title_with_no_network(tmp_path, monkeypatch):
+    # No network at all: any socket connection fails, so the coastline must come from data on disk.
+    import socket
 
-    folder = tmp_path / "ne" / "shapefiles" / "natural_earth" / "physical"
-    folder.mkdir(parents=True)
-    with shapefile.Writer(str(folder / "ne_110m_coastline"), shapeType=shapefile.POLYLINE) as w:
-        w.field("name", "C")
-        w.line([[[-15.0, 45.0], [-5.0, 55.0]]])
-        w.record("invented")
-    monkeypatch.setitem(cartopy.config, "pre_existing_data_dir", tmp_path / "ne")
-    assert coastline_file() == folder / "ne_110m_coastline.shp"
-    out, notes = render(tmp_path, scenario_text())
-    assert not any("coastlines" in n for n in notes)
-    assert read_png(out).std() > 0.1
+    def refuse(*args, **kwargs):
+        raise OSError("network disabled in this test")
+
+    monkeypatch.setattr(socket.socket, "connect", refuse)
+    monkeypatch.setattr(socket, "create_connection", refuse)
+    import matplotlib.figure
+
+    figures = []
+    original = matplotlib.figure.Figure.savefig
+
+    def keep(self, *args, **kwargs):
+        figures.append(self)
+        return original(self, *args, **kwargs)
+
+    monkeypatch.setattr(matplotlib.figure.Figure, "savefig", keep)
+    s = load_scenario(scenario_text())
+    paths = build_paths(s)
+    draw_map(s, paths, tmp_path / "map.png", dpi=60)
+    ax = figures[-1].axes[0]
+    # the coastline: a contour of the land/sea mask with many vertices inside the frame
+    from matplotlib.contour import ContourSet
+
+    contours = [c for c in ax.collections if isinstance(c, ContourSet)]
+    assert contours and sum(len(p.vertices) for c in contours for p in c.get_paths()) > 100
+    # the frame fits the paths: their projected extent fills most of it
+    import cartopy.crs as ccrs
+
+    proj = ax.projection
+    lons = np.concatenate([p.longitude_deg for p in paths if p.longitude_deg is not None])
+    lats = np.concatenate([p.latitude_deg for p in paths if p.latitude_deg is not None])
+    xy = proj.transform_points(ccrs.Geodetic(), lons, lats)[:, :2]
+    x0, x1, y0, y1 = ax.get_extent(crs=proj)
+    span = max(np.ptp(xy[:, 0]), np.ptp(xy[:, 1]))
+    assert max(x1 - x0, y1 - y0) <= 1.5 * span + 400e3
+    assert x0 <= xy[:, 0].min() and xy[:, 0].max() <= x1 and y0 <= xy[:, 1].min() and xy[:, 1].max() <= y1
+    # range rings labelled in km, a round step
+    rings = [t.get_text() for t in ax.texts if t.get_text().endswith(" km")]
+    assert rings and all(t.replace(",", "").removesuffix(" km").isdigit() for t in rings)
+    # the title names the transmitter, not a run ("by day") of the scenario
+    assert s.transmitter.name in ax.get_title() and s.title not in ax.get_title()
+
+
+def test_ring_step_gives_three_to_six_rings():
+    for reach in (450.0, 1200.0, 3500.0, 9000.0, 19000.0):
+        step = ring_step_km(reach)
+        assert 1 <= reach / step <= 6.0
+
+
+def test_twilight_and_night_shades_differ_in_grey():
+    # Grey print: luminance 0.299 R + 0.587 G + 0.114 B (ITU-R BT.601) of each shade over a white
+    # page, alpha-blended, must differ clearly (here by more than 0.2 of full scale).
+    from matplotlib.colors import to_rgb
+
+    def grey(shade):
+        rgb = np.array(to_rgb(shade["facecolor"]))
+        over_white = shade["alpha"] * rgb + (1 - shade["alpha"])
+        return float(over_white @ [0.299, 0.587, 0.114])
+
+    assert grey(TWILIGHT_SHADE) - grey(NIGHT_SHADE) > 0.2
+    assert TWILIGHT_SHADE.get("hatch") and not NIGHT_SHADE.get("hatch")
 
 
 def test_cli_map(tmp_path):
@@ -126,3 +175,13 @@ def test_cli_map(tmp_path):
     assert failed.exit_code == 1
     assert failed.output.strip().count("\n") == 0 and "no positions to map" in failed.output
     assert not (tmp_path / "r.png").exists()
+
+
+def test_cli_map_of_a_result_file_asks_for_the_scenario(tmp_path):
+    from cavity.cli import main
+
+    golden = Path(__file__).parent / "data" / "golden_day.nc"
+    result = CliRunner().invoke(main, ["map", str(golden), "-o", str(tmp_path / "m.png")])
+    assert result.exit_code == 1
+    lines = [line for line in result.output.splitlines() if line.strip()]
+    assert len(lines) == 1 and "is a result file" in lines[0] and "scenario" in lines[0]

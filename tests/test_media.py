@@ -10,7 +10,7 @@ from cavity.fdtd import grid, media
 
 
 def test_stability_limit_matches_axisymmetric_value():
-    # physics.md 2 (derived and time-stepped): c dt <= 0.6728 d for dr = dz = d.
+    # docs/physics.md 2 (derived and time-stepped): c dt <= 0.6728 d for dr = dz = d.
     assert grid.stability_factor(1.0) == pytest.approx(0.6728, abs=0.002)
     # 2-D Cartesian limit 1/sqrt(2) bounds it from above for any aspect ratio.
     for aspect in (0.5, 1.0, 1.5, 3.0):
@@ -34,7 +34,7 @@ def _discrete_plasma_permittivity(omega, dt, eps, wp2, nu):
 
 @pytest.mark.parametrize("wp_dt, nu_dt", [(0.05, 0.01), (3.0, 0.2), (40.0, 0.05), (200.0, 5.0)])
 def test_plasma_update_is_drude_at_the_bilinear_frequency(wp_dt, nu_dt):
-    # Drude permittivity eps_r = 1 - wp^2/(w (w - j nu)) (physics.md 3; exp(+j w t)); the trapezoidal
+    # Drude permittivity eps_r = 1 - wp^2/(w (w - j nu)) (docs/physics.md 3; exp(+j w t)); the trapezoidal
     # E-J update (Yu and Simpson 2010) realises it exactly at the bilinear-warped frequency.
     dt = 1e-6
     wp2, nu = (wp_dt / dt) ** 2, nu_dt / dt
@@ -117,7 +117,7 @@ def _cpml_1d_reflection(freqs, n_pml=20, cell=500.0, steps=6000):
 
 
 def test_cpml_reflects_less_than_minus_60_db_at_vlf():
-    # physics.md 4 (derived 1-D test): 20 cells, m = 3, alpha = 0 reflect about -80 dB or better
+    # docs/physics.md 4 (derived 1-D test): 20 cells, m = 3, alpha = 0 reflect about -80 dB or better
     # at normal incidence; we require -60 dB over 3-30 kHz on a 500 m grid.
     refl = _cpml_1d_reflection([3e3, 6e3, 12e3, 20e3, 30e3])
     assert np.all(refl < -60), refl
@@ -128,7 +128,7 @@ def test_cpml_reflects_less_than_minus_60_db_at_vlf():
     [(5.0, 70.0), (1e-2, 30.0), (1e-3, 15.0), (1e-4, 3.0), (3e-5, 3.0)],  # ITU-R P.527 classes
 )
 def test_recursive_ground_matches_leontovich_impedance(sigma, eps_r):
-    # Leontovich surface impedance Zs = sqrt(j w mu0/(sigma + j w eps)) (physics.md 5) against the
+    # Leontovich surface impedance Zs = sqrt(j w mu0/(sigma + j w eps)) (docs/physics.md 5) against the
     # impedance the recursive update realises (its exact z-transform), over 10-30 kHz.
     dt = 1.2e-6
     eta, q, w, err = media.impedance_fit(sigma, eps_r, dt, 10e3, 30e3)
@@ -150,7 +150,7 @@ def test_leontovich_good_conductor_limit():
 
 
 def test_flattening_and_spherical_correction():
-    # physics.md 7: sqrt(d/(a sin(d/a))) is +0.5 dB at 5 Mm and +2 dB at 10 Mm (Richter 1966 flattening).
+    # docs/physics.md 7: sqrt(d/(a sin(d/a))) is +0.5 dB at 5 Mm and +2 dB at 10 Mm (Richter 1966 flattening).
     corr = media.spherical_spreading_correction(np.array([5e6, 10e6]))
     assert 20 * np.log10(corr) == pytest.approx([0.5, 2.0], abs=0.15)
     assert media.flattening_factor(100e3)[()] == pytest.approx((1 + 100e3 / 6371e3) ** 2)

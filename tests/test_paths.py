@@ -44,7 +44,7 @@ def receiver_at(bearing_deg, range_km, tx=(0.0, 0.0)):
 
 def test_terminator_crossing_day_night_columns():
     # A path east along the equator from 0N 0E at 18:00 UTC on the 2026 March equinox day: the
-    # sun sets near longitude 2 E, so the path runs from day through the terminator into night. Rule under test (physics.md 1, common practice): day values for
+    # sun sets near longitude 2 E, so the path runs from day through the terminator into night. Rule under test (docs/physics.md 1, common practice): day values for
     # chi <= 90 deg, night values for chi >= 99 deg, linear between.
     s = load_scenario(scenario_text([{"latitude_deg": 0.0, "longitude_deg": 40.0}]))
     (path,) = build_paths(s)

@@ -25,7 +25,7 @@ PAIRS = [(71.8, 0.335), (85.1, 0.63), (74.0, 0.30), (60.0, 1.5), (95.0, 0.2)]
 
 @pytest.mark.parametrize("hprime_km, beta_per_km", PAIRS)
 def test_conductivity_parameter_at_hprime_is_2506e5(hprime_km, beta_per_km):
-    # Wait and Spies 1964 (NBS TN 300); physics.md 9.1: omega_r(h') = 2.506e5 /s for any h', beta.
+    # Wait and Spies 1964 (NBS TN 300); docs/physics.md 9.1: omega_r(h') = 2.506e5 /s for any h', beta.
     omega_r = profiles.conductivity_parameter(hprime_km * 1e3, hprime_km, beta_per_km)
     assert omega_r == pytest.approx(2.506e5, rel=2e-4)
 
@@ -39,7 +39,7 @@ def test_conductivity_parameter_grows_as_exp_beta(hprime_km, beta_per_km):
 
 
 def test_collision_frequency_at_70_km():
-    # Wait and Spies 1964; physics.md 9.1: nu(70 km) = 5.0e6 /s.
+    # Wait and Spies 1964; docs/physics.md 9.1: nu(70 km) = 5.0e6 /s.
     assert profiles.collision_frequency(70e3) == pytest.approx(5.0e6, rel=1e-3)
 
 
@@ -69,7 +69,7 @@ def test_electron_density_known_values():
 
 
 def test_plasma_frequency_constant_against_scipy():
-    # e^2 / (eps0 m_e) from scipy.constants (CODATA 2022) = 3182.6 rad^2 s^-2 m^3 (physics.md 1).
+    # e^2 / (eps0 m_e) from scipy.constants (CODATA 2022) = 3182.6 rad^2 s^-2 m^3 (docs/physics.md 1).
     expected = sc.e**2 / (sc.epsilon_0 * sc.m_e)
     assert profiles.plasma_frequency_squared(1.0) == pytest.approx(expected, rel=1e-8)
     assert round(float(profiles.plasma_frequency_squared(1.0)), 1) == 3182.6
@@ -191,7 +191,7 @@ def test_wait_spies_profile_dataset_layout():
 
 
 def test_presets_values_and_references():
-    # Published values (physics.md 1): Thomson et al. 2011, 2017, 2007; textbook values from memory.
+    # Published values (docs/physics.md 1): Thomson et al. 2011, 2017, 2007; textbook values from memory.
     expected = {
         "day": (71.8, 0.335, ["Thomson", "Clilverd", "Rodger", "2011", "116", "A03310"]),
         "day-2017": (72.8, 0.345, ["Thomson", "Clilverd", "Rodger", "2017", "Space Physics", "122"]),
@@ -223,7 +223,7 @@ def test_exponential_parameters_frozen_and_checked():
 
 
 def test_linear_transition_at_reference_angles():
-    # Common practice (physics.md 1): day values for chi <= 90, night for chi >= 99, linear between;
+    # Common practice (docs/physics.md 1): day values for chi <= 90, night for chi >= 99, linear between;
     # 94.5 deg is the midpoint.
     chi = np.array([80.0, 90.0, 94.5, 99.0, 120.0])
     hprime, beta = profiles.linear_transition(chi)
@@ -266,7 +266,7 @@ def test_parameters_for_zenith_with_a_user_rule():
 
 
 def test_terminator_zenith():
-    # physics.md 1: geometry chi = 90 + arccos(a / (a + h)): 97.8 deg at 60 km, 100.1 deg at 100 km.
+    # docs/physics.md 1: geometry chi = 90 + arccos(a / (a + h)): 97.8 deg at 60 km, 100.1 deg at 100 km.
     chi = profiles.terminator_zenith_deg(np.array([60e3, 100e3]))
     np.testing.assert_allclose(chi, [97.8, 100.1], atol=0.05)
     # Independent form (tangent-line geometry): the horizon dip angle satisfies tan = sqrt(2 a h + h^2)/a.

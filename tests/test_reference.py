@@ -23,7 +23,7 @@ def db(x):
 
 
 def wait_spies(altitude_m, hprime_km, beta_per_km):
-    """Wait and Spies (1964, NBS TN 300) profile, Ne capped above 100 km (physics.md 1), written here
+    """Wait and Spies (1964, NBS TN 300) profile, Ne capped above 100 km (docs/physics.md 1), written here
     so the reference stays independent of the profiles package."""
     z_km = np.asarray(altitude_m) / 1e3
     ne = 1.43e13 * math.exp(-0.15 * hprime_km) * np.exp((beta_per_km - 0.15) * (np.minimum(z_km, 100.0) - hprime_km))
@@ -114,17 +114,17 @@ def test_plate_mode_sum_equals_image_series():
     images = plates.parallel_plate_field_images(r, f, h, 1.0, images=50_000)
     assert np.all(np.abs(modal / images - 1) < 1e-6)
     # Close to the source the plates hardly matter: the field tends to the monopole on a ground
-    # (physics.md 6), the first image being 2h away.
+    # (docs/physics.md 6), the first image being 2h away.
     near = plates.parallel_plate_field(300.0, f, h, 1.0)
     assert abs(near / dipole.ground_level_field(300.0, f, 1.0) - 1) < 1e-3
 
 
 def test_tm_cutoff_and_two_mode_beat():
-    # physics.md 9.4: TM1 cutoff c/(2h) = 1763.5 Hz for h = 85 km.
+    # docs/physics.md 9.4: TM1 cutoff c/(2h) = 1763.5 Hz for h = 85 km.
     assert abs(plates.tm_cutoff_hz(85e3, 1) - 1763.5) < 0.1
     k1 = plates.plate_mode_wavenumbers(plates.tm_cutoff_hz(85e3, 1), 85e3, [1])[0]
     assert abs(k1) < 1e-12
-    # physics.md 9.5: PEC guide h = 70 km at 3 kHz, nulls every 333.5 km (within 2 %).
+    # docs/physics.md 9.5: PEC guide h = 70 km at 3 kHz, nulls every 333.5 km (within 2 %).
     beat = plates.two_mode_beat_distance_m(3e3, 70e3)
     assert abs(beat / 333.5e3 - 1) < 0.001
     r = np.linspace(100e3, 2500e3, 4801)
@@ -200,7 +200,7 @@ def test_modes_reproduce_parallel_plates_and_converge():
 
 
 def test_modes_two_mode_beat_with_ceiling():
-    # physics.md 9.5 again, from the stratified-guide solver: nulls every 333.5 km (within 2 %).
+    # docs/physics.md 9.5 again, from the stratified-guide solver: nulls every 333.5 km (within 2 %).
     z = np.arange(0.0, 70e3 + 1, 250.0)
     ms = modes.solve_modes(z, np.ones(z.size), 3e3, 0.0)
     assert np.isclose(ms.wavenumber[0].real - ms.wavenumber[1].real, 2 * math.pi / 333.5e3, rtol=0.002)
@@ -263,7 +263,7 @@ def test_modes_open_top_reproduce_sommerfeld_ground_wave():
 
 
 def test_ionosphere_permittivity_and_spreading():
-    # Wait-Spies (physics.md 1): omega_p^2 = 3182.6 Ne and omega_r(h') = omega_p^2 / nu = 2.506e5 /s.
+    # Wait-Spies (docs/physics.md 1): omega_p^2 = 3182.6 Ne and omega_r(h') = omega_p^2 / nu = 2.506e5 /s.
     f = 20e3
     omega = 2 * math.pi * f
     for hp, beta in ((71.8, 0.335), (85.1, 0.63)):
@@ -272,17 +272,17 @@ def test_ionosphere_permittivity_and_spreading():
         omega_p2 = (1 - eps) * omega * (omega - 1j * nu)
         assert abs(omega_p2 / ne - 3182.6) < 0.1
         assert abs(omega_p2.real / nu / 2.506e5 - 1) < 1e-3
-    # Earth flattening (Richter 1966; physics.md 7): whole permittivity times (1 + z/a)^2.
+    # Earth flattening (Richter 1966; docs/physics.md 7): whole permittivity times (1 + z/a)^2.
     flat = modes.ionosphere_permittivity(60e3, 0.0, 0.0, f, earth_flattening=True)
     assert abs(flat - (1 + 60e3 / 6371e3) ** 2) < 1e-12
-    # physics.md 7: sqrt(d / (a sin(d/a))) is +0.5 dB at 5 Mm and +2 dB at 10 Mm.
+    # docs/physics.md 7: sqrt(d / (a sin(d/a))) is +0.5 dB at 5 Mm and +2 dB at 10 Mm.
     gain = db(modes.spherical_spreading_correction(np.array([5e6, 10e6])))
     assert np.allclose(gain, [0.5, 2.0], atol=0.06)
 
 
 @pytest.fixture(scope="module")
 def day_night_modes():
-    # Sea (5 S/m, eps_r 70; ITU-R P.527 class, physics.md 5), 20 kHz, flattened earth, wall at
+    # Sea (5 S/m, eps_r 70; ITU-R P.527 class, docs/physics.md 5), 20 kHz, flattened earth, wall at
     # 120 km inside the capped D region, 100 m cells (converged: 50 m and 25 m change the least
     # attenuation by < 0.001 dB/Mm).
     f = 20e3
@@ -298,14 +298,14 @@ def day_night_modes():
 
 def test_day_night_attenuation_sanity(day_night_modes):
     # SANITY CHECK ONLY, wide tolerance: at 15-25 kHz over sea the least-attenuated mode loses
-    # roughly 2-3 dB per 1000 km by day and 1-2 by night (physics.md 9.10, from memory); day
+    # roughly 2-3 dB per 1000 km by day and 1-2 by night (docs/physics.md 9.10, from memory); day
     # (h' 71.8, beta 0.335; Thomson et al. 2011) and night (85.1, 0.63; Thomson et al. 2007).
     day = day_night_modes["day"].attenuation_db_per_mm[0]
     night = day_night_modes["night"].attenuation_db_per_mm[0]
     assert 1.5 < day < 4.0
     assert 0.5 < night < 2.5
     assert night < day
-    # (physics.md 9.10 also says day amplitudes are below night at long range. In this isotropic
+    # (docs/physics.md 9.10 also says day amplitudes are below night at long range. In this isotropic
     # model the night field beats between two modes of 1.3 and 2.9 dB/Mm, whose nulls pull its
     # range-averaged level down to the day one at 3-8 Mm, so that statement is not asserted.)
     # Modes are sorted by attenuation and carry Im k <= 0 (outgoing, decaying).
@@ -330,7 +330,7 @@ def test_modes_bad_input_names_the_field():
 
 
 def test_sommerfeld_integral_perfect_ground_is_the_dipole_field():
-    # Delta = 0: the Sommerfeld integral must give the near+far field of physics.md 6 exactly.
+    # Delta = 0: the Sommerfeld integral must give the near+far field of docs/physics.md 6 exactly.
     r = np.array([30.0, 3e3, 100e3, 1000e3])
     e = groundwave.impedance_plane_field(r, 20e3, 1.0, 0.0)
     assert np.allclose(e, dipole.ground_level_field(r, 20e3, 1.0), rtol=1e-9)
@@ -373,7 +373,7 @@ def test_norton_function_against_exact_integral_and_limits():
 
 
 def test_ground_wave_values_of_the_design_note():
-    # physics.md 9.8 quotes, at 20 kHz over 1e-4 S/m, eps_r 3: -0.7 dB at 100 km, -2.3 at 300 km,
+    # docs/physics.md 9.8 quotes, at 20 kHz over 1e-4 S/m, eps_r 3: -0.7 dB at 100 km, -2.3 at 300 km,
     # -7.9 at 1000 km. The exact Sommerfeld integral and the mode sum above give instead
     # -0.78 / -2.65 / -8.43 dB (|E / E_perfect|, near-field terms included) and F alone
     # -0.98 / -2.76 / -8.49 dB. The quoted numbers follow from F of the complex-conjugate numerical
@@ -386,3 +386,20 @@ def test_ground_wave_values_of_the_design_note():
     f_db = db(groundwave.attenuation_function(r, f, sigma, eps_r))
     assert np.all(np.abs(f_db - db(ratio)) < 0.25)  # F omits terms of order 1/(k d)
     assert np.all(np.abs(f_db[1:] - db(ratio[1:])) < 0.12)
+
+
+def test_verify_table_fits_100_columns_with_labelled_columns():
+    from cavity.checks.verify import TABLE_WIDTH, CheckResult, format_table
+
+    long = "x" * 150
+    results = [CheckResult("calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); " + long,
+                           "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km", "worst 0.042 dB", "0.2 dB",
+                           True, 6.4),
+               CheckResult("plasma stability", "Yu and Simpson 2010", "bounded for 100000 steps",
+                           "max |Ez| 2.9e-06", "finite, no growth", False, 20.0)]
+    text = format_table(results)
+    assert max(len(line) for line in text.splitlines()) <= TABLE_WIDTH <= 100
+    header = text.splitlines()[0]
+    for label in ("Check", "Expected", "Obtained", "Tolerance", "Result", "Time (s)"):
+        assert label in header
+    assert "FAIL" in text and "pass" in text and "[1]" in text and "[2]" in text

@@ -7,6 +7,7 @@ table and plot code against regressions.
 
 from __future__ import annotations
 
+import cmath
 import csv
 import io
 import math
@@ -21,10 +22,14 @@ from cavity.errors import CavityError
 from cavity.reports.tables import (
     EARTH_RADIUS_KM,
     attenuation_rate,
+    attenuation_rows,
     common_frequencies,
     comparison_figure,
     comparison_report,
     comparison_rows,
+    common_amplitude_limits,
+    display_phase_deg,
+    near_field_km,
     noise_in_bandwidth_db,
     plot_comparison,
     plot_result,
@@ -103,7 +108,7 @@ def synthetic(rate_db_per_1000km=2.0, freqs_khz=(20.0,), *, spreading="sphere", 
 
 
 def test_spreading_on_sphere_and_flat():
-    # Spherical spreading 1/sqrt(a sin(d/a)) against flat 1/sqrt(d) (design notes physics 7: the
+    # Spherical spreading 1/sqrt(a sin(d/a)) against flat 1/sqrt(d) (docs/physics.md 7: the
     # correction sqrt(d / (a sin(d/a))) is +0.5 dB at 5 Mm, +2 dB at 10 Mm, from memory).
     d = np.array([5000.0, 10000.0])
     extra = spreading_db(d, "flat") - spreading_db(d, "sphere")  # power ratio of the two, dB
@@ -132,6 +137,47 @@ def test_relative_phase_removes_the_light_delay():
     # A faster wave (phase velocity above c, as in the waveguide) gains phase on it.
     faster = phase / 1.003
     assert np.all(np.diff(relative_phase_deg(faster, d, f)) > 0)
+
+
+def test_display_phase_is_wrapped_relative_phase():
+    # The one phase of tables and plots: phase + 360 f d / c wrapped to (-180, 180]; checked
+    # against numpy's angle of the complex exponential, which wraps to (-180, 180] by definition.
+    rng = np.random.default_rng(3)
+    phase = rng.uniform(-90000.0, 1000.0, 500)
+    d = rng.uniform(1.0, 5000.0, 500)
+    shown = display_phase_deg(phase, d, 22.3)
+    light = 360.0 * 22.3e3 * d * 1e3 / C0
+    assert np.allclose(np.exp(1j * np.radians(shown)), np.exp(1j * np.radians(phase + light)), atol=1e-9)
+    assert shown.min() > -180.0 and shown.max() <= 180.0
+    assert float(display_phase_deg(-180.0, 0.0, 20.0)) == 180.0  # the closed end of (-180, 180]
+
+
+def test_near_field_band_holds_the_phase_turn():
+    # Short vertical dipole on a perfect ground plane, Ez proportional to
+    # (1 + 1/(jkd) + 1/(jkd)^2) exp(-jkd) / d (Jackson, Classical Electrodynamics, 3rd ed., 9.2;
+    # exp(+j omega t)). Beyond the band the phase is within 10 deg of the far field; inside it the
+    # phase turns by up to 180 deg, the steep rise at the start of a plot.
+    f = 22.3
+    edge = near_field_km(f)
+    k = 2 * np.pi * f * 1e3 / C0
+    def bracket_phase(d_km):
+        kd = k * np.asarray(d_km) * 1e3
+        return np.degrees(np.angle(1 + 1 / (1j * kd) + 1 / (1j * kd) ** 2))
+    assert np.all(np.abs(bracket_phase(np.linspace(edge, 50 * edge, 400))) < 10.0)
+    assert abs(bracket_phase(0.01 * edge)) > 170.0
+
+
+def test_common_amplitude_limits_cover_both_runs():
+    day = synthetic(3.0, e0_db=80.0)
+    night = synthetic(1.0, ionosphere='preset = "night"', e0_db=95.0)
+    lo, hi = common_amplitude_limits([day, night])
+    for ds in (day, night):
+        a = ds["ez_amplitude"].values[0, 0, 1:]
+        assert lo < np.percentile(a, 1) and hi > np.percentile(a, 99)
+    fig_d = result_figure(day, amplitude_limits=(lo, hi))
+    fig_n = result_figure(night, amplitude_limits=(lo, hi))
+    assert fig_d.axes[0].get_ylim() == fig_n.axes[0].get_ylim() == (lo, hi)
+    assert fig_d.axes[1].get_ylim() == fig_n.axes[1].get_ylim() == (-180.0, 180.0)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -243,7 +289,9 @@ def test_csv_table_parses_and_equals_the_file():
         assert float(row["frequency_khz"]) == float(ds["frequency"].values[k])
         assert abs(float(row["ez_db_re_1uv_per_m"]) - ez) <= 0.0005
         assert abs(float(row["b_db_re_1ft"]) - float(ds["receiver_b_amplitude"].values[i, k])) <= 0.0005
-        assert abs(float(row["ez_phase_deg"]) - float(ds["receiver_ez_phase"].values[i, k])) <= 0.005
+        light = 360.0 * float(ds["frequency"].values[k]) * 1e3 * float(ds["receiver_range"].values[i]) * 1e3 / C0
+        expected = math.degrees(cmath.phase(cmath.exp(1j * math.radians(float(ds["receiver_ez_phase"].values[i, k]) + light))))
+        assert abs((float(row["ez_phase_re_c_delay_deg"]) - expected + 180.0) % 360.0 - 180.0) <= 0.005
         assert abs(float(row["range_km"]) - float(ds["receiver_range"].values[i])) <= 0.005
         assert float(row["ez_uv_per_m"]) == pytest.approx(10 ** (ez / 20), rel=1e-5)
         assert abs(float(row["margin_db"]) - (ez - 45.5)) <= 0.0005
@@ -256,7 +304,8 @@ def test_markdown_table_parses_escapes_and_ends_with_cautions():
     text = receiver_table(ds, "markdown", noise_db=0.0, bandwidth_hz=1000.0)
     table = parse_markdown(text)
     header, body = table[0], table[1:]
-    assert header[:4] == ["Receiver", "Frequency (kHz)", "Range (km)", "Bearing (deg)"]
+    assert header[:3] == ["Receiver", "Frequency (kHz)", "Range (km)"]
+    assert "Bearing (deg)" not in header and "range only" in text.split("\n| ")[0]  # said once, above
     assert "SNR in 1000 Hz (dB)" in header
     assert [r[0] for r in body] == ["Site North", "Site | Mid", "Site South"]  # "|" escaped in the cell
     for i, row in enumerate(body):
@@ -265,7 +314,6 @@ def test_markdown_table_parses_escapes_and_ends_with_cautions():
         assert abs(float(cells["Ez (dB re 1 uV/m)"]) - ez) <= 0.05
         assert float(cells["SNR in 1000 Hz (dB)"]) == pytest.approx(ez - 30.0, abs=0.05)
         assert cells["Day/night"] == "night"
-        assert cells["Bearing (deg)"] == ""
     lines = text.rstrip("\n").splitlines()
     assert lines[-1].startswith("Cautions: Predictions are planning estimates")
     assert any(line.startswith("SNR = Ez - (N0 + 10 log10(B))") for line in lines)
@@ -358,7 +406,12 @@ def test_result_figure_draws_the_file_values():
         assert np.array_equal(x, r[1:]) and np.array_equal(y, ds["ez_amplitude"].values[0, k, 1:])
         x, y = ax_p.lines[0].get_data()
         expected = relative_phase_deg(ds["ez_phase"].values[0, k, 1:], r[1:], ds["frequency"].values[k])
-        assert np.allclose(y, expected)
+        # wrapped to (-180, 180], with NaN breaks where it wraps (no vertical lines across the panel)
+        drawn = np.isfinite(y)
+        assert np.array_equal(x[drawn], r[1:])
+        assert np.allclose(np.exp(1j * np.radians(y[drawn])), np.exp(1j * np.radians(expected)))
+        assert y[drawn].min() > -180.0 and y[drawn].max() <= 180.0
+        assert ax_p.get_ylim() == (-180.0, 180.0)
         assert "dB re 1 uV/m" in ax_a.get_ylabel() and "(km)" in ax_p.get_xlabel()
         assert "(deg)" in ax_p.get_ylabel()
         assert f"{ds['frequency'].values[k]:g} kHz" in ax_a.get_title()
@@ -387,6 +440,79 @@ def test_comparison_figure(tmp_path):
     fig = comparison_figure(day, night, "day", "night")
     labels = [line.get_label() for line in fig.axes[0].lines]
     assert "day" in labels and "night" in labels
+
+
+def with_null(ds, at_km, depth_db, width_km=15.0):
+    """A copy of a result with a Gaussian dip cut into its field curves (a synthetic modal null)."""
+    out = ds.copy(deep=True)
+    r = out["range"].values
+    out["ez_amplitude"].values[...] -= depth_db * np.exp(-0.5 * ((r - at_km) / width_km) ** 2)
+    return out
+
+
+def test_comparison_title_names_station_frequency_and_power():
+    day = synthetic(2.5, (20.0,))
+    night = synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0)
+    doc = tomllib.loads(str(day.attrs["scenario"]))
+    title = comparison_figure(day, night, "day", "night")._suptitle.get_text()
+    assert doc["transmitter"]["name"] in title and "20 kHz" in title
+    assert f"{doc['transmitter']['radiated_power_kw']:g} kW" in title and "day and night" in title
+
+
+def test_comparison_keeps_a_night_null_in_view_and_marks_a_deeper_one():
+    day = synthetic(2.5, (20.0,))
+    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0), 1200.0, 35.0)
+    ax = comparison_figure(day, night, "day", "night").axes[0]
+    floor = ax.get_ylim()[0]
+    r = night["range"].values
+    far = r > near_field_km(20.0)
+    assert floor <= night["ez_amplitude"].values[0, 0][far].min()  # the whole null is on the axes
+    # a null deeper than the axis span is clipped at the floor and marked with its depth
+    deep = with_null(night, 2000.0, 120.0)
+    ax = comparison_figure(day, deep, "day", "night").axes[0]
+    floor = ax.get_ylim()[0]
+    assert floor > deep["ez_amplitude"].values[0, 0][far].min()
+    marks = [line for line in ax.lines if line.get_marker() == "v"]
+    assert marks and all(line.get_ydata()[0] == floor for line in marks)
+    assert any(abs(line.get_xdata()[0] - 2000.0) <= 10.0 for line in marks)
+    assert any(t.get_text().startswith("null ") for t in ax.texts)
+
+
+def test_comparison_ground_strip_follows_the_ground_used():
+    day = synthetic(2.5, (20.0,))
+    night = synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0)
+    for ds in (day, night):  # land (1e-3 S/m, ITU-R P.527 medium dry ground) from 1000 to 2000 km
+        r = ds["range"].values
+        ds["ground_conductivity"].values[:, (r >= 1000) & (r < 2000)] = 1e-3
+    from cavity.reports.tables import ground_classes_along
+
+    cls = ground_classes_along(day)
+    r = day["range"].values
+    assert set(cls[(r >= 1000) & (r < 2000)]) == {"land"} and set(cls[r < 1000]) == {"sea"}
+    strip = comparison_figure(day, night, "day", "night").axes[1]
+    assert [t.get_text() for t in strip.get_yticklabels()] == ["ground"]  # shared by both runs: one strip
+    legend = [t.get_text() for t in strip.get_legend().get_texts()]
+    assert legend == ["sea", "land"]
+
+
+def test_rough_fits_and_receivers_near_nulls_are_marked_on_their_rows():
+    # A 6 dB ripple over a 700 km period leaves a residual above 2 dB: common practice reads such a
+    # slope as modal interference, not the guide's attenuation.
+    day = synthetic(2.5, (20.0,))
+    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0, ripple_db=6.0),
+                      1500.0, 25.0)
+    fits = attenuation_rows([day, night], ["day", "night"])
+    notes = {row["run"]: row["note"] for row in fits}
+    assert notes["day"] == "" and notes["night"].startswith("rough slope")
+    legend = [line.get_label() for line in comparison_figure(day, night, "day", "night", fits=fits).axes[0].lines]
+    assert any(lbl.startswith("fit night") and "rough" in lbl for lbl in legend)
+    assert any(lbl.startswith("fit day") and "rough" not in lbl for lbl in legend)
+    rows = comparison_rows(day, night, "day", "night")
+    marked = {row["receiver"]: row["note"] for row in rows}
+    assert marked["Site | Mid"] == "near a night modal null"  # receiver at 1500 km, the null's centre
+    assert marked["Site North"] == "" and marked["Site South"] == ""
+    text = comparison_report(day, night, "day", "night")
+    assert "near a night modal null" in text and "rough slope" in text
 
 
 # --------------------------------------------------------------------------------------------------
@@ -464,3 +590,43 @@ def test_write_then_table_round_trip(tmp_path):
     ds = synthetic(2.0, (16.0, 31.5))
     path = write_result(ds, tmp_path / "r.nc")
     assert receiver_table(open_result(path), "csv") == receiver_table(ds, "csv")
+
+
+# --------------------------------------------------------------------------------------------------
+# The memo table: header line, bearing once per path, run labels, negative margins
+# --------------------------------------------------------------------------------------------------
+
+
+def test_markdown_table_opens_with_the_run_and_flags_short_margins():
+    day = synthetic(2.0, (16.0,), bearings=[171.0, 171.0, 171.0])
+    night = synthetic(1.0, (16.0,), ionosphere='preset = "night"', e0_db=60.0, bearings=[171.0, 171.0, 171.0])
+    text = receiver_table([day, night], "markdown", required_db=40.0)
+    head = text.split("\n| ")[0]
+    # the header names transmitter, frequency, power and ionosphere as the embedded scenario gives them
+    doc = tomllib.loads(str(day.attrs["scenario"]))
+    for fragment in (doc["transmitter"]["name"], "16 kHz", f"{doc['transmitter']['radiated_power_kw']:g} kW",
+                     'preset "day"', 'preset "night"', "time"):
+        assert fragment in head, fragment
+    rows = parse_markdown(text)
+    header, body = rows[0], rows[1:]
+    assert header[0] == "Run" and {r[0] for r in body} == {"day", "night"}  # labels, not file names
+    assert "Bearing (deg)" not in header and "range only" in head  # once, in the header
+    margin = header.index("Margin over 40 dB (dB)")
+    ez = header.index("Ez (dB re 1 uV/m)")
+    for r in body:
+        short = float(r[ez]) < 40.0
+        assert r[margin].endswith("(short)") == short
+    assert any(r[margin].endswith("(short)") for r in body)  # the night run falls short far out
+
+
+def test_bearing_shown_once_per_path():
+    ds = open_result(GOLDEN["dawn"])  # two paths: 171.0 deg and 173.7 deg
+    rows = parse_markdown(receiver_table(ds, "markdown"))
+    header, body = rows[0], rows[1:]
+    col = header.index("Path bearing (deg)")
+    shown = [r[col] for r in body if r[col]]
+    bearings = sorted(float(b) for b in ds["path_bearing"].values)
+    assert sorted(float(b) for b in shown) == pytest.approx(bearings, abs=0.05)
+    # CSV keeps every receiver's own bearing on every row
+    csv_rows = list(csv.DictReader(io.StringIO(receiver_table(ds, "csv"))))
+    assert all(r["bearing_deg"] for r in csv_rows)

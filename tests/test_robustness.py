@@ -361,7 +361,7 @@ def test_grid_too_large_is_refused_before_allocation(tmp_path, monkeypatch):
 # A run that goes numerically unstable
 # ----------------------------------------------------------------------------------------------
 def test_unstable_run_stops_naming_step_and_region(tmp_path, monkeypatch):
-    """A time step 1.5 x the stability limit (physics.md 2: the leapfrog scheme diverges above it)
+    """A time step 1.5 x the stability limit (docs/physics.md 2: the leapfrog scheme diverges above it)
     must be stopped by the engine's guard with the step and region, and no result file written."""
     import cavity.solve  # noqa: F401  (the module, for monkeypatching)
 

@@ -3,8 +3,8 @@
 Outside references: the exact field of a vertical source between perfectly conducting plates as a
 mode sum (Wait 1960, J. Res. NBS 64D(2) 153; scipy.special.hankel2), evaluated here for the
 transmission-line channel and turned into waveforms by inverse FFT; the TM1 cutoff c/(2h)
-(physics.md 9.4); the Fourier transform of a Gaussian and the Butterworth magnitude response
-(closed forms); observed night-time tweek cutoffs 1.65-2.0 kHz (physics.md 9.9).
+(docs/physics.md 9.4); the Fourier transform of a Gaussian and the Butterworth magnitude response
+(closed forms); observed night-time tweek cutoffs 1.65-2.0 kHz (docs/physics.md 9.9).
 """
 
 from __future__ import annotations
@@ -89,7 +89,7 @@ def plate_waveforms(stroke, range_m, height_m, *, f_max=8e3, fs=100e3, duration=
 
 @pytest.mark.parametrize("range_m", [500e3, 2000e3])
 def test_cutoff_estimator_on_the_exact_plate_field(range_m):
-    # Plates 85 km apart: TM1 cutoff c/(2h) = 1763.5 Hz (physics.md 9.4). Estimated from 20 ms of the
+    # Plates 85 km apart: TM1 cutoff c/(2h) = 1763.5 Hz (docs/physics.md 9.4). Estimated from 20 ms of the
     # exact mode-sum waveform: the magnetic tail within 0.1 %, Ez within 0.6 % (its tail carries a
     # quadrature term that biases it by a few tenths of a per cent).
     h = 85e3
@@ -188,7 +188,7 @@ def test_waveform_between_plates_matches_the_mode_sum():
 
 def test_waveform_over_perfect_ground_matches_the_dipole_field():
     # No ionosphere, perfect ground, 100 km: the ground-level field of a vertical dipole with current
-    # moment M(t) and charge moment p(t) = int M dt, the time-domain form of physics.md 6's
+    # moment M(t) and charge moment p(t) = int M dt, the time-domain form of docs/physics.md 6's
     # Ez = -j eta0 k M/(2 pi d) (1 + 1/(j k d) - 1/(k d)^2) (Uman, McLain and Krider 1975, Am. J. Phys.
     # 43(1) 33):  Ez = -(1/(2 pi eps0)) (p/d^3 + M/(c d^2) + M'/(c^2 d)),  Hphi = (M/d^2 + M'/(c d))/(2 pi),
     # at t - d/c; M = v (q(t) - q(t - H/v)) for the TL channel with q the charge through the base
@@ -282,7 +282,7 @@ def test_source_section_defaults_and_round_trip():
     s = load_scenario(PLATES)
     src = s.source
     assert (src.peak_current_a, src.rise_time_constant_s, src.decay_time_constant_s, src.heidler_exponent) == (
-        28e3, pytest.approx(1.8e-6), pytest.approx(95e-6), 2.0)  # physics.md 6 first stroke
+        28e3, pytest.approx(1.8e-6), pytest.approx(95e-6), 2.0)  # docs/physics.md 6 first stroke
     assert src.channel_speed_fraction == 0.5 and src.channel_height_m == 7.5e3
     assert src.record_s == pytest.approx(6e-3) and src.band_hz == (500.0, 10e3)
     assert load_scenario(s.to_toml()) == s
@@ -354,7 +354,7 @@ def test_sferic_result_file(plate_run):
         arrival = r_km * 1e3 / C0
         before = ds.lag.values < arrival - 2.5 / 10e3
         assert np.max(np.abs(ez[i, before])) < 1e-2 * np.max(np.abs(ez[i]))
-    # the guided pulse's leading edge is a TEM wave: B = -Ez/c there (physics.md 6: B = E/c far out)
+    # the guided pulse's leading edge is a TEM wave: B = -Ez/c there (docs/physics.md 6: B = E/c far out)
     i = 1
     k = int(np.argmax(np.abs(ez[i])))
     assert b[i, k] == pytest.approx(-ez[i, k] / C0, rel=0.15)
@@ -428,7 +428,7 @@ def test_carrier_scenarios_and_files_are_refused(tmp_path):
 
 @pytest.mark.slow
 def test_plate_guide_cutoff_from_an_impulsive_run():
-    # physics.md 9.4: plates 85 km apart, TM1 cutoff c/(2h) = 1763.5 Hz within 1 %, from the sferic
+    # docs/physics.md 9.4: plates 85 km apart, TM1 cutoff c/(2h) = 1763.5 Hz within 1 %, from the sferic
     # at 500 km (22 ms record, flat earth). 15-30 s on one core; measured 1765.7 Hz (+0.13 %).
     from cavity import load_scenario
     from cavity.solve import simulate_sferic
@@ -446,11 +446,11 @@ def test_plate_guide_cutoff_from_an_impulsive_run():
 
 @pytest.mark.slow
 def test_night_cutoff_from_an_impulsive_run():
-    # physics.md 9.9: night profile h' = 85.1 km, beta = 0.63 /km over sea (flat earth), receivers at
+    # docs/physics.md 9.9: night profile h' = 85.1 km, beta = 0.63 /km over sea (flat earth), receivers at
     # 500 and 1000 km, 25 ms record. The lowest cutoff read from the tail lies in the observed tweek
     # range 1.65-2.0 kHz, and within 2 % of where the independent frequency-domain mode solution
     # (cavity.reference.modes) has the TM1 mode's Re(k^2) cross zero. About 2 minutes on one core;
-    # measured 1721.6 and 1735.5 Hz against 1720.3 Hz (physics.md 9.9 expects 1.8-1.9 kHz; see the README).
+    # measured 1721.6 and 1735.5 Hz against 1720.3 Hz (docs/physics.md 9.9 expects 1.8-1.9 kHz; see the README).
     import profiles
     from cavity import load_scenario
     from cavity.reference import modes

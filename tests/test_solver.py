@@ -1,4 +1,4 @@
-"""The time-domain solver against outside references (physics.md 9), plus engine behaviour.
+"""The time-domain solver against outside references (docs/physics.md 9), plus engine behaviour.
 
 The checks themselves live in :mod:`cavity.checks.verify` (also run by ``cavity verify``); each names its
 source. Long-range comparisons are marked slow (``pytest -m slow``).
@@ -24,7 +24,7 @@ def test_calibration_300_mv_per_m_at_1_km():
 
 
 def test_two_mode_beat_in_a_conducting_guide():
-    # physics.md 9.5 / Wait 1960: h = 70 km at 3 kHz, nulls every 333.5 km within 2 %.
+    # docs/physics.md 9.5 / Wait 1960: h = 70 km at 3 kHz, nulls every 333.5 km within 2 %.
     _assert(verify.check_two_mode_beat())
 
 
@@ -34,12 +34,12 @@ def test_parallel_plates_mode_sum():
 
 
 def test_absorbers_reflect_less_than_minus_40_db():
-    # physics.md 9.6: far-end and top CPML against a larger domain.
+    # docs/physics.md 9.6: far-end and top CPML against a larger domain.
     _assert(verify.check_absorbers())
 
 
 def test_dense_plasma_stays_bounded():
-    # physics.md 9.7 / Yu and Simpson 2010: omega_p dt >> 1 bounded for 1e5 steps.
+    # docs/physics.md 9.7 / Yu and Simpson 2010: omega_p dt >> 1 bounded for 1e5 steps.
     _assert(verify.check_plasma_stability())
 
 
@@ -68,7 +68,7 @@ def _small_guide(**kw):
 
 
 def test_serial_and_parallel_kernels_give_identical_fields():
-    # style.md 7: each column is updated independently, so thread count must not change a bit.
+    # docs/physics.md 11: each column is updated independently, so thread count must not change a bit.
     import numba
 
     medium, settings = _small_guide(max_duration_s=2e-3)
@@ -85,7 +85,7 @@ def test_serial_and_parallel_kernels_give_identical_fields():
 
 
 def test_unstable_run_stops_with_step_and_region():
-    # A time step above the stability limit (physics.md 2) must end in a clear error, not garbage.
+    # A time step above the stability limit (docs/physics.md 2) must end in a clear error, not garbage.
     medium, settings = _small_guide(courant_safety=1.5, max_duration_s=5e-3)
     with pytest.raises(SolverError) as err:
         eng.run(medium, settings)
@@ -105,7 +105,7 @@ def test_transfer_function_is_independent_of_the_waveform():
 
 
 def test_source_calibration_formula():
-    # ITU-R P.368 / physics.md 6: P = 160 pi^2 (I l / lambda)^2.
+    # ITU-R P.368 / docs/physics.md 6: P = 160 pi^2 (I l / lambda)^2.
     from cavity.fdtd.source import moment_for_power
 
     m = moment_for_power(1e3, 20e3)

@@ -59,7 +59,7 @@ def minutes(a: datetime, b: datetime) -> float:
 def test_day_length_at_midsummer_matches_the_sunrise_equation():
     # Sunrise equation for the geometric horizon: cos H0 = -tan(phi) tan(delta) (Meeus 1998,
     # Astronomical Algorithms, ch. 15, with h0 = 0); delta = 23.439 deg at the June solstice
-    # (the obliquity; physics.md check value 23.439 deg zenith at 0N 0E, 2024-06-21 12:00 UTC).
+    # (the obliquity; docs/physics.md check value 23.439 deg zenith at 0N 0E, 2024-06-21 12:00 UTC).
     phi, delta = math.radians(51.5), math.radians(23.439)
     expected_h = 2 * math.degrees(math.acos(-math.tan(phi) * math.tan(delta))) / 15.0  # 16.40 h
     events = sun_crossings(51.5, 0.0, datetime(2024, 6, 21, tzinfo=UTC), datetime(2024, 6, 22, tzinfo=UTC))
@@ -122,9 +122,13 @@ def test_table_gives_min_median_max_and_their_instants():
     empty = table_diurnal(all_nan).iloc[2]
     assert empty["instants"] == 0 and math.isnan(empty["ez_min_db"]) and empty["utc_of_min"] == ""
     md = format_diurnal_table(table)
-    assert md.splitlines()[0].startswith("| receiver | range, km | frequency, kHz")
+    # the receiver table's style: "Name (unit)" headers, cells padded to a common width per column
+    lines = md.splitlines()
+    cells = [[c.strip() for c in line.strip("|").split("|")] for line in lines]
+    assert cells[0][:3] == ["Receiver", "Range (km)", "Frequency (kHz)"]
+    assert len({len(line) for line in lines}) == 1  # padded: every line equally long
     # frequency 27.6 kHz: 60 + 2.76 - 5 = 57.76 dB at its minimum (the synthetic formula above)
-    assert "| Quarry Hill | 1000 | 27.6 | 48 | 57.8 |" in md
+    assert ["Quarry Hill", "1000.0", "27.60", "48", "57.8"] in [row[:5] for row in cells]
     csv = format_diurnal_table(table, "csv")
     assert csv.splitlines()[1].startswith("Quarry Hill,1000.00,16.00,49,56.60,")
     with pytest.raises(ValueError, match="fmt"):
@@ -217,7 +221,7 @@ def test_day_and_night_medians_follow_the_sun_along_each_receivers_path():
     close = table.iloc[2]
     assert close["day_instants"] == 2 and close["ez_day_median_db"] == pytest.approx(100.0 - 5.0 - 3.5)
     md = format_diurnal_table(table)
-    assert "night - day, dB" in md.splitlines()[0] and "| +5.0 |" in md
+    assert "Night - day (dB)" in md.splitlines()[0] and md.splitlines()[2].rstrip(" |").endswith(" 5.0")
     assert "night_minus_day_db" not in table_diurnal(synthetic_sweep()).columns
 
 

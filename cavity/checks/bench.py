@@ -102,12 +102,26 @@ def measure_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps
     return Rates(nr, nz, memory_bandwidth_gb_per_s(), minimal, engine, numba.get_num_threads())
 
 
+#: Full-engine rates measured by ``cavity bench`` on the development machine (2 cores, idle, two
+#: threads), cell updates per second: the range ``cavity inspect`` uses for its run-time estimate.
+REFERENCE_ENGINE_RATES = (0.5e9, 0.7e9)
+#: What that reference machine is, for the estimate's label.
+REFERENCE_MACHINE = "a 2-core machine like the development one, idle"
+
+
+def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]:
+    """Run time of the solves of ``grids`` (GridPlans) from the cost model, fastest and slowest rate, s."""
+    updates = sum(g.expected_cell_updates for g in grids)
+    return updates / max(rates), updates / min(rates)
+
+
 def predict_wall_time_s(rate_cells_per_s: float, max_range_km: float, frequency_khz: float,
                         cell_m: float | None = None, top_km: float = 120.0) -> tuple[float, object]:
     """Predicted stepping time of a run from a measured engine rate (and its grid plan).
 
     The run's cell updates are those the engine is expected to make
-    (:attr:`cavity.fdtd.grid.GridPlan.stepped_cell_updates`: columns ahead of the wave are skipped).
+    (:attr:`cavity.fdtd.grid.GridPlan.expected_cell_updates`: columns ahead of the wave are skipped,
+    and the usual steps to convergence are added).
     """
     from cavity.fdtd import engine as eng
 
@@ -118,7 +132,7 @@ def predict_wall_time_s(rate_cells_per_s: float, max_range_km: float, frequency_
                                 profiles.collision_frequency(z))
     plan = eng.make_plan(medium, eng.Settings(frequencies_hz=(frequency_khz * 1e3,), max_range_m=max_range_km * 1e3,
                                               top_m=top_km * 1e3, dr_m=cell_m, dz_m=cell_m))
-    return plan.grid.stepped_cell_updates / rate_cells_per_s, plan.grid
+    return plan.grid.expected_cell_updates / rate_cells_per_s, plan.grid
 
 
 def peak_memory_bytes() -> int:

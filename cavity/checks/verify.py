@@ -1,4 +1,4 @@
-"""Checks of the time-domain solver against references outside it (physics.md 9).
+"""Checks of the time-domain solver against references outside it (docs/physics.md 9).
 
 Each check runs the engine on a small, purpose-built waveguide and compares with a closed form or
 with the independent frequency-domain solutions of :mod:`cavity.reference`. ``cavity verify`` runs
@@ -91,7 +91,7 @@ def check_calibration() -> CheckResult:
                                                 F_CHECK, m))
     worst = float(np.max(np.abs(np.r_[err_far, err_near])))
     return CheckResult(
-        "calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); near field physics.md 6",
+        "calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); near field docs/physics.md 6",
         "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km",
         f"worst {worst:.3f} dB", "0.2 dB", worst <= 0.2, time.perf_counter() - t0,
         detail=f"far {np.round(err_far, 3).tolist()} dB, near {np.round(err_near, 3).tolist()} dB",
@@ -146,7 +146,7 @@ def check_two_mode_beat() -> CheckResult:
     want = two_mode_beat_distance_m(f, h)
     err = abs(spacing / want - 1)
     return CheckResult(
-        "two-mode beat", "Wait 1960 mode sum; physics.md 9.5", f"{want / 1e3:.1f} km",
+        "two-mode beat", "Wait 1960 mode sum; docs/physics.md 9.5", f"{want / 1e3:.1f} km",
         f"{spacing / 1e3:.1f} km ({len(pos)} nulls)", "2 %", err <= 0.02, time.perf_counter() - t0,
     )
 
@@ -169,7 +169,7 @@ def check_absorbers() -> CheckResult:
     top = float(np.max(_db((small.ez[0] - big.ez[0])[sel] / big.ez[0][sel])))
     worst = max(far, top)
     return CheckResult(
-        "absorbers (CPML)", "Roden and Gedney 2000; physics.md 9.6", "below -40 dB",
+        "absorbers (CPML)", "Roden and Gedney 2000; docs/physics.md 9.6", "below -40 dB",
         f"far end {far:.1f} dB, top {top:.1f} dB", "-40 dB", worst <= -40.0, time.perf_counter() - t0,
     )
 
@@ -191,7 +191,7 @@ def check_plasma_stability(steps: int = 100_000) -> CheckResult:
     peak_end = float(np.max(np.abs(sim.ez)))
     ok = res.steps >= steps and math.isfinite(peak_end)
     return CheckResult(
-        "plasma stability", "Yu and Simpson 2010, IEEE TAP 58(2) 469; physics.md 9.7",
+        "plasma stability", "Yu and Simpson 2010, IEEE TAP 58(2) 469; docs/physics.md 9.7",
         f"bounded for {steps} steps at omega_p dt = {wp_dt:.0f}", f"{res.steps} steps, max |Ez| {peak_end:.2g}",
         "finite, no growth", ok, time.perf_counter() - t0,
     )
@@ -276,7 +276,7 @@ def check_ionosphere(label, f_hz, hprime_km, beta_per_km, conductivity, permitti
 
 
 def check_day_below_night(f_hz=20e3, conductivity=5.0, permittivity=70.0, max_range_m=3000e3) -> CheckResult:
-    """Beyond 1,500 km the day field lies below the night field (common practice; physics.md 9.10).
+    """Beyond 1,500 km the day field lies below the night field (common practice; docs/physics.md 9.10).
 
     Compared as the mean dB level over 1,500 km to the end, so single modal nulls do not decide it.
     """
@@ -287,7 +287,7 @@ def check_day_below_night(f_hz=20e3, conductivity=5.0, permittivity=70.0, max_ra
     d, n = float(np.mean(_db(day.ez[0][sel]))), float(np.mean(_db(night.ez[0][sel])))
     share = float(np.mean(_db(day.ez[0][sel]) < _db(night.ez[0][sel])))
     return CheckResult(
-        f"day below night {f_hz / 1e3:g} kHz", "common practice (physics.md 9.10, from memory)",
+        f"day below night {f_hz / 1e3:g} kHz", "common practice (docs/physics.md 9.10, from memory)",
         "night mean level above day, 1500 km on", f"day {d:.1f} dB, night {n:.1f} dB; day lower at "
         f"{100 * share:.0f} % of ranges", "night > day", n > d, time.perf_counter() - t0,
     )
@@ -329,14 +329,32 @@ def run_checks(full: bool = False, only: list[str] | None = None, progress=None)
     return out
 
 
+#: Widest line of :func:`format_table`, characters.
+TABLE_WIDTH = 100
+
+
 def format_table(results: list[CheckResult]) -> str:
-    """Plain-text table: check, source, expected, obtained, tolerance, pass/fail, seconds."""
-    header = ["check", "source", "expected", "obtained", "tolerance", "result", "s"]
-    rows = [[r.name, r.source, r.expected, r.obtained, r.tolerance, "pass" if r.passed else "FAIL",
-             f"{r.seconds:.0f}"] for r in results]
-    widths = [max(len(str(x)) for x in col) for col in zip(header, *rows)]
-    lines = ["  ".join(str(c).ljust(w) for c, w in zip(row, widths)).rstrip() for row in [header, *rows]]
-    lines.insert(1, "  ".join("-" * w for w in widths))
+    """Plain-text table at most :data:`TABLE_WIDTH` characters wide: check, expected, obtained,
+    tolerance, result and time (s), cells wrapped onto more lines; sources numbered below it."""
+    import textwrap
+
+    sources = list(dict.fromkeys(r.source for r in results))
+    header = ["Check [source]", "Expected", "Obtained", "Tolerance", "Result", "Time (s)"]
+    widths = [22, 22, 22, 10, 6, 8]
+    rows = [[f"{r.name} [{sources.index(r.source) + 1}]", r.expected, r.obtained, r.tolerance,
+             "pass" if r.passed else "FAIL", f"{r.seconds:.0f}"] for r in results]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip(),
+             "  ".join("-" * w for w in widths)]
+    for row in rows:
+        cells = [textwrap.wrap(str(c), w) or [""] for c, w in zip(row, widths)]
+        for k in range(max(len(c) for c in cells)):
+            parts = [(c[k] if k < len(c) else "").ljust(w) for c, w in zip(cells, widths)]
+            lines.append("  ".join(parts).rstrip())
+    lines.append("")
+    lines.append("Sources:")
+    for n, source in enumerate(sources, 1):
+        lines += textwrap.wrap(source, TABLE_WIDTH - 6, initial_indent=f"[{n}]".ljust(5) + " ",
+                               subsequent_indent=" " * 6)
     return "\n".join(lines)
 
 

@@ -173,12 +173,40 @@ def check_output_file(path, overwrite: bool, *, what: str = "output file") -> Pa
     return target
 
 
+#: The progress bar drawing on stderr, if any: log lines start on a new line while it is open.
+_OPEN_BAR: dict = {"bar": None}
+
+
+def time_left_s(t0: float, f0: float, t: float, f: float) -> float | None:
+    """Seconds left from the rate measured so far: (t - t0) / (f - f0) * (1 - f).
+
+    ``f`` is a fraction of the run's cost (the engine reports columns stepped over the cost model's
+    total), so the rate so far holds for the rest; t0, f0 is the first report (after start-up and
+    compiling, which the rest will not repeat). None until there is a rate to go on.
+    """
+    if f <= f0 or t <= t0:
+        return None
+    return (t - t0) / (f - f0) * max(0.0, 1.0 - f)
+
+
+def _left_text(seconds: float | None) -> str:
+    if seconds is None:
+        return "time left: measuring"
+    if seconds < 90:
+        return f"about {max(1, round(seconds / 5) * 5 if seconds > 20 else round(seconds)):.0f} s left"
+    return f"about {seconds / 60:.0f} min left"
+
+
 def progress_callback(quiet: bool, label: str):
     """A context manager yielding ``update(fraction, text)`` that drives a click progress bar on stderr.
 
-    The bar is created on the first update, so a command that fails before any progress (a bad
-    profile, a grid too large) prints its one-line error and nothing else.
+    The bar shows the time left from the cost model and the rate measured so far
+    (:func:`time_left_s`), and ends its line when the work is done, so that the closing summary
+    ("all paths solved in N s") stands on a line of its own. The bar is created on the first update,
+    so a command that fails before any progress (a bad profile, a grid too large) prints its
+    one-line error and nothing else.
     """
+    import time
 
     @contextlib.contextmanager
     def manager():
@@ -186,20 +214,53 @@ def progress_callback(quiet: bool, label: str):
             yield lambda fraction, text="": None
             return
         with contextlib.ExitStack() as stack:
-            state = {"bar": None, "done": 0}
+            state = {"bar": None, "done": 0, "start": None}
+
+            def close():
+                _OPEN_BAR["bar"] = None
 
             def update(fraction: float, text: str = "") -> None:
+                fraction = max(0.0, min(1.0, fraction))
+                now = time.perf_counter()
                 if state["bar"] is None:
-                    state["bar"] = stack.enter_context(
-                        click.progressbar(length=1000, label=label, file=sys.stderr, show_eta=True))
-                target = int(max(0.0, min(1.0, fraction)) * 1000)
+                    if state["done"] >= 1000:
+                        return
+                    inner = contextlib.ExitStack()  # closed when the work is done, or on the way out
+                    state["bar"] = inner.enter_context(
+                        click.progressbar(length=1000, label=label, file=sys.stderr, show_eta=False,
+                                          item_show_func=lambda item: item))
+                    state["inner"] = inner
+                    stack.callback(inner.close)
+                    stack.callback(close)
+                    state["start"] = (now, fraction)
+                    _OPEN_BAR["bar"] = state["bar"]
+                target = int(fraction * 1000)
+                left = time_left_s(*state["start"], now, fraction)
                 if target > state["done"]:
-                    state["bar"].update(target - state["done"])
+                    state["bar"].update(target - state["done"], "done" if target >= 1000 else _left_text(left))
                     state["done"] = target
+                if target >= 1000:  # finished: end the bar's line now, before any closing message
+                    state["bar"] = None
+                    state["inner"].close()
+                    close()
 
             yield update
 
     return manager()
+
+
+class _LineAfterBar(logging.StreamHandler):
+    """A stderr handler that starts a new line first when a progress bar is on the current one."""
+
+    def emit(self, record):
+        bar = _OPEN_BAR.get("bar")
+        tty = getattr(bar, "_is_atty", None)
+        if tty is None:
+            tty = not getattr(bar, "is_hidden", True)
+        if bar is not None and tty and not getattr(bar, "hidden", False):
+            self.stream.write("\n")
+            bar._last_line = None  # the bar redraws itself in full on the next line
+        super().emit(record)
 
 
 @contextlib.contextmanager
@@ -212,7 +273,7 @@ def solver_log(logger_name: str, quiet: bool):
     if quiet:
         yield
         return
-    handler = logging.StreamHandler(sys.stderr)
+    handler = _LineAfterBar(sys.stderr)
     handler.setFormatter(logging.Formatter("%(message)s"))
     logger = logging.getLogger(logger_name)
     old_level = logger.level

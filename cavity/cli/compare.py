@@ -41,8 +41,10 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
       cavity compare day.nc night.nc -o day-night.png
       cavity compare day.nc night.nc --fit-range 800 2500 -t comparison.md
     """
-    from cavity.cli.table import open_results, run_labels
-    from cavity.reports.tables import comparison_report, is_sweep, plot_comparison, write_text
+    from cavity.cli.table import file_labels, open_results
+    from cavity.reports.tables import (
+        common_frequencies, comparison_report, is_sweep, plot_comparison, run_labels, write_text,
+    )
 
     if output.suffix.lower() not in _SUFFIXES:
         raise click.BadParameter(
@@ -62,7 +64,9 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
         if not folder.is_dir():
             raise click.ClickException(f"output folder {folder} does not exist")
     ds_a, ds_b = open_results([result_a, result_b])
-    label_a, label_b = run_labels([result_a, result_b])
+    names = file_labels([result_a, result_b])
+    common_frequencies(ds_a, ds_b, *names)  # refused with the file names when nothing is shared
+    label_a, label_b = run_labels([ds_a, ds_b], fallback=names)  # day/night, UTC or title in the output
     for ds, path in ((ds_a, result_a), (ds_b, result_b)):
         if is_sweep(ds):
             raise click.ClickException(f"{path} is a sweep file (it has a time dimension); compare takes two single runs")

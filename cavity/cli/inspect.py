@@ -100,6 +100,10 @@ def _field_text(field) -> str:
             f"(dip {_span(dip, '.1f')} deg along the path)")
 
 
+def _seconds(s: float) -> str:
+    return f"{s:.0f} s" if s < 120 else f"{s / 60:.1f} min"
+
+
 def describe(scenario) -> list[str]:
     """Lines that say what a run of ``scenario`` would compute and how big its grid is."""
     from cavity.errors import ResourceError
@@ -163,11 +167,17 @@ def describe(scenario) -> list[str]:
     lines.append(f"  top {top_text}; far-end absorber {sv.pml_cells} cells; "
                  f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}")
     lines += _table(["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows)
-    updates = sum(p.stepped_cell_updates for p in plans)
+    updates = sum(p.expected_cell_updates for p in plans)
     t_min = max(w[0] for w in windows)
     t_max = max(w[1] for w in windows)
     lines.append(f"  total {updates:.3g} cell updates (columns the wave has not reached are skipped); each solve simulates at least {t_min * 1e3:.1f} ms "
                  f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged")
+    from cavity.checks.bench import REFERENCE_ENGINE_RATES, REFERENCE_MACHINE, estimate_seconds
+
+    fast, slow = estimate_seconds(plans)
+    lines.append(f"  run time: about {_seconds(fast)} to {_seconds(slow)} of solving (estimate for {REFERENCE_MACHINE}, "
+                 f"{REFERENCE_ENGINE_RATES[0] / 1e9:g}-{REFERENCE_ENGINE_RATES[1] / 1e9:g} G cell updates/s; "
+                 "cavity bench measures this machine)")
     biggest = max(plans, key=lambda p: p.memory_bytes)
     try:
         check_memory(biggest)

@@ -27,8 +27,9 @@ def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
 
     The map is centred on the transmitter (azimuthal equidistant: paths are straight lines, ranges
     true to scale). Paths are coloured by the ground class along them; with ionosphere utc = ... the
-    map shades where the sun is below the horizon and where the D region is in night. It works
-    offline; coastlines are drawn only when Natural Earth shapefiles are already on disk.
+    map shades twilight (sun below the horizon, hatched) and D-region night (dark). Range rings
+    around the transmitter are labelled in km; the frame fits the paths. It works offline: land,
+    sea and the coastline come from the 1 km land/sea mask installed with the tool.
 
     \b
     Example:
@@ -44,6 +45,12 @@ def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
         )
     check_output_file(output, overwrite, what="map")
 
+    with open(scenario_file, "rb") as handle:
+        magic = handle.read(4)
+    if magic in (b"\x89HDF", b"CDF\x01", b"CDF\x02"):
+        raise click.ClickException(
+            f"{scenario_file} is a result file (netCDF), not a scenario; give the scenario .toml it was run from"
+        )
     scenario = load_scenario(scenario_file)
     if scenario.transmitter.latitude_deg is None:
         raise click.ClickException(

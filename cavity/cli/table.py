@@ -23,7 +23,7 @@ def open_results(files) -> list:
     return [open_result(f) for f in files]
 
 
-def run_labels(files) -> list[str]:
+def file_labels(files) -> list[str]:
     """Short labels for result files: their stems, or their names when stems repeat."""
     stems = [Path(f).stem for f in files]
     if len(set(stems)) == len(stems):
@@ -69,15 +69,23 @@ def diurnal_table(ds, fmt: str) -> str:
               help="Noise as a spectral density, dB re 1 uV/m per sqrt(Hz); give with --bandwidth.")
 @click.option("--bandwidth", "bandwidth_hz", type=click.FloatRange(min=0.0, min_open=True), metavar="HZ",
               help="Receiver bandwidth, Hz; with --noise adds an SNR column.")
+@click.option("--snr", "snr_db", type=float, default=0.0, show_default=True, callback=_finite, metavar="DB",
+              help="Coverage files: the required signal-to-noise ratio with --noise/--bandwidth, dB.")
+@click.option("--sector-deg", "sector_deg", type=float, default=45.0, show_default=True, metavar="DEG",
+              help="Coverage files: width of the bearing sectors, degrees.")
 @friendly_errors
-def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz):
+def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz, snr_db, sector_deg):
     """Print a table of the field at every receiver and frequency of RESULT file(s).
 
     One row per receiver and frequency: name, range (km), bearing (deg; blank for a receiver given
     by range only), vertical field Ez (dB re 1 uV/m and uV/m, RMS), flux density B (dB re 1 fT),
-    phase (deg, relative to the transmitter current) and day/night/transition at the receiver (from
+    phase re c delay (deg: phase + 360 f d / c wrapped to (-180, 180], as cavity plot draws it)
+    and day/night/transition at the receiver (from
     the solar zenith angle along the path, or the day/night preset; "-" when neither applies).
-    With several files a first column names the file each row comes from.
+    With several files a first column names the run of each row: day or night (a preset
+    ionosphere), its UTC, or the scenario's title. A Markdown table opens with a line per run naming
+    transmitter, frequency, power, ionosphere and time, gives each path's bearing once, and marks
+    a negative margin "(short)".
 
     \b
     --required DB adds   margin = Ez - DB.
@@ -89,13 +97,17 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
     A Markdown table ends with the definitions used and the cautions line; CSV holds only the
     table (one header line), with more digits.
 
+    Coverage files (cavity coverage) get their summary instead: the area at or above the level
+    (--required, or --noise/--bandwidth with --snr) and per bearing sector the farthest range at
+    or above it; several coverage files (e.g. day and night) side by side.
+
     \b
     Examples:
       cavity table day.nc
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.reports.tables import is_sweep, receiver_table, write_text
+    from cavity.reports.tables import is_sweep, receiver_table, run_labels, write_text
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")
@@ -107,14 +119,27 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
             raise click.ClickException(f"output folder {folder} does not exist")
     datasets = open_results(results)
     sweeps = [ds for ds in datasets if is_sweep(ds)]
-    if sweeps:
+    from cavity.sweeps.coverage import is_coverage
+
+    maps = [ds for ds in datasets if is_coverage(ds)]
+    if maps:
+        from cavity.reports.coverage import coverage_summary, make_level
+
+        if len(maps) != len(datasets):
+            raise click.UsageError("coverage files are tabulated together, without other result files")
+        level = make_level(required_db, noise_db, bandwidth_hz, snr_db)
+        if level is None:
+            raise click.UsageError("a coverage summary needs a level: give --required DB or --noise DB --bandwidth HZ")
+        labels = run_labels(results) if len(results) > 1 else None
+        text = coverage_summary(datasets, level, fmt, runs=labels, sector_deg=sector_deg)
+    elif sweeps:
         if len(datasets) > 1 or required_db is not None or noise_db is not None:
             raise click.UsageError(
                 "a sweep file (time dimension) is tabulated on its own, without --required/--noise"
             )
         text = diurnal_table(sweeps[0], fmt)
     else:
-        labels = run_labels(results) if len(results) > 1 else None
+        labels = run_labels(datasets, fallback=file_labels(results)) if len(results) > 1 else None
         text = receiver_table(datasets, fmt, runs=labels, required_db=required_db, noise_db=noise_db,
                               bandwidth_hz=bandwidth_hz)
     if output is None:

@@ -26,7 +26,7 @@ from cavity.fdtd.source import GaussianPulse, ToneBursts
 
 log = logging.getLogger(__name__)
 
-#: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (physics.md 1: 3182.6)
+#: omega_p^2 per electron density, e^2/(eps0 m_e), rad^2 s^-2 m^3 (docs/physics.md 1: 3182.6)
 WP2_PER_NE = ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
 #: Loss tangent below which a row is stepped as vacuum (see Simulation._build).
 PLASMA_THRESHOLD = 1e-6
@@ -554,6 +554,10 @@ class Simulation:
         top_e = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, self.ce_top)
         far_e = K.Absorber(self.ir0, *self.pr_e, self.psi_re, self.ce_far)
         n_cols = nr
+        # progress in units of the cost model (columns stepped), so that elapsed time / fraction done
+        # predicts the time left: steps get dearer as the wave reaches more columns
+        expected_cols = p.expected_cell_updates / p.nz
+        done_cols = 0.0
         while step < n_max:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
@@ -618,6 +622,7 @@ class Simulation:
                 else:
                     m_series.append(i_series[-1] * self.plan.dz_m)
             step += 1
+            done_cols += n_cols
 
             if step % guard_every == 0:
                 src_peak = self._guard(step, t_e, src_peak, wave.end_s)
@@ -628,8 +633,9 @@ class Simulation:
                     break
                 last = now
             if progress is not None and step % 200 == 0:
-                frac = step / n_min if step < n_min else 0.9 + 0.1 * (step - n_min) / max(1, n_max - n_min)
-                progress(min(frac, 0.999), f"step {step}")
+                if done_cols > 0.98 * expected_cols:  # converging later than usual: two more checks
+                    expected_cols = done_cols + 2.0 * check_every * nr
+                progress(min(done_cols / expected_cols, 0.999), f"step {step}")
         wall = time.perf_counter() - t0
         if progress is not None:
             progress(1.0, "done")

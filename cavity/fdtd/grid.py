@@ -7,7 +7,7 @@ Layout (Taflove and Hagness 2005, ch. 12 body-of-revolution FDTD, m = 0):
 - ``hphi[i, j]`` at (r = (i + 1/2) dr, z = (j + 1/2) dz).
 
 The stability limit of this scheme is below the 2-D Cartesian one because of the on-axis update
-(physics.md 2: c dt = 0.6728 d for dr = dz = d); it is found here by power iteration on the
+(docs/physics.md 2: c dt = 0.6728 d for dr = dz = d); it is found here by power iteration on the
 discrete curl-curl operator, so any aspect ratio dr/dz is handled.
 """
 
@@ -26,11 +26,11 @@ from cavity.errors import ResourceError, SolverError
 #: the radial dispersion correction, 24 keeps a 3,000 km day (night) guide within 0.8 dB (1.1 dB) of
 #: the normal-mode reference; 20 gives 1.1 dB by day (README, "Accuracy and speed").
 DEFAULT_CELLS_PER_WAVELENGTH = 24.0
-#: Largest vertical cell: resolves the profile scale 1/beta (physics.md 2).
+#: Largest vertical cell: resolves the profile scale 1/beta (docs/physics.md 2).
 MAX_DZ_M = 500.0
 #: Fraction of the stability limit used for the time step.
 COURANT_SAFETY = 0.95
-#: Default absorbing-layer thickness in cells (physics.md 4: 20 cells, m = 3).
+#: Default absorbing-layer thickness in cells (docs/physics.md 4: 20 cells, m = 3).
 DEFAULT_PML_CELLS = 20
 #: Bytes per grid cell of the engine (float32 fields, coefficients and auxiliary arrays).
 BYTES_PER_CELL = 4 * 16
@@ -44,6 +44,10 @@ FRONT_SEARCH_STEPS = 64
 #: until flushed to zero (measured 55-110 columns on the 3,000 km day grid at 625 m) and the
 #: search margin. Used only to predict run times.
 FRONT_LEAD_COLUMNS = 100 + FRONT_SEARCH_STEPS
+#: Steps a run takes beyond its planned minimum before the DFTs converge, as a share of the planned
+#: steps, for the cost model. Measured: +22 % (demo by day), +49 % (demo by night), +6 %
+#: (examples/uniform_night.toml); the middle value is used, so a time left is good to about 25 %.
+CONVERGENCE_TAIL_SHARE = 0.2
 
 
 @functools.lru_cache(maxsize=64)
@@ -115,9 +119,20 @@ class GridPlan:
     def stepped_cell_updates(self) -> float:
         """Cell updates the engine is expected to make: while the wave first crosses the grid only
         the columns it has reached are stepped (plus :data:`FRONT_LEAD_COLUMNS`)."""
+        return self.stepped_columns() * float(self.nz)
+
+    def stepped_columns(self) -> float:
+        """Columns stepped over the planned steps (the sum over steps of the columns the wave has reached)."""
         n = np.arange(1, self.n_steps + 1, dtype=float)
         columns = np.minimum(self.nr, np.ceil(n * C0 * self.dt_s / self.dr_m) + FRONT_LEAD_COLUMNS)
-        return float(columns.sum()) * float(self.nz)
+        return float(columns.sum())
+
+    @property
+    def expected_cell_updates(self) -> float:
+        """The cost model of a whole run: :attr:`stepped_cell_updates` plus the steps beyond the
+        planned minimum that convergence usually takes (:data:`CONVERGENCE_TAIL_SHARE`), over the
+        whole grid."""
+        return (self.stepped_columns() + CONVERGENCE_TAIL_SHARE * self.n_steps * self.nr) * float(self.nz)
 
 
 def default_cells(

@@ -31,7 +31,7 @@ import numpy as np
 
 from cavity.constants import C0
 
-#: First return stroke, channel-base current (physics.md 6; Heidler, Cvetic and Stanic 1999).
+#: First return stroke, channel-base current (docs/physics.md 6; Heidler, Cvetic and Stanic 1999).
 FIRST_STROKE_PEAK_A = 28e3
 FIRST_STROKE_TAU1_S = 1.8e-6
 FIRST_STROKE_TAU2_S = 95e-6

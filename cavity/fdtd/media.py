@@ -30,7 +30,7 @@ def flattening_factor(altitude_m, earth_curvature: bool = True, earth_radius_m: 
 def spherical_spreading_correction(range_m, earth_radius_m: float = EARTH_RADIUS_M):
     """Amplitude factor sqrt(d / (a sin(d/a))) turning flat 1/sqrt(r) spreading into spherical.
 
-    physics.md 7; +0.5 dB at 5 Mm and +2 dB at 10 Mm.
+    docs/physics.md 7; +0.5 dB at 5 Mm and +2 dB at 10 Mm.
     """
     d = np.asarray(range_m, dtype=float)
     x = d / earth_radius_m
@@ -42,7 +42,7 @@ def spherical_spreading_correction(range_m, earth_radius_m: float = EARTH_RADIUS
 def plasma_coefficients(eps_eff, omega_p2, nu, dt):
     """E-J collocated trapezoidal update of an isotropic collisional cold plasma.
 
-    Yu and Simpson 2010, IEEE TAP 58(2) 469 (physics.md 3). With eps the (flattened) permittivity
+    Yu and Simpson 2010, IEEE TAP 58(2) 469 (docs/physics.md 3). With eps the (flattened) permittivity
     of the host, dJ/dt + nu J = eps omega_p^2 E and eps dE/dt = curl H - J give
 
         a = (1 - nu dt/2)/(1 + nu dt/2),  b = (eps omega_p^2 dt/2)/(1 + nu dt/2)
@@ -86,7 +86,7 @@ def cpml_coefficients(
     Depth x = (k + offset) cell for k = 0..n-1 over a layer of n cells:
     sigma = sigma_max (x/d)^m, kappa = 1 + (kappa_max - 1)(x/d)^m, alpha = alpha_max (1 - x/d)^m,
     b = exp(-(sigma/kappa + alpha) dt/eps0), c = sigma (b - 1)/(sigma kappa + kappa^2 alpha).
-    At VLF alpha must stay far below 5.6e-8 S/m per kHz (physics.md 4); the default is 0.
+    At VLF alpha must stay far below 5.6e-8 S/m per kHz (docs/physics.md 4); the default is 0.
     Returns ``(b, c, kappa)`` arrays of length n.
     """
     d = n_cells * cell_m
@@ -105,7 +105,7 @@ def cpml_coefficients(
 def leontovich_impedance(omega, conductivity: float, relative_permittivity: float):
     """Surface impedance of a homogeneous ground, Zs = sqrt(j omega mu0 / (sigma + j omega eps)).
 
-    Leontovich boundary condition (physics.md 5), time convention exp(+j omega t).
+    Leontovich boundary condition (docs/physics.md 5), time convention exp(+j omega t).
     """
     omega = np.asarray(omega, dtype=float)
     return np.sqrt(1j * omega * MU0 / (conductivity + 1j * omega * EPS0 * relative_permittivity))

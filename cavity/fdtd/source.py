@@ -37,7 +37,7 @@ class Waveform(Protocol):
 def moment_for_power(radiated_power_w: float, frequency_hz: float) -> float:
     """RMS current moment I*l (A m) of a short monopole over perfect ground radiating ``P``.
 
-    P = 160 pi^2 (I l / lambda)^2 (physics.md 6; ITU-R P.368: 1 kW gives 300 mV/m at 1 km,
+    P = 160 pi^2 (I l / lambda)^2 (docs/physics.md 6; ITU-R P.368: 1 kW gives 300 mV/m at 1 km,
     a cymomotive force of 300 V).
     """
     wavelength = C0 / frequency_hz

@@ -9,6 +9,9 @@ independent normal-mode solution:
   sum, and an independent image series);
 - :mod:`cavity.reference.modes` - matrix normal-mode solution of a stratified isotropic guide with an
   impedance ground (ionosphere profiles, earth flattening);
+- :mod:`cavity.reference.magnetised` - modes under the geomagnetic field: the 2 x 2 reflection matrix of
+  the magnetised D region by full-wave integration, det(I - Rg R) = 0 followed from B0 = 0, the field
+  as a sum of residues;
 - :mod:`cavity.reference.groundwave` - Sommerfeld-Norton ground wave and the exact impedance-plane
   field (no ionosphere).
 

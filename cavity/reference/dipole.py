@@ -1,6 +1,6 @@
 """Closed forms for a short vertical current element: calibration, ground-level field, ground impedance.
 
-Conventions (conventions.md): phasors with time dependence exp(+j omega t); RMS amplitudes; the
+Conventions (README, "Result file reference"): phasors with time dependence exp(+j omega t); RMS amplitudes; the
 moment ``p = I l`` (A m) is that of a monopole standing on the ground, whose image in a perfectly
 conducting ground doubles it to ``2 p`` in free-space terms.
 
@@ -83,7 +83,7 @@ def ground_level_field(range_m, frequency_hz: float, moment_am: complex) -> np.n
     """Complex vertical field Ez (V/m) at ground level from a short monopole on a perfect ground.
 
     All distance terms of the infinitesimal dipole (Balanis 2016, eq. 4-10) at 90 degrees from its
-    axis, with the image doubling the moment (physics.md 6):
+    axis, with the image doubling the moment (docs/physics.md 6):
 
         Ez = -j eta0 k p / (2 pi d) (1 + 1/(j k d) - 1/(k d)^2) exp(-j k d)
 

@@ -97,7 +97,7 @@ def ionosphere_permittivity(
         omega_p^2 = Ne e^2 / (eps0 m_e),   eps_r = 1 - omega_p^2 / (omega (omega - j nu))   (exp(+j omega t))
 
     With ``earth_flattening`` the whole permittivity is multiplied by (1 + z/a)^2 (Richter 1966;
-    physics.md 7), the permeability left unchanged.
+    docs/physics.md 7), the permeability left unchanged.
 
     Parameters
     ----------
@@ -129,7 +129,7 @@ def ionosphere_permittivity(
 def spherical_spreading_correction(range_m, earth_radius_m: float = EARTH_RADIUS_M) -> np.ndarray:
     """Amplitude factor sqrt(d / (a sin(d / a))) turning flat-guide 1/sqrt(d) spreading into spherical.
 
-    physics.md 7: +0.5 dB at 5 Mm, +2 dB at 10 Mm. Valid for 0 < d < pi a (short of the antipode).
+    docs/physics.md 7: +0.5 dB at 5 Mm, +2 dB at 10 Mm. Valid for 0 < d < pi a (short of the antipode).
     """
     d = _positive("range_m", range_m, "m")
     a = float(_positive("earth_radius_m", earth_radius_m, "m"))

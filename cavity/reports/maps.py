@@ -1,9 +1,11 @@
 """Maps of a scenario: transmitter, receivers, the solved paths and the day/night zones.
 
 The map uses an azimuthal equidistant projection centred on the transmitter, so every path from the
-transmitter is a straight line and distances from it are true to scale. Everything drawn works
-offline: cartopy's bundled stock image, gridlines, geodesic lines and the night shading. Coastlines
-need Natural Earth shapefiles; they are drawn only when already on disk (never downloaded).
+transmitter is a straight line, distances from it are true to scale and range rings are circles.
+Everything drawn works offline: land, sea and the coastline come from the 1 km land/sea grid of
+``global_land_mask`` (the mask the ground model uses, shipped inside that package), sampled on the
+map's frame and contoured; gridlines, geodesic lines and the night shading are computed. Nothing is
+ever downloaded.
 
 matplotlib and cartopy are imported inside the functions, so ``import cavity`` stays light.
 """
@@ -31,34 +33,50 @@ GROUND_COLOURS = {
     "custom": "#8e44ad",
 }
 
-#: Edges of the day/night transition in solar zenith angle, degrees (physics.md 1, common
+#: Land and sea fill and the coastline (pale, so that the paths' colours stand out on either).
+LAND_COLOUR = "#ece4cf"
+SEA_COLOUR = "#f3f7fb"
+COAST_COLOUR = "#4a4a4a"
+#: Samples across the frame for the land/sea background (about 5-10 km per sample on a demo map).
+BACKGROUND_SAMPLES = 700
+#: Shading of the sun zones: twilight (sun below the horizon, D region not yet in night) hatched and
+#: light; night dark. Different in grey print too.
+TWILIGHT_SHADE = dict(facecolor="#9a9ab8", alpha=0.30, hatch="////", edgecolor="#6a6a90", linewidth=0.0)
+NIGHT_SHADE = dict(facecolor="#1c1c40", alpha=0.55, edgecolor="none", linewidth=0.0)
+
+#: Edges of the day/night transition in solar zenith angle, degrees (docs/physics.md, common
 #: practice): the ground is in sunlight for chi < 90; the D region is in night from chi >= 99.
 DAY_LIMIT_DEG = 90.0
 NIGHT_LIMIT_DEG = 99.0
 
 
-def coastline_file(resolutions=("50m", "110m")) -> Path | None:
-    """Path of a Natural Earth coastline shapefile already on disk, or None.
+def ring_step_km(reach_km: float) -> float:
+    """A round spacing of range rings giving about three to six rings out to ``reach_km``."""
+    for step in (100.0, 200.0, 250.0, 500.0, 1000.0, 2000.0, 2500.0, 5000.0):
+        if reach_km / step <= 6.0:
+            return step
+    return 5000.0
 
-    Looks where cartopy would (``cartopy.config['pre_existing_data_dir']``, then ``data_dir``)
-    without calling its downloader, so nothing is ever fetched from the network.
-    """
-    import cartopy
 
-    roots = []
-    for key in ("pre_existing_data_dir", "data_dir"):
-        value = cartopy.config.get(key)
-        if value and str(value) not in ("", "."):
-            roots.append(Path(value))
-    env = os.environ.get("CARTOPY_DATA_DIR")
-    if env:
-        roots.append(Path(env))
-    for resolution in resolutions:
-        for root in roots:
-            candidate = root / "shapefiles" / "natural_earth" / "physical" / f"ne_{resolution}_coastline.shp"
-            if candidate.is_file():
-                return candidate
-    return None
+def land_sea_background(ax, proj, extent, samples: int = BACKGROUND_SAMPLES) -> None:
+    """Fill land and sea and draw the coastline from the land/sea mask, in projected coordinates."""
+    import cartopy.crs as ccrs
+    from matplotlib.colors import ListedColormap
+
+    from cavity.geo import is_land
+
+    x0, x1, y0, y1 = extent
+    x = np.linspace(x0, x1, samples)
+    y = np.linspace(y0, y1, samples)
+    X, Y = np.meshgrid(x, y)
+    lonlat = ccrs.PlateCarree().transform_points(proj, X.ravel(), Y.ravel())
+    ok = np.all(np.isfinite(lonlat[:, :2]), axis=1) & (np.abs(lonlat[:, 1]) <= 90.0)
+    land = np.zeros(X.size)
+    land[ok] = is_land(lonlat[ok, 1], ((lonlat[ok, 0] + 180.0) % 360.0) - 180.0)
+    land = land.reshape(X.shape)
+    ax.imshow(land, origin="lower", extent=extent, transform=proj, cmap=ListedColormap([SEA_COLOUR, LAND_COLOUR]),
+              vmin=0, vmax=1, interpolation="nearest", zorder=0)
+    ax.contour(X, Y, land, levels=[0.5], colors=COAST_COLOUR, linewidths=0.6, transform=proj, zorder=1)
 
 
 def _check_output(output_path) -> tuple[Path, str]:
@@ -84,7 +102,7 @@ def _runs(kinds: np.ndarray):
             start = k
 
 
-def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
+def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None = None) -> list[str]:
     """Draw the transmitter, receivers and paths on a map and write it (PNG or PDF) atomically.
 
     Parameters
@@ -100,11 +118,14 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
         renamed, so an existing file is replaced whole or not at all.
     dpi : int
         Resolution of a PNG.
+    title : str, optional
+        First title line; default names the transmitter and frequency (not the scenario's title,
+        so that one map serves a day and a night run of the same paths).
 
     Returns
     -------
     list of str
-        Notes for the user (coastlines skipped, receivers not drawn, no day/night shading).
+        Notes for the user (receivers not drawn, no day/night shading).
 
     Raises
     ------
@@ -121,7 +142,6 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
     path, _ = _check_output(output_path)
 
     import cartopy.crs as ccrs
-    from cartopy.feature import ShapelyFeature
     from cartopy.feature.nightshade import Nightshade
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
@@ -145,17 +165,37 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
             lons.extend(p.longitude_deg.tolist())
     xy = proj.transform_points(geodetic, np.asarray(lons, float), np.asarray(lats, float))[:, :2]
     xy = xy[np.all(np.isfinite(xy), axis=1)]
-    half = max(float(np.abs(xy).max()), 300e3)
+    # the frame fits the transmitter, receivers and paths (a margin of 12 % and at least 150 km),
+    # made square so that the range rings stay round on the page
+    lo, hi = xy.min(axis=0), xy.max(axis=0)
+    centre = 0.5 * (lo + hi)
+    half = max(float((hi - lo).max()) * 0.5 * 1.12 + 150e3, 300e3)
     limit = 2.0e7  # the projected globe is a disc of radius pi * a (about 20,000 km)
-    half = min(half * 1.12 + 200e3, limit)
-
     fig = Figure(figsize=(9.0, 9.0), layout="constrained")
     ax = fig.add_subplot(projection=proj)
-    if half >= 1.6e7:
+    if half >= 0.8 * limit:
         ax.set_global()  # near-antipodal paths: the whole disc (set_extent misbehaves at its rim)
+        extent = (-limit, limit, -limit, limit)
     else:
-        ax.set_extent([-half, half, -half, half], crs=proj)
-    ax.stock_img()
+        extent = (centre[0] - half, centre[0] + half, centre[1] - half, centre[1] + half)
+        ax.set_extent(list(extent), crs=proj)
+    land_sea_background(ax, proj, extent)
+
+    # range rings about the transmitter: circles in this projection, labelled in km
+    corners = np.array([[extent[0], extent[2]], [extent[0], extent[3]], [extent[1], extent[2]], [extent[1], extent[3]]])
+    reach_km = float(np.hypot(corners[:, 0], corners[:, 1]).max()) / 1e3
+    step = ring_step_km(min(reach_km, limit / 1e3))
+    theta = np.linspace(0.0, 2.0 * np.pi, 361)
+    for radius_km in np.arange(step, min(reach_km, limit / 1e3) + 1e-6, step):
+        r_m = radius_km * 1e3
+        ax.plot(r_m * np.sin(theta), r_m * np.cos(theta), transform=proj, color="#7a5c9e", linewidth=0.8,
+                linestyle=(0, (6, 3)), zorder=3)
+        for bearing in (45.0, 225.0):  # a label where the ring crosses two diagonals (one stays in frame)
+            bx, by = r_m * np.sin(np.radians(bearing)), r_m * np.cos(np.radians(bearing))
+            if extent[0] < bx < extent[1] and extent[2] < by < extent[3]:
+                ax.text(bx, by, f"{radius_km:,.0f} km", transform=proj, fontsize=7, color="#5a3c7e", zorder=3,
+                        ha="center", va="center", bbox=dict(boxstyle="round,pad=0.1", facecolor="white",
+                                                            alpha=0.75, linewidth=0))
 
     legend = []
     ion = scenario.ionosphere
@@ -165,28 +205,16 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
         when = ion.utc.astimezone(timezone.utc)
         # Nightshade's "refraction" is the sun's elevation (deg) at the shading edge: 0 gives chi > 90,
         # -9 gives chi > 99 (the D region in darkness under the day/night rule).
-        ax.add_feature(Nightshade(when, refraction=90.0 - DAY_LIMIT_DEG, alpha=0.25, delta=0.5), zorder=2)
-        ax.add_feature(Nightshade(when, refraction=90.0 - NIGHT_LIMIT_DEG, alpha=0.3, delta=0.5), zorder=2)
+        ax.add_feature(Nightshade(when, refraction=90.0 - DAY_LIMIT_DEG, delta=0.5, **TWILIGHT_SHADE), zorder=2)
+        ax.add_feature(Nightshade(when, refraction=90.0 - NIGHT_LIMIT_DEG, delta=0.5, **NIGHT_SHADE), zorder=2)
         legend += [
-            Patch(facecolor="k", alpha=0.25, label=f"sun below the horizon (chi > {DAY_LIMIT_DEG:g} deg)"),
-            Patch(facecolor="k", alpha=0.475, label=f"D-region night (chi > {NIGHT_LIMIT_DEG:g} deg)"),
+            Patch(**TWILIGHT_SHADE, label=f"twilight: sun below the horizon (chi {DAY_LIMIT_DEG:g}-{NIGHT_LIMIT_DEG:g} deg)"),
+            Patch(**NIGHT_SHADE, label=f"D-region night (chi > {NIGHT_LIMIT_DEG:g} deg)"),
         ]
         time_text = f"{when:%Y-%m-%d %H:%M} UTC"
     else:
         notes.append("no day/night shading: the ionosphere is not given by utc = ...")
         time_text = "no time given"
-
-    coast = coastline_file()
-    if coast is not None:
-        from cartopy.io.shapereader import Reader
-
-        ax.add_feature(ShapelyFeature(Reader(str(coast)).geometries(), plate, facecolor="none",
-                                      edgecolor="#333333", linewidth=0.5), zorder=3)
-    else:
-        notes.append(
-            "coastlines skipped: no Natural Earth coastline shapefile on disk "
-            "(set CARTOPY_DATA_DIR to a folder holding shapefiles/natural_earth/physical/ne_50m_coastline.shp)"
-        )
 
     gl = ax.gridlines(draw_labels=True, linewidth=0.4, color="#444444", alpha=0.5, linestyle="--")
     gl.top_labels = gl.right_labels = False
@@ -240,8 +268,13 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150) -> list[str]:
         Line2D([], [], marker="o", color="#ffdd00", markeredgecolor="k", markersize=7, linestyle="none",
                label="receiver"),
     ]
+    legend.append(Line2D([], [], color="#7a5c9e", linewidth=0.8, linestyle=(0, (6, 3)),
+                         label=f"range from the transmitter, every {step:,.0f} km"))
     ax.legend(handles=legend, loc="lower left", fontsize=8, framealpha=0.85)
-    ax.set_title(f"{scenario.title}\n{time_text}; azimuthal equidistant about the transmitter", fontsize=10)
+    freqs = ", ".join(f"{f / 1e3:g}" for f in np.atleast_1d(tx.frequencies_hz)) if hasattr(tx, "frequencies_hz") else ""
+    heading = title if title is not None else f"{tx.name}{f', {freqs} kHz' if freqs else ''}: transmitter, receivers and paths"
+    ax.set_title(f"{heading}\n{time_text}; azimuthal equidistant about the transmitter; "
+                 "coastline from the 1 km land/sea mask", fontsize=10)
 
     from cavity.files import save_figure  # the one atomic figure writer
 

@@ -330,7 +330,7 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
 
 
 def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
-    """The :func:`table_diurnal` rows as Markdown (a pipe table) or CSV text, dB to 0.1 dB.
+    """The :func:`table_diurnal` rows as Markdown (padded, as the receiver table) or CSV, dB to 0.1 dB.
 
     Parameters
     ----------
@@ -342,22 +342,26 @@ def format_diurnal_table(table: pd.DataFrame, fmt: str = "markdown") -> str:
         raise ValueError(f"fmt = {fmt!r} must be 'markdown' or 'csv'")
     if fmt == "csv":
         return table.to_csv(index=False, float_format="%.2f", lineterminator="\n")
-    headers = ["receiver", "range, km", "frequency, kHz", "instants", "min, dB re 1 uV/m",
-               "median, dB re 1 uV/m", "max, dB re 1 uV/m", "UTC of min", "UTC of max"]
-    digits = [None, ".0f", "g", None, ".1f", ".1f", ".1f", None, None]
-    align = ["---"] + ["---:"] * 6 + ["---"] * 2
+    from cavity.reports.tables import Column, format_table
+
+    columns = [
+        Column("receiver", "Receiver", "receiver"),
+        Column("range_km", "Range (km)", "range_km", 2, 1),
+        Column("frequency_khz", "Frequency (kHz)", "frequency_khz", 4, 2),
+        Column("instants", "Instants", "instants", 0, 0),
+        Column("ez_min_db", "Min Ez (dB re 1 uV/m)", "ez_min_db", 2, 1),
+        Column("ez_median_db", "Median Ez (dB re 1 uV/m)", "ez_median_db", 2, 1),
+        Column("ez_max_db", "Max Ez (dB re 1 uV/m)", "ez_max_db", 2, 1),
+        Column("utc_of_min", "UTC of min", "utc_of_min"),
+        Column("utc_of_max", "UTC of max", "utc_of_max"),
+    ]
     if "night_minus_day_db" in table.columns:
-        headers += ["day instants", "day median, dB re 1 uV/m", "night instants", "night median, dB re 1 uV/m",
-                    "night - day, dB"]
-        digits += [None, ".1f", None, ".1f", "+.1f"]
-        align += ["---:"] * 5
-
-    def cell(value, digits):
-        if isinstance(value, float):
-            return "-" if math.isnan(value) else f"{value:{digits}}"
-        return str(value).replace("|", "\\|") or "-"
-
-    lines = ["| " + " | ".join(headers) + " |", "|" + "|".join(align) + "|"]
-    for row in table.itertuples(index=False):
-        lines.append("| " + " | ".join(cell(v, d) for v, d in zip(row, digits)) + " |")
-    return "\n".join(lines) + "\n"
+        columns += [
+            Column("day_instants", "Day instants", "day_instants", 0, 0),
+            Column("ez_day_median_db", "Day median (dB re 1 uV/m)", "ez_day_median_db", 2, 1),
+            Column("night_instants", "Night instants", "night_instants", 0, 0),
+            Column("ez_night_median_db", "Night median (dB re 1 uV/m)", "ez_night_median_db", 2, 1),
+            Column("night_minus_day_db", "Night - day (dB)", "night_minus_day_db", 2, 1),
+        ]
+    # the receiver table's style: unit in brackets, columns padded, numbers right-aligned
+    return format_table(table.to_dict("records"), columns, "markdown")
