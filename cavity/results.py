@@ -90,6 +90,7 @@ VARIABLES: dict[str, dict[str, str]] = {
     "receiver_longitude": {"units": "degrees_east", "long_name": "receiver longitude (NaN: given by range only)", "standard_name": "longitude"},
     "receiver_ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the receiver, {_DB_E}"},
     "receiver_ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
+    "receiver_ez_uncertainty": {"units": "1", "long_name": "numerical uncertainty of the vertical electric field at the receiver in dB (grid convergence index from a companion run on a coarser grid; NaN: not computed)"},
     "receiver_b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the receiver, {_DB_B}"},
     "receiver_b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
     "receiver_b_radial_amplitude": {"units": "1", "long_name": f"radial horizontal magnetic flux density at the receiver, {_DB_B}"},
@@ -281,6 +282,7 @@ def assemble_dataset(
     receiver_ephi_v_per_m=None,
     geomagnetic_field_nt=None,
     geomagnetic_attributes=None,
+    receiver_ez_uncertainty_db=None,
 ) -> xr.Dataset:
     """Build a result Dataset (the file contract) from the solver's plain arrays, SI units in.
 
@@ -390,6 +392,10 @@ def assemble_dataset(
         "collision_frequency": (("path", "range", "altitude"), nu),
         "ground_conductivity": (("path", "range"), sigma),
     }
+    if receiver_ez_uncertainty_db is not None:
+        data_vars["receiver_ez_uncertainty"] = (("receiver", "frequency"),
+                                                _array("receiver_ez_uncertainty_db", receiver_ez_uncertainty_db, (N, F), float,
+                                                       allow_nan=True))
     if receiver_path is not None:
         data_vars["receiver_path"] = (("receiver",), rx_path.astype(np.int32))
     optional_receiver = {

@@ -95,7 +95,7 @@ _SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_p
 _SOURCE_KEYS = ("kind", "peak_current_ka", "rise_time_constant_us", "decay_time_constant_us", "heidler_exponent",
                 "channel_speed_fraction", "channel_height_km", "record_ms", "band_khz")
 _SOLVER_KEYS = ("max_range_km", "cell_m", "top_km", "earth_curvature", "pml_cells",
-                "cells_per_wavelength", "receiver_time_series")
+                "cells_per_wavelength", "receiver_time_series", "uncertainty")
 
 
 # --------------------------------------------------------------------------------------------------
@@ -211,6 +211,7 @@ class Solver:
     pml_cells: int = 20
     cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH
     receiver_time_series: bool = False
+    uncertainty: bool = True  # companion solve on a coarser grid for receiver_ez_uncertainty
 
 
 @dataclass(frozen=True)
@@ -791,6 +792,7 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
     pml = t.number("pml_cells", *PML_CELLS_RANGE, "cells", integer=True)
     cpw = t.number("cells_per_wavelength", *CELLS_PER_WAVELENGTH_RANGE, "")
     time_series = t.boolean("receiver_time_series", False)
+    uncertainty = t.boolean("uncertainty", True)
     defaults = Solver()
     return Solver(
         max_range_m=_km(max_range),
@@ -800,6 +802,7 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
         pml_cells=defaults.pml_cells if pml is None else pml,
         cells_per_wavelength=defaults.cells_per_wavelength if cpw is None else cpw,
         receiver_time_series=time_series,
+        uncertainty=uncertainty,
     )
 
 
@@ -1061,6 +1064,7 @@ def _to_toml(s: Scenario) -> str:
         ("pml_cells", sv.pml_cells),
         ("cells_per_wavelength", sv.cells_per_wavelength),
         ("receiver_time_series", sv.receiver_time_series),
+        ("uncertainty", sv.uncertainty),
     ])
     src = s.source
     if src is not None:

@@ -51,6 +51,8 @@ class PathSolution:
     electron_density: np.ndarray | None  # (nsample, nalt) on RESULT_ALTITUDE_KM
     collision_frequency: np.ndarray | None
     raw: eng.EngineResult | None = None  # a lightning run's engine result with the probe time series
+    ez_uncertainty_db: np.ndarray | None = None  # (nf, nrange) dB, cavity.uncertainty; None: not computed
+    receiver_ez_uncertainty_db: np.ndarray | None = None  # (nrx_on_path, nf) dB
     b_radial: np.ndarray | None = None  # (nf, nrange) complex T RMS, magnetised runs only
     ephi: np.ndarray | None = None  # (nf, nrange) complex V/m RMS
     receiver_b_radial: np.ndarray | None = None
@@ -114,10 +116,22 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
 
     For a lightning run (``drive.stroke``) the solution's ``engine`` holds no time series (the
     carrier assembly gets none) and ``raw`` holds the engine's full result with the probe series.
+
+    For a carrier with ``solver.uncertainty`` (the default) a companion solve on a grid
+    :data:`cavity.uncertainty.COMPANION_CELL_RATIO` times coarser gives the numerical uncertainty
+    of the field along the path and at its receivers (:mod:`cavity.uncertainty`).
     """
+    from cavity import uncertainty as unc
+
     drive = drive if drive is not None else excitation(scenario, waveform)
     medium = path_medium(scenario, path)
     settings = engine_settings(scenario, path, drive=drive)
+    want_uncertainty = (bool(getattr(scenario.solver, "uncertainty", False)) and drive.stroke is None
+                        and waveform is None)
+    main_progress = progress
+    if progress is not None and want_uncertainty:
+        def main_progress(fraction, text=""):
+            progress(0.75 * fraction, text)
     sim = eng.Simulation(medium, settings)
     if drive.stroke is None:
         log.info(
@@ -131,7 +145,18 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
             path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
             int(math.ceil(sim.t_max / sim.plan.dt_s)), sim.t_max * 1e3, sim.plan.memory_bytes / 1e9,
         )
-    res = sim.run(progress)
+    res = sim.run(main_progress)
+    fit_error = sim.impedance_fit_error
+    del sim  # the companion solve reuses the memory
+    companion = None
+    if want_uncertainty:
+        r = unc.COMPANION_CELL_RATIO
+        coarse = dataclasses.replace(settings, dr_m=r * res.plan.dr_m, dz_m=r * res.plan.dz_m,
+                                     probe_ranges_m=(), record_time_series=False)
+        sub = None if progress is None else (lambda fraction, text="": progress(0.75 + 0.25 * fraction,
+                                                                                  f"uncertainty: {text}"))
+        companion = eng.run(medium, coarse, sub)
+        res.wall_time_s += companion.wall_time_s
     raw = None
     if drive.stroke is not None:
         res.notes = []  # the record has a fixed length; completeness is judged from the tail (cavity.sferic)
@@ -149,13 +174,19 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     rx_r = np.asarray(path.receiver_ranges_m, float)
     rx_ez = np.stack([interpolate_phasor(res.range_m, ez[k], rx_r) for k in range(f.size)], axis=1)
     rx_b = np.stack([interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
+    ez_unc = rx_unc = None
+    if companion is not None:
+        # both transfer functions per unit moment, flat: the calibration cancels in the dB difference
+        ez_unc = unc.grid_convergence_index_db(res.range_m, res.ez, companion.range_m, companion.ez)
+        rx_unc = np.stack([np.interp(rx_r, res.range_m, ez_unc[k]) for k in range(f.size)], axis=1)
     ne_out = nu_out = None
     if medium.electron_density is not None:
         assert medium.altitude_m is not None and medium.collision_frequency is not None  # set together
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, sim.impedance_fit_error, ne_out, nu_out, raw)
+    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw,
+                       ez_unc, rx_unc)
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
         sol.ephi = res.ephi * scale
@@ -185,7 +216,8 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
         if value is not None:
             value = np.ascontiguousarray(value, dtype=float)
             digest.update(repr(value.shape).encode() + value.tobytes())
-    digest.update(repr((medium.ceiling_m, settings, float(scenario.transmitter.radiated_power_w),
+    digest.update(repr((medium.ceiling_m, settings, bool(getattr(scenario.solver, "uncertainty", False)),
+                        float(scenario.transmitter.radiated_power_w),
                         tuple(float(x) for x in path.receiver_ranges_m))).encode())
     return digest.hexdigest()
 
@@ -329,6 +361,7 @@ def to_dataset(scenario, solutions):
     rx_b = np.zeros((n_rx, nf), complex)
     rx_path = np.zeros(n_rx, int)
     rx_range = np.zeros(n_rx)
+    rx_unc = np.full((n_rx, nf), np.nan)
     for p, sol in enumerate(solutions):
         n = sol.range_m.size
         ez[p, :, :n] = sol.ez
@@ -348,6 +381,8 @@ def to_dataset(scenario, solutions):
         for j, i_rx in enumerate(sol.path.receiver_indices):
             rx_ez[i_rx] = sol.receiver_ez[j]
             rx_b[i_rx] = sol.receiver_b[j]
+            if sol.receiver_ez_uncertainty_db is not None:
+                rx_unc[i_rx] = sol.receiver_ez_uncertainty_db[j]
             rx_path[i_rx] = p
             rx_range[i_rx] = sol.path.receiver_ranges_m[j]
     magnetised = {}
@@ -418,6 +453,7 @@ def to_dataset(scenario, solutions):
         beta_per_km=extra.get("beta_per_km"),
         geomagnetic_attributes=gm_attrs,
         **magnetised,
+        receiver_ez_uncertainty_db=rx_unc,
         **series,
     )
     notes = [f"{s.path.label}: {n}" for s in solutions for n in s.engine.notes]

@@ -56,11 +56,12 @@ def test_uniform_grid_is_the_engines_plan():
     assert cells[4] == f"{plan.dt_s * 1e6:.3f}"
     assert cells[5:8] == [str(plan.nr), "x", str(plan.nz)]
     assert cells[9] == f"{plan.n_steps:,}"
-    # the default cells per wavelength at 14.3 kHz: dr = c / f / 24 = 873.5 m (common practice: 20 or more)
-    assert cells[2] == "874"
-    # Courant: dt must stay below the 2-D Cartesian limit dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and
-    # Hagness 2005, ch. 4); the axisymmetric limit is lower still (docs/physics.md 2)
-    assert plan.dt_s < plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
+    # the default cells per wavelength at 14.3 kHz: dr = c / f / 16 = 1310.3 m (16 with the fourth-order
+    # stencil: README, "Accuracy in three kinds of guide")
+    assert cells[2] == "1310"
+    # Courant: dt must stay below the 2-D Cartesian limit of the (2,4) scheme, 6/7 of the Yee one,
+    # dz / (c sqrt(1 + (dz/dr)^2)) (Taflove and Hagness 2005, ch. 4); the axis lowers it further
+    assert plan.dt_s < (6 / 7) * plan.dz_m / (299_792_458.0 * (1 + (plan.dz_m / plan.dr_m) ** 2) ** 0.5)
     assert "Marker 3000" in result.stdout and "by range" in result.stdout
 
 

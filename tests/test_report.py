@@ -630,3 +630,20 @@ def test_bearing_shown_once_per_path():
     # CSV keeps every receiver's own bearing on every row
     csv_rows = list(csv.DictReader(io.StringIO(receiver_table(ds, "csv"))))
     assert all(r["bearing_deg"] for r in csv_rows)
+
+
+def test_uncertainty_column_in_markdown_and_csv():
+    """issue 15: the receiver table shows receiver_ez_uncertainty as a +- column (empty where NaN)."""
+    ds = synthetic(2.0, (16.0, 22.7))
+    unc = np.array([[0.21, 0.35], [0.04, np.nan], [1.26, 2.0]])
+    ds["receiver_ez_uncertainty"] = (("receiver", "frequency"), unc)
+    rows = list(csv.DictReader(io.StringIO(receiver_table(ds, "csv"))))
+    assert [r["ez_uncertainty_db"] for r in rows] == ["0.210", "0.350", "0.040", "", "1.260", "2.000"]
+    table = parse_markdown(receiver_table(ds, "markdown"))
+    header = table[0]
+    col = header.index("+- (dB)")
+    assert header[col - 1] == "Ez (dB re 1 uV/m)"
+    assert [r[col] for r in table[1:]] == ["0.2", "0.3", "0.0", "", "1.3", "2.0"]
+    assert "numerical uncertainty" in receiver_table(ds, "markdown")
+    # without the variable (older files) the column is absent
+    assert "+- (dB)" not in receiver_table(synthetic(2.0, (16.0,)), "markdown")

@@ -77,7 +77,8 @@ def dataset():
                  path_bearing_deg=[268.0, 266.3, 258.2], solar_zenith_angle_deg=np.full((3, 6400), 95.0),
                  hprime_km=np.full((3, 6400), 80.0), beta_per_km=np.full((3, 6400), 0.5),
                  ground_relative_permittivity=np.full((3, 6400), 70.0),
-                 time_s=np.arange(100) * 1e-6, receiver_ez_time_series_v_per_m=np.zeros((3, 100)))
+                 time_s=np.arange(100) * 1e-6, receiver_ez_time_series_v_per_m=np.zeros((3, 100)),
+                 receiver_ez_uncertainty_db=np.array([[0.2, 0.3], [0.4, np.nan], [1.5, 2.0]]))
 
 
 def test_calibration_levels_in_db(dataset):
@@ -161,6 +162,15 @@ def test_metadata_and_attributes(dataset):
     assert ds.attrs["scenario"] == s.text and load_scenario(ds.attrs["scenario"]) == s
     assert ds.attrs["solver_cells"] == RECORD.cells and ds.attrs["solver_time_step_s"] == RECORD.time_step_s
     assert all(not np.iscomplexobj(v.values) for v in ds.variables.values())
+
+
+def test_receiver_uncertainty_variable(dataset):
+    _, dataset = dataset
+    # issue 15: dB on the dims of receiver_ez_amplitude, units "1", NaN where not computed
+    v = dataset["receiver_ez_uncertainty"]
+    assert v.dims == dataset["receiver_ez_amplitude"].dims
+    assert v.attrs["units"] == "1" and "numerical uncertainty" in v.attrs["long_name"] and "dB" in v.attrs["long_name"]
+    assert np.isnan(v.values[1, 1]) and v.values[2, 0] == 1.5
 
 
 def test_assemble_rejects_bad_shapes():

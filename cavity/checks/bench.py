@@ -79,7 +79,8 @@ def measure_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps
     ca = ((1 - x) / (1 + x)).astype(f32)
     cb = (p.dt_s / EPS0 / (1 + x)).astype(f32)
     args_h = (hp, ez, er, f32(1 / p.dr_m), f32(1 / p.dz_m), f32(p.dt_s / MU0))
-    args_e = (ez, er, hp, sim.rp, sim.rm, f32(1 / p.dz_m), ca, cb)
+    rp, rm = sim.stencil.er_coef[:, 1].copy(), (-sim.stencil.er_coef[:, 2]).copy()  # the two central weights
+    args_e = (ez, er, hp, rp, rm, f32(1 / p.dz_m), ca, cb)
     K.minimal_h(*args_h)
     K.minimal_e(*args_e)
     t = time.perf_counter()

@@ -98,7 +98,7 @@ def check_calibration() -> CheckResult:
     )
 
 
-def _plates_check(max_range_m, f_hz=10e3, h=70e3, cell=500.0):
+def _plates_check(max_range_m, f_hz=10e3, h=70e3, cell=500.0, min_range_m=50e3):
     from cavity.reference.plates import parallel_plate_field
 
     res = eng.run(eng.Medium.uniform(ceiling_m=h),
@@ -106,7 +106,7 @@ def _plates_check(max_range_m, f_hz=10e3, h=70e3, cell=500.0):
                                earth_curvature=False))
     r = res.range_m
     ref = parallel_plate_field(r, f_hz, h, 1.0)
-    sel = (r >= 50e3) & (r <= max_range_m) & _deep_null_mask(r, ref)
+    sel = (r >= min_range_m) & (r <= max_range_m) & _deep_null_mask(r, ref)
     err = _db(res.ez[0][sel] / ref[sel])
     return float(np.max(np.abs(err))), res
 
@@ -119,6 +119,19 @@ def check_plates(max_range_m=600e3) -> CheckResult:
         f"PEC plates to {max_range_m / 1e3:.0f} km", "Wait 1960, J. Res. NBS 64D(2) 153 (mode sum)",
         "mode sum, 50 km on (deep nulls +-30 km excluded)", f"worst {worst:.2f} dB", "0.5 dB",
         worst <= 0.5, time.perf_counter() - t0,
+    )
+
+
+def check_plate_guide(f_hz, h_m, max_range_m, tolerance_db) -> CheckResult:
+    """A conducting plate guide with several modes on the default grid, 100 km on (Wait 1960)."""
+    t0 = time.perf_counter()
+    worst, res = _plates_check(max_range_m, f_hz, h_m, cell=None, min_range_m=100e3)
+    n_modes = int(2 * h_m * f_hz / C0) + 1
+    return CheckResult(
+        f"plates h={h_m / 1e3:g} km {f_hz / 1e3:g} kHz to {max_range_m / 1e3:.0f} km",
+        "Wait 1960, J. Res. NBS 64D(2) 153 (mode sum)",
+        f"mode sum ({n_modes} propagating modes), 100 km on, default grid", f"worst {worst:.2f} dB",
+        f"{tolerance_db} dB", worst <= tolerance_db, time.perf_counter() - t0,
     )
 
 
@@ -311,6 +324,10 @@ FULL: list[tuple[str, Callable[[], CheckResult]]] = [
     ("day_below_night_20", check_day_below_night),
     ("day_land_12", lambda: check_ionosphere("day over land", 12e3, 71.8, 0.335, 1e-3, 15.0, 3000e3, 1.0)),
     ("night_land_12", lambda: check_ionosphere("night over land", 12e3, 85.1, 0.63, 1e-3, 15.0, 3000e3, 1.5)),
+    # several low-loss modes: a gentle night profile, and a conducting ceiling (issue 15)
+    ("night_many_modes_21", lambda: check_ionosphere("night, several modes, over sea", 21.1e3, 86.0, 0.5, 5.0, 70.0,
+                                                     3000e3, 1.0)),
+    ("plates_80_12", lambda: check_plate_guide(12.2e3, 80e3, 2000e3, 0.5)),
 ]
 
 

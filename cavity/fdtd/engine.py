@@ -21,7 +21,7 @@ import numpy as np
 from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
 from cavity.errors import SolverError
 from cavity.fdtd import grid as gridmod
-from cavity.fdtd import media
+from cavity.fdtd import media, stencil
 from cavity.fdtd.source import GaussianPulse, ToneBursts
 
 log = logging.getLogger(__name__)
@@ -96,6 +96,7 @@ class Settings:
     convergence_db: float = 0.002
     max_duration_s: float | None = None
     dispersion_correction: bool = True
+    stencil_order: int = 4  # 4: (2,4) scheme in the interior; 2: Yee with the grazing correction
 
 
 @dataclass
@@ -246,6 +247,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         s.max_range_m, float(f.max()), top,
         duration_s=t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=_max_log_slope(medium), ceiling=ceiling,
         pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength, courant_safety=s.courant_safety,
+        stencil_order=s.stencil_order,
     )
     if medium.magnetic_field_t is not None:
         import dataclasses
@@ -301,16 +303,19 @@ class Simulation:
         self.cez = (dt / eps_ez).astype(f32)
         self.cer = (dt / eps_er).astype(f32)
         self.ch = f32(dt / MU0)
-        self.gamma = radial_dispersion_factor(self.frequencies_hz, dr, dt) if s.dispersion_correction else 1.0
-        self.inv_dr, self.inv_dz = f32(self.gamma / dr), f32(1.0 / dz)
-        # (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = (H_{i+1/2} - H_{i-1/2})/dr + (H_{i+1/2} + H_{i-1/2})/(2 r_i):
-        # the difference part carries the dispersion factor, the 1/r part does not
-        rp = np.empty(nr)
-        rm = np.empty(nr)
-        rp[0], rm[0] = 4.0 * self.gamma / dr, 0.0
-        rp[1:] = self.gamma / dr + 0.5 / self.r_ez[1:]
-        rm[1:] = self.gamma / dr - 0.5 / self.r_ez[1:]
-        self.rp, self.rm = rp.astype(f32), rm.astype(f32)
+        # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in
+        order = int(s.stencil_order)
+        if not s.dispersion_correction:
+            self.gamma = 1.0
+        elif order == 2:
+            self.gamma = radial_dispersion_factor(self.frequencies_hz, dr, dt)
+        else:
+            self.gamma = stencil.dispersion_factor(self.frequencies_hz, dr, dz, dt, order)
+        self.stencil = stencil.build(nr, nz, dr, dz, order=order, gamma=self.gamma, ir0=nr - p.pml_r_cells,
+                                     jz0=nz - p.pml_z_cells, radial_gamma_only=(order == 2))
+        st = self.stencil
+        # second-order factors of the ground row and the absorbers (equal to the tables there)
+        self.inv_dr, self.inv_dz = f32(st.ar1[-1]), f32(st.kz1[-1])
 
         # plasma
         wp2_z, nu_z = _on_grid(m, self.r_ez, self.z_ez)
@@ -401,8 +406,8 @@ class Simulation:
         self.ch_far = ch_far
 
         # source: current element I in the axis cell of radius dr/2 and height dz (moment I dz)
-        self.src_coef = float(self.cez[0]) / (math.pi * (dr / 2) ** 2)
-        self.src_coef_rows = self.cez.astype(float) / (math.pi * (dr / 2) ** 2)
+        self.src_coef = float(self.cez[0]) / st.axis_area_m2
+        self.src_coef_rows = self.cez.astype(float) / st.axis_area_m2
 
         self.magnetised = m.magnetic_field_t is not None
         if self.magnetised:
@@ -545,11 +550,13 @@ class Simulation:
         step = 0
         # the kernels' argument groups (kernels.Fields ...): the same arrays every step, named
         fields = K.Fields(self.ez, self.er, self.hp, self.jz, self.jr)
-        curl_h = K.HCurl(self.inv_dr, self.inv_dz, self.ch, self.ha, self.hb)
+        st = self.stencil
+        curl_h = K.HCurl(self.inv_dr, self.inv_dz, st.ar1, st.ar2, st.kz1, st.kz2, self.ch, self.ha, self.hb)
         ground = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi)
         top_h = K.Absorber(self.jz0, *self.pz_h, self.psi_zh, np.zeros((0, 0), np.float32))
         far_h = K.Absorber(self.ir0, *self.pr_h, self.psi_rh, self.ch_far)
-        curl_e = K.ECurl(self.rp, self.rm, self.inv_dz, self.cez, self.cer, self.jp0)
+        reach = st.reach_columns * gridmod.FRONT_SEARCH_STEPS + 2  # columns a step can reach outward
+        curl_e = K.ECurl(st.er_coef, st.ke1, st.ke2, self.cez, self.cer, self.jp0)
         plasma_z, plasma_r = K.Plasma(*self.plasma_z), K.Plasma(*self.plasma_r)
         top_e = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, self.ce_top)
         far_e = K.Absorber(self.ir0, *self.pr_e, self.psi_re, self.ce_far)
@@ -569,7 +576,7 @@ class Simulation:
                     last_col = max(last_col, K.last_active_column_te(
                         n_cols - 1, self.ephi, self.hr, self.hz, self.jphi, self.psi_hr, self.psi_pz,
                         self.sib_psi_r, self.ir0, self.psi_hz, self.psi_pr))
-                n_cols = min(nr, last_col + gridmod.FRONT_SEARCH_STEPS + 2)
+                n_cols = min(nr, last_col + reach)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
             if step % 1024 == 0:  # re-anchor the rotors against round-off

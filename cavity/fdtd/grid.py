@@ -23,9 +23,10 @@ from cavity.constants import C0
 from cavity.errors import ResourceError, SolverError
 
 #: Default resolution along range, cells per free-space wavelength at the highest frequency. With
-#: the radial dispersion correction, 24 keeps a 3,000 km day (night) guide within 0.8 dB (1.1 dB) of
-#: the normal-mode reference; 20 gives 1.1 dB by day (README, "Accuracy and speed").
-DEFAULT_CELLS_PER_WAVELENGTH = 24.0
+#: the fourth-order stencil, 16 keeps 3,000 km day and several-mode night guides within 0.15 dB of
+#: the normal-mode reference and conducting plates within a few tenths of a dB of the mode sum
+#: (README, "Accuracy and speed": the measured table for the three kinds of guide).
+DEFAULT_CELLS_PER_WAVELENGTH = 16.0
 #: Largest vertical cell: resolves the profile scale 1/beta (docs/physics.md 2).
 MAX_DZ_M = 500.0
 #: Fraction of the stability limit used for the time step.
@@ -41,9 +42,10 @@ BYTES_PER_CELL_MAGNETISED = 4 * 26
 #: beyond the last active one (:func:`cavity.fdtd.kernels.last_active_column`).
 FRONT_SEARCH_STEPS = 64
 #: Columns stepped ahead of the front c t on average: the numerical precursor that runs ahead of it
-#: until flushed to zero (measured 55-110 columns on the 3,000 km day grid at 625 m) and the
-#: search margin. Used only to predict run times.
-FRONT_LEAD_COLUMNS = 100 + FRONT_SEARCH_STEPS
+#: until flushed to zero (measured 55-110 columns on the 3,000 km day grid at 625 m with the Yee
+#: stencil) and the search margin, three columns per step between searches with the fourth-order
+#: stencil (:data:`cavity.fdtd.stencil.REACH_COLUMNS`). Used only to predict run times.
+FRONT_LEAD_COLUMNS = 100 + 3 * FRONT_SEARCH_STEPS
 #: Steps a run takes beyond its planned minimum before the DFTs converge, as a share of the planned
 #: steps, for the cost model. Measured: +22 % (demo by day), +49 % (demo by night), +6 %
 #: (examples/uniform_night.toml); the middle value is used, so a time left is good to about 25 %.
@@ -51,30 +53,29 @@ CONVERGENCE_TAIL_SHARE = 0.2
 
 
 @functools.lru_cache(maxsize=64)
-def stability_factor(aspect: float, size: int = 48, iterations: int = 2000) -> float:
-    """Largest stable ``c dt / dz`` for the axisymmetric Yee scheme with ``dr = aspect * dz``.
+def stability_factor(aspect: float, size: int = 48, iterations: int = 2000, order: int = 4) -> float:
+    """Largest stable ``c dt / dz`` for the axisymmetric scheme with ``dr = aspect * dz``.
 
     Power iteration on K = -curlH(curlE(.)) (fields in units with c = 1, dz = 1) gives its largest
-    eigenvalue lambda; the leapfrog scheme is stable for c dt <= 2 / sqrt(lambda).
+    eigenvalue lambda; the leapfrog scheme is stable for c dt <= 2 / sqrt(lambda). The operators
+    are the engine's own stencil tables (:mod:`cavity.fdtd.stencil`) on a small grid with the axis,
+    a conducting ground, an 8-cell second-order band at the far end and at the top (as next to the
+    absorbers) and conducting walls beyond, so every closure of the stencil is included.
     """
+    from cavity.fdtd import stencil
+
     dr, dz = float(aspect), 1.0
     nr, nz = size, size
-    r_half = (np.arange(nr) + 0.5) * dr  # Er, Hphi radii
-    r_int = np.arange(nr) * dr  # Ez radii
+    band = 8
+    st = stencil.build(nr, nz, dr, dz, order=order, gamma=1.0, ir0=nr - band, jz0=nz - band)
     rng = np.random.default_rng(1)
     ez = rng.standard_normal((nr, nz))
     er = rng.standard_normal((nr, nz + 1))
     er[:, 0] = er[:, -1] = 0.0
     lam = 0.0
     for _ in range(iterations):
-        ez_pad = np.vstack([ez, np.zeros((1, nz))])  # PEC far wall: ez(nr) = 0
-        h = (ez_pad[1:] - ez_pad[:-1]) / dr - (er[:, 1:] - er[:, :-1]) / dz
-        rh = r_half[:, None] * h
-        new_ez = np.empty_like(ez)
-        new_ez[0] = 4.0 * h[0] / dr
-        new_ez[1:] = (rh[1:] - rh[:-1]) / (r_int[1:, None] * dr)
-        new_er = np.zeros_like(er)
-        new_er[:, 1:-1] = -(h[:, 1:] - h[:, :-1]) / dz
+        h = stencil.curl_e(st, ez, er)
+        new_ez, new_er = stencil.curl_h(st, h)
         # K = -curlH curlE; power iteration on K
         new_ez, new_er = -new_ez, -new_er
         norm = math.sqrt(float(np.sum(new_ez**2) + np.sum(new_er**2)))
@@ -163,6 +164,7 @@ def plan_grid(
     pml_cells: int = DEFAULT_PML_CELLS,
     cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
     courant_safety: float = COURANT_SAFETY,
+    stencil_order: int = 4,
 ) -> GridPlan:
     """Size the grid and the time step for one solve.
 
@@ -184,7 +186,7 @@ def plan_grid(
     nz = int(round(top_m / dz)) + pml_z
     if ceiling and abs(nz * dz - top_m) > 1e-6 * top_m:
         dz = top_m / nz  # the ceiling must sit exactly on an Er row
-    dt = courant_safety * stability_factor(round(dr / dz, 4)) * dz / C0
+    dt = courant_safety * stability_factor(round(dr / dz, 4), order=int(stencil_order)) * dz / C0
     n_steps = int(math.ceil(duration_s / dt))
     return GridPlan(
         dr_m=dr,

@@ -51,10 +51,15 @@ class Fields(NamedTuple):
 
 
 class HCurl(NamedTuple):
-    """Faraday's-law coefficients: inverse cells, dt/mu0 and the ground row's (ha, hb) per column."""
+    """Faraday's-law coefficients: second-order inverse cells (ground row, absorbers), the stencil
+    tables (:mod:`cavity.fdtd.stencil`), dt/mu0 and the ground row's (ha, hb) per column."""
 
     inv_dr: float
     inv_dz: float
+    ar1: np.ndarray  # (nr,) dEz/dr = ar1 (Ez[i+1] - Ez[i]) + ar2 (Ez[i+2] - Ez[i-1])
+    ar2: np.ndarray  # (nr,)
+    kz1: np.ndarray  # (nz,) dEr/dz = kz1 (Er[j+1] - Er[j]) + kz2 (Er[j+2] - Er[j-1])
+    kz2: np.ndarray  # (nz,)
     ch: float
     ha: np.ndarray  # (nr,)
     hb: np.ndarray  # (nr,)
@@ -69,11 +74,12 @@ class GroundMemory(NamedTuple):
 
 
 class ECurl(NamedTuple):
-    """Ampere's-law coefficients: (1/r) d(r H)/dr weights, 1/dz, dt/eps per row, first plasma row."""
+    """Ampere's-law coefficients: the stencil tables of (1/r) d(r H)/dr and dH/dz
+    (:mod:`cavity.fdtd.stencil`), dt/eps per row, first plasma row."""
 
-    rp: np.ndarray  # (nr,)
-    rm: np.ndarray  # (nr,)
-    inv_dz: float
+    ecoef: np.ndarray  # (nr, 4) weights of H[i+1], H[i], H[i-1], H[i-2]
+    ke1: np.ndarray  # (nz + 1,) dH/dz = ke1 (H[j] - H[j-1]) + ke2 (H[j+1] - H[j-2])
+    ke2: np.ndarray  # (nz + 1,)
     cez: np.ndarray  # (nz,)
     cer: np.ndarray  # (nz + 1,)
     jp0: int
@@ -149,10 +155,11 @@ def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, 
     absorber/ground memory; -1 if none.
 
     Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
-    nonzero values at most one column further out (H at column i reads Ez at i+1, which is still
-    zero; E at i+1 reads H at i). Stepping only the columns up to the last active one plus the steps
-    until the next search is therefore exact, and skips the still-empty far part of a long path
-    during the first passage of the wave.
+    nonzero values at most ``reach`` columns further out: one for the Yee stencil (H at column i
+    reads Ez at i+1, which is still zero; E at i+1 reads H at i), three for the fourth-order one
+    (H at i reads Ez at i-1, E at i reads H at i-2). Stepping only the columns up to the last
+    active one plus ``reach`` times the steps until the next search is therefore exact, and skips
+    the still-empty far part of a long path during the first passage of the wave.
     """
     for i in range(start, -1, -1):
         if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
@@ -194,6 +201,12 @@ def step_h(fields, curl, ground, top, far, dft, n_cols):
     Only columns ``0 .. n_cols-1`` are stepped: the caller guarantees that every field and memory
     beyond them is zero and would stay zero (see :func:`last_active_column`).
 
+    Differences from the stencil tables (:mod:`cavity.fdtd.stencil`): dEz/dr at column i is
+    ``ar1[i] (Ez[i+1] - Ez[i]) + ar2[i] (Ez[i+2] - Ez[i-1])`` (Ez[-1] read as Ez[1], the axis
+    mirror), dEr/dz at row j is ``kz1[j] (Er[j+1] - Er[j]) + kz2[j] (Er[j+2] - Er[j-1])``. ``inv_dr``
+    and ``inv_dz`` are the second-order factors used by the ground row (vertical) and the absorber
+    corrections, where the tables are second order and equal to them.
+
     Ground row (z = dz/2) with the impedance ground: Er(0) = -eta (H(n+1/2) + H(n-1/2))/2 + sum_k psi_k,
     the instantaneous part averaged in time (semi-implicit, unconditionally stable) and the memory
     part a sum of recursively updated exponentials ``psi_k(n) = q_k psi_k(n-1) + w_k H(n-1/2)``
@@ -212,6 +225,7 @@ def step_h(fields, curl, ground, top, far, dft, n_cols):
     """
     hp, ez, er = fields.hp, fields.ez, fields.er
     inv_dr, inv_dz, ch, ha, hb = curl.inv_dr, curl.inv_dz, curl.ch, curl.ha, curl.hb
+    ar1, ar2, kz1, kz2 = curl.ar1, curl.ar2, curl.kz1, curl.kz2
     sib_q, sib_w, sib_psi = ground.q, ground.w, ground.psi
     jz0, b_zh, c_zh, kd_zh, psi_zh = top.start, top.b, top.c, top.kd, top.psi
     ir0, b_rh, c_rh, kd_rh, psi_rh, ch_far = far.start, far.b, far.c, far.kd, far.psi, far.coef
@@ -222,6 +236,11 @@ def step_h(fields, curl, ground, top, far, dft, n_cols):
     nf = acc_re.shape[0]
     for i in prange(n_cols):
         has_next = i + 1 < nr
+        ic = np.int64(i)
+        ip2 = ic + 2 if ic + 2 < nr else ic  # ar2 = 0 there
+        im1 = ic - 1 if ic > 0 else np.int64(1 if nr > 1 else 0)  # Ez is even about the axis
+        a1 = ar1[i]
+        a2 = ar2[i]
         h_old = hp[i, 0]
         psi_sum = 0.0
         for k in range(nk):
@@ -229,19 +248,27 @@ def step_h(fields, curl, ground, top, far, dft, n_cols):
             sib_psi[i, k] = p
             psi_sum += p
         ezn = ez[i + 1, 0] if has_next else np.float32(0.0)
-        curl = (ezn - ez[i, 0]) * inv_dr - er[i, 1] * inv_dz + psi_sum * inv_dz
-        hp[i, 0] = ha[i] * h_old + hb[i] * curl
+        c_g = a1 * (ezn - ez[i, 0]) + a2 * (ez[ip2, 0] - ez[im1, 0]) - er[i, 1] * inv_dz + psi_sum * inv_dz
+        hp[i, 0] = ha[i] * h_old + hb[i] * c_g
         h = hp[i]
         e_r = er[i]
         e_z = ez[i]
         if has_next:
             e_n = ez[i + 1]
-            for j in range(1, nz):
-                v = h[j] + ch * ((e_n[j] - e_z[j]) * inv_dr - (e_r[j + 1] - e_r[j]) * inv_dz)
+            e_n2 = ez[ip2]
+            e_m = ez[im1]
+            for j in range(1, nz - 1):
+                v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j]))
+                                 - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1])))
                 h[j] = v if abs(v) > TINY else np.float32(0.0)
+            j = nz - 1
+            v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j])) - kz1[j] * (e_r[j + 1] - e_r[j]))
+            h[j] = v if abs(v) > TINY else np.float32(0.0)
         else:
-            for j in range(1, nz):
-                h[j] += ch * (-e_z[j] * inv_dr - (e_r[j + 1] - e_r[j]) * inv_dz)
+            for j in range(1, nz - 1):
+                h[j] += ch * (-e_z[j] * a1 - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1])))
+            j = nz - 1
+            h[j] += ch * (-e_z[j] * a1 - kz1[j] * (e_r[j + 1] - e_r[j]))
         for k in range(n_top):
             j = jz0 + k
             d = -(e_r[j + 1] - e_r[j]) * inv_dz
@@ -268,6 +295,11 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
 
     Columns ``0 .. n_cols-1`` only, as in :func:`step_h`.
 
+    Curls from the stencil tables (:mod:`cavity.fdtd.stencil`): the Ez curl (1/r) d(r H)/dr at
+    column i is ``ecoef[i] . (H[i+1], H[i], H[i-1], H[i-2])`` (axis and mirror values folded into
+    the table), the Er curl -dH/dz at row j is ``-(ke1[j] (H[j] - H[j-1]) + ke2[j] (H[j+1] - H[j-2]))``
+    (``ke2`` = 0 in rows 1 and nz-1, which the wide stencil would read across).
+
     Vacuum rows (j < jp0): E += c curl H with ``cez[j]``/``cer[j]`` = dt/eps(z) (eps includes the
     earth-flattening factor). Plasma rows: the E-J collocated trapezoidal update (Yu and Simpson
     2010, IEEE TAP 58(2) 469), stable for any omega_p dt and nu dt:
@@ -279,22 +311,21 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
     ``qb`` = eps omega_p^2 (dt/2)/(1 + nu dt/2) per cell, held once per distinct column profile:
     column i uses row ``prof[i]`` of ``qb``, so that a path under one ionosphere reads a single
     cached profile instead of streaming a table the size of the grid.
-    Ez curl: (r_{i+1/2} H_{i+1/2} - r_{i-1/2} H_{i-1/2}) / (r_i dr) = rp[i] H_i - rm[i] H_{i-1};
-    on the axis rp[0] = 4/dr, rm[0] = 0 (Ampere's law on the disc of radius dr/2). Er curl:
-    -(H_j - H_{j-1})/dz; Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
+    Er rows 0 and nz are walls (the ground is handled in :func:`step_h`).
     The plasma never reaches row 0 (``jp0 >= 1``). Inner loops run over row views indexed from zero
     so that the compiler can vectorise them.
 
     Then the top CPML correction of dH/dz for Er (rows >= jz0) and the far-end correction of
     (1/r) d(rH)/dr for Ez (columns >= ir0, stretched as a Cartesian derivative: error of order the
-    layer depth over r). ``ce_top``/``ce_far`` hold each absorber cell's curl coefficient. In plasma
+    layer depth over r); there the stencil is second order. ``ce_top``/``ce_far`` hold each
+    absorber cell's curl coefficient. In plasma
     cells J(n+1) was computed from the uncorrected E(n+1); it receives qb dE so that the pair stays
     the trapezoidal E-J update of the stretched equations. Finally ``ez[0, :len(src)] -= src`` (the
     source: current elements in the axis cells from the ground up, one for a point source, one per
     driven cell for a lightning channel) and the ground-row DFT.
     """
     ez, er, hp, jz, jr = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
-    rp, rm, inv_dz, cez, cer, jp0 = curl.rp, curl.rm, curl.inv_dz, curl.cez, curl.cer, curl.jp0
+    ecoef, ke1, ke2, cez, cer, jp0 = curl.ecoef, curl.ke1, curl.ke2, curl.cez, curl.cer, curl.jp0
     ed_z, qa_z, qb_z, prof_z = plasma_z.ed, plasma_z.qa, plasma_z.qb, plasma_z.prof
     ed_r, qa_r, qb_r, prof_r = plasma_r.ed, plasma_r.qa, plasma_r.qb, plasma_r.prof
     jz0, b_ze, c_ze, kd_ze, psi_ze, ce_top = top.start, top.b, top.c, top.kd, top.psi, top.coef
@@ -307,46 +338,96 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
     half = np.float32(0.5)
     one = np.float32(1.0)
     for i in prange(n_cols):
-        im = i - 1 if i > 0 else 0
-        a = rp[i]
-        b = rm[i]
+        ic = np.int64(i)
+        ip = ic + 1 if ic + 1 < nr else ic  # ecoef[i, 0] = 0 there
+        im = ic - 1 if ic > 0 else np.int64(0)
+        im2 = ic - 2 if ic > 1 else np.int64(0)
+        c0 = ecoef[i, 0]
+        c1 = ecoef[i, 1]
+        c2 = ecoef[i, 2]
+        c3 = ecoef[i, 3]
         e_z = ez[i]
         e_r = er[i]
         h = hp[i]
+        hn = hp[ip]
         hm = hp[im]
+        hm2 = hp[im2]
         for j in range(jp0):
-            e_z[j] += cez[j] * (a * h[j] - b * hm[j])
-        for j in range(1, jp0):
-            e_r[j] -= cer[j] * (h[j] - h[j - 1]) * inv_dz
+            e_z[j] += cez[j] * (c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j])
+        # vacuum Er rows 1 .. jp0-1; the wide stencil in rows 2 .. nz-2
+        if jp0 > 1:
+            e_r[1] -= cer[1] * ke1[1] * (h[1] - h[0])
+        top4 = min(jp0, nz - 1)
+        for j in range(2, top4):
+            e_r[j] -= cer[j] * (ke1[j] * (h[j] - h[j - 1]) + ke2[j] * (h[j + 1] - h[j - 2]))
+        if jp0 == nz and nz - 1 >= 2:
+            j = nz - 1
+            e_r[j] -= cer[j] * ke1[j] * (h[j] - h[j - 1])
+        # plasma Ez rows
         ezp = ez[i, jp0:]
-        hp0 = hp[i, jp0:]
-        hpm = hp[im, jp0:]
+        h0 = hp[i, jp0:]
+        hnp = hp[ip, jp0:]
+        hmp = hp[im, jp0:]
+        hm2p = hp[im2, jp0:]
         qb = qb_z[prof_z[i]]
         jj = jz[i]
         for k in range(n):
             e_old = ezp[k]
             g = qb[k]
-            e_new = e_old + ((a * hp0[k] - b * hpm[k]) - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
+            cu = c0 * hnp[k] + c1 * h0[k] + c2 * hmp[k] + c3 * hm2p[k]
+            e_new = e_old + (cu - g * e_old - half * (one + qa_z[k]) * jj[k]) / (ed_z[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_z[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             ezp[k] = e_new
+        # plasma Er rows jp0 .. nz-1: the wide stencil in rows 2 .. nz-2 (k_lo .. n-2), second
+        # order in row 1 (when the plasma starts there) and in row nz-1
         erp = er[i, jp0:]
-        hlo = hp[i, jp0 - 1:]
         qb = qb_r[prof_r[i]]
         jj = jr[i]
+        k_lo = max(0, 2 - jp0)
         for k in range(n):
+            if k >= k_lo:
+                k = n - 1  # after the rows below the wide stencil, only the top row
+                if k < k_lo:
+                    break
+            j = jp0 + k
             e_old = erp[k]
             g = qb[k]
-            curl = -(hp0[k] - hlo[k]) * inv_dz
-            e_new = e_old + (curl - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
+            cu = -ke1[j] * (h[j] - h[j - 1])
+            e_new = e_old + (cu - g * e_old - half * (one + qa_r[k]) * jj[k]) / (ed_r[k] + half * g)
             e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
             j_new = qa_r[k] * jj[k] + g * (e_new + e_old)
             jj[k] = j_new if abs(j_new) > TINY else np.float32(0.0)
             erp[k] = e_new
+            if k == n - 1:
+                break
+        if n - 1 > k_lo:
+            j0 = jp0 + k_lo
+            m_n = n - 1 - k_lo
+            ew = er[i, j0:]
+            jw = jr[i, k_lo:]
+            qbw = qb[k_lo:]
+            qaw = qa_r[k_lo:]
+            edw = ed_r[k_lo:]
+            h1 = hp[i, j0:]
+            hlo = hp[i, j0 - 1:]
+            hup = hp[i, j0 + 1:]
+            hlo2 = hp[i, j0 - 2:]
+            e1 = ke1[j0:]
+            e2 = ke2[j0:]
+            for m in range(m_n):
+                e_old = ew[m]
+                g = qbw[m]
+                cu = -(e1[m] * (h1[m] - hlo[m]) + e2[m] * (hup[m] - hlo2[m]))
+                e_new = e_old + (cu - g * e_old - half * (one + qaw[m]) * jw[m]) / (edw[m] + half * g)
+                e_new = e_new if abs(e_new) > TINY else np.float32(0.0)
+                j_new = qaw[m] * jw[m] + g * (e_new + e_old)
+                jw[m] = j_new if abs(j_new) > TINY else np.float32(0.0)
+                ew[m] = e_new
         for k in range(n_top):
             j = jz0 + k
-            d = -(h[j] - h[j - 1]) * inv_dz
+            d = -ke1[j] * (h[j] - h[j - 1])
             p = b_ze[k] * psi_ze[i, k] + c_ze[k] * d
             psi_ze[i, k] = p
             de = ce_top[i, k] * (kd_ze[k] * d + p)
@@ -356,7 +437,7 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
         if i >= ir0:
             kk = i - ir0
             for j in range(nz):
-                d = a * h[j] - b * hm[j]
+                d = c0 * hn[j] + c1 * h[j] + c2 * hm[j] + c3 * hm2[j]
                 p = b_re[kk] * psi_re[kk, j] + c_re[kk] * d
                 psi_re[kk, j] = p
                 de = ce_far[kk, j] * (kd_re[kk] * d + p)

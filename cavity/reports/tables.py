@@ -250,6 +250,8 @@ def receiver_rows(
     extra = {key: np.asarray(ds[name].transpose("receiver", "frequency").values, dtype=float)
              for key, name in (("b_radial_db", "receiver_b_radial_amplitude"), ("ephi_db", "receiver_ephi_amplitude"))
              if name in ds}
+    unc = (np.asarray(ds["receiver_ez_uncertainty"].transpose("receiver", "frequency").values, dtype=float)
+           if "receiver_ez_uncertainty" in ds else None)
     daylight = receiver_daylight(ds)
     rx_path = _receiver_paths(ds)
     path_bearing = (np.asarray(ds["path_bearing"].values, dtype=float).reshape(-1) if "path_bearing" in ds
@@ -274,6 +276,8 @@ def receiver_rows(
             }
             for key, values in extra.items():
                 row[key] = float(values[i, k])
+            if unc is not None:
+                row["ez_uncertainty_db"] = float(unc[i, k])
             if required_db is not None:
                 row["margin_db"] = float(ez[i, k] - required_db)
             if noise_band is not None:
@@ -307,6 +311,10 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
         columns.append(Column("path_bearing_shown", "Path bearing (deg)", "path_bearing_deg", 2, 1))
     columns += [
         Column("ez_db", "Ez (dB re 1 uV/m)", "ez_db_re_1uv_per_m", 3, 1),
+    ]
+    if "ez_uncertainty_db" in keys:
+        columns.append(Column("ez_uncertainty_db", "+- (dB)", "ez_uncertainty_db", 3, 1))
+    columns += [
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
     ]
@@ -390,6 +398,10 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
             f"and bandwidth B = {bandwidth_hz:g} Hz: noise {band:.1f} dB re 1 uV/m in the band."
         )
     notes.append(f"Fields are RMS at the ground; {PHASE_DEFINITION}.")
+    if any("receiver_ez_uncertainty" in ds for ds in datasets):
+        notes.append("+- is the numerical uncertainty of Ez (grid convergence index from a companion solve on a "
+                     "1.5 times coarser grid); empty when it was not computed. It does not cover the "
+                     "uncertainty of the ionosphere and ground given.")
     cautions = list(dict.fromkeys(_text(ds.attrs.get("cautions", "")).strip() for ds in datasets))
     cautions = [c for c in cautions if c]
     if cautions:

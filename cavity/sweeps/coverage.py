@@ -189,7 +189,8 @@ def bearing_scenario(scenario: Scenario, bearing_deg: float, settings: CoverageS
         latitude_deg=round(float(lat[0]), 9),
         longitude_deg=round(float(lon[0]), 9),
     )
-    solver = dataclasses.replace(scenario.solver, max_range_m=None, receiver_time_series=False)
+    # the map keeps the field along each bearing, not receiver uncertainties: no companion solve
+    solver = dataclasses.replace(scenario.solver, max_range_m=None, receiver_time_series=False, uncertainty=False)
     if settings.cells_per_wavelength is not None and scenario.solver.cell_m is None:
         solver = dataclasses.replace(solver, cells_per_wavelength=settings.cells_per_wavelength)
     return scenario.replace(receivers=(receiver,), solver=solver)

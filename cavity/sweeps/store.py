@@ -41,8 +41,21 @@ def part_path(parts_dir: Path, point: SweepPoint) -> Path:
 
 #: Subfolder of the parts folder that keeps each distinct path solve, by its key.
 SOLVES_SUBDIR = "path-solves"
-_SOLUTION_ARRAYS = ("range_m", "ez", "b", "receiver_ez", "receiver_b", "electron_density", "collision_frequency",
-                    "b_radial", "ephi", "receiver_b_radial", "receiver_ephi")  # the last four: with a field
+_SOLUTION_ARRAYS = (
+    "range_m",
+    "ez",
+    "b",
+    "receiver_ez",
+    "receiver_b",
+    "electron_density",
+    "collision_frequency",
+    "ez_uncertainty_db",
+    "receiver_ez_uncertainty_db",
+    "b_radial",  # this and the next three: with a geomagnetic field
+    "ephi",
+    "receiver_b_radial",
+    "receiver_ephi",
+)
 _ENGINE_ARRAYS = ("range_m", "frequencies_hz", "ez", "hphi", "probe_ranges_m")
 
 
