@@ -304,7 +304,8 @@ class Simulation:
         self.cer = (dt / eps_er).astype(f32)
         self.ch = f32(dt / MU0)
         # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in
-        order = int(s.stencil_order)
+        # the six-component kernels (geomagnetic field) are second-order Yee: the whole run uses it
+        order = 2 if m.magnetic_field_t is not None else int(s.stencil_order)
         if not s.dispersion_correction:
             self.gamma = 1.0
         elif order == 2:
@@ -426,6 +427,14 @@ class Simulation:
         n_pl = nz - self.jp0
         self.jphi = np.zeros((nr, n_pl), f32)
         # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
+        # second-order (Yee) radial operator of Ez, as the isotropic kernels had it before the (2,4) stencil
+        rp = np.empty(nr)
+        rm = np.empty(nr)
+        rp[0], rm[0] = 4.0 * self.gamma / dr, 0.0
+        rp[1:] = self.gamma / dr + 0.5 / self.r_ez[1:]
+        rm[1:] = self.gamma / dr - 0.5 / self.r_ez[1:]
+        self.rp, self.rm = rp.astype(f32), rm.astype(f32)
+        self.inv_dr = f32(self.gamma / dr)
         self.qp = (self.gamma / dr + 0.5 / self.r_h).astype(f32)
         self.qm = (self.gamma / dr - 0.5 / self.r_h).astype(f32)
         self.sib_psi_r = np.zeros_like(self.sib_w)
