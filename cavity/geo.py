@@ -158,6 +158,29 @@ def points_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *
     return np.asarray(lats, dtype=float), wrap_longitude(lons)
 
 
+def headings_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *,
+                   ellipsoid: str = ELLIPSOID) -> np.ndarray:
+    """Local direction of travel (degrees clockwise from true north, in [0, 360)) at the given ranges
+    along the geodesic leaving a point at a bearing.
+
+    A great circle's heading changes along it; the path frame of the geomagnetic field
+    (:mod:`cavity.geomag`) uses the local heading. It is the back azimuth of the direct problem
+    turned by 180 deg (pyproj, Karney 2013).
+    """
+    _check_latitudes(lat_deg, "latitude_deg")
+    _check_longitudes(lon_deg, "longitude_deg")
+    ranges = np.atleast_1d(np.asarray(ranges_m, dtype=float))
+    if not np.all(np.isfinite(ranges)) or np.any(ranges < 0.0):
+        raise ScenarioError("range along a path must be finite and >= 0 m")
+    n = ranges.size
+    _, _, back = _geod(ellipsoid).fwd(
+        np.full(n, float(lon_deg)), np.full(n, float(lat_deg)), np.full(n, float(bearing_deg)), ranges
+    )
+    heading = (np.asarray(back, dtype=float) + 180.0) % 360.0
+    heading[ranges == 0.0] = float(bearing_deg) % 360.0
+    return heading
+
+
 _J2000 = datetime(2000, 1, 1, 12, 0, 0, tzinfo=timezone.utc)
 
 

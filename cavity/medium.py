@@ -68,6 +68,11 @@ def path_medium(scenario, path) -> Medium:
         ne1, nu1 = profiles.sample_profile(ds, z)
         ne = np.broadcast_to(np.asarray(ne1, float)[None, :], (path.n_samples, z.size)).copy()
         nu = np.broadcast_to(np.asarray(nu1, float)[None, :], (path.n_samples, z.size)).copy()
+    # the geomagnetic field per sample in the path frame (tesla): six components in the engine
+    field = getattr(path, "geomagnetic", None)
+    b0 = None
+    if field is not None and ne is not None:
+        b0 = np.stack([field.b_r_nt, field.b_phi_nt, field.b_z_nt], axis=1) * 1e-9
     return eng.Medium(
         range_m=np.asarray(path.range_m, float),
         ground_conductivity=np.asarray(path.ground_conductivity_s_per_m, float),
@@ -76,4 +81,5 @@ def path_medium(scenario, path) -> Medium:
         electron_density=ne,
         collision_frequency=nu,
         ceiling_m=ion.ceiling_m if ion.form == "ceiling" else None,
+        magnetic_field_t=b0,
     )

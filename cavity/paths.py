@@ -10,6 +10,7 @@ receiver.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
 
@@ -57,6 +58,11 @@ class PathModel:
         Wait-Spies h' (km) and beta (1/km) per sample (forms "exponential", "preset", "utc").
     daylight : numpy.ndarray of str or None
         "day", "night" or "transition" per sample (form "utc" only).
+    heading_deg : numpy.ndarray or None
+        Local direction of travel per sample, degrees clockwise from true north (None for a
+        direction-free path).
+    geomagnetic : cavity.geomag.FieldAlong or None
+        The geomagnetic field per sample in the path frame (None for model "none").
     """
 
     label: str
@@ -74,11 +80,13 @@ class PathModel:
     hprime_km: np.ndarray | None
     beta_per_km: np.ndarray | None
     daylight: np.ndarray | None
+    heading_deg: np.ndarray | None = None
+    geomagnetic: object | None = None  # cavity.geomag.FieldAlong
 
     def __post_init__(self):
         for name in ("range_m", "latitude_deg", "longitude_deg", "ground_conductivity_s_per_m",
                      "ground_relative_permittivity", "ground_kind", "solar_zenith_deg", "hprime_km",
-                     "beta_per_km", "daylight"):
+                     "beta_per_km", "daylight", "heading_deg"):
             value = getattr(self, name)
             if isinstance(value, np.ndarray):
                 value.setflags(write=False)  # the model is frozen; so are its arrays
@@ -100,6 +108,8 @@ def direction_dependent(scenario) -> str | None:
         return 'ground kind = "auto" (land/sea map along each path)'
     if scenario.ionosphere.form == "utc":
         return "ionosphere utc = ... (sun position along each path)"
+    if scenario.geomagnetic.model == "igrf":
+        return 'geomagnetic model = "igrf" (the field along each path)'
     return None
 
 
@@ -264,6 +274,9 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         kinds, sigma, eps = _ground_along(scenario, r, None, None)
         chi, hprime, beta, daylight = ionosphere_along(scenario, None, None, r.size)
         label = "all bearings" if scenario.ground.segments else "uniform"
+        from cavity.geomag import field_along
+
+        field = field_along(scenario.geomagnetic, None, r.size)
         return [
             PathModel(
                 label=label, bearing_deg=None,
@@ -271,6 +284,7 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
                 max_range_m=max_range, range_m=r, latitude_deg=None, longitude_deg=None,
                 ground_conductivity_s_per_m=sigma, ground_relative_permittivity=eps, ground_kind=kinds,
                 solar_zenith_deg=chi, hprime_km=hprime, beta_per_km=beta, daylight=daylight,
+                geomagnetic=field,
             )
         ]
 
@@ -281,7 +295,8 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
                 "give latitude_deg and longitude_deg instead"
             )
 
-    from cavity.geo import points_along
+    from cavity.geo import headings_along, points_along
+    from cavity.geomag import field_along
 
     tx = scenario.transmitter
     paths = []
@@ -293,13 +308,15 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         lats, lons = points_along(tx.latitude_deg, tx.longitude_deg, bearing, r)
         kinds, sigma, eps = _ground_along(scenario, r, lats, lons)
         chi, hprime, beta, daylight = ionosphere_along(scenario, lats, lons, r.size)
-        paths.append(
-            PathModel(
-                label=f"bearing {bearing:.1f} deg", bearing_deg=bearing,
-                receiver_indices=tuple(group), receiver_ranges_m=group_ranges,
-                max_range_m=max_range, range_m=r, latitude_deg=lats, longitude_deg=lons,
-                ground_conductivity_s_per_m=sigma, ground_relative_permittivity=eps, ground_kind=kinds,
-                solar_zenith_deg=chi, hprime_km=hprime, beta_per_km=beta, daylight=daylight,
-            )
+        heading = headings_along(tx.latitude_deg, tx.longitude_deg, bearing, r)
+        path = PathModel(
+            label=f"bearing {bearing:.1f} deg", bearing_deg=bearing,
+            receiver_indices=tuple(group), receiver_ranges_m=group_ranges,
+            max_range_m=max_range, range_m=r, latitude_deg=lats, longitude_deg=lons,
+            ground_conductivity_s_per_m=sigma, ground_relative_permittivity=eps, ground_kind=kinds,
+            solar_zenith_deg=chi, hprime_km=hprime, beta_per_km=beta, daylight=daylight,
+            heading_deg=heading,
         )
+        field = field_along(scenario.geomagnetic, path, r.size)
+        paths.append(dataclasses.replace(path, geomagnetic=field) if field is not None else path)
     return paths

@@ -35,8 +35,9 @@ B_REFERENCE_T = 1e-15
 #: What every result file says about the trust to place in it (docs/physics.md 10).
 CAUTIONS = (
     "Predictions are planning estimates: h' and beta vary with season, latitude, solar cycle, flares "
-    "and particle precipitation; ground maps are coarse; the axisymmetric model has no geomagnetic "
-    "anisotropy. Near modal minima errors reach many dB. Decisions on coverage, interference or "
+    "and particle precipitation; ground maps are coarse; the geomagnetic field is the IGRF at one "
+    "height, and the axisymmetric model takes the medium along each path's bearing for the whole ring "
+    "around the transmitter. Near modal minima errors reach many dB. Decisions on coverage, interference or "
     "safety-of-life navigation and timing rest on measurements, ITU-R methods and licensed engineers. "
     "Near transmitters, RF exposure limits apply (ICNIRP 2010, Health Physics 99, 818: general public "
     "83 V/m, 27 uT at 3 kHz-10 MHz); follow local regulations."
@@ -44,7 +45,8 @@ CAUTIONS = (
 
 REFERENCES = (
     "Wait and Spies (1964) NBS Technical Note 300 (exponential D region); Yu and Simpson (2010) IEEE "
-    "TAP 58(2) 469 (plasma current update); Roden and Gedney (2000) MOTL 27(5) 334 (CPML); Maloney and "
+    "TAP 58(2) 469 (plasma current update, isotropic and magnetised); Alken et al. (2021) Earth Planets "
+    "Space 73:49 (IGRF); Roden and Gedney (2000) MOTL 27(5) 334 (CPML); Maloney and "
     "Smith (1992) IEEE TAP 40(1) (surface impedance); Richter (1966) Radio Science (earth flattening)"
 )
 
@@ -74,6 +76,11 @@ VARIABLES: dict[str, dict[str, str]] = {
     "ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the ground, {_PHASE}, unwrapped along range"},
     "b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the ground, {_DB_B}"},
     "b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
+    # the other horizontal components (magnetised ionosphere only: [geomagnetic] model other than "none")
+    "b_radial_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density along the path (radial) at the ground, {_DB_B}"},
+    "b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
+    "ephi_amplitude": {"units": "1", "long_name": f"horizontal electric field across the path (azimuthal) at the ground, {_DB_E}"},
+    "ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the ground, {_PHASE}, unwrapped along range"},
     # receivers
     "receiver_name": {"long_name": "receiver name"},
     "receiver_range": {"units": "km", "long_name": "ground range of the receiver from the transmitter"},
@@ -86,6 +93,10 @@ VARIABLES: dict[str, dict[str, str]] = {
     "receiver_ez_uncertainty": {"units": "1", "long_name": "numerical uncertainty of the vertical electric field at the receiver in dB (grid convergence index from a companion run on a coarser grid; NaN: not computed)"},
     "receiver_b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the receiver, {_DB_B}"},
     "receiver_b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
+    "receiver_b_radial_amplitude": {"units": "1", "long_name": f"radial horizontal magnetic flux density at the receiver, {_DB_B}"},
+    "receiver_b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the receiver, {_PHASE}"},
+    "receiver_ephi_amplitude": {"units": "1", "long_name": f"azimuthal horizontal electric field at the receiver, {_DB_E}"},
+    "receiver_ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the receiver, {_PHASE}"},
     "receiver_ez_time_series": {"units": "V m-1", "long_name": "vertical electric field at the receiver against time (instantaneous value)"},
     # sferics (cavity.sferic): waveforms, their spectra and the source
     "receiver_b_time_series": {"units": "T", "long_name": "horizontal magnetic flux density at the receiver against time (instantaneous value)"},
@@ -102,6 +113,9 @@ VARIABLES: dict[str, dict[str, str]] = {
     "solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the ground", "standard_name": "solar_zenith_angle"},
     "hprime": {"units": "km", "long_name": "Wait-Spies reference height h'"},
     "beta": {"units": "km-1", "long_name": "Wait-Spies sharpness beta"},
+    "geomagnetic_field_r": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, component along the path (direction of travel)"},
+    "geomagnetic_field_phi": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, horizontal component across the path (to the left of the direction of travel)"},
+    "geomagnetic_field_z": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, upward component"},
     # coverage maps (cavity.sweeps.coverage): the map on a latitude/longitude grid and the bearings behind it
     "latitude": {"units": "degrees_north", "long_name": "latitude of the map grid point", "standard_name": "latitude", "axis": "Y"},
     "longitude": {"units": "degrees_east", "long_name": "longitude of the map grid point (continuous about the transmitter)", "standard_name": "longitude", "axis": "X"},
@@ -262,6 +276,12 @@ def assemble_dataset(
     beta_per_km=None,
     time_s=None,
     receiver_ez_time_series_v_per_m=None,
+    b_radial_t=None,
+    ephi_v_per_m=None,
+    receiver_b_radial_t=None,
+    receiver_ephi_v_per_m=None,
+    geomagnetic_field_nt=None,
+    geomagnetic_attributes=None,
     receiver_ez_uncertainty_db=None,
 ) -> xr.Dataset:
     """Build a result Dataset (the file contract) from the solver's plain arrays, SI units in.
@@ -307,6 +327,12 @@ def assemble_dataset(
         NaN allowed (not defined there).
     time_s : (T,) array, optional
         Sample times of ``receiver_ez_time_series_v_per_m`` ((N, T) array, V/m), given together.
+    b_radial_t, ephi_v_per_m : (P, F, R) complex arrays, optional
+        Magnetised runs: the radial flux density mu0 Hr (T) and the azimuthal electric field (V/m)
+        at the ground; ``receiver_b_radial_t``, ``receiver_ephi_v_per_m`` (N, F) at the receivers.
+    geomagnetic_field_nt : (P, R, 3) array, optional
+        The geomagnetic field per path and range in the path frame (r, phi, z), nT;
+        ``geomagnetic_attributes`` the global attributes naming its model and epoch.
 
     Returns
     -------
@@ -410,6 +436,23 @@ def assemble_dataset(
             _array("receiver_ez_time_series_v_per_m", receiver_ez_time_series_v_per_m, (N, t.size)),
         )
 
+    extra_fields = (("b_radial", b_radial_t, receiver_b_radial_t, B_REFERENCE_T),
+                    ("ephi", ephi_v_per_m, receiver_ephi_v_per_m, EZ_REFERENCE_V_PER_M))
+    for name, along, at_rx, reference in extra_fields:
+        if (along is None) != (at_rx is None):
+            raise ValueError(f"{name}: the field along the paths and at the receivers go together")
+        if along is None:
+            continue
+        db, deg = phasor_to_db_phase(_array(name, along, (P, F, R), complex, allow_nan=True), reference, unwrap_axis=-1)
+        rx_db, rx_deg = phasor_to_db_phase(_array(f"receiver_{name}", at_rx, (N, F), complex, allow_nan=True), reference)
+        data_vars[f"{name}_amplitude"] = (("path", "frequency", "range"), db)
+        data_vars[f"{name}_phase"] = (("path", "frequency", "range"), deg)
+        data_vars[f"receiver_{name}_amplitude"] = (("receiver", "frequency"), rx_db)
+        data_vars[f"receiver_{name}_phase"] = (("receiver", "frequency"), rx_deg)
+    if geomagnetic_field_nt is not None:
+        field = _array("geomagnetic_field_nt", geomagnetic_field_nt, (P, R, 3))
+        for c, name in enumerate(("r", "phi", "z")):
+            data_vars[f"geomagnetic_field_{name}"] = (("path", "range"), field[:, :, c])
     ds = xr.Dataset(data_vars, coords=coords)
     ds.attrs = {
         "title": scenario.title,
@@ -420,6 +463,7 @@ def assemble_dataset(
         "cautions": CAUTIONS,
         "references": REFERENCES,
         **solver.attributes(),
+        **(geomagnetic_attributes or {}),
     }
     return apply_metadata(ds)
 

@@ -56,6 +56,12 @@ PEAK_CURRENT_RANGE_KA = (0.1, 500.0)
 RISE_TIME_CONSTANT_RANGE_US = (0.05, 50.0)
 DECAY_TIME_CONSTANT_RANGE_US = (1.0, 5000.0)
 HEIDLER_EXPONENT_RANGE = (1.0, 20.0)
+# [geomagnetic]
+GEOMAGNETIC_MODELS: tuple[str, ...] = ("igrf", "none", "uniform")
+FIELD_STRENGTH_RANGE_NT = (0.0, 100000.0)
+DIP_RANGE_DEG = (-90.0, 90.0)
+AZIMUTH_RANGE_DEG = (0.0, 360.0)  # upper end excluded
+FIELD_ALTITUDE_RANGE_KM = (50.0, 150.0)
 CHANNEL_SPEED_FRACTION_RANGE = (0.0, 1.0)  # lower end excluded
 CHANNEL_HEIGHT_RANGE_KM = (0.5, 20.0)
 RECORD_RANGE_MS = (1.0, 200.0)
@@ -78,7 +84,8 @@ IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
 _FORM_TEXT = "hprime_km + beta_per_km, preset, utc, ceiling_km, profile_file or no_ionosphere = true"
 GROUND_KINDS: tuple[str, ...] = (*GROUND_CLASSES, "custom", "auto")
 
-_TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "solver", "source")
+_TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "geomagnetic", "solver", "source")
+_GEOMAGNETIC_KEYS = ("model", "date", "altitude_km", "strength_nt", "dip_deg", "azimuth_deg")
 _TRANSMITTER_KEYS = ("name", "latitude_deg", "longitude_deg", "frequency_khz", "radiated_power_kw")
 _RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
 _IONOSPHERE_KEYS = ("hprime_km", "beta_per_km", "preset", "utc", "day_preset", "night_preset",
@@ -171,6 +178,29 @@ class Ground:
 
 
 @dataclass(frozen=True)
+class Geomagnetic:
+    """The earth's magnetic field seen by the ionosphere (see :mod:`cavity.geomag`).
+
+    ``model``: "igrf" (the IAGA reference field along each path at ``epoch``, evaluated at
+    ``altitude_km``), "none" (isotropic ionosphere) or "uniform" (``strength_nt``, ``dip_deg``
+    positive downward, ``azimuth_deg`` the direction of travel clockwise from magnetic north, the
+    same on every path). ``epoch`` is the date of ``ionosphere.utc``, else the ``date`` key, else
+    :data:`cavity.geomag.DEFAULT_EPOCH`; ``epoch_source`` says which. ``given`` records whether the
+    file had a ``[geomagnetic]`` section (without one the model follows from the geometry).
+    """
+
+    model: str = "none"
+    epoch: date | None = None
+    epoch_source: str = ""
+    date: date | None = None
+    altitude_km: float = 80.0
+    strength_nt: float | None = None
+    dip_deg: float | None = None
+    azimuth_deg: float | None = None
+    given: bool = False
+
+
+@dataclass(frozen=True)
 class Solver:
     """Solver settings; None means "choose from frequency and receivers"."""
 
@@ -233,6 +263,7 @@ class Scenario:
     ground: Ground
     solver: Solver
     source: Source | None = None  # None: the carrier of [transmitter]
+    geomagnetic: Geomagnetic = Geomagnetic()
     text: str = field(default="", compare=False, repr=False)
     path: str | None = field(default=None, compare=False)
 
@@ -340,7 +371,8 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     ground = _parse_ground(top.table("ground", required=True))
     solver = _parse_solver(top.table("solver", required=False) or _Table({}, "solver"), ionosphere)
     source = _parse_source(top.table("source", required=False))
-    scenario = Scenario(title, transmitter, receivers, ionosphere, ground, solver, source)
+    geomagnetic = _parse_geomagnetic(top.table("geomagnetic", required=False), transmitter, receivers, ionosphere)
+    scenario = Scenario(title, transmitter, receivers, ionosphere, ground, solver, source, geomagnetic)
     _check_geometry(scenario)
     _check_source(scenario)
     return scenario
@@ -629,6 +661,73 @@ def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, fl
         return None, None
     cls = GROUND_CLASSES[kind]
     return cls.conductivity_s_per_m, cls.relative_permittivity
+
+
+def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, ionosphere: Ionosphere) -> Geomagnetic:
+    """The [geomagnetic] section; without one, "igrf" when every position is given, else "none"."""
+    from cavity.geomag import DEFAULT_EPOCH, EPOCH_RANGE, REFERENCE_ALTITUDE_KM
+
+    positioned = transmitter.latitude_deg is not None and all(rx.range_m is None for rx in receivers)
+    given = t is not None
+    t = t or _Table({}, "geomagnetic")
+    t.finish(_GEOMAGNETIC_KEYS)
+    model = t.string("model", default="igrf" if positioned else "none")
+    if model not in GEOMAGNETIC_MODELS:
+        raise t.fail("model", model, f"is not a field model (choose from {', '.join(GEOMAGNETIC_MODELS)})")
+    uniform_keys = ("strength_nt", "dip_deg", "azimuth_deg")
+    for name in uniform_keys:
+        if t.has(name) and model != "uniform":
+            raise t.fail(name, t.raw(name), 'is only used with model = "uniform"')
+    for name in ("date", "altitude_km"):
+        if t.has(name) and model != "igrf":
+            raise t.fail(name, t.raw(name), 'is only used with model = "igrf"')
+    if model == "none":
+        return Geomagnetic("none", given=given)
+    if model == "uniform":
+        return Geomagnetic(
+            "uniform",
+            strength_nt=t.number("strength_nt", *FIELD_STRENGTH_RANGE_NT, "nT", required=True),
+            dip_deg=t.number("dip_deg", *DIP_RANGE_DEG, "deg (positive downward)", required=True),
+            azimuth_deg=t.number("azimuth_deg", *AZIMUTH_RANGE_DEG, "deg clockwise from magnetic north",
+                                 required=True, high_open=True),
+            given=given,
+        )
+    if not positioned:
+        for i, rx in enumerate(receivers, 1):
+            if rx.range_m is not None:
+                raise ScenarioError(
+                    f"receiver[{i}].range_km = {_show(_edge(rx.range_m, 1e3))} gives no direction, but "
+                    'geomagnetic model = "igrf" (the field along each path) needs one; give latitude_deg and '
+                    'longitude_deg, or use model = "uniform" or "none"'
+                )
+        raise ScenarioError('transmitter.latitude_deg is missing (geomagnetic model = "igrf" needs positions)')
+    raw = t.raw("date")
+    day = None
+    if raw is not None:
+        example = "e.g. date = 2026-12-01, no quotes"
+        if isinstance(raw, datetime):
+            raise t.fail("date", raw, f"must be a date without a time ({example})")
+        if not isinstance(raw, date):
+            raise t.fail("date", raw, f"must be a date ({example})")
+        if not EPOCH_RANGE[0] <= raw <= EPOCH_RANGE[1]:
+            raise t.fail("date", raw, f"is outside the allowed range {EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14)")
+        day = raw
+    if ionosphere.form == "utc":
+        if day is not None:
+            raise t.fail("date", raw, "is not used when ionosphere.utc gives the date; remove one of them")
+        epoch, source = ionosphere.utc.date(), "ionosphere.utc"
+        if not EPOCH_RANGE[0] <= epoch <= EPOCH_RANGE[1]:
+            raise ScenarioError(
+                f"ionosphere.utc = {_show(ionosphere.utc)} is outside the geomagnetic field's epochs "
+                f"{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = \"none\" or \"uniform\""
+            )
+    elif day is not None:
+        epoch, source = day, "geomagnetic.date"
+    else:
+        epoch, source = DEFAULT_EPOCH, "default"
+    altitude = t.number("altitude_km", *FIELD_ALTITUDE_RANGE_KM, "km")
+    return Geomagnetic("igrf", epoch=epoch, epoch_source=source, date=day,
+                       altitude_km=REFERENCE_ALTITUDE_KM if altitude is None else altitude, given=given)
 
 
 def _parse_ground(t: _Table) -> Ground:
@@ -947,6 +1046,14 @@ def _to_toml(s: Scenario) -> str:
             out += _lines([("conductivity_s_per_m", seg.conductivity_s_per_m), ("relative_permittivity", seg.relative_permittivity)])
         else:
             out += _lines([("kind", seg.kind)])
+    gm = s.geomagnetic
+    if gm.given:
+        out += ["", "[geomagnetic]", f"model = {_toml_value(gm.model)}"]
+        if gm.model == "igrf":
+            out += [f"date = {gm.date.isoformat()}"] if gm.date is not None else []
+            out += _lines([("altitude_km", gm.altitude_km)])
+        elif gm.model == "uniform":
+            out += _lines([("strength_nt", gm.strength_nt), ("dip_deg", gm.dip_deg), ("azimuth_deg", gm.azimuth_deg)])
     sv = s.solver
     out += ["", "[solver]"]
     out += _lines([

@@ -53,6 +53,10 @@ class PathSolution:
     raw: eng.EngineResult | None = None  # a lightning run's engine result with the probe time series
     ez_uncertainty_db: np.ndarray | None = None  # (nf, nrange) dB, cavity.uncertainty; None: not computed
     receiver_ez_uncertainty_db: np.ndarray | None = None  # (nrx_on_path, nf) dB
+    b_radial: np.ndarray | None = None  # (nf, nrange) complex T RMS, magnetised runs only
+    ephi: np.ndarray | None = None  # (nf, nrange) complex V/m RMS
+    receiver_b_radial: np.ndarray | None = None
+    receiver_ephi: np.ndarray | None = None
 
 
 @dataclass(frozen=True)
@@ -187,8 +191,14 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    return PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw,
-                        ez_unc, rx_unc)
+    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw,
+                       ez_unc, rx_unc)
+    if res.hr is not None:
+        sol.b_radial = MU0 * res.hr * scale
+        sol.ephi = res.ephi * scale
+        sol.receiver_b_radial = np.stack([interpolate_phasor(res.range_m, sol.b_radial[k], rx_r) for k in range(f.size)], axis=1)
+        sol.receiver_ephi = np.stack([interpolate_phasor(res.range_m, sol.ephi[k], rx_r) for k in range(f.size)], axis=1)
+    return sol
 
 
 def solve_key(scenario, path, *, waveform=None) -> str | None:
@@ -206,7 +216,7 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
     settings = engine_settings(scenario, path)
     digest = hashlib.sha256()
     for name in ("range_m", "ground_conductivity", "ground_permittivity", "altitude_m", "electron_density",
-                 "collision_frequency"):
+                 "collision_frequency", "magnetic_field_t"):
         value = getattr(medium, name)
         digest.update(name.encode())
         if value is not None:
@@ -305,6 +315,21 @@ def simulate_sferic(scenario: Scenario, *, progress: Callable[[float, str], None
     return simulate(scenario, progress=progress, sample_km=sample_km, bearing_tolerance_deg=bearing_tolerance_deg)
 
 
+def geomagnetic_attributes(scenario) -> dict:
+    """Global attributes naming the geomagnetic model, its epoch and reference altitude."""
+    gm = getattr(scenario, "geomagnetic", None)
+    if gm is None or gm.model == "none":
+        return {"geomagnetic_model": "none (isotropic ionosphere)"}
+    if gm.model == "uniform":
+        return {"geomagnetic_model": (f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), "
+                                      f"azimuth of travel {gm.azimuth_deg:g} deg from magnetic north")}
+    return {
+        "geomagnetic_model": "IGRF-14 (IAGA International Geomagnetic Reference Field, ppigrf)",
+        "geomagnetic_epoch": f"{gm.epoch.isoformat()} ({'default epoch' if gm.epoch_source == 'default' else 'from ' + gm.epoch_source})",
+        "geomagnetic_altitude_km": float(gm.altitude_km),
+    }
+
+
 def _series_scale(scenario, sol) -> float:
     """Factor from the engine's source current (peak 1 A class) to the transmitter's moment.
 
@@ -366,6 +391,27 @@ def to_dataset(scenario, solutions):
                 rx_unc[i_rx] = sol.receiver_ez_uncertainty_db[j]
             rx_path[i_rx] = p
             rx_range[i_rx] = sol.path.receiver_ranges_m[j]
+    magnetised = {}
+    if all(s.b_radial is not None for s in solutions):
+        extra_fields = {k: np.full((P, nf, R), np.nan + 0j) for k in ("b_radial_t", "ephi_v_per_m")}
+        extra_rx = {k: np.zeros((n_rx, nf), complex) for k in ("receiver_b_radial_t", "receiver_ephi_v_per_m")}
+        for p, sol in enumerate(solutions):
+            n = sol.range_m.size
+            extra_fields["b_radial_t"][p, :, :n] = sol.b_radial
+            extra_fields["ephi_v_per_m"][p, :, :n] = sol.ephi
+            for j, i_rx in enumerate(sol.path.receiver_indices):
+                extra_rx["receiver_b_radial_t"][i_rx] = sol.receiver_b_radial[j]
+                extra_rx["receiver_ephi_v_per_m"][i_rx] = sol.receiver_ephi[j]
+        magnetised = {**extra_fields, **extra_rx}
+    gm_attrs = geomagnetic_attributes(scenario)
+    if all(getattr(s.path, "geomagnetic", None) is not None for s in solutions):
+        field = np.zeros((P, R, 3))
+        for p, sol in enumerate(solutions):
+            samples = np.asarray(sol.path.range_m, float)
+            g = sol.path.geomagnetic
+            for c, comp in enumerate((g.b_r_nt, g.b_phi_nt, g.b_z_nt)):
+                field[p, :, c] = np.interp(r, samples, comp)
+        magnetised["geomagnetic_field_nt"] = field
     series = {}
     if all(s.engine.time_s is not None for s in solutions):
         # receiver waveforms (probes sit at the receivers, in path order), padded to the longest run
@@ -411,6 +457,8 @@ def to_dataset(scenario, solutions):
         solar_zenith_angle_deg=extra.get("solar_zenith_deg"),
         hprime_km=extra.get("hprime_km"),
         beta_per_km=extra.get("beta_per_km"),
+        geomagnetic_attributes=gm_attrs,
+        **magnetised,
         receiver_ez_uncertainty_db=rx_unc,
         **series,
     )

@@ -177,3 +177,84 @@ def whole_run(max_range_m: float = 3000e3, frequency_hz: float = 20e3, cells_per
         "phase_error_deg": phase.tolist(),
         "default_cells_per_wavelength": gridmod.DEFAULT_CELLS_PER_WAVELENGTH,
     }
+
+
+#: The geomagnetic field of the speed comparison: 50,000 nT, dip 60 deg, travel toward magnetic east
+#: (path frame r, phi, z; tesla).
+BENCH_FIELD_T = (0.0, 50e-6 * math.cos(math.radians(60.0)), -50e-6 * math.sin(math.radians(60.0)))
+
+
+def _night_medium(magnetised: bool):
+    import profiles
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 200e3, 250.0)
+    return eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 85.1, 0.63), profiles.collision_frequency(z),
+                              magnetic_field_t=BENCH_FIELD_T if magnetised else None)
+
+
+def field_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps: int = 200, repeats: int = 2):
+    """Whole-grid stepping rates of the isotropic and the magnetised engine on one night-path grid.
+
+    Measured interleaved (isotropic, magnetised, isotropic, ...) so that a shared machine's load
+    falls on both alike; returns ``{"isotropic": [...], "magnetised": [...]}`` in cell updates per
+    second, one entry per repeat, and the grid size.
+    """
+    from cavity.fdtd import engine as eng
+
+    out: dict[str, list[float]] = {"isotropic": [], "magnetised": []}
+    sims = {}
+    for key in out:
+        sim = eng.Simulation(_night_medium(key == "magnetised"), eng.Settings(frequencies_hz=(frequency_hz,),
+                                                                               max_range_m=max_range_m))
+        sim.t_min = sim.t_max = 20 * sim.plan.dt_s
+        sim.run()  # compile / load from cache
+        rng = np.random.default_rng(0)
+        names = ("ez", "er", "hp") + (("ephi", "hr", "hz") if key == "magnetised" else ())
+        for name in names:
+            field = getattr(sim, name)
+            field[...] = (1e-3 * rng.standard_normal(field.shape)).astype(np.float32)
+        sim.er[:, 0] = sim.er[:, -1] = 0.0
+        if key == "magnetised":
+            sim.ephi[:, 0] = sim.ephi[:, -1] = sim.ephi[0] = 0.0
+            sim.hz[:, 0] = sim.hz[:, -1] = 0.0
+        sim.t_min = sim.t_max = steps * sim.plan.dt_s
+        sim.track_front = False
+        sims[key] = sim
+    for _ in range(repeats):
+        for key, sim in sims.items():
+            res = sim.run()
+            out[key].append(sim.plan.nr * sim.plan.nz * res.steps / res.wall_time_s)
+    p = sims["isotropic"].plan
+    return {**out, "nr": p.nr, "nz": p.nz}
+
+
+def night_run(magnetised: bool, max_range_m: float = 3000e3, frequency_hz: float = 20e3) -> dict:
+    """The 3,000 km night path over sea at 20 kHz with the default grid, with or without the field.
+
+    Returns wall time, stepping time, steps and the peak memory of this process (run each case in
+    its own process to read its own peak).
+    """
+    from cavity.fdtd import engine as eng
+
+    t = time.perf_counter()
+    res = eng.run(_night_medium(magnetised), eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m + 30e3))
+    wall = time.perf_counter() - t
+    i = int(np.argmin(np.abs(res.range_m - max_range_m)))
+    return {"wall_s": wall, "stepping_s": res.wall_time_s, "steps": res.steps, "cells": res.plan.cells,
+            "peak_memory_bytes": peak_memory_bytes(), "ez_db_at_end": float(20 * np.log10(abs(res.ez[0, i])))}
+
+
+def night_runs_interleaved(repeats: int = 1) -> list[tuple[str, dict]]:
+    """:func:`night_run` isotropic then magnetised, ``repeats`` times, each in a fresh process."""
+    import json
+    import subprocess
+    import sys
+
+    out = []
+    for _ in range(repeats):
+        for magnetised in (False, True):
+            code = f"import json; from cavity.checks import bench; print(json.dumps(bench.night_run({magnetised})))"
+            done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+            out.append(("magnetised" if magnetised else "isotropic", json.loads(done.stdout.strip().splitlines()[-1])))
+    return out

@@ -16,7 +16,9 @@ from cavity.cli.common import friendly_errors
 @click.option("--cell-m", "cell_m", type=click.FloatRange(10, 5000), default=None,
               help="Cell size of the predicted run (default: automatic).")
 @friendly_errors
-def command(whole, range_km, frequency_khz, cell_m):
+@click.option("--field", is_flag=True, help="Also compare the magnetised (six-component) engine with the isotropic one "
+              "on the 3,000 km night path at 20 kHz (stepping rates; with --whole, whole runs in turn).")
+def command(whole, range_km, frequency_khz, cell_m, field):
     """Measure memory bandwidth, a minimal compiled stencil and the full engine on one grid
     (the grid of a day path at --range-km and --frequency-khz).
 
@@ -24,6 +26,10 @@ def command(whole, range_km, frequency_khz, cell_m):
     time of a run at --range-km and --frequency-khz on this machine. With --whole, runs the 3,000 km
     day path over sea at 20 kHz and reports wall time, peak memory and the error against the
     independent normal-mode reference.
+
+    With --field, measures the magnetised engine (geomagnetic field on: six components and the
+    vector plasma current) against the isotropic one on the 3,000 km night path at 20 kHz,
+    interleaved; with --whole too, the two whole night runs in turn with their peak memory.
 
     Example: cavity bench --range-km 5000 --frequency-khz 16
     """
@@ -47,3 +53,17 @@ def command(whole, range_km, frequency_khz, cell_m):
                    "(grid cells x steps / stepping time; columns the wave has not reached are skipped)")
         for rk, e, ph in zip(w["ranges_km"], w["error_db"], w["phase_error_deg"]):
             click.echo(f"  {rk:6.0f} km: {e:+.2f} dB, {ph:+.0f} deg against the normal-mode reference")
+    if field:
+        import numpy as np
+
+        rates = bench.field_rates()
+        iso, mag = rates["isotropic"], rates["magnetised"]
+        click.echo(f"field on/off, night grid {rates['nr']} x {rates['nz']}: isotropic "
+                   + ", ".join(f"{x / 1e9:.3f}" for x in iso) + " G cell-updates/s; magnetised "
+                   + ", ".join(f"{x / 1e9:.3f}" for x in mag)
+                   + f" (interleaved); time ratio {np.mean(iso) / np.mean(mag):.2f}")
+        if whole:
+            for name, w in bench.night_runs_interleaved():
+                click.echo(f"  3000 km night path, 20 kHz, {name}: {w['wall_s']:.1f} s wall ({w['stepping_s']:.1f} s "
+                           f"stepping, {w['steps']} steps), peak memory {w['peak_memory_bytes'] / 1e9:.2f} GB, "
+                           f"Ez at 3000 km {w['ez_db_at_end']:.2f} dB re 1 V/m per A m")

@@ -75,6 +75,31 @@ def _ground_line(ground) -> str:
     return text
 
 
+def _geomagnetic_line(s) -> str:
+    gm = s.geomagnetic
+    if gm.model == "none":
+        return "none: isotropic ionosphere (Er, Ez, Hphi only)"
+    if gm.model == "uniform":
+        return (f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), azimuth of travel "
+                f"{gm.azimuth_deg:g} deg from magnetic north; six field components")
+    source = "the default epoch" if gm.epoch_source == "default" else f"from {gm.epoch_source}"
+    return (f"IGRF-14 at {gm.altitude_km:g} km, epoch {gm.epoch.isoformat()} ({source}); "
+            "six field components, the field along each path")
+
+
+def _span(values, fmt: str) -> str:
+    lo, hi = float(min(values)), float(max(values))
+    return format(lo, fmt) if format(lo, fmt) == format(hi, fmt) else f"{format(lo, fmt)} to {format(hi, fmt)}"
+
+
+def _field_text(field) -> str:
+    """Strength, dip and azimuth of travel from magnetic north along a path (start, end; range)."""
+    strength, dip, az = field.strength_nt, field.dip_deg, field.azimuth_deg
+    return (f"{strength[0]:.0f} nT, dip {dip[0]:.1f} deg, azimuth {az[0]:.0f} deg at the transmitter; "
+            f"{strength[-1]:.0f} nT, dip {dip[-1]:.1f} deg, azimuth {az[-1]:.0f} deg at the far end "
+            f"(dip {_span(dip, '.1f')} deg along the path)")
+
+
 def _seconds(s: float) -> str:
     return f"{s:.0f} s" if s < 120 else f"{s / 60:.1f} min"
 
@@ -107,6 +132,7 @@ def describe(scenario) -> list[str]:
     lines.append(f"Ionosphere   {ion_lines[0]}")
     lines += [f"             {line}" for line in ion_lines[1:]]
     lines.append(f"Ground       {_ground_line(s.ground)}")
+    lines.append(f"Geomagnetic  {_geomagnetic_line(s)}")
 
     paths = build_paths(s)
     why = direction_dependent(s)
@@ -118,6 +144,8 @@ def describe(scenario) -> list[str]:
             lines.append(f"    ground: {_runs(path.ground_kind, path.range_m)}")
         if path.daylight is not None:
             lines.append(f"    ionosphere: {_runs(path.daylight, path.range_m)}")
+        if path.geomagnetic is not None:
+            lines.append(f"    field: {_field_text(path.geomagnetic)}")
 
     sv = s.solver
     ceiling = s.ionosphere.form == "ceiling"

@@ -40,6 +40,10 @@ class Medium:
     ``None`` means no ionosphere (free space above the ground). The ground arrays hold one value
     per range sample, valid from that sample to the next (``inf`` conductivity: perfect ground).
     ``ceiling_m`` puts a perfectly conducting ceiling there instead of the top absorber.
+    ``magnetic_field_t`` (len(range_m), 3) is the geomagnetic field B0 per range sample in the path
+    frame (r along the path, phi = z x r, z up), tesla; given (even zero), the engine steps all six
+    field components with the magnetised plasma current; None keeps the isotropic three-component
+    scheme.
     """
 
     range_m: np.ndarray
@@ -49,10 +53,11 @@ class Medium:
     electron_density: np.ndarray | None = None
     collision_frequency: np.ndarray | None = None
     ceiling_m: float | None = None
+    magnetic_field_t: np.ndarray | None = None
 
     @classmethod
     def uniform(cls, conductivity=math.inf, permittivity=1.0, altitude_m=None, electron_density=None,
-                collision_frequency=None, ceiling_m=None):
+                collision_frequency=None, ceiling_m=None, magnetic_field_t=None):
         """A range-independent medium from one profile (1-D arrays) and one ground."""
         ne = None if electron_density is None else np.asarray(electron_density, float)[None, :]
         nu = None if collision_frequency is None else np.asarray(collision_frequency, float)[None, :]
@@ -64,6 +69,7 @@ class Medium:
             electron_density=ne,
             collision_frequency=nu,
             ceiling_m=ceiling_m,
+            magnetic_field_t=None if magnetic_field_t is None else np.asarray(magnetic_field_t, float).reshape(1, 3),
         )
 
 
@@ -112,6 +118,8 @@ class EngineResult:
     source_current: np.ndarray | None = None  # (nt,) A at the series times: waveform(t) (a channel's base current)
     source_moment: np.ndarray | None = None  # (nt,) A m at the series times: sum of I dz over the driven cells
     notes: list[str] = field(default_factory=list)
+    hr: np.ndarray | None = None  # (nf, nrange) complex, A/m per A m (six-component runs only)
+    ephi: np.ndarray | None = None  # (nf, nrange) complex, V/m per A m: Zs H_r at the ground
 
 
 def _distinct_rows(table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -241,6 +249,10 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength, courant_safety=s.courant_safety,
         stencil_order=s.stencil_order,
     )
+    if medium.magnetic_field_t is not None:
+        import dataclasses
+
+        grid = dataclasses.replace(grid, magnetised=True)
     return RunPlan(grid, waveform, f, t_min, t_max)
 
 
@@ -250,6 +262,8 @@ class Simulation:
     #: Step only the columns the wave has reached (exact; see kernels.last_active_column). Tests
     #: switch it off to compare with stepping the whole grid.
     track_front: bool = True
+    #: Isotropic plasma inside the absorbing layers (experiment).
+    field_off_in_absorbers: bool = False
 
     def __init__(self, medium: Medium, settings: Settings):
         self.medium = medium
@@ -290,7 +304,8 @@ class Simulation:
         self.cer = (dt / eps_er).astype(f32)
         self.ch = f32(dt / MU0)
         # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in
-        order = int(s.stencil_order)
+        # the six-component kernels (geomagnetic field) are second-order Yee: the whole run uses it
+        order = 2 if m.magnetic_field_t is not None else int(s.stencil_order)
         if not s.dispersion_correction:
             self.gamma = 1.0
         elif order == 2:
@@ -395,6 +410,109 @@ class Simulation:
         self.src_coef = float(self.cez[0]) / st.axis_area_m2
         self.src_coef_rows = self.cez.astype(float) / st.axis_area_m2
 
+        self.magnetised = m.magnetic_field_t is not None
+        if self.magnetised:
+            self._build_te(eps_ez, eps_er, wp2_z, nu_z, wp2_r, nu_r, sig, epr)
+
+    def _build_te(self, eps_ez, eps_er, wp2_z, nu_z, wp2_r, nu_r, sig, epr):
+        """Arrays and coefficients of the TE set and the magnetised current (kernels.step_e_mag)."""
+        p, m = self.plan, self.medium
+        nr, nz = p.nr, p.nz
+        dr, dt = p.dr_m, p.dt_s
+        f32 = np.float32
+        self.ephi = np.zeros((nr, nz + 1), f32)
+        self.hr = np.zeros((nr, nz), f32)
+        self.hz = np.zeros((nr, nz + 1), f32)
+        self.scratch = np.zeros((3, nr, nz), f32)  # curls of step_e_mag
+        n_pl = nz - self.jp0
+        self.jphi = np.zeros((nr, n_pl), f32)
+        # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
+        # second-order (Yee) radial operator of Ez, as the isotropic kernels had it before the (2,4) stencil
+        rp = np.empty(nr)
+        rm = np.empty(nr)
+        rp[0], rm[0] = 4.0 * self.gamma / dr, 0.0
+        rp[1:] = self.gamma / dr + 0.5 / self.r_ez[1:]
+        rm[1:] = self.gamma / dr - 0.5 / self.r_ez[1:]
+        self.rp, self.rm = rp.astype(f32), rm.astype(f32)
+        self.inv_dr = f32(self.gamma / dr)
+        self.qp = (self.gamma / dr + 0.5 / self.r_h).astype(f32)
+        self.qm = (self.gamma / dr - 0.5 / self.r_h).astype(f32)
+        self.sib_psi_r = np.zeros_like(self.sib_w)
+        # square roots of the cylindrical volume weights (r; dr/8 for the axis Ez cell, whose disc of
+        # radius dr/2 has the area 2 pi (dr/8) dr); Ephi is absent on the axis (weight 1, unused)
+        wsq = np.empty((3, nr))
+        wsq[0] = np.sqrt(np.maximum(self.r_ez, dr / 8))
+        wsq[1] = np.sqrt(self.r_h)
+        wsq[2] = np.sqrt(np.where(self.r_ez > 0, self.r_ez, 1.0))
+        self.wsq = (wsq / math.sqrt(dr)).astype(f32)
+        nzp, nrp = p.pml_z_cells, p.pml_r_cells
+        self.psi_hr = np.zeros((nr, nzp), f32)
+        self.psi_pz = np.zeros((nr, nzp), f32)
+        self.psi_hz = np.zeros((nrp, nz + 1), f32)
+        self.psi_pr = np.zeros((nrp, nz + 1), f32)
+        # ground impedance per output column, for Ephi = Zs Hr at the ground
+        self.ground_te = _ground_on_columns(m, self.r_ez)
+        # gyro vector e B0 / m_e per Ez column, interpolated along range
+        rs = np.asarray(m.range_m, float)
+        b = np.asarray(m.magnetic_field_t, float).reshape(-1, 3)
+        w = np.stack([np.interp(self.r_ez, rs, b[:, c]) for c in range(3)], axis=1) * (ELECTRON_CHARGE / ELECTRON_MASS)
+        if self.field_off_in_absorbers:
+            w[self.ir0:] = 0.0
+        self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
+        if n_pl == 0:
+            self.mag_coef = np.zeros((1, 21, 0), f32)
+            self.tab_p = self.tab_m = np.zeros(nr, np.int32)
+            self.t_left = 0
+            return
+        sl = slice(self.jp0, nz)
+        wp2_p, nu_p = _on_grid(m, self.r_ez, self.z_er[:nz])
+        _, prof_z = _distinct_rows(np.ascontiguousarray(wp2_z[:, sl]))
+        _, prof_r = _distinct_rows(np.ascontiguousarray(wp2_r[:, sl]))
+        _, prof_p = _distinct_rows(np.ascontiguousarray(wp2_p[:, sl]))
+        _, field_idx = _distinct_rows(w)
+        cols = np.arange(nr)
+        # triple keys (Ez profile, Er profile, Ephi profile, field, presence of r, phi, z)
+        keys_p = np.stack([prof_z, prof_r, prof_p, field_idx, np.ones(nr), (cols > 0), np.ones(nr)], axis=1)
+        keys_m = keys_p.copy()
+        keys_m[1:, 1] = prof_r[:-1]
+        keys_m[0, 1], keys_m[0, 4] = -1, 0
+        left = np.array([[-1, prof_r[-1], -1, field_idx[-1], 1, 0, 0]])
+        keys, index = np.unique(np.vstack([keys_p, keys_m, left]).astype(np.int64), axis=0, return_inverse=True)
+        index = index.reshape(-1)
+        self.tab_p = np.ascontiguousarray(index[:nr], dtype=np.int32)
+        self.tab_m = np.ascontiguousarray(index[nr:2 * nr], dtype=np.int32)
+        self.t_left = int(index[-1])
+        # representative columns of each key
+        first = {}
+        rep = np.zeros((len(keys), 3), int)  # column of the Ez, Er, Ephi node for each key
+        ez_col = np.concatenate([cols, cols, [nr - 1]])
+        er_col = np.concatenate([cols, cols - 1, [nr - 1]])
+        for row, key_row in enumerate(index):
+            if key_row not in first:
+                first[key_row] = row
+        for key_row, row in first.items():
+            rep[key_row] = (ez_col[row], max(er_col[row], 0), ez_col[row])
+        nk = len(keys)
+        eps = np.empty((nk, n_pl, 3))
+        wp2 = np.empty((nk, n_pl, 3))
+        nu = np.empty((nk, n_pl, 3))
+        eps[:, :, 0] = eps_er[None, sl]
+        eps[:, :, 1] = eps_er[None, sl]
+        eps[:, :, 2] = eps_ez[None, sl]
+        wp2[:, :, 0] = wp2_r[rep[:, 1], sl]
+        wp2[:, :, 1] = wp2_p[rep[:, 2], sl]
+        wp2[:, :, 2] = wp2_z[rep[:, 0], sl]
+        nu[:, :, 0] = nu_r[rep[:, 1], sl]
+        nu[:, :, 1] = nu_p[rep[:, 2], sl]
+        nu[:, :, 2] = nu_z[rep[:, 0], sl]
+        present = np.broadcast_to(keys[:, None, 4:7].astype(bool), (nk, n_pl, 3))
+        gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
+        if self.field_off_in_absorbers:
+            gyro[:, max(self.jz0 - self.jp0, 0):, :] = 0.0
+        # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
+        self.mag_coef = np.ascontiguousarray(
+            media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32))
+
     # ------------------------------------------------------------------ stepping
     def run(self, progress: Callable[[float, str], None] | None = None) -> EngineResult:
         """Step until the DFTs have converged (or the time cap), then return transfer functions."""
@@ -406,6 +524,7 @@ class Simulation:
         nf = w.size
         acc_e = [np.zeros((nf, nr)), np.zeros((nf, nr))]
         acc_h = [np.zeros((nf, nr)), np.zeros((nf, nr))]
+        acc_hr = [np.zeros((nf, nr)), np.zeros((nf, nr))]
         acc_i = np.zeros(nf, complex)
         n_min = int(math.ceil(self.t_min / dt))
         n_max = int(math.ceil(self.t_max / dt))
@@ -462,6 +581,10 @@ class Simulation:
                 last_col = K.last_active_column(n_cols - 1, self.ez, self.er, self.hp, self.jz, self.jr,
                                                 self.psi_zh, self.psi_ze, self.sib_psi, self.ir0,
                                                 self.psi_rh, self.psi_re)
+                if self.magnetised:
+                    last_col = max(last_col, K.last_active_column_te(
+                        n_cols - 1, self.ephi, self.hr, self.hz, self.jphi, self.psi_hr, self.psi_pz,
+                        self.sib_psi_r, self.ir0, self.psi_hz, self.psi_pr))
                 n_cols = min(nr, last_col + reach)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
@@ -469,6 +592,11 @@ class Simulation:
                 rot_h = np.exp(-1j * w * t_h)
             rot_e = rot_h * rot_half
             K.step_h(fields, curl_h, ground, top_h, far_h, K.Dft(acc_h[0], acc_h[1], rot_h.real, -rot_h.imag), n_cols)
+            if self.magnetised:
+                K.step_h_te(self.hr, self.hz, self.ephi, self.inv_dz, self.ch, self.qp, self.qm, self.ha, self.hb,
+                            self.sib_q, self.sib_w, self.sib_psi_r, self.jz0, *self.pz_h, self.psi_hr,
+                            self.ir0, *self.pr_h, self.psi_hz, acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag,
+                            n_cols)
             # every source enters the kernel the same way: current elements in the axis cells from
             # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
             if line_source:
@@ -482,8 +610,21 @@ class Simulation:
             else:
                 current = 0.0
                 src_kick[0] = 0.0
-            K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
-                     K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
+            if self.magnetised:
+                # triples alternate between the Er node after and before each Ez node (kernels.step_e_mag)
+                shift = 1 if step % 2 == 0 else -1
+                K.step_e_mag(self.ez, self.er, self.ephi, self.hp, self.hr, self.hz, self.rp, self.rm,
+                             self.inv_dr, self.inv_dz, self.cez, self.cer, self.jp0, self.mag_coef,
+                             self.tab_p if shift > 0 else self.tab_m, shift, self.wsq, self.jz, self.jr, self.jphi,
+                             self.jz0, *self.pz_e, self.psi_ze, self.psi_pz, self.ir0, *self.pr_e,
+                             self.psi_re, self.psi_pr, src_kick, acc_e[0], acc_e[1], rot_e.real,
+                             -rot_e.imag, n_cols, self.scratch)
+                if shift < 0 and n_cols >= nr:
+                    K.step_er_alone(self.er, self.hp, self.inv_dz, self.cer, self.jp0, self.mag_coef,
+                                    self.t_left, self.wsq, self.jr, self.jz0, *self.pz_e, self.psi_ze, nr - 1)
+            else:
+                K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
+                         K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
             if current != 0.0:
                 acc_i += current * rot_h
             rot_h = rot_h * rot_step
@@ -519,6 +660,12 @@ class Simulation:
         ez = (acc_e[0] + 1j * acc_e[1])[:, 1:n_out] / moment[:, None]
         h_c = (acc_h[0] + 1j * acc_h[1]) / moment[:, None]
         hphi = 0.5 * (h_c[:, 0:n_out - 1] + h_c[:, 1:n_out])  # H at r_i from r_(i-1/2), r_(i+1/2)
+        hr = ephi = None
+        if self.magnetised:
+            hr = ((acc_hr[0] + 1j * acc_hr[1]) / moment[:, None])[:, 1:n_out]  # Hr sits at the Ez columns
+            sig, epr = (g[1:n_out] for g in self.ground_te)
+            zs = np.stack([media.leontovich_impedance(2 * math.pi * fk, sig, epr) for fk in self.frequencies_hz])
+            ephi = zs * hr  # Leontovich: Ephi = +Zs Hr at the ground
         notes = []
         if not converged:
             notes.append(f"DFTs still changing by more than {s.convergence_db} dB at the time cap "
@@ -526,7 +673,7 @@ class Simulation:
         res = EngineResult(
             range_m=self.r_ez[1:n_out].copy(), frequencies_hz=self.frequencies_hz.copy(), ez=ez, hphi=hphi,
             plan=self.plan, steps=step, wall_time_s=wall, converged=converged, notes=notes,
-            probe_ranges_m=self.r_ez[probe_cols] if probe_cols.size else np.zeros(0),
+            probe_ranges_m=self.r_ez[probe_cols] if probe_cols.size else np.zeros(0), hr=hr, ephi=ephi,
         )
         if t_series:
             res.time_s = np.asarray(t_series)
@@ -551,6 +698,10 @@ class Simulation:
         from cavity.fdtd import kernels as K
 
         peak, flat = K.max_abs(self.ez)
+        if self.magnetised:
+            peak_te, _ = K.max_abs(self.ephi)
+            if not peak_te <= peak:  # also a NaN: the TE set's growth or breakdown stops the run too
+                peak = peak_te
         if not math.isfinite(peak) or (t > src_end and src_peak > 0 and peak > 1e4 * src_peak):
             i, j = divmod(int(flat), self.plan.nz)
             r_km, z_km = self.r_ez[i] / 1e3, self.z_ez[j] / 1e3

@@ -35,6 +35,9 @@ COURANT_SAFETY = 0.95
 DEFAULT_PML_CELLS = 20
 #: Bytes per grid cell of the engine (float32 fields, coefficients and auxiliary arrays).
 BYTES_PER_CELL = 4 * 16
+#: The same with the geomagnetic field: Ephi, Hr, Hz, the azimuthal current and the curl scratch
+#: of the six-component kernels add ten float32 per cell.
+BYTES_PER_CELL_MAGNETISED = 4 * 26
 #: Steps between the engine's searches for the wave front; in between it steps that many columns
 #: beyond the last active one (:func:`cavity.fdtd.kernels.last_active_column`).
 FRONT_SEARCH_STEPS = 64
@@ -98,6 +101,7 @@ class GridPlan:
     max_range_m: float
     top_m: float  # top of the physical domain (below the absorber)
     n_steps: int  # planned number of time steps (the engine may stop earlier once converged)
+    magnetised: bool = False  # six components with the geomagnetic field
 
     @property
     def cells(self) -> int:
@@ -106,7 +110,8 @@ class GridPlan:
     @property
     def memory_bytes(self) -> int:
         """Estimate of the engine's memory for this grid (fields, coefficients, auxiliaries)."""
-        return int(self.cells * BYTES_PER_CELL + 64 * 1024**2)
+        per_cell = BYTES_PER_CELL_MAGNETISED if self.magnetised else BYTES_PER_CELL
+        return int(self.cells * per_cell + 64 * 1024**2)
 
     @property
     def cell_updates(self) -> float:

@@ -451,3 +451,316 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
         for f in range(nf):
             acc_re[f, i] += v * cos_e[f]
             acc_im[f, i] -= v * sin_e[f]
+
+
+# --------------------------------------------------------------------------------------------------
+# Magnetised ionosphere: all six components (Er, Ez, Hphi) + (Ephi, Hr, Hz), d/dphi = 0
+# --------------------------------------------------------------------------------------------------
+# TE layout: ``ephi[i, j]`` at (i dr, j dz), rows 0 (ground) and nz (top wall) and column 0 (axis)
+# never stepped; ``hr[i, j]`` at (i dr, (j+1/2) dz); ``hz[i, j]`` at ((i+1/2) dr, j dz), rows 0 and
+# nz never stepped. Beyond the last column Ephi = 0 (conducting end wall), as Ez.
+
+
+@nb.njit(**_OPTS)
+def last_active_column_te(start, ephi, hr, hz, jphi, psi_hr, psi_pz, sib_psi_r, ir0, psi_hz, psi_pr):
+    """:func:`last_active_column` for the arrays of the TE set and the azimuthal plasma current."""
+    for i in range(start, -1, -1):
+        if (_any_nonzero(ephi[i]) or _any_nonzero(hr[i]) or _any_nonzero(hz[i]) or _any_nonzero(jphi[i])
+                or _any_nonzero(psi_hr[i]) or _any_nonzero(psi_pz[i]) or _any_nonzero(sib_psi_r[i])):
+            return i
+        if i >= ir0 and (_any_nonzero(psi_hz[i - ir0]) or _any_nonzero(psi_pr[i - ir0])):
+            return i
+    return -1
+
+
+@nb.njit(parallel=True, **_OPTS)
+def step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
+              jz0, b_zh, c_zh, kd_zh, psi_hr, ir0, b_rh, c_rh, kd_rh, psi_hz,
+              acc_re, acc_im, cos_h, sin_h, n_cols):
+    """H half-step of the TE set: mu0 dHr/dt = dEphi/dz, mu0 dHz/dt = -(1/r) d(r Ephi)/dr.
+
+    Ground row of Hr (z = dz/2) with the impedance ground: Ephi(0) = +Zs Hr (Leontovich,
+    E_t = Zs n x H with n up), realised as in :func:`step_h` with the same ``ha``, ``hb`` and
+    recursive poles (``sib_psi`` the TE set's own memory). Hz rows 1..nz-1 only (row 0 is never
+    read: Ephi at the ground is not stepped). ``qp``/``qm`` per column:
+    (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr) = qp[i] E_{i+1} - qm[i] E_i. CPML as in
+    :func:`step_h`: the top layer on dEphi/dz (Hr rows >= jz0), the far-end layer on the radial
+    operator of Hz (columns >= ir0). DFT of Hr at the ground row.
+    """
+    nr, nz = hr.shape
+    nk = sib_q.shape[0]
+    n_top = psi_hr.shape[1]
+    nf = acc_re.shape[0]
+    for i in prange(n_cols):
+        has_next = i + 1 < nr
+        e = ephi[i]
+        h = hr[i]
+        h_old = h[0]
+        psi_sum = 0.0
+        for k in range(nk):
+            p = sib_q[k] * sib_psi[i, k] + sib_w[i, k] * h_old
+            sib_psi[i, k] = p
+            psi_sum += p
+        h[0] = ha[i] * h_old + hb[i] * (e[1] * inv_dz + psi_sum * inv_dz)
+        for j in range(1, nz):
+            v = h[j] + ch * (e[j + 1] - e[j]) * inv_dz
+            h[j] = v if abs(v) > TINY else np.float32(0.0)
+        for k in range(n_top):
+            j = jz0 + k
+            d = (e[j + 1] - e[j]) * inv_dz
+            p = b_zh[k] * psi_hr[i, k] + c_zh[k] * d
+            psi_hr[i, k] = p
+            h[j] += ch * (kd_zh[k] * d + p)
+        a = qp[i]
+        b = qm[i]
+        g = hz[i]
+        if has_next:
+            en = ephi[i + 1]
+            for j in range(1, nz):
+                v = g[j] - ch * (a * en[j] - b * e[j])
+                g[j] = v if abs(v) > TINY else np.float32(0.0)
+        else:
+            for j in range(1, nz):
+                g[j] += ch * b * e[j]
+        if i >= ir0:
+            kk = i - ir0
+            for j in range(1, nz):
+                en_j = ephi[i + 1, j] if has_next else np.float32(0.0)
+                d = -(a * en_j - b * e[j])
+                p = b_rh[kk] * psi_hz[kk, j] + c_rh[kk] * d
+                psi_hz[kk, j] = p
+                g[j] += ch * (kd_rh[kk] * d + p)
+        v = np.float64(h[0])
+        for f in range(nf):
+            acc_re[f, i] += v * cos_h[f]
+            acc_im[f, i] -= v * sin_h[f]
+
+
+@nb.njit(inline="always", **_OPTS)
+def _triple(c, t, k, ez_old, er_old, ep_old, cz, cr, cp, uz, ur, up, e_z, e_r, e_p, sz, sr, sp):
+    """One E-J collocated trapezoidal update of a triple (Ez, Er, Ephi with their currents).
+
+    ``c[t, :, k]`` holds T (9, row-major in (r, phi, z)), W (9) and g (3): v' = T v + W s (E + e C/2),
+    E' = E + e C - g (u' + u), with C the (stretched) curls, u the stored scaled currents and
+    v = s u; ``s`` = sqrt(r) of each node (the cylindrical volume weight; dr/8 on the axis), so that
+    the gyration, skew-symmetric in v, conserves the energy of the grid (see
+    :func:`cavity.fdtd.media.magnetised_coefficients`). Returns the new (Ez, Er, Ephi, uz, ur, uphi).
+    """
+    q = c[t, :, k]
+    half = np.float32(0.5)
+    vr = sr * ur
+    vp = sp * up
+    vz = sz * uz
+    xr = sr * (er_old + half * e_r * cr)
+    xp = sp * (ep_old + half * e_p * cp)
+    xz = sz * (ez_old + half * e_z * cz)
+    nr_ = (q[0] * vr + q[1] * vp + q[2] * vz + q[9] * xr + q[10] * xp + q[11] * xz) / sr
+    np_ = (q[3] * vr + q[4] * vp + q[5] * vz + q[12] * xr + q[13] * xp + q[14] * xz) / sp
+    nz_ = (q[6] * vr + q[7] * vp + q[8] * vz + q[15] * xr + q[16] * xp + q[17] * xz) / sz
+    er_new = er_old + e_r * cr - q[18] * (nr_ + ur)
+    ep_new = ep_old + e_p * cp - q[19] * (np_ + up)
+    ez_new = ez_old + e_z * cz - q[20] * (nz_ + uz)
+    return ez_new, er_new, ep_new, nz_, nr_, np_
+
+
+@nb.njit(inline="always", **_OPTS)
+def _flush(v):
+    return v if abs(v) > TINY else np.float32(0.0)
+
+
+@nb.njit(parallel=True, **_OPTS)
+def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, coef, tab, shift, wsq, uz, ur, up,
+               jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz, ir0, b_re, c_re, kd_re, psi_re, psi_pr,
+               src, acc_re, acc_im, cos_e, sin_e, n_cols, scratch):
+    """E half-step of the six-component scheme with the magnetised plasma current.
+
+    Ampere's law for Ez, Er (as :func:`step_e`) and eps dEphi/dt = dHr/dz - dHz/dr - Jphi. In the
+    plasma rows the current is the vector dJ/dt = eps omega_p^2 E - nu J + omega_b x J, advanced
+    with the E-J collocated trapezoidal update of magnetised cold plasma (Yu and Simpson 2010,
+    IEEE TAP 58(2) 469), which is stable for any omega_p dt, nu dt and omega_b dt. The three E
+    components sit at different Yee positions, so each step groups them in disjoint triples: the
+    Ez node (i, j+1/2), the Ephi node (i, j) below it and the Er node (i + shift/2, j) beside it
+    (``shift`` = +1 or -1, alternated from step to step by the engine so that the coupling is
+    centred in range on average). Each triple is one local implicit update (:func:`_triple`);
+    every E node belongs to exactly one triple, so the step is passive and the columns stay
+    independent. The currents are stored scaled, u = J / sqrt(eps omega_p^2), at their own E
+    nodes (``uz``, ``ur``, ``up``); ``coef[tab[i]]`` (21, plasma rows) holds the coefficients of
+    the triples anchored at Ez column i, and ``wsq`` (3, nr) the square roots of the volume weights
+    of the Ez, Er and Ephi nodes of each column.
+
+    Absorbers (Roden and Gedney 2000) stretch the curls before the update: the top layer the
+    z derivatives of Er and Ephi, the far-end layer the radial operators of Ez and Ephi.
+    Finally ``ez[0, :len(src)] -= src`` (current elements in the axis cells from the ground up) and
+    the ground-row DFT of Ez. Curls are gathered per column first
+    and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it;
+    ``scratch`` (3, nr, nz) float32 holds the curls (no allocation in the loop).
+    """
+    nr, nz = ez.shape
+    n = nz - jp0
+    n_top = psi_ze.shape[1]
+    nf = acc_re.shape[0]
+    zero = np.float32(0.0)
+    half = np.float32(0.5)
+    for i in prange(n_cols):
+        ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
+        a = rp[i]
+        b = rm[i]
+        im = i - 1 if i > 0 else 0
+        h = hp[i]
+        hm = hp[im]
+        far = i >= ir0
+        kk = i - ir0
+        # curls of every row (vacuum and plasma), stretched in the absorbers
+        cz = scratch[0, i]
+        cp = scratch[1, i]
+        cr = scratch[2, i]
+        for j in range(nz):
+            cz[j] = a * h[j] - b * hm[j]
+            cp[j] = zero
+            cr[j] = zero
+        if far:
+            for j in range(nz):
+                p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz[j]
+                psi_re[kk, j] = p
+                cz[j] = cz[j] + kd_re[kk] * cz[j] + p
+        if i > 0:
+            g_r = hr[i]
+            g_z = hz[i]
+            g_zm = hz[i - 1]
+            for j in range(1, nz):
+                cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (g_z[j] - g_zm[j]) * inv_dr
+            for k in range(n_top):
+                j = jz0 + k
+                d = (g_r[j] - g_r[j - 1]) * inv_dz
+                p = b_ze[k] * psi_pz[i, k] + c_ze[k] * d
+                psi_pz[i, k] = p
+                cp[j] += kd_ze[k] * d + p
+            if far:
+                for j in range(1, nz):
+                    d = -(g_z[j] - g_zm[j]) * inv_dr
+                    p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * d
+                    psi_pr[kk, j] = p
+                    cp[j] += kd_re[kk] * d + p
+        if ie >= 0:
+            he = hp[ie]
+            for j in range(1, nz):
+                cr[j] = -(he[j] - he[j - 1]) * inv_dz
+            for k in range(n_top):
+                j = jz0 + k
+                d = cr[j]
+                p = b_ze[k] * psi_ze[ie, k] + c_ze[k] * d
+                psi_ze[ie, k] = p
+                cr[j] += kd_ze[k] * d + p
+        # vacuum rows
+        e_z = ez[i]
+        for j in range(jp0):
+            e_z[j] += cez[j] * cz[j]
+        if i > 0:
+            e_p = ephi[i]
+            for j in range(1, jp0):
+                e_p[j] += cer[j] * cp[j]
+        if ie >= 0:
+            e_r = er[ie]
+            for j in range(1, jp0):
+                e_r[j] += cer[j] * cr[j]
+        # plasma rows: one triple per row
+        t = tab[i]
+        q = coef[t]
+        if i > 0 and ie >= 0:
+            sz, sr, sp = wsq[0, i], wsq[1, ie], wsq[2, i]
+            iz, ir_, ip = np.float32(1.0) / sz, np.float32(1.0) / sr, np.float32(1.0) / sp
+            xz_ = ez[i, jp0:]
+            xr_ = er[ie, jp0:]
+            xp_ = ephi[i, jp0:]
+            wz = uz[i]
+            wr = ur[ie]
+            wp = up[i]
+            ccz = cz[jp0:]
+            ccr = cr[jp0:]
+            ccp = cp[jp0:]
+            ez_c = cez[jp0:]
+            er_c = cer[jp0:]
+            for k in range(n):
+                e_zo = xz_[k]
+                e_ro = xr_[k]
+                e_po = xp_[k]
+                u_z = wz[k]
+                u_r = wr[k]
+                u_p = wp[k]
+                dz_ = ez_c[k] * ccz[k]
+                dr_ = er_c[k] * ccr[k]
+                dp_ = er_c[k] * ccp[k]
+                vr = sr * u_r
+                vp = sp * u_p
+                vz = sz * u_z
+                yr = sr * (e_ro + half * dr_)
+                yp = sp * (e_po + half * dp_)
+                yz = sz * (e_zo + half * dz_)
+                nr_ = (q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz) * ir_
+                np_ = (q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz) * ip
+                nz_ = (q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz) * iz
+                v1 = e_ro + dr_ - q[18, k] * (nr_ + u_r)
+                v2 = e_po + dp_ - q[19, k] * (np_ + u_p)
+                v3 = e_zo + dz_ - q[20, k] * (nz_ + u_z)
+                xr_[k] = v1 if abs(v1) > TINY else zero
+                xp_[k] = v2 if abs(v2) > TINY else zero
+                xz_[k] = v3 if abs(v3) > TINY else zero
+                wr[k] = nr_ if abs(nr_) > TINY else zero
+                wp[k] = np_ if abs(np_) > TINY else zero
+                wz[k] = nz_ if abs(nz_) > TINY else zero
+        else:
+            # the axis column and the column without an Er partner: absent components are zero
+            one = np.float32(1.0)
+            for k in range(n):
+                j = jp0 + k
+                er_old = zero
+                ur_old = zero
+                sr = one
+                if ie >= 0:
+                    er_old = er[ie, j]
+                    ur_old = ur[ie, k]
+                    sr = wsq[1, ie]
+                sp = wsq[2, i] if i > 0 else one
+                ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
+                    coef, t, k, ez[i, j], er_old, ephi[i, j], cz[j], cr[j], cp[j], uz[i, k], ur_old, up[i, k],
+                    cez[j], cer[j], cer[j], wsq[0, i], sr, sp)
+                ez[i, j] = _flush(ez_new)
+                uz[i, k] = _flush(uz_new)
+                if i > 0:
+                    ephi[i, j] = _flush(ep_new)
+                    up[i, k] = _flush(up_new)
+                if ie >= 0:
+                    er[ie, j] = _flush(er_new)
+                    ur[ie, k] = _flush(ur_new)
+        if i == 0:
+            for j in range(src.shape[0]):
+                ez[0, j] -= src[j]
+        v = np.float64(ez[i, 0])
+        for f in range(nf):
+            acc_re[f, i] += v * cos_e[f]
+            acc_im[f, i] -= v * sin_e[f]
+
+
+@nb.njit(**_OPTS)
+def step_er_alone(er, hp, inv_dz, cer, jp0, coef, t, wsq, ur, jz0, b_ze, c_ze, kd_ze, psi_ze, col):
+    """The Er column that no triple holds this step (the last one when ``shift`` = -1): its own
+    update with its radial current alone (``coef[t]`` built with Ez and Ephi absent)."""
+    nz = er.shape[1] - 1
+    zero = np.float32(0.0)
+    h = hp[col]
+    for j in range(1, nz):
+        c = -(h[j] - h[j - 1]) * inv_dz
+        if j >= jz0:
+            kt = j - jz0
+            p = b_ze[kt] * psi_ze[col, kt] + c_ze[kt] * c
+            psi_ze[col, kt] = p
+            c = c + kd_ze[kt] * c + p
+        if j < jp0:
+            er[col, j] += cer[j] * c
+        else:
+            k = j - jp0
+            _, er_new, _, _, ur_new, _ = _triple(coef, t, k, zero, er[col, j], zero, zero, c, zero,
+                                                 zero, ur[col, k], zero, cer[j], cer[j], cer[j],
+                                                 np.float32(1.0), wsq[1, col], np.float32(1.0))
+            er[col, j] = _flush(er_new)
+            ur[col, k] = _flush(ur_new)

@@ -246,6 +246,10 @@ def receiver_rows(
     phase = np.asarray(ds["receiver_ez_phase"].transpose("receiver", "frequency").values, dtype=float)
     b = (np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
          if "receiver_b_amplitude" in ds else np.full((n, freqs.size), np.nan))
+    # with a geomagnetic field: the other horizontal B component and the azimuthal E at the ground
+    extra = {key: np.asarray(ds[name].transpose("receiver", "frequency").values, dtype=float)
+             for key, name in (("b_radial_db", "receiver_b_radial_amplitude"), ("ephi_db", "receiver_ephi_amplitude"))
+             if name in ds}
     unc = (np.asarray(ds["receiver_ez_uncertainty"].transpose("receiver", "frequency").values, dtype=float)
            if "receiver_ez_uncertainty" in ds else None)
     daylight = receiver_daylight(ds)
@@ -270,6 +274,8 @@ def receiver_rows(
                 "path": int(rx_path[i]),
                 "path_bearing_deg": float(path_bearing[rx_path[i]]),
             }
+            for key, values in extra.items():
+                row[key] = float(values[i, k])
             if unc is not None:
                 row["ez_uncertainty_db"] = float(unc[i, k])
             if required_db is not None:
@@ -311,6 +317,12 @@ def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
     columns += [
         Column("ez_uv_per_m", "Ez (uV/m)", "ez_uv_per_m", 6, 3, significant=True),
         Column("b_db", "B (dB re 1 fT)", "b_db_re_1ft", 3, 1),
+    ]
+    if "b_radial_db" in keys:
+        columns.append(Column("b_radial_db", "B along path (dB re 1 fT)", "b_radial_db_re_1ft", 3, 1))
+    if "ephi_db" in keys:
+        columns.append(Column("ephi_db", "E across path (dB re 1 uV/m)", "ephi_db_re_1uv_per_m", 3, 1))
+    columns += [
         Column("phase_re_c_deg", f"{PHASE_QUANTITY} (deg)", "ez_phase_re_c_delay_deg", 2, 1),
         Column("daylight", "Day/night", "day_night"),
     ]
@@ -994,6 +1006,16 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
             ax_a.set_ylim(*limits)
         _mark_receivers(ax_a, rx_n, rx_d, rx_amp[on_path, k], RUN_COLOURS[0], label_names=True)
         ax_a.set_ylabel("Ez (dB re 1 uV/m, RMS)")
+        if "b_radial_amplitude" in ds:
+            # with a geomagnetic field both horizontal B components reach a loop antenna
+            ax_b = ax_a.twinx()
+            for name, text, style in (("b_amplitude", "B across the path", "--"), ("b_radial_amplitude", "B along the path", ":")):
+                values = ds[name].transpose("path", "frequency", "range").values[p, k]
+                fine = np.isfinite(values)
+                ax_b.plot(r[fine], values[fine], color=RUN_COLOURS[2 % len(RUN_COLOURS)], linestyle=style,
+                          linewidth=1.0, label=text)
+            ax_b.set_ylabel("B (dB re 1 fT, RMS)")
+            ax_b.legend(loc="upper right", fontsize=8)
         ax_a.set_title(f"{labels[p]}, {freqs[k]:g} kHz", fontsize=10)
         ax_a.grid(True, alpha=0.3)
         okp = np.isfinite(ph[p, k]) & (r > 0)

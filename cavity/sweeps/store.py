@@ -51,6 +51,10 @@ _SOLUTION_ARRAYS = (
     "collision_frequency",
     "ez_uncertainty_db",
     "receiver_ez_uncertainty_db",
+    "b_radial",  # this and the next three: with a geomagnetic field
+    "ephi",
+    "receiver_b_radial",
+    "receiver_ephi",
 )
 _ENGINE_ARRAYS = ("range_m", "frequencies_hz", "ez", "hphi", "probe_ranges_m")
 

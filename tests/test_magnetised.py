@@ -1,0 +1,422 @@
+"""The magnetised ionosphere: six field components and the vector plasma current.
+
+Kernels against plain-numpy twins of the same equations (Maxwell's curl equations in (r, z) with
+d/dphi = 0, Taflove and Hagness 2005 ch. 12; the E-J collocated trapezoidal update of a magnetised
+cold plasma, Yu and Simpson 2010, IEEE TAP 58(2) 469; CPML, Roden and Gedney 2000), the update's
+coefficients against the cold-plasma equations, and whole runs against physical expectations.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from cavity.fdtd import kernels as K
+from cavity.fdtd import media
+
+RNG = np.random.default_rng(11)
+F32 = np.float32
+
+
+# ---------------------------------------------------------------------------------------------
+# numpy twins
+# ---------------------------------------------------------------------------------------------
+
+
+def np_step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
+                 jz0, b_zh, c_zh, kd_zh, psi_hr, ir0, b_rh, c_rh, kd_rh, psi_hz, acc_re, acc_im, cos_h, sin_h):
+    """mu0 dHr/dt = dEphi/dz (ground row: Ephi(0) = Zs Hr), mu0 dHz/dt = -(1/r) d(r Ephi)/dr."""
+    nr, nz = hr.shape
+    dz_e = (ephi[:, 1:] - ephi[:, :-1]) * inv_dz  # at the Hr rows
+    sib_psi[:] = sib_q[None, :] * sib_psi + sib_w * hr[:, 0][:, None]
+    ground = ha * hr[:, 0] + hb * (ephi[:, 1] * inv_dz + sib_psi.sum(axis=1) * inv_dz)
+    hr[:, 1:] += ch * dz_e[:, 1:]
+    hr[:, 0] = ground
+    d = dz_e[:, jz0:]
+    psi_hr[:] = b_zh * psi_hr + c_zh * d
+    hr[:, jz0:] += ch * (kd_zh * d + psi_hr)
+    e_pad = np.vstack([ephi, np.zeros((1, nz + 1), ephi.dtype)])  # Ephi = 0 beyond the last column
+    rad = -(qp[:, None] * e_pad[1:] - qm[:, None] * e_pad[:-1])
+    hz[:, 1:nz] += ch * rad[:, 1:nz]
+    d = rad[ir0:, 1:nz]
+    psi_hz[:, 1:nz] = b_rh[:, None] * psi_hz[:, 1:nz] + c_rh[:, None] * d
+    hz[ir0:, 1:nz] += ch * (kd_rh[:, None] * d + psi_hz[:, 1:nz])
+    acc_re += hr[:, 0][None, :] * cos_h[:, None]
+    acc_im -= hr[:, 0][None, :] * sin_h[:, None]
+
+
+def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, coef, tab, shift, wsq,
+                  uz, ur, up, jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz, ir0, b_re, c_re, kd_re, psi_re, psi_pr,
+                  src, acc_re, acc_im, cos_e, sin_e):
+    """Curls of H, stretched in the absorbers, then one local trapezoidal update per triple
+    (Ez at (i, j+1/2), Ephi at (i, j), Er at (i + shift/2, j)) in the plasma rows."""
+    nr, nz = ez.shape
+
+    def stretch(d, b, c, kd, psi):
+        psi[:] = b * psi + c * d
+        return d + kd * d + psi
+
+    hm = np.vstack([hp[:1], hp[:-1]])
+    cz = rp[:, None] * hp - rm[:, None] * hm
+    cz[ir0:] = stretch(cz[ir0:], b_re[:, None], c_re[:, None], kd_re[:, None], psi_re)
+    cr = np.zeros_like(er)
+    cr[:, 1:nz] = -(hp[:, 1:] - hp[:, :-1]) * inv_dz
+    cr[:, jz0:nz] = stretch(cr[:, jz0:nz], b_ze, c_ze, kd_ze, psi_ze)
+    c1 = np.zeros_like(ephi)
+    c1[:, 1:nz] = (hr[:, 1:] - hr[:, :-1]) * inv_dz
+    c1[:, jz0:nz] = stretch(c1[:, jz0:nz], b_ze, c_ze, kd_ze, psi_pz)
+    c2 = np.zeros_like(ephi)
+    c2[1:, 1:nz] = -(hz[1:, 1:nz] - hz[:-1, 1:nz]) * inv_dr
+    c2[ir0:, 1:nz] = stretch(c2[ir0:, 1:nz], b_re[:, None], c_re[:, None], kd_re[:, None], psi_pr[:, 1:nz])
+    cp = c1 + c2
+    cp[0] = 0.0
+    psi_pz[0] = 0.0  # the axis column of Ephi is never stepped
+    if ir0 == 0:
+        psi_pr[0] = 0.0
+    # vacuum rows
+    ez[:, :jp0] += cez[:jp0] * cz[:, :jp0]
+    er[:, 1:jp0] += cer[1:jp0] * cr[:, 1:jp0]
+    ephi[1:, 1:jp0] += cer[1:jp0] * cp[1:, 1:jp0]
+    # plasma rows: triples
+    rows = np.arange(jp0, nz)
+    e_new = {"z": ez.copy(), "r": er.copy(), "p": ephi.copy()}
+    u_new = {"z": uz.copy(), "r": ur.copy(), "p": up.copy()}
+    for i in range(nr):
+        ie = i if shift > 0 else i - 1
+        q = coef[tab[i]].T  # (n_pl, 21)
+        t = q[:, :9].reshape(-1, 3, 3)
+        w = q[:, 9:18].reshape(-1, 3, 3)
+        g = q[:, 18:]
+        s = np.array([wsq[1, max(ie, 0)], wsq[2, i], wsq[0, i]])
+        e_old = np.zeros((rows.size, 3))
+        c = np.zeros((rows.size, 3))
+        u_old = np.zeros((rows.size, 3))
+        e_old[:, 2], c[:, 2], u_old[:, 2] = ez[i, rows], cz[i, rows], uz[i]
+        e_old[:, 1], c[:, 1], u_old[:, 1] = ephi[i, rows], cp[i, rows], up[i]
+        if ie >= 0:
+            e_old[:, 0], c[:, 0], u_old[:, 0] = er[ie, rows], cr[ie, rows], ur[ie]
+        e_c = np.stack([cer[rows], cer[rows], cez[rows]], axis=1)
+        x = s * (e_old + 0.5 * e_c * c)
+        v = np.einsum("kab,kb->ka", t, s * u_old) + np.einsum("kab,kb->ka", w, x)
+        u = v / s
+        e = e_old + e_c * c - g * (u + u_old)
+        e_new["z"][i, rows], u_new["z"][i] = e[:, 2], u[:, 2]
+        if i > 0:
+            e_new["p"][i, rows], u_new["p"][i] = e[:, 1], u[:, 1]
+        if ie >= 0:
+            e_new["r"][ie, rows], u_new["r"][ie] = e[:, 0], u[:, 0]
+    if shift < 0:  # the last Er column belongs to no triple: its own update with Jr alone (table row 0)
+        q = coef[0].T
+        s = wsq[1, nr - 1]
+        c = cr[nr - 1, rows]
+        e_old, u_old = er[nr - 1, rows], ur[nr - 1]
+        v = q[:, 0] * s * u_old + q[:, 9] * s * (e_old + 0.5 * cer[rows] * c)
+        u = v / s
+        e_new["r"][nr - 1, rows] = e_old + cer[rows] * c - q[:, 18] * (u + u_old)
+        u_new["r"][nr - 1] = u
+    ez[:, jp0:], er[:, jp0:nz], ephi[:, jp0:nz] = e_new["z"][:, jp0:], e_new["r"][:, jp0:nz], e_new["p"][:, jp0:nz]
+    uz[:], ur[:], up[:] = u_new["z"], u_new["r"], u_new["p"]
+    ez[0, :src.size] -= src
+    acc_re += ez[:, 0][None, :] * cos_e[:, None]
+    acc_im -= ez[:, 0][None, :] * sin_e[:, None]
+
+
+def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
+    r = lambda *shape: (RNG.standard_normal(shape) * 0.1).astype(F32)  # noqa: E731
+    pos = lambda *shape: RNG.uniform(0.2, 0.9, shape).astype(F32)  # noqa: E731
+    kd = lambda n: 1.0 / (1 + pos(n)).astype(np.float64) - 1.0  # noqa: E731
+    n_pl, n_top, n_far = nz - jp0, nz - jz0, nr - ir0
+    f = dict(ez=r(nr, nz), er=r(nr, nz + 1), ephi=r(nr, nz + 1), hp=r(nr, nz), hr=r(nr, nz), hz=r(nr, nz + 1),
+             uz=r(nr, n_pl), ur=r(nr, n_pl), up=r(nr, n_pl))
+    for name in ("er", "ephi", "hz"):
+        f[name][:, 0] = f[name][:, -1] = 0
+    f["ephi"][0] = 0
+    f["hr"][0] = 0
+    f["up"][0] = 0
+    # coefficient tables from the real constructor: random plasma, field and presence
+    eps = RNG.uniform(0.5, 2.0, (ntab, n_pl, 3))
+    wp2 = RNG.uniform(0.0, 30.0, (ntab, n_pl, 3))
+    nu = RNG.uniform(0.0, 3.0, (ntab, n_pl, 3))
+    gyro = np.broadcast_to(RNG.normal(0, 2.0, (ntab, 1, 3)), (ntab, n_pl, 3))
+    present = np.ones((ntab, n_pl, 3), bool)
+    present[1, :, 1] = False  # an axis-like triple without Ephi
+    present[0, :, 1:] = False  # the lone Er column (shift -1)
+    coef = np.ascontiguousarray(media.magnetised_coefficients(eps, wp2, nu, gyro, present, 0.5).transpose(0, 2, 1).astype(F32))
+    tab = RNG.integers(2, ntab, nr).astype(np.int32)
+    tab[0] = 1
+    wsq = RNG.uniform(0.5, 2.0, (3, nr)).astype(F32)
+    h = dict(inv_dz=F32(1.7), ch=F32(0.3), qp=pos(nr), qm=pos(nr), ha=pos(nr), hb=pos(nr) * F32(0.3),
+             sib_q=RNG.uniform(0.1, 0.99, nk), sib_w=RNG.standard_normal((nr, nk)) * 0.1,
+             sib_psi=RNG.standard_normal((nr, nk)) * 0.01,
+             jz0=jz0, b_zh=pos(n_top), c_zh=-pos(n_top) * F32(0.1), kd_zh=kd(n_top), psi_hr=r(nr, n_top),
+             ir0=ir0, b_rh=pos(n_far), c_rh=-pos(n_far) * F32(0.1), kd_rh=kd(n_far), psi_hz=r(n_far, nz + 1),
+             acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
+             cos_h=RNG.standard_normal(nf), sin_h=RNG.standard_normal(nf))
+    h["psi_hz"][:, 0] = h["psi_hz"][:, -1] = 0
+    rp, rm = pos(nr), pos(nr)
+    rm[0] = 0
+    e = dict(rp=rp, rm=rm, inv_dr=F32(1.3), inv_dz=F32(1.7), cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3),
+             jp0=jp0, coef=coef, tab=tab, wsq=wsq,
+             jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top), psi_ze=r(nr, n_top),
+             psi_pz=r(nr, n_top), ir0=ir0, b_re=pos(n_far), c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far),
+             psi_re=r(n_far, nz), psi_pr=r(n_far, nz + 1), src=np.array([0.05, -0.02], F32),
+             acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
+             cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
+    e["psi_pz"][0] = 0
+    e["psi_pr"][:, 0] = e["psi_pr"][:, -1] = 0
+    return f, h, e
+
+
+def _copy(d):
+    return {k: (v.copy() if isinstance(v, np.ndarray) else v) for k, v in d.items()}
+
+
+@pytest.mark.parametrize("steps", [1, 4])
+def test_six_component_kernels_match_their_numpy_twins(steps):
+    fields, h, e = _mag_state()
+    fk, hk, ek = _copy(fields), _copy(h), _copy(e)
+    fn, hn, en = _copy(fields), _copy(h), _copy(e)
+    nr = fields["ez"].shape[0]
+    e_keys = ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "psi_pz", "ir0", "b_re", "c_re", "kd_re", "psi_re",
+              "psi_pr", "src", "acc_re", "acc_im", "cos_e", "sin_e")
+    for step in range(steps):
+        shift = 1 if step % 2 == 0 else -1
+        K.step_h_te(fk["hr"], fk["hz"], fk["ephi"], **hk, n_cols=nr)
+        np_step_h_te(fn["hr"], fn["hz"], fn["ephi"], **hn)
+        for f_, e_, fn_ in ((fk, ek, K.step_e_mag), (fn, en, np_step_e_mag)):
+            args = [f_["ez"], f_["er"], f_["ephi"], f_["hp"], f_["hr"], f_["hz"], e_["rp"], e_["rm"], e_["inv_dr"],
+                    e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"], e_["coef"], e_["tab"], shift, e_["wsq"],
+                    f_["uz"], f_["ur"], f_["up"], *[e_[k] for k in e_keys]]
+            if fn_ is K.step_e_mag:
+                fn_(*args, nr, np.zeros((3, nr, f_["ez"].shape[1]), F32))
+                if shift < 0:
+                    K.step_er_alone(f_["er"], f_["hp"], e_["inv_dz"], e_["cer"], e_["jp0"], e_["coef"], 0, e_["wsq"],
+                                    f_["ur"], e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], nr - 1)
+            else:
+                fn_(*args)
+    for name in ("ez", "er", "ephi", "hr", "hz", "uz", "ur", "up"):
+        np.testing.assert_allclose(fk[name], fn[name], rtol=2e-4, atol=2e-6, err_msg=name)
+    for name in ("sib_psi", "psi_hr", "psi_hz", "acc_re", "acc_im"):
+        np.testing.assert_allclose(hk[name], hn[name], rtol=2e-4, atol=2e-6, err_msg=name)
+    for name in ("psi_ze", "psi_pz", "psi_re", "psi_pr", "acc_re", "acc_im"):
+        np.testing.assert_allclose(ek[name], en[name], rtol=2e-4, atol=2e-6, err_msg=name)
+
+
+def test_last_active_column_te_sees_every_array():
+    nr, nz, nzp, nrp, ir0 = 12, 8, 3, 4, 8
+    arrays = dict(ephi=np.zeros((nr, nz + 1), F32), hr=np.zeros((nr, nz), F32), hz=np.zeros((nr, nz + 1), F32),
+                  jphi=np.zeros((nr, 4), F32), psi_hr=np.zeros((nr, nzp), F32), psi_pz=np.zeros((nr, nzp), F32),
+                  sib=np.zeros((nr, 3)), psi_hz=np.zeros((nrp, nz + 1), F32), psi_pr=np.zeros((nrp, nz + 1), F32))
+
+    def last():
+        a = arrays
+        return K.last_active_column_te(nr - 1, a["ephi"], a["hr"], a["hz"], a["jphi"], a["psi_hr"], a["psi_pz"],
+                                       a["sib"], ir0, a["psi_hz"], a["psi_pr"])
+
+    assert last() == -1
+    for name, col in (("hr", 1), ("ephi", 2), ("jphi", 3), ("psi_pz", 4), ("sib", 5), ("hz", 6), ("psi_hz", 9),
+                      ("psi_pr", 10)):
+        row = col - ir0 if name in ("psi_hz", "psi_pr") else col
+        arrays[name][row, -1] = 1e-38
+        assert last() == col, name
+
+
+# ---------------------------------------------------------------------------------------------
+# coefficients
+# ---------------------------------------------------------------------------------------------
+
+
+def test_coefficients_without_field_are_the_isotropic_update():
+    # B0 = 0: the vector equation is three copies of dJ/dt = eps wp^2 E - nu J (physics), so the
+    # update must be the isotropic trapezoidal one of media.plasma_coefficients per component.
+    eps, wp2, nu, dt = 1.1e-11, 3e12, 2e6, 5e-7
+    q = media.magnetised_coefficients(np.full(3, eps), np.full(3, wp2), np.full(3, nu), np.zeros(3),
+                                      np.ones(3, bool), dt)
+    pa, pb, pc, qa, qb = media.plasma_coefficients(eps, wp2, nu, dt)
+    t, w, g = q[:9].reshape(3, 3), q[9:18].reshape(3, 3), q[18:]
+    assert np.allclose(t - np.diag(np.diag(t)), 0) and np.allclose(w - np.diag(np.diag(w)), 0)
+    d = math.sqrt(eps * wp2)
+    # with E eliminated: J' = d u' must follow J' = qa J + qb (E' + E), E' = pa E + pb C - pc J
+    rng = np.random.default_rng(0)
+    e, j, c = rng.normal(size=3)
+    u = j / d
+    e_c = dt / eps
+    u_new = t[0, 0] * u + w[0, 0] * (e + 0.5 * e_c * c)
+    e_new = e + e_c * c - g[0] * (u_new + u)
+    assert e_new == pytest.approx(pa * e + pb * c - pc * j, rel=1e-9)
+    assert d * u_new == pytest.approx(qa * j + qb * (e_new + e), rel=1e-9)
+
+
+def test_coefficients_give_a_contraction_for_any_density_collision_and_field():
+    # Cayley transform of a matrix with a non-negative symmetric part (matrix theory): |T| <= 1,
+    # the reason the update is stable for any omega_p dt, nu dt, omega_b dt.
+    rng = np.random.default_rng(4)
+    n = 400
+    q = media.magnetised_coefficients(rng.uniform(1e-11, 2e-11, (n, 3)), 10 ** rng.uniform(0, 16, (n, 3)),
+                                      10 ** rng.uniform(2, 8, (n, 3)), rng.normal(0, 1e7, (n, 3)),
+                                      np.ones((n, 3), bool), 1e-6)
+    norms = np.linalg.norm(q[:, :9].reshape(n, 3, 3), ord=2, axis=(1, 2))
+    assert norms.max() <= 1.0 + 1e-9
+
+
+def test_steady_current_is_the_cold_plasma_conductivity():
+    # At a constant E the trapezoidal current settles where M J = eps wp^2 E, i.e.
+    # J = eps wp^2 (nu I - [wb x])^-1 E: the DC conductivity tensor of a magnetised cold plasma
+    # (Pedersen, Hall and parallel conductivities; Ratcliffe 1959, The Magneto-Ionic Theory, ch. 2).
+    eps, wp2, nu, dt = 8.85e-12, 1e11, 1e6, 1e-6
+    wb = np.array([2e6, -3e6, 5e6])
+    q = media.magnetised_coefficients(np.full(3, eps), np.full(3, wp2), np.full(3, nu), wb, np.ones(3, bool), dt)
+    t, w = q[:9].reshape(3, 3), q[9:18].reshape(3, 3)
+    d = math.sqrt(eps * wp2)
+    # E held: u' = T u + W E (C = 0 leaves E changing; hold E and iterate the current alone)
+    e = np.array([1.0, 0.5, -2.0])
+    # the current-only trapezoidal map with E fixed: u' = A u + K 2E with A, K from M (no E feedback)
+    m = nu * np.eye(3) - media.gyro_matrix(wb)
+    a = np.linalg.solve(np.eye(3) + 0.5 * dt * m, np.eye(3) - 0.5 * dt * m)
+    k = np.linalg.solve(np.eye(3) + 0.5 * dt * m, 0.5 * dt * d * np.eye(3))
+    u = np.zeros(3)
+    for _ in range(2000):
+        u = a @ u + k @ (2 * e)
+    j = d * u
+    expected = eps * wp2 * np.linalg.solve(m, e)
+    assert np.allclose(j, expected, rtol=1e-9)
+    # and the E-eliminated form used by the kernels is the same pair of equations: with E' from
+    # Ampere's law (no curl), E' + E enters the current update exactly as above
+    e0, u0 = e.copy(), u.copy()
+    u1 = t @ u0 + w @ e0
+    e1 = e0 - q[18:] * (u1 + u0)
+    assert np.allclose(u1, a @ u0 + k @ (e1 + e0), rtol=1e-9, atol=1e-12)
+
+
+# ---------------------------------------------------------------------------------------------
+# whole solves
+# ---------------------------------------------------------------------------------------------
+
+
+def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, permittivity=70.0):
+    import profiles
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 200e3, 250.0)
+    medium = eng.Medium.uniform(conductivity, permittivity, z, profiles.electron_density(z, 85.1, 0.63),
+                                profiles.collision_frequency(z), magnetic_field_t=field_t)
+    # the six-component kernels are second-order Yee: compare with the isotropic engine at that order
+    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=range_m, dr_m=cell, dz_m=cell, stencil_order=2)
+    return medium, settings
+
+
+def test_zero_field_six_components_equal_the_isotropic_engine():
+    # B0 = 0 reduces the magnetised current to the isotropic one exactly (physics); the TE set is
+    # then never excited (the vertical source radiates TM only), so it stays exactly zero.
+    from cavity.fdtd import engine as eng
+
+    medium, settings = _night_medium(None, range_m=200e3)
+    iso = eng.run(medium, settings)
+    medium0, _ = _night_medium([0.0, 0.0, 0.0], range_m=200e3)
+    sim = eng.Simulation(medium0, settings)
+    six = sim.run()
+    assert six.steps == iso.steps
+    db = lambda x: 20 * np.log10(np.abs(x))  # noqa: E731
+    assert np.max(np.abs(db(six.ez) - db(iso.ez))) < 1e-3
+    assert np.max(np.abs(np.angle(six.ez / iso.ez))) < 1e-4
+    assert np.max(np.abs(db(six.hphi) - db(iso.hphi))) < 1e-3
+    assert not np.any(six.hr) and not np.any(sim.ephi) and not np.any(sim.hz) and not np.any(sim.jphi)
+
+
+def test_skipping_unreached_columns_is_exact_with_the_field():
+    """DEVELOPERS.md "State per column is searched": tracked and whole-grid magnetised runs agree."""
+    from cavity.fdtd import engine as eng
+
+    medium, settings = _night_medium([1e-5, 3e-5, -4e-5], range_m=150e3)
+    tracked = eng.Simulation(medium, settings)
+    whole = eng.Simulation(medium, settings)
+    whole.track_front = False
+    a, b = tracked.run(), whole.run()
+    assert a.steps == b.steps
+    np.testing.assert_array_equal(a.ez, b.ez)
+    np.testing.assert_array_equal(a.hr, b.hr)
+    for name in ("ez", "er", "hp", "ephi", "hr", "hz", "jz", "jr", "jphi", "psi_hr", "psi_pz", "psi_hz", "psi_pr",
+                 "sib_psi_r"):
+        np.testing.assert_array_equal(getattr(tracked, name), getattr(whole, name), err_msg=name)
+
+
+def _dense_slab_run(field_t, steps):
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 60e3, 250.0)
+    ne = np.where(z >= 10e3, 1e11, 0.0)  # omega_p dt = 19 at dt = 1.07 us
+    nu = np.full(z.size, 1e5)
+    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=10e3, top_m=20e3, dr_m=500.0, dz_m=500.0,
+                            earth_curvature=False, convergence_db=0.0, max_duration_s=steps * 1.0662e-6)
+    sim = eng.Simulation(eng.Medium.uniform(1e-3, 10.0, z, ne, nu, magnetic_field_t=field_t), settings)
+    dt = sim.plan.dt_s
+    assert math.sqrt(sim.wp2_max) * dt > 15
+    res = sim.run()  # the engine's guard raises SolverError on growth or non-finite fields
+    assert res.steps >= steps - 1  # the duration is given in seconds: one step may round away
+    return sim, dt
+
+
+@pytest.mark.parametrize("strength_t", [5.7e-6, 5e-5])  # omega_b dt about 1 and 9
+def test_dense_magnetised_slab_stays_stable(strength_t):
+    # Stability for any omega_p dt and omega_b dt (Yu and Simpson 2010): a short default run.
+    b = strength_t * np.array([0.5, 0.6, -0.62]) / np.linalg.norm([0.5, 0.6, -0.62])
+    sim, dt = _dense_slab_run(b, 20000)
+    assert sim.gyro_max * dt == pytest.approx(strength_t * 1.7588e11 * dt, rel=1e-3)
+    assert np.abs(sim.ez).max() < 1e-3 and np.isfinite(sim.ephi).all()
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("strength_t", [5.7e-6, 5e-5])
+def test_dense_magnetised_slab_stays_stable_for_1e5_steps(strength_t):
+    b = strength_t * np.array([0.5, 0.6, -0.62]) / np.linalg.norm([0.5, 0.6, -0.62])
+    sim, dt = _dense_slab_run(b, 100000)
+    assert np.abs(sim.ez).max() < 1e-3 and np.isfinite(sim.ephi).all()
+
+
+def _uniform_scenario(range_km, dip_deg, azimuth_deg, *, night=True, ground="sea", cell_m=1000.0, strength_nt=50000.0):
+    from cavity.scenario import load_scenario
+
+    return load_scenario(f"""title = "magnetised check"
+[transmitter]
+name = "Tx"
+frequency_khz = 20.0
+radiated_power_kw = 100.0
+[[receiver]]
+name = "R"
+range_km = {range_km}
+[ionosphere]
+preset = "{'night' if night else 'day'}"
+[ground]
+kind = "{ground}"
+[geomagnetic]
+model = "uniform"
+strength_nt = {strength_nt}
+dip_deg = {dip_deg}
+azimuth_deg = {azimuth_deg}
+[solver]
+cell_m = {cell_m}
+""")
+
+
+@pytest.mark.slow
+def test_vertical_field_gives_the_same_answer_in_every_direction():
+    # With a vertical field there is no preferred horizontal direction (physics): the azimuth of
+    # travel must not matter.
+    from cavity.solve import simulate
+
+    runs = [simulate(_uniform_scenario(400.0, 90.0, az))["ez_amplitude"].values[0, 0] for az in (0.0, 90.0, 225.0)]
+    assert np.max(np.abs(runs[1] - runs[0])) < 0.01 and np.max(np.abs(runs[2] - runs[0])) < 0.01
+
+
+@pytest.mark.slow
+def test_eastward_beats_westward_at_night_with_a_low_dip():
+    # At night, at low and middle latitudes, eastward VLF propagation is attenuated less than
+    # westward (common practice; a few tenths to about 1 dB per 1000 km, from memory).
+    from cavity.solve import simulate
+
+    east = simulate(_uniform_scenario(1500.0, 20.0, 90.0))
+    west = simulate(_uniform_scenario(1500.0, 20.0, 270.0))
+    r = east["range"].values
+    far = (r >= 600.0) & (r <= 1500.0)
+    diff = east["ez_amplitude"].values[0, 0, far] - west["ez_amplitude"].values[0, 0, far]
+    assert np.median(diff) > 0.3
