@@ -117,7 +117,9 @@ def _load(text):
 def test_default_model_follows_the_geometry():
     from cavity.geomag import DEFAULT_EPOCH
 
-    s = _load(_POSITIONED)
+    # the field is opt-in (README, "The geomagnetic field"): without a section, isotropic everywhere
+    assert _load(_POSITIONED).geomagnetic.model == "none"
+    s = _load(_POSITIONED + "\n[geomagnetic]\n")  # a section without a model: the IGRF, as positions allow
     assert s.geomagnetic.model == "igrf" and s.geomagnetic.epoch == DEFAULT_EPOCH
     assert s.geomagnetic.epoch_source == "default" and s.geomagnetic.altitude_km == 80.0
     assert _load(_BY_RANGE).geomagnetic.model == "none"
@@ -126,7 +128,7 @@ def test_default_model_follows_the_geometry():
 def test_epoch_from_utc_then_date():
     from datetime import date
 
-    s = _load(_POSITIONED.replace('preset = "night"', "utc = 2026-07-01T23:30:00Z"))
+    s = _load(_POSITIONED.replace('preset = "night"', "utc = 2026-07-01T23:30:00Z") + "\n[geomagnetic]\n")
     assert s.geomagnetic.epoch == date(2026, 7, 1) and s.geomagnetic.epoch_source == "ionosphere.utc"
     s = _load(_POSITIONED + "[geomagnetic]\ndate = 2024-03-05\n")
     assert s.geomagnetic.epoch == date(2024, 3, 5) and s.geomagnetic.epoch_source == "geomagnetic.date"

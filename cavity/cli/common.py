@@ -235,7 +235,8 @@ def progress_callback(quiet: bool, label: str):
                     state["start"] = (now, fraction)
                     _OPEN_BAR["bar"] = state["bar"]
                 target = int(fraction * 1000)
-                left = time_left_s(*state["start"], now, fraction)
+                t0, f0 = state["start"]
+                left = time_left_s(t0, f0, now, fraction)
                 if target > state["done"]:
                     state["bar"].update(target - state["done"], "done" if target >= 1000 else _left_text(left))
                     state["done"] = target

@@ -43,7 +43,12 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
     """
     from cavity.cli.table import file_labels, open_results
     from cavity.reports.tables import (
-        common_frequencies, comparison_report, is_sweep, plot_comparison, run_labels, write_text,
+        common_frequencies,
+        comparison_report,
+        is_sweep,
+        plot_comparison,
+        run_labels,
+        write_text,
     )
 
     if output.suffix.lower() not in _SUFFIXES:

@@ -11,6 +11,7 @@ from cavity.cli.common import friendly_errors
 # Option bounds shown by click on bad input; they mirror the library's allowed ranges.
 from cavity.scenario import BETA_RANGE_PER_KM as _BETA_PER_KM  # one source of the allowed ranges
 from cavity.scenario import HPRIME_RANGE_KM as _HPRIME_KM
+
 _ALTITUDE_KM = (0.0, 500.0)
 _OUTPUT_SUFFIXES = (".png", ".pdf", ".nc", ".csv")
 

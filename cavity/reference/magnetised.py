@@ -351,7 +351,7 @@ def _integrate_down(a_layers, thickness, f):
     return f
 
 
-_COMPILED = {}
+_COMPILED: dict = {}
 
 
 def _compiled_integrator():
@@ -736,7 +736,9 @@ def magnetised_modes(
     out = [_mode_quantities(final, c, k0) for c in roots]
     kept = [i for i, q in enumerate(out) if -DB_PER_NEPER * q[0].imag * 1e6 <= max_attenuation_db_per_mm]
     order = sorted(kept, key=lambda i: -out[i][0].imag)
-    arr = lambda j, dtype=complex: np.array([out[i][j] for i in order], dtype=dtype)
+    def arr(j, dtype=complex):
+        return np.array([out[i][j] for i in order], dtype=dtype)
+
     return MagnetisedModes(
         frequency_hz=f,
         b_path_frame_t=b.copy(),

@@ -1162,7 +1162,7 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         ax.tick_params(labelbottom=False)
         ax.legend(fontsize=8, loc="lower right", framealpha=0.85)
         colours = dict(GROUND_STRIP)
-        for row, (name, r_s, cls) in enumerate(strips):
+        for row, (_name, r_s, cls) in enumerate(strips):
             for kind, colour in GROUND_STRIP:
                 on = cls == kind
                 if on.any():
