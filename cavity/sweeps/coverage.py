@@ -35,7 +35,6 @@ from __future__ import annotations
 import dataclasses
 import logging
 import math
-import os
 from collections.abc import Callable
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -445,22 +444,16 @@ def coverage(
         ``parts_dir``.
     """
     from cavity.sweeps.cluster import solve_path
-    from cavity.sweeps.run import _run
-    from cavity.sweeps.store import load_part, part_path
+    from cavity.sweeps.run import run_points
+    from cavity.sweeps.store import kept_parts
 
     _check_scenario(scenario)
     settings = CoverageSettings.make(bearing_step_deg, range_km, preview=preview, grid_deg=grid_deg)
     # bearings stand in for the sweep driver's points (they have the .key and .name it uses)
     points: list[Any] = [BearingPoint(i, float(b)) for i, b in enumerate(settings.bearings_deg)]
     variants = {p: bearing_scenario(scenario, p.bearing_deg, settings) for p in points}
-    results: dict[BearingPoint, object] = {}
-    folder = None
-    if parts_dir is not None:
-        folder = Path(os.fspath(parts_dir)).expanduser()
-        folder.mkdir(parents=True, exist_ok=True)
-        for p in points:
-            if load_part(part_path(folder, p), variants[p]) is not None:
-                results[p] = part_path(folder, p)
+    folder, finished = kept_parts(parts_dir, points, variants)
+    results: dict[BearingPoint, object] = dict(finished)
     todo = [p for p in points if p not in results]
     log.info(
         "coverage: %d bearings every %g deg to %g km; %d already solved%s, %d to solve",
@@ -474,7 +467,7 @@ def coverage(
     check_memory(scenario, settings, variants)
     failures = {}
     if todo:
-        failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
+        failures = run_points(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
     if failures:
         lines = [(p.name, failures[p]) for p in points if p in failures]
         for name, message in lines:

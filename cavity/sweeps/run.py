@@ -36,19 +36,17 @@ from __future__ import annotations
 
 import dataclasses
 import logging
-import os
 import time as _time
 import uuid
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
-from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from cavity.errors import CavityError
 from cavity.sweeps.cluster import check_combine_memory, local_cluster_size, solve_path, warm_numba_cache
 from cavity.sweeps.combine import combine
 from cavity.sweeps.points import SweepError, SweepPoint, describe_error, one_line, point_scenario, sweep_points
-from cavity.sweeps.store import load_part, load_solution, part_path, save_solution
+from cavity.sweeps.store import kept_parts, load_solution, part_path, save_solution
 
 if TYPE_CHECKING:  # pragma: no cover
     import xarray as xr
@@ -132,14 +130,8 @@ def sweep(
     """
     times, freqs, points = sweep_points(scenario, times, frequencies_khz)
     variants = {p: point_scenario(scenario, p) for p in points}
-    results: dict[SweepPoint, object] = {}
-    folder = None
-    if parts_dir is not None:
-        folder = Path(os.fspath(parts_dir)).expanduser()
-        folder.mkdir(parents=True, exist_ok=True)
-        for p in points:
-            if load_part(part_path(folder, p), variants[p]) is not None:
-                results[p] = part_path(folder, p)  # read again, one at a time, when combining
+    folder, finished = kept_parts(parts_dir, points, variants)
+    results: dict[SweepPoint, object] = dict(finished)
     todo = [p for p in points if p not in results]
     log.info(
         "sweep: %d points (%s x %s); %d already solved%s, %d to solve",
@@ -153,7 +145,7 @@ def sweep(
     failures: dict[SweepPoint, str] = {}
     if todo:
         check_combine_memory(times, freqs, points, variants)
-        failures = _run(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
+        failures = run_points(todo, variants, results, folder, scheduler, workers, progress, solve or solve_path)
     if failures:
         lines = [(p.name, failures[p]) for p in points if p in failures]
         for name, message in lines:
@@ -232,7 +224,7 @@ def _assemble(point: SweepPoint, variant: Scenario, keyed, solutions: dict, coun
     return to_dataset(variant, parts)
 
 
-def _run(todo, variants, results, folder, scheduler, workers, progress, solve) -> dict:
+def run_points(todo, variants, results, folder, scheduler, workers, progress, solve) -> dict:
     """Fan the distinct path solves out on a cluster and assemble each point as soon as its paths are
     in; returns {point: error text}."""
     from contextlib import ExitStack

@@ -142,3 +142,17 @@ def load_part(path: Path, variant: Scenario):
         log.info("part %s belongs to another scenario or version; solving it again", path.name)
         return None
     return ds
+
+
+def kept_parts(parts_dir, points, variants) -> tuple[Path | None, dict]:
+    """Open (create) the parts folder and find the points already solved there.
+
+    Returns the folder (None without one) and {point: part file} for every point whose kept part
+    still matches its scenario; those are read again, one at a time, when combining.
+    """
+    if parts_dir is None:
+        return None, {}
+    folder = Path(os.fspath(parts_dir)).expanduser()
+    folder.mkdir(parents=True, exist_ok=True)
+    found = {p: part_path(folder, p) for p in points if load_part(part_path(folder, p), variants[p]) is not None}
+    return folder, found
