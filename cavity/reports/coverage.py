@@ -311,16 +311,6 @@ def summary_notes(datasets, level, sector_deg: float) -> list[str]:
 # --------------------------------------------------------------------------------------------------
 
 
-def _land_mask(lat_lo, lat_hi, lon_lo, lon_hi, steps: int = 700):
-    """Land (1) and sea (0) on a grid covering the map (the solver's own 1 km land/sea mask)."""
-    from cavity.geo import is_land
-
-    lat = np.linspace(max(lat_lo, -89.99), min(lat_hi, 89.99), steps)
-    lon = np.linspace(lon_lo, lon_hi, steps)
-    lat2, lon2 = np.meshgrid(lat, lon, indexing="ij")
-    return lat, lon, is_land(lat2, ((lon2 + 180.0) % 360.0) - 180.0).astype(float)
-
-
 def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz: float | None = None):
     """The coverage map as a matplotlib Figure (one panel per frequency, or the one asked for)."""
     import cartopy.crs as ccrs
@@ -329,6 +319,7 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
     from matplotlib.patches import Patch
 
     from cavity.geo import points_along
+    from cavity.reports.maps import draw_coastline, land_grid
     from cavity.sweeps.coverage import COVERAGE_CAUTION
 
     _require_coverage(ds)
@@ -359,7 +350,8 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
     n = len(picks)
     fig = Figure(figsize=(8.5 * min(n, 2), 8.8 * math.ceil(n / 2)), layout="constrained")
     half = range_km * 1e3 * 1.06
-    land = _land_mask(lat.min(), lat.max(), lon.min(), lon.max())
+    frame = (-half, half, -half, half)
+    land = land_grid(proj, frame)  # one mask grid for every panel
     edge_b = np.linspace(0.0, 360.0, 721)
     edge = [points_along(lat0, lon0, b, [range_km * 1e3]) for b in edge_b]
     edge_lat = np.array([e[0][0] for e in edge])
@@ -373,7 +365,7 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
         ax = fig.add_subplot(math.ceil(n / 2), min(n, 2), panel + 1, projection=proj)
         ax.set_extent([-half, half, -half, half], crs=proj)
         filled = ax.contourf(lon, lat, amp[k], levels=levels, cmap=COLOUR_MAP, extend="both", transform=plate, zorder=1)
-        ax.contour(land[1], land[0], land[2], levels=[0.5], colors="#222222", linewidths=0.6, transform=plate, zorder=3)
+        draw_coastline(ax, proj, frame, colour="#222222", zorder=3, land=land)
         legend: list = []
         if chi is not None:
             # light hatching where the sun is down, denser where the D region is in night

@@ -58,10 +58,10 @@ def ring_step_km(reach_km: float) -> float:
     return 5000.0
 
 
-def land_sea_background(ax, proj, extent, samples: int = BACKGROUND_SAMPLES) -> None:
-    """Fill land and sea and draw the coastline from the land/sea mask, in projected coordinates."""
+def land_grid(proj, extent, samples: int = BACKGROUND_SAMPLES):
+    """Land (1) and sea (0) from the land/sea mask on a samples x samples grid of the projected
+    ``extent`` (x0, x1, y0, y1); returns the projected X, Y and the mask."""
     import cartopy.crs as ccrs
-    from matplotlib.colors import ListedColormap
 
     from cavity.geo import is_land
 
@@ -73,10 +73,24 @@ def land_sea_background(ax, proj, extent, samples: int = BACKGROUND_SAMPLES) -> 
     ok = np.all(np.isfinite(lonlat[:, :2]), axis=1) & (np.abs(lonlat[:, 1]) <= 90.0)
     land = np.zeros(X.size)
     land[ok] = is_land(lonlat[ok, 1], ((lonlat[ok, 0] + 180.0) % 360.0) - 180.0)
-    land = land.reshape(X.shape)
+    return X, Y, land.reshape(X.shape)
+
+
+def draw_coastline(ax, proj, extent, *, colour: str = COAST_COLOUR, zorder: int = 1,
+                   samples: int = BACKGROUND_SAMPLES, land=None) -> None:
+    """The coastline, the 0.5 contour of the land/sea mask (no download: the mask is installed)."""
+    X, Y, mask = land if land is not None else land_grid(proj, extent, samples)
+    ax.contour(X, Y, mask, levels=[0.5], colors=colour, linewidths=0.6, transform=proj, zorder=zorder)
+
+
+def land_sea_background(ax, proj, extent, samples: int = BACKGROUND_SAMPLES) -> None:
+    """Fill land and sea and draw the coastline from the land/sea mask, in projected coordinates."""
+    from matplotlib.colors import ListedColormap
+
+    X, Y, land = land_grid(proj, extent, samples)
     ax.imshow(land, origin="lower", extent=extent, transform=proj, cmap=ListedColormap([SEA_COLOUR, LAND_COLOUR]),
               vmin=0, vmax=1, interpolation="nearest", zorder=0)
-    ax.contour(X, Y, land, levels=[0.5], colors=COAST_COLOUR, linewidths=0.6, transform=proj, zorder=1)
+    draw_coastline(ax, proj, extent, land=(X, Y, land))
 
 
 def _check_output(output_path) -> tuple[Path, str]:
