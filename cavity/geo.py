@@ -146,16 +146,22 @@ def points_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *
     -----
     The direct geodesic problem, solved by pyproj (Karney 2013).
     """
+    lons, lats, _, _ = _direct(lat_deg, lon_deg, bearing_deg, ranges_m, ellipsoid)
+    return np.asarray(lats, dtype=float), wrap_longitude(lons)
+
+
+def _direct(lat_deg, lon_deg, bearing_deg, ranges_m, ellipsoid):
+    """The direct geodesic problem at several ranges (checked inputs): lons, lats, back azimuths, ranges."""
     _check_latitudes(lat_deg, "latitude_deg")
     _check_longitudes(lon_deg, "longitude_deg")
     ranges = np.atleast_1d(np.asarray(ranges_m, dtype=float))
     if not np.all(np.isfinite(ranges)) or np.any(ranges < 0.0):
         raise ScenarioError("range along a path must be finite and >= 0 m")
     n = ranges.size
-    lons, lats, _ = _geod(ellipsoid).fwd(
+    lons, lats, back = _geod(ellipsoid).fwd(
         np.full(n, float(lon_deg)), np.full(n, float(lat_deg)), np.full(n, float(bearing_deg)), ranges
     )
-    return np.asarray(lats, dtype=float), wrap_longitude(lons)
+    return lons, lats, back, ranges
 
 
 def headings_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *,
@@ -167,15 +173,7 @@ def headings_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m,
     (:mod:`cavity.geomag`) uses the local heading. It is the back azimuth of the direct problem
     turned by 180 deg (pyproj, Karney 2013).
     """
-    _check_latitudes(lat_deg, "latitude_deg")
-    _check_longitudes(lon_deg, "longitude_deg")
-    ranges = np.atleast_1d(np.asarray(ranges_m, dtype=float))
-    if not np.all(np.isfinite(ranges)) or np.any(ranges < 0.0):
-        raise ScenarioError("range along a path must be finite and >= 0 m")
-    n = ranges.size
-    _, _, back = _geod(ellipsoid).fwd(
-        np.full(n, float(lon_deg)), np.full(n, float(lat_deg)), np.full(n, float(bearing_deg)), ranges
-    )
+    _, _, back, ranges = _direct(lat_deg, lon_deg, bearing_deg, ranges_m, ellipsoid)
     heading = (np.asarray(back, dtype=float) + 180.0) % 360.0
     heading[ranges == 0.0] = float(bearing_deg) % 360.0
     return heading
