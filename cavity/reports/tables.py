@@ -1160,7 +1160,8 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         ax.set_title(f"{f:g} kHz", fontsize=10)
         ax.grid(True, alpha=0.3)
         ax.tick_params(labelbottom=False)
-        ax.legend(fontsize=8, loc="lower right", framealpha=0.85)
+        # the field falls with range: near the transmitter the low levels are free of curves and labels
+        ax.legend(fontsize=8, loc="lower left", framealpha=0.85)
         colours = dict(GROUND_STRIP)
         for row, (_name, r_s, cls) in enumerate(strips):
             for kind, colour in GROUND_STRIP:
