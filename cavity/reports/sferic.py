@@ -37,6 +37,7 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
     import matplotlib.pyplot as plt
 
     from cavity.files import save_figure
+    from cavity.reports.tables import run_labels
 
     if component not in ("ez", "b"):
         raise ValueError(f"component = {component!r}: choose 'ez' or 'b'")
@@ -47,7 +48,7 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
                 f"{ds.attrs.get('title', 'a dataset')!r} holds no sferic waveforms (write it with cavity sferic run)"
             )
     if labels is None:
-        labels = [_run_label(ds) for ds in runs]
+        labels = run_labels(runs)  # day/night, the UTC or the title, as every other report labels a run
     names = [str(n) for n in runs[0].receiver_name.values]
     n_rows = len(names)
     fig, axes = plt.subplots(n_rows, 2, figsize=(11, 2.6 * n_rows + 0.8), squeeze=False)
@@ -106,21 +107,3 @@ def plot_sferic(datasets, output, *, labels: Sequence[str] | None = None, compon
         return save_figure(fig, output, dpi=120)
     finally:
         plt.close(fig)
-
-
-def _run_label(ds) -> str:
-    """A short label for a run: its ionosphere (preset name or h' and beta) or its title."""
-    import tomllib
-
-    try:
-        doc = tomllib.loads(str(ds.attrs.get("scenario", "")))
-        ion = doc.get("ionosphere", {})
-        if "preset" in ion:
-            return f"{ion['preset']}"
-        if "hprime_km" in ion:
-            return f"h' {ion['hprime_km']:g} km, beta {ion['beta_per_km']:g}/km"
-        if "ceiling_km" in ion:
-            return f"ceiling {ion['ceiling_km']:g} km"
-    except (tomllib.TOMLDecodeError, TypeError, KeyError):
-        pass
-    return str(ds.attrs.get("title", "run"))
