@@ -8,6 +8,7 @@ the interpolation on the example's 2,000 km map at 20 kHz is marked slow.
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 import subprocess
@@ -29,10 +30,12 @@ from cavity.sweeps.coverage import (
     CoverageSettings,
     bearing_scenario,
     coverage,
+    map_bearings,
     map_from_profiles,
     map_grid,
     profile_values,
     rebuild_map,
+    refine_bearings,
     write_coverage,
 )
 
@@ -158,6 +161,59 @@ def test_profile_values_exact_for_a_field_linear_in_bearing_and_range():
     # beyond the map's range: NaN
     assert np.isnan(profile_values(bearings, r, amp, [10.0], [100.5]))[0]
     assert np.isnan(profile_values(bearings, r, amp, [10.0], [60.0], max_range_km=50.0))[0]
+
+
+def _wedge_coast(lo_deg, hi_deg, onset=20, n=100):
+    """Synthetic ground: land from sample ``onset`` on for bearings in [lo, hi) deg, else sea."""
+
+    def ground_of(b):
+        kinds = np.full(n, "sea", dtype="<U4")
+        if lo_deg <= b % 360.0 < hi_deg:
+            kinds[onset:] = "land"
+        return kinds
+
+    return ground_of
+
+
+def test_refinement_bisects_pairs_across_a_coast_down_to_the_finest_step():
+    # Land on bearings 333-352 deg (80 % of each path): worked by hand, the pair 330/340 is split at
+    # 335 (land), then 330/335 at 332.5 (sea), where 2.5 deg stops it; 350/0 is split at 355 (sea),
+    # then 350/355 at 352.5 (sea). Pairs on one side of the coast (340/350, open sea) are left alone.
+    regular = np.arange(0.0, 360.0, 10.0)
+    got = refine_bearings(regular, _wedge_coast(333.0, 352.0), 2.5)
+    assert sorted(set(got) - set(regular)) == [332.5, 335.0, 352.5, 355.0]
+    assert np.all(np.diff(got) > 0) and got[0] == 0.0 and got[-1] < 360.0
+    # a finer finest step goes one level further on the two coasts, no further elsewhere
+    finer = refine_bearings(regular, _wedge_coast(333.0, 352.0), 1.25)
+    assert sorted(set(finer) - set(got)) == [333.75, 351.25]
+    # no refinement when the finest step is the step; a difference on 5 % of the samples is tolerated
+    assert np.array_equal(refine_bearings(regular, _wedge_coast(333.0, 352.0), 10.0), regular)
+    assert np.array_equal(refine_bearings(regular, _wedge_coast(333.0, 352.0, onset=95), 2.5), regular)
+    assert set(refine_bearings(regular, _wedge_coast(333.0, 352.0, onset=94), 2.5)) > set(regular)
+    # cost stays linear: at most step / finest bearings per regular one, for any ground
+    rng = np.random.default_rng(17)
+    for _ in range(20):
+        coast = rng.uniform(0.0, 360.0, 6)
+
+        def patchy(b, coast=coast):
+            return np.array(["land" if np.sin(np.radians(b - c) * 7.0) > 0 else "sea" for c in coast])
+
+        assert refine_bearings(regular, patchy, 2.5).size <= regular.size * 4
+
+
+def test_map_bearings_refine_only_where_the_ground_changes_with_bearing(coast):
+    # The coast scenario (sea to the south and west, land to the north and east) at 30 deg and
+    # 300 km: bisectors only in pairs whose paths cross different ground; none with uniform ground.
+    settings = CoverageSettings.make(30.0, 300.0)
+    got = map_bearings(coast, settings)
+    regular = settings.bearings_deg
+    assert set(regular) <= set(got) and got.size <= regular.size * 4
+    assert got.size > regular.size  # the mast stands on a coast
+    sea = coast.replace(ground=dataclasses.replace(coast.ground, kind="sea"))
+    assert np.array_equal(map_bearings(sea, settings), regular)
+    assert np.array_equal(map_bearings(coast, CoverageSettings.make(30.0, 300.0, refine_to_deg=30.0)), regular)
+    with pytest.raises(ScenarioError, match="refine_to_deg = 40.0 is outside the allowed range 0.125 to 30 deg"):
+        CoverageSettings.make(30.0, 300.0, refine_to_deg=40.0)
 
 
 def test_map_grid_covers_the_disc_and_reaches_a_pole_inside_it():

@@ -42,6 +42,14 @@ def _finite(ctx, param, value):
     help="A quick coarse look: bearings every 30 deg and 12 cells per wavelength (when cell_m is auto).",
 )
 @click.option(
+    "--refine-to",
+    "refine_to",
+    type=float,
+    metavar="DEG",
+    help="Finest bearing step where neighbouring paths cross different ground (coasts); the bearing step "
+    "turns the refinement off [default: a quarter of the bearing step].",
+)
+@click.option(
     "--grid-deg",
     "grid_deg",
     type=float,
@@ -128,6 +136,7 @@ def command(
     bearing_step,
     range_km,
     preview,
+    refine_to,
     grid_deg,
     required_db,
     noise_db,
@@ -144,10 +153,11 @@ def command(
 ):
     """Map the field of SCENARIO's transmitter over an area: paths solved at a set of bearings.
 
-    Each bearing (every --bearing-step degrees from north) is the scenario with one receiver at
-    --range-km on that bearing: its own ground, sun and ionosphere along it, solved on a dask
-    worker. Finished bearings are kept in a parts folder beside the output, so a stopped map
-    resumes when the same command is run again. The field is interpolated between bearings (in dB,
+    Each bearing (every --bearing-step degrees from north, plus bisectors down to --refine-to where
+    neighbouring paths cross different ground) is the scenario with one receiver at --range-km on
+    that bearing: its own ground, sun and ionosphere along it, solved on a dask worker. Finished
+    bearings are kept in a parts folder beside the output, so a stopped map resumes when the same
+    command is run again. The field is interpolated between bearings (in dB,
     along range then in angle) onto a regular latitude/longitude grid.
 
     Writes the coverage file (netCDF, CF-1.10), the map figure and, with --required or
@@ -169,7 +179,9 @@ def command(
         raise click.UsageError("--workers sizes the local cluster; it does not apply with --scheduler")
     level = make_level(required_db, noise_db, bandwidth_hz, snr_db)
     check_sector(sector_deg)
-    CoverageSettings.make(bearing_step, range_km, preview=preview, grid_deg=grid_deg)  # check before work
+    CoverageSettings.make(  # check before work
+        bearing_step, range_km, preview=preview, grid_deg=grid_deg, refine_to_deg=refine_to
+    )
     target = check_output_file(output, overwrite, what="coverage file")
     figure = figure or target.with_suffix(".png")
     if figure.suffix.lower() not in (".png", ".pdf"):
@@ -207,6 +219,7 @@ def command(
                 range_km,
                 preview=preview,
                 grid_deg=grid_deg,
+                refine_to_deg=refine_to,
                 scheduler=scheduler,
                 workers=workers,
                 parts_dir=parts_dir,

@@ -61,6 +61,13 @@ DEFAULT_RANGE_KM = 1000.0
 #: Allowed bearing steps (degrees; the step must divide 360) and ranges (km).
 BEARING_STEP_LIMITS_DEG = (0.5, 90.0)
 RANGE_LIMITS_KM = (50.0, 10000.0)
+#: Bearing refinement: a pair of neighbouring bearings is bisected while the ground class differs
+#: between them on more than this share of the range samples out to the map's range ...
+REFINE_GROUND_SHARE = 0.05
+#: ... down to this share of the bearing step (the finest step, default a quarter: 2.5 deg).
+REFINE_STEP_SHARE = 0.25
+#: Range samples of the ground compared by the refinement, km (the paths' own sample spacing).
+REFINE_SAMPLE_KM = 10.0
 #: The quick look (``preview``): fewer bearings and a coarser grid (cells per wavelength).
 PREVIEW_BEARING_STEP_DEG = 30.0
 PREVIEW_CELLS_PER_WAVELENGTH = 12.0
@@ -72,6 +79,12 @@ NICE_GRID_STEPS_DEG = (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1.0, 2.0)
 MAP_MEMORY_SHARE = 0.8
 #: Mean radius of the earth used for areas and for the solver's curvature model, km.
 EARTH_RADIUS_KM = EARTH_RADIUS_M / 1e3
+
+REFINEMENT_METHOD = (
+    "each pair of neighbouring bearings is bisected, recursively down to coverage_refine_to_deg, while the "
+    f"ground class (land/sea mask, every {REFINE_SAMPLE_KM:g} km out to the map's range) differs between "
+    f"the two on more than {REFINE_GROUND_SHARE:.0%} of the range samples"
+)
 
 INTERPOLATION_METHOD = (
     "along each solved bearing linearly in dB between the solver's range samples, then between the "
@@ -105,15 +118,22 @@ class CoverageSettings:
     range_km: float = DEFAULT_RANGE_KM
     cells_per_wavelength: float | None = None
     grid_deg: float | None = None
+    refine_to_deg: float | None = None
 
     @classmethod
-    def make(cls, bearing_step_deg=None, range_km=None, *, preview: bool = False, grid_deg=None) -> CoverageSettings:
+    def make(
+        cls, bearing_step_deg=None, range_km=None, *, preview: bool = False, grid_deg=None, refine_to_deg=None
+    ) -> CoverageSettings:
         """Settings from user values (None: the default, or the preview's), checked.
+
+        ``refine_to_deg`` is the finest step of the bearing refinement (:func:`refine_bearings`):
+        None for :data:`REFINE_STEP_SHARE` of the step, the step itself for none.
 
         Raises
         ------
         ScenarioError
-            A step that is out of range or does not divide 360 deg, a range or grid step out of range.
+            A step that is out of range or does not divide 360 deg, a range, grid step or refinement
+            step out of range.
         """
         step = (
             bearing_step_deg
@@ -134,12 +154,26 @@ class CoverageSettings:
             raise ScenarioError(f"range_km = {rng!r} is outside the allowed range {lo:g} to {hi:g} km")
         if grid_deg is not None and (not _number(grid_deg) or not 0.005 <= grid_deg <= 5.0):
             raise ScenarioError(f"grid_deg = {grid_deg!r} is outside the allowed range 0.005 to 5 deg")
+        finest = BEARING_STEP_LIMITS_DEG[0] / 4.0
+        if refine_to_deg is not None and (not _number(refine_to_deg) or not finest <= refine_to_deg <= step):
+            raise ScenarioError(
+                f"refine_to_deg = {refine_to_deg!r} is outside the allowed range {finest:g} to {step:g} deg "
+                "(the bearing step: no refinement)"
+            )
         return cls(
             float(step),
             float(rng),
             PREVIEW_CELLS_PER_WAVELENGTH if preview else None,
             None if grid_deg is None else float(grid_deg),
+            None if refine_to_deg is None else float(refine_to_deg),
         )
+
+    @property
+    def finest_step_deg(self) -> float:
+        """The finest step the refinement may reach, degrees (the bearing step: no refinement)."""
+        if self.refine_to_deg is not None:
+            return self.refine_to_deg
+        return self.bearing_step_deg * REFINE_STEP_SHARE
 
     @property
     def bearings_deg(self) -> np.ndarray:
@@ -168,6 +202,83 @@ class BearingPoint:
     def key(self) -> str:
         """A file-name-safe identity, e.g. ``b040.000deg`` (the part file's name)."""
         return f"b{self.bearing_deg:07.3f}deg"
+
+
+def refine_bearings(bearings_deg, ground_of: Callable[[float], np.ndarray], finest_deg: float,
+                    max_share: float = REFINE_GROUND_SHARE) -> np.ndarray:
+    """The regular bearings plus bisectors where neighbouring paths cross different ground.
+
+    Each pair of neighbouring bearings (periodic) is bisected while the ground class differs
+    between the two on more than ``max_share`` of the range samples, recursively, down to
+    ``finest_deg``: a coast that a pair of bearings straddles gets bearings on it, open sea or
+    open land none. At most ``step / finest_deg - 1`` bearings are added per pair, so the cost
+    stays linear in the number of bearings (at most ``step / finest_deg`` times the regular set).
+
+    Parameters
+    ----------
+    bearings_deg : (B,) array
+        The regular bearings, increasing, within [0, 360).
+    ground_of : callable
+        ``ground_of(bearing_deg)`` gives the ground class at fixed range samples along that bearing
+        (equal-length arrays of labels, compared sample by sample).
+    finest_deg : float
+        Pairs no wider than this are not bisected, degrees.
+    max_share : float
+        Largest share (0-1) of range samples with different ground that leaves a pair alone.
+
+    Returns
+    -------
+    numpy.ndarray
+        All bearings, increasing, within [0, 360).
+    """
+    b = [float(x) % 360.0 for x in bearings_deg]
+    seen: dict[float, np.ndarray] = {}
+
+    def ground(x: float) -> np.ndarray:
+        key = round(x % 360.0, 9)
+        if key not in seen:
+            seen[key] = np.asarray(ground_of(key))
+        return seen[key]
+
+    def split(lo: float, hi: float) -> list[float]:
+        if hi - lo <= finest_deg * (1.0 + 1e-9) or np.mean(ground(lo) != ground(hi)) <= max_share:
+            return []
+        mid = 0.5 * (lo + hi)
+        return split(lo, mid) + [mid] + split(mid, hi)
+
+    out = []
+    for i, lo in enumerate(b):
+        hi = b[(i + 1) % len(b)] + (360.0 if i + 1 == len(b) else 0.0)
+        out += [lo] + (split(lo, hi) if len(b) > 1 else [])
+    return np.array(sorted(round(x % 360.0, 9) for x in out))
+
+
+def ground_along_bearing(scenario: Scenario, bearing_deg: float, settings: CoverageSettings) -> np.ndarray:
+    """Ground class along one bearing every :data:`REFINE_SAMPLE_KM` out to the map's range.
+
+    The land/sea mask read as :func:`cavity.paths.build_paths` reads it for the bearing's path
+    (:func:`cavity.geo.ground_kind_along` on the WGS84 geodesic), with the scenario's
+    ``[[ground.segment]]`` entries laid over it; the same range samples on every bearing.
+    """
+    from cavity.geo import ground_kind_along, points_along
+
+    lat0, lon0 = _check_scenario(scenario)
+    r_m = np.linspace(0.0, settings.range_km * 1e3, int(math.ceil(settings.range_km / REFINE_SAMPLE_KM - 1e-9)) + 1)
+    lat, lon = points_along(lat0, lon0, float(bearing_deg), r_m)
+    kinds = np.asarray(ground_kind_along(lat, lon)).astype(object)
+    for seg in scenario.ground.segments:
+        kinds[(r_m >= seg.from_m) & (r_m < seg.to_m)] = seg.kind
+    return kinds.astype(str)
+
+
+def map_bearings(scenario: Scenario, settings: CoverageSettings) -> np.ndarray:
+    """The bearings a map solves: the regular set, refined along coasts (:func:`refine_bearings`)."""
+    regular = settings.bearings_deg
+    if settings.finest_step_deg >= settings.bearing_step_deg * (1 - 1e-9) or scenario.ground.kind != "auto":
+        return regular  # ground that does not change with bearing needs no refinement
+    return refine_bearings(
+        regular, lambda b: ground_along_bearing(scenario, b, settings), settings.finest_step_deg
+    )
 
 
 def bearing_scenario(scenario: Scenario, bearing_deg: float, settings: CoverageSettings) -> Scenario:
@@ -398,6 +509,7 @@ def coverage(
     *,
     preview: bool = False,
     grid_deg: float | None = None,
+    refine_to_deg: float | None = None,
     scheduler=None,
     workers: int | None = None,
     parts_dir=None,
@@ -420,6 +532,9 @@ def coverage(
         scenario leaves ``solver.cell_m`` automatic).
     grid_deg : float, optional
         Latitude/longitude step of the map, degrees (default about 300 steps across).
+    refine_to_deg : float, optional
+        Finest step of the bearing refinement along coasts (:func:`refine_bearings`), degrees;
+        default a quarter of the bearing step; the bearing step itself for no refinement.
     scheduler, workers, progress, solve :
         As for :func:`cavity.sweeps.run.sweep`: an existing cluster (address, client or cluster object)
         or a local one of ``workers`` processes; ``progress(fraction, text)`` after each solved
@@ -448,17 +563,21 @@ def coverage(
     from cavity.sweeps.store import kept_parts
 
     _check_scenario(scenario)
-    settings = CoverageSettings.make(bearing_step_deg, range_km, preview=preview, grid_deg=grid_deg)
+    settings = CoverageSettings.make(
+        bearing_step_deg, range_km, preview=preview, grid_deg=grid_deg, refine_to_deg=refine_to_deg
+    )
     # bearings stand in for the sweep driver's points (they have the .key and .name it uses)
-    points: list[Any] = [BearingPoint(i, float(b)) for i, b in enumerate(settings.bearings_deg)]
+    points: list[Any] = [BearingPoint(i, float(b)) for i, b in enumerate(map_bearings(scenario, settings))]
     variants = {p: bearing_scenario(scenario, p.bearing_deg, settings) for p in points}
     folder, finished = kept_parts(parts_dir, points, variants)
     results: dict[BearingPoint, object] = dict(finished)
     todo = [p for p in points if p not in results]
     log.info(
-        "coverage: %d bearings every %g deg to %g km; %d already solved%s, %d to solve",
+        "coverage: %d bearings (every %g deg, %d more where paths cross different ground) to %g km; "
+        "%d already solved%s, %d to solve",
         len(points),
         settings.bearing_step_deg,
+        len(points) - settings.bearings_deg.size,
         settings.range_km,
         len(results),
         f" in {folder}" if folder is not None else "",
@@ -606,6 +725,11 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         "solver_wall_time_s": float(agg("solver_wall_time_s", np.sum, 0.0)),
         "solver_converged": "yes" if converged else "no",
         "coverage_bearing_step_deg": float(settings.bearing_step_deg),
+        "coverage_refine_to_deg": float(settings.finest_step_deg),
+        "coverage_refinement": (
+            f"{n_b - settings.bearings_deg.size} bearings added to the {settings.bearings_deg.size} regular ones: "
+            + REFINEMENT_METHOD
+        ),
         "coverage_range_km": float(settings.range_km),
         "coverage_grid_deg": float(np.round(lat[1] - lat[0], 10)) if lat.size > 1 else float("nan"),
         "coverage_transmitter_latitude_deg": lat0,
