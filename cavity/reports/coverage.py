@@ -161,7 +161,7 @@ def coverage_figures(
     The last entry covers all bearings (0-360). Ranges are km, areas km2 on a sphere of radius
     6371 km (see the module notes).
     """
-    from cavity.sweeps.coverage import EARTH_RADIUS_KM, profile_values
+    from cavity.sweeps.coverage import EARTH_RADIUS_KM, dataset_ground, profile_values
 
     _require_coverage(ds)
     check_sector(sector_deg)
@@ -173,7 +173,7 @@ def coverage_figures(
     amp = np.asarray(ds["bearing_ez_amplitude"].transpose("bearing", "frequency", "range").values, float)[:, k, :]
     step = float(ds.attrs.get("coverage_bearing_step_deg", 360.0 / bearings.size))
     fine, width = _fine_bearings(step)
-    values = profile_values(bearings, r, amp, fine[:, None], r[None, :], top)  # (n_fine, R)
+    values = profile_values(bearings, r, amp, fine[:, None], r[None, :], top, dataset_ground(ds))  # (n_fine, R)
     above = np.nan_to_num(values, nan=-np.inf) >= level_db
     edges = np.concatenate([[0.0], 0.5 * (r[1:] + r[:-1]), [min(top, r[-1])]])
     a = EARTH_RADIUS_KM

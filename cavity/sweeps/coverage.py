@@ -68,6 +68,13 @@ REFINE_GROUND_SHARE = 0.05
 REFINE_STEP_SHARE = 0.25
 #: Range samples of the ground compared by the refinement, km (the paths' own sample spacing).
 REFINE_SAMPLE_KM = 10.0
+#: Bearings of the map's ground table (the ground along every grid point's path), degrees apart.
+GROUND_TABLE_STEP_DEG = 0.25
+#: Difference of the neighbours' path-integrated log10 conductivity (decade km) from which the
+#: ground alone sets the weights between two bearings; below it the weights blend towards the angle's.
+GROUND_WEIGHT_FULL_DECADE_KM = 20.0
+#: Conductivities are clipped to this range (S/m) before their logarithm (perfect ground is finite).
+GROUND_LOG_LIMITS_S_PER_M = (1e-5, 1e3)
 #: The quick look (``preview``): fewer bearings and a coarser grid (cells per wavelength).
 PREVIEW_BEARING_STEP_DEG = 30.0
 PREVIEW_CELLS_PER_WAVELENGTH = 12.0
@@ -88,8 +95,12 @@ REFINEMENT_METHOD = (
 
 INTERPOLATION_METHOD = (
     "along each solved bearing linearly in dB between the solver's range samples, then between the "
-    "two neighbouring bearings linearly in bearing angle in dB (not complex phasors); range and "
-    "bearing of each grid point from the transmitter on the WGS84 ellipsoid (geodesics)"
+    "two neighbouring bearings in dB (not complex phasors) with weights set by the ground: the grid "
+    "point's own path-integrated log10 ground conductivity out to its range (ground_conductivity_along) "
+    "placed linearly between the two bearings' (clipped to 0-1), blending to weights linear in bearing "
+    f"angle where the two bearings' integrals differ by less than {GROUND_WEIGHT_FULL_DECADE_KM:g} decade km "
+    "(the same ground, or ground that does not change with bearing); range and bearing of each grid "
+    "point from the transmitter on the WGS84 ellipsoid (geodesics)"
 )
 
 
@@ -368,8 +379,101 @@ def _centres(lo: float, hi: float, step: float) -> np.ndarray:
 # --------------------------------------------------------------------------------------------------
 
 
-def profile_values(bearings_deg, range_km, amplitude_db, at_bearing_deg, at_range_km, max_range_km=None):
-    """Values of bearing profiles at arbitrary (bearing, range): linear in range, then in angle, in dB.
+@dataclass(frozen=True)
+class GroundTable:
+    """Ground conductivity along paths from the transmitter at many bearings (the map's ground).
+
+    ``conductivity_s_per_m`` is (bearing, range); bearings increasing within [0, 360) and holding
+    every solved bearing, ranges in km from 0. :meth:`integral` gives the path-integrated
+    log10 conductivity that sets the interpolation's weights between bearings.
+    """
+
+    bearing_deg: np.ndarray
+    range_km: np.ndarray
+    conductivity_s_per_m: np.ndarray
+
+    def integral(self) -> np.ndarray:
+        """(bearing, range) integral of log10(sigma / 1 S m-1) from the transmitter, decade km."""
+        lo, hi = GROUND_LOG_LIMITS_S_PER_M
+        g = np.log10(np.clip(np.asarray(self.conductivity_s_per_m, float), lo, hi))
+        dr = np.diff(np.asarray(self.range_km, float))
+        steps = 0.5 * (g[:, 1:] + g[:, :-1]) * dr
+        return np.concatenate([np.zeros((g.shape[0], 1)), np.cumsum(steps, axis=1)], axis=1)
+
+    def rows(self, bearings_deg) -> np.ndarray:
+        """Index of each given bearing in the table (they must be in it)."""
+        b = np.asarray(bearings_deg, float) % 360.0
+        idx = np.clip(np.searchsorted(self.bearing_deg, b - 1e-7), 0, self.bearing_deg.size - 1)
+        if not np.allclose(self.bearing_deg[idx], b, atol=1e-6, rtol=0.0):
+            raise ValueError("the ground table does not hold every solved bearing")
+        return idx
+
+
+def ground_table(scenario: Scenario, settings: CoverageSettings, bearings_deg) -> GroundTable | None:
+    """The ground along every :data:`GROUND_TABLE_STEP_DEG` and every solved bearing (ground "auto").
+
+    None when the ground does not change with bearing (then the weights are the angle's).
+    """
+    if scenario.ground.kind != "auto":
+        return None
+    from cavity.ground import GROUND_CLASSES
+
+    n = int(round(360.0 / GROUND_TABLE_STEP_DEG))
+    table = np.unique(np.round(np.concatenate([np.arange(n) * GROUND_TABLE_STEP_DEG, np.asarray(bearings_deg, float)]) % 360.0, 9))
+    kinds = [ground_along_bearing(scenario, b, settings) for b in table]
+    sigma = np.array([[GROUND_CLASSES[k].conductivity_s_per_m for k in row] for row in kinds], float)
+    r_km = np.linspace(0.0, settings.range_km, sigma.shape[1])
+    return GroundTable(table, r_km, sigma)
+
+
+def _periodic(table_deg: np.ndarray, at_deg: np.ndarray):
+    """Neighbours (k, k2) and weight of ``at_deg`` among periodic increasing bearings."""
+    b = table_deg
+    ext = np.concatenate([b, [b[0] + 360.0]])
+    k = np.clip(np.searchsorted(ext, at_deg, side="right") - 1, 0, b.size - 1)
+    if b.size == 1:
+        return k, k, np.zeros_like(at_deg)
+    w = (at_deg - ext[k]) / (ext[k + 1] - ext[k])
+    k2 = (k + 1) % b.size
+    below = at_deg < b[0]  # before the first bearing: between the last and the first
+    if np.any(below):
+        k[below] = b.size - 1
+        k2[below] = 0
+        w[below] = (at_deg[below] + 360.0 - b[-1]) / (b[0] + 360.0 - b[-1])
+    return k, k2, w
+
+
+def ground_weights(ground: GroundTable, bearings_deg, k, k2, angle_w, at_bearing_deg, at_range_km) -> np.ndarray:
+    """Weights of the second neighbour (``k2``) set by the ground along each point's own path.
+
+    With I(theta, r) the path-integrated log10 conductivity (:meth:`GroundTable.integral`), the
+    point's I between its neighbours' I1 and I2 gives w = (I - I1) / (I2 - I1), clipped to 0-1: a
+    point whose path has so far crossed the same ground as one neighbour takes that neighbour's
+    field. Where |I2 - I1| is below :data:`GROUND_WEIGHT_FULL_DECADE_KM` the weight blends linearly
+    towards ``angle_w`` (equal ground: the angle's weight).
+    """
+    integral = ground.integral()
+    rg = np.asarray(ground.range_km, float)
+    ar = np.clip(np.asarray(at_range_km, float), rg[0], rg[-1])
+    j = np.clip(np.searchsorted(rg, ar, side="right") - 1, 0, rg.size - 2)
+    wr = (ar - rg[j]) / (rg[j + 1] - rg[j])
+
+    def at(rows):
+        return integral[rows, j] + wr * (integral[rows, j + 1] - integral[rows, j])
+
+    rows = ground.rows(bearings_deg)
+    i1, i2 = at(rows[k]), at(rows[k2])
+    f, f2, wf = _periodic(np.asarray(ground.bearing_deg, float), np.asarray(at_bearing_deg, float) % 360.0)
+    i = at(f) * (1.0 - wf) + at(f2) * wf
+    di = i2 - i1
+    with np.errstate(invalid="ignore", divide="ignore"):
+        wg = np.clip(np.where(di != 0.0, (i - i1) / np.where(di != 0.0, di, 1.0), angle_w), 0.0, 1.0)
+    share = np.clip(np.abs(di) / GROUND_WEIGHT_FULL_DECADE_KM, 0.0, 1.0)
+    return angle_w + share * (wg - angle_w)
+
+
+def profile_values(bearings_deg, range_km, amplitude_db, at_bearing_deg, at_range_km, max_range_km=None, ground=None):
+    """Values of bearing profiles at arbitrary (bearing, range): linear in range, then between bearings.
 
     Parameters
     ----------
@@ -383,6 +487,9 @@ def profile_values(bearings_deg, range_km, amplitude_db, at_bearing_deg, at_rang
         Where to read.
     max_range_km : float, optional
         NaN beyond this range (default: the last range sample).
+    ground : GroundTable, optional
+        The ground along the paths: the weights between bearings follow it (:func:`ground_weights`);
+        without it they are linear in bearing angle.
 
     Returns
     -------
@@ -402,20 +509,10 @@ def profile_values(bearings_deg, range_km, amplitude_db, at_bearing_deg, at_rang
     # range: linear weights between samples j and j + 1
     j = np.clip(np.searchsorted(r, ar, side="right") - 1, 0, r.size - 2)
     wr = np.clip((ar - r[j]) / (r[j + 1] - r[j]), 0.0, 1.0)
-    # bearing: periodic neighbours k and k + 1 (mod B)
-    ext = np.concatenate([b, [b[0] + 360.0]])
-    k = np.clip(np.searchsorted(ext, ab, side="right") - 1, 0, b.size - 1)
-    if b.size == 1:
-        wb = np.zeros_like(ab)
-        k2 = k
-    else:
-        wb = (ab - ext[k]) / (ext[k + 1] - ext[k])
-        k2 = (k + 1) % b.size
-        below = ab < b[0]  # before the first bearing: between the last and the first
-        if np.any(below):
-            k[below] = b.size - 1
-            k2[below] = 0
-            wb[below] = (ab[below] + 360.0 - b[-1]) / (b[0] + 360.0 - b[-1])
+    # bearing: periodic neighbours k and k + 1 (mod B), weighted by angle or by the ground
+    k, k2, wb = _periodic(b, ab)
+    if ground is not None and b.size > 1:
+        wb = ground_weights(ground, b, k, k2, wb, ab, ar)
     moved = np.moveaxis(amp, 0, -2)  # (..., B, R)
 
     def along(kk):
@@ -428,19 +525,33 @@ def profile_values(bearings_deg, range_km, amplitude_db, at_bearing_deg, at_rang
     return out.reshape(out.shape[:-1] + shape)
 
 
-def map_from_profiles(lat0: float, lon0: float, bearings_deg, range_km, amplitude_db, lat, lon, max_range_km):
+def map_from_profiles(
+    lat0: float, lon0: float, bearings_deg, range_km, amplitude_db, lat, lon, max_range_km, ground=None
+):
     """The profiles on a latitude/longitude grid: (values (..., lat, lon), range_km, bearing_deg).
 
     Each grid point's range and bearing from the transmitter are WGS84 geodesics
-    (:func:`cavity.geo.distance_bearing`); the value follows :func:`profile_values`.
+    (:func:`cavity.geo.distance_bearing`); the value follows :func:`profile_values` (with the
+    ground table ``ground`` when given).
     """
     from cavity.geo import distance_bearing
 
     lat2, lon2 = np.meshgrid(np.asarray(lat, float), np.asarray(lon, float), indexing="ij")
     dist_m, brg = distance_bearing(lat0, lon0, lat2, ((lon2 + 180.0) % 360.0) - 180.0)
     dist_km = np.asarray(dist_m) / 1e3
-    values = profile_values(bearings_deg, range_km, amplitude_db, brg, dist_km, max_range_km)
+    values = profile_values(bearings_deg, range_km, amplitude_db, brg, dist_km, max_range_km, ground)
     return values, dist_km, np.asarray(brg)
+
+
+def dataset_ground(ds) -> GroundTable | None:
+    """The ground table a coverage dataset holds (None for a map whose ground is one everywhere)."""
+    if "ground_conductivity_along" not in ds:
+        return None
+    return GroundTable(
+        np.asarray(ds["ground_bearing"].values, float),
+        np.asarray(ds["ground_range"].values, float),
+        np.asarray(ds["ground_conductivity_along"].transpose("ground_bearing", "ground_range").values, float),
+    )
 
 
 # --------------------------------------------------------------------------------------------------
@@ -451,10 +562,10 @@ def map_from_profiles(lat0: float, lon0: float, bearings_deg, range_km, amplitud
 def map_memory_bytes(n_freqs: int, n_lat: int, n_lon: int, n_bearings: int, n_range: int) -> int:
     """Memory of a map's arrays while it is built, bytes (float64).
 
-    Per grid point: range, bearing, zenith angle and the interpolation's index and weight arrays
-    (about 12 numbers) plus 4 per frequency; per bearing the profiles (amplitude, phase, media).
+    Per grid point: range, bearing, zenith angle and the interpolation's index, weight and ground
+    arrays (about 20 numbers) plus 4 per frequency; per bearing the profiles (amplitude, phase, media).
     """
-    return int(8 * (n_lat * n_lon * (12 + 4 * n_freqs) + n_bearings * n_range * (2 * n_freqs + 6)))
+    return int(8 * (n_lat * n_lon * (20 + 4 * n_freqs) + n_bearings * n_range * (2 * n_freqs + 6)))
 
 
 def check_memory(scenario: Scenario, settings: CoverageSettings, variants: dict) -> None:
@@ -651,9 +762,10 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         del ds, on
 
     bearings = np.array([p.bearing_deg for p in points])
+    ground = ground_table(scenario, settings, bearings)
     lat, lon = map_grid(lat0, lon0, settings.range_km, settings.grid_deg)
     amp, dist_km, brg = map_from_profiles(
-        lat0, lon0, bearings, r, profiles["ez_amplitude"], lat, lon, settings.range_km
+        lat0, lon0, bearings, r, profiles["ez_amplitude"], lat, lon, settings.range_km, ground
     )
     outside = dist_km > settings.range_km
     dist_km = np.where(outside, np.nan, dist_km)
@@ -681,7 +793,7 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         rlon = np.array([rx.longitude_deg for rx in placed])
         d, b = distance_bearing(lat0, lon0, rlat, rlon)
         d_km = np.asarray(d) / 1e3
-        rx_amp = profile_values(bearings, r, profiles["ez_amplitude"], np.asarray(b), d_km, settings.range_km)
+        rx_amp = profile_values(bearings, r, profiles["ez_amplitude"], np.asarray(b), d_km, settings.range_km, ground)
         data.update(
             {
                 "receiver_name": (("receiver",), np.array([rx.name for rx in placed], dtype=object)),
@@ -699,7 +811,21 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
         "bearing": ("bearing", bearings),
         "range": ("range", r),
     }
+    if ground is not None:
+        data["ground_conductivity_along"] = (("ground_bearing", "ground_range"), ground.conductivity_s_per_m)
+        coords["ground_bearing"] = ("ground_bearing", ground.bearing_deg)
+        coords["ground_range"] = ("ground_range", ground.range_km)
     out = xr.Dataset(data, coords=coords)
+    if ground is not None:
+        out["ground_bearing"].attrs.update(
+            units="degree", long_name="bearing of a ground-table path at the transmitter, clockwise from true north"
+        )
+        out["ground_range"].attrs.update(units="km", long_name="ground range along the ground-table paths")
+        out["ground_conductivity_along"].attrs.update(
+            units="S m-1",
+            long_name="ground conductivity along paths every ground_bearing (land/sea mask), which sets the "
+            "interpolation's weights between solved bearings",
+        )
 
     def agg(key, fn, default):
         values = np.array([float(a.get(key, np.nan)) for a in records])
@@ -781,6 +907,7 @@ def rebuild_map(ds: xr.Dataset, grid_deg: float | None = None) -> xr.Dataset:
         lat,
         lon,
         range_km,
+        dataset_ground(ds),
     )
     import xarray as xr
 
