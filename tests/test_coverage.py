@@ -27,8 +27,8 @@ from cavity.reports.coverage import coverage_figures, coverage_summary, make_lev
 from cavity.results import COVERAGE_VARIABLES, open_result
 from cavity.sweeps.coverage import (
     BearingPoint,
-    GroundTable,
     CoverageSettings,
+    GroundTable,
     bearing_scenario,
     coverage,
     ground_table,
@@ -413,7 +413,9 @@ def _interpolation_errors(scenario, settings, mid_bearings):
         )
         ok = _outside_deep_nulls(r_d, direct) & np.isfinite(mapped)
         err = np.abs(mapped[ok] - direct[ok])
-        out.append((pair, float(err.max()), float(np.sqrt(np.mean(err**2))), float(r_d[ok][np.argmax(err)]), float(ok.mean())))
+        out.append(
+            (pair, float(err.max()), float(np.sqrt(np.mean(err**2))), float(r_d[ok][np.argmax(err)]), float(ok.mean()))
+        )
     return out
 
 
@@ -427,7 +429,7 @@ def test_map_between_bearings_within_1_db_of_a_direct_solve_short_range(coast):
     for near in (45.0, 135.0, 225.0, 315.0):  # the bisector of the solved pair that holds (or follows) it
         k = int(np.searchsorted(bearings, near, side="right"))
         mids.append(0.5 * (bearings[k - 1] + bearings[k]) % 360.0)
-    for mid, (pair, worst, rms, at_km, kept) in zip(mids, _interpolation_errors(coast, settings, mids)):
+    for mid, (pair, worst, _rms, at_km, kept) in zip(mids, _interpolation_errors(coast, settings, mids)):
         assert kept > 0.8, (mid, kept)
         assert worst < 1.0, (mid, pair, worst, at_km)
 
@@ -451,9 +453,11 @@ def test_map_between_bearings_within_1_db_on_the_example_at_the_default_settings
     scenario = cavity.load_scenario(Path(__file__).parents[1] / "examples" / "coverage.toml")
     settings = CoverageSettings.make()
     results = _interpolation_errors(scenario, settings, EXAMPLE_POINTS_DEG)
-    for mid, (pair, worst, rms, at_km, kept) in zip(EXAMPLE_POINTS_DEG, results):
-        print(f"{mid:g} deg between {pair[0]:g} and {pair[1]:g}: worst {worst:.2f} dB at {at_km:.0f} km, rms {rms:.2f} dB")
-    for mid, (pair, worst, rms, at_km, kept) in zip(EXAMPLE_POINTS_DEG, results):
+    for mid, (pair, worst, rms, at_km, _kept) in zip(EXAMPLE_POINTS_DEG, results):
+        print(
+            f"{mid:g} deg between {pair[0]:g} and {pair[1]:g}: worst {worst:.2f} dB at {at_km:.0f} km, rms {rms:.2f} dB"
+        )
+    for mid, (pair, worst, _rms, at_km, kept) in zip(EXAMPLE_POINTS_DEG, results):
         assert kept > 0.8, (mid, kept)
         assert worst < 1.0, (mid, pair, worst, at_km)
 

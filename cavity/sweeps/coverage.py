@@ -1,13 +1,26 @@
 """Coverage maps: the field over an area, from radial paths solved at a set of bearings.
 
 A coverage map is many ordinary paths. For each bearing of a regular set (every
-``bearing_step_deg`` from north) the driver makes a copy of the scenario whose one receiver sits at
-the map's range on that bearing, so that :func:`cavity.paths.build_paths` samples the ground, the
-sun and every other per-column medium along that bearing exactly as ``cavity run`` would, and
-:func:`cavity.solve.solve_path` solves it. The bearings are fanned out on dask workers by the sweep
-driver (:mod:`cavity.sweeps.run`: local cluster or ``scheduler``, numba cache warmed first, failed solves
-retried once and reported by bearing, equal media solved once), and each finished bearing is kept
-as a small result file in a parts folder, so a stopped map resumes with the missing bearings only.
+``bearing_step_deg`` from north), refined along coasts (below), the driver makes a copy of the
+scenario whose one receiver sits at the map's range on that bearing, so that
+:func:`cavity.paths.build_paths` samples the ground, the sun and every other per-column medium along
+that bearing exactly as ``cavity run`` would, and :func:`cavity.solve.solve_path` solves it. The
+bearings are fanned out on dask workers by the sweep driver (:mod:`cavity.sweeps.run`: local cluster
+or ``scheduler``, numba cache warmed first, failed solves retried once and reported by bearing,
+equal media solved once), and each finished bearing is kept as a small result file in a parts
+folder, so a stopped map resumes with the missing bearings only.
+
+Refinement
+----------
+The sun's zenith angle, and with it h' and beta, changes smoothly from bearing to bearing; the
+ground does not: where a pair of neighbouring bearings straddles a coast, one path runs over sea
+where the other runs over land, and no interpolation between their profiles can stand for the
+paths between them. Before solving, :func:`refine_bearings` compares the ground class along each
+pair (land/sea mask every 10 km out to the map's range) and bisects the pair while they differ on
+more than :data:`REFINE_GROUND_SHARE` of the samples, recursively down to ``refine_to_deg``
+(default a quarter of the step). Every added bearing is known before the first solve (the progress
+bar and the memory check count them) and a pair gains at most ``step / refine_to_deg - 1`` of them,
+so the cost stays linear in the number of bearings.
 
 The map
 -------
@@ -15,16 +28,21 @@ The bearings' Ez profiles (dB re 1 uV/m against range) are put on a regular lati
 by :func:`map_from_profiles`: each grid point's WGS84 geodesic range and bearing from the
 transmitter (pyproj, Karney 2013) pick the value
 
-1. along each of the two neighbouring bearings, linearly in dB between the solver's own range
-   samples (spaced at most a 24th of a wavelength by default, so this step adds nothing visible);
-2. between those two bearings, linearly in bearing angle, in dB.
+1. along each of the two neighbouring solved bearings, linearly in dB between the solver's own
+   range samples;
+2. between those two bearings, in dB, with weights set by the ground along the grid point's own
+   path (:func:`ground_weights`): its path-integrated log10 conductivity out to its range placed
+   between the two bearings' (a point whose path has so far crossed only sea takes the all-sea
+   neighbour's field), and linear in bearing angle where the two bearings have crossed the same
+   ground. The ground along every 0.25 deg (:class:`GroundTable`) is kept in the file, so that the
+   map, the receivers' values and the summary are all read the same way from it.
 
 Amplitudes, not complex phasors, are interpolated between bearings: two bearings a few degrees
 apart carry phases that differ by many turns at long range, and a phasor average would put false
-nulls between them. The cost is that a modal null, whose range moves from bearing to bearing, is
-smoothed over in angle: inside deep nulls the map is not to be trusted to better than the null's
-depth. ``tests/test_coverage.py`` compares the map read on the bisector between two bearings with a
-direct solve along it.
+nulls between them. A modal null, whose range moves from bearing to bearing, is smoothed over in
+angle: inside deep nulls the map is not to be trusted to better than the null's depth.
+``tests/test_coverage.py`` compares the map read between solved bearings with direct solves along
+the points' own bearings (README, "Coverage maps", for the measured errors).
 
 The summary (area above a level, farthest range per sector) is computed from the same profiles in
 range and bearing, on a sphere of radius 6371 km (:mod:`cavity.reports.coverage`).
@@ -215,8 +233,9 @@ class BearingPoint:
         return f"b{self.bearing_deg:07.3f}deg"
 
 
-def refine_bearings(bearings_deg, ground_of: Callable[[float], np.ndarray], finest_deg: float,
-                    max_share: float = REFINE_GROUND_SHARE) -> np.ndarray:
+def refine_bearings(
+    bearings_deg, ground_of: Callable[[float], np.ndarray], finest_deg: float, max_share: float = REFINE_GROUND_SHARE
+) -> np.ndarray:
     """The regular bearings plus bisectors where neighbouring paths cross different ground.
 
     Each pair of neighbouring bearings (periodic) is bisected while the ground class differs
@@ -287,9 +306,7 @@ def map_bearings(scenario: Scenario, settings: CoverageSettings) -> np.ndarray:
     regular = settings.bearings_deg
     if settings.finest_step_deg >= settings.bearing_step_deg * (1 - 1e-9) or scenario.ground.kind != "auto":
         return regular  # ground that does not change with bearing needs no refinement
-    return refine_bearings(
-        regular, lambda b: ground_along_bearing(scenario, b, settings), settings.finest_step_deg
-    )
+    return refine_bearings(regular, lambda b: ground_along_bearing(scenario, b, settings), settings.finest_step_deg)
 
 
 def bearing_scenario(scenario: Scenario, bearing_deg: float, settings: CoverageSettings) -> Scenario:
@@ -419,7 +436,9 @@ def ground_table(scenario: Scenario, settings: CoverageSettings, bearings_deg) -
     from cavity.ground import GROUND_CLASSES
 
     n = int(round(360.0 / GROUND_TABLE_STEP_DEG))
-    table = np.unique(np.round(np.concatenate([np.arange(n) * GROUND_TABLE_STEP_DEG, np.asarray(bearings_deg, float)]) % 360.0, 9))
+    table = np.unique(
+        np.round(np.concatenate([np.arange(n) * GROUND_TABLE_STEP_DEG, np.asarray(bearings_deg, float)]) % 360.0, 9)
+    )
     kinds = [ground_along_bearing(scenario, b, settings) for b in table]
     sigma = np.array([[GROUND_CLASSES[k].conductivity_s_per_m for k in row] for row in kinds], float)
     r_km = np.linspace(0.0, settings.range_km, sigma.shape[1])
