@@ -293,8 +293,10 @@ def summary_notes(datasets, level, sector_deg: float) -> list[str]:
         f"Farthest: the largest range at or above the level on any bearing of the sector; unbroken to: the "
         f"range out to which every bearing of the sector is at or above it (modal minima break coverage "
         f"before the farthest range). Sectors of {sector_deg:g} deg clockwise from true north.",
-        f"Solved bearings every {', '.join(f'{x:g}' for x in steps)} deg; between them the field is "
-        f"interpolated {ds.attrs.get('coverage_interpolation', '')}; the summary reads it every "
+        f"Solved bearings every {', '.join(f'{x:g}' for x in steps)} deg"
+        + (f" ({ds.attrs['coverage_refinement']})" if "coverage_refinement" in ds.attrs else "")
+        + f"; between them the field is interpolated {ds.attrs.get('coverage_interpolation', '')}; "
+        "the summary reads it every "
         f"{SUMMARY_BEARING_STEP_DEG:g} deg or finer.",
     ]
     from cavity.reports.tables import _text
@@ -459,9 +461,12 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
 
             utc = scenario_document(ds).get("ionosphere", {}).get("utc")
             when = f", {utc:%Y-%m-%d %H:%M} UTC" if hasattr(utc, "strftime") else ""
+        step = float(ds.attrs.get("coverage_bearing_step_deg", np.nan))
+        extra = int(ds.sizes["bearing"]) - (int(round(360.0 / step)) if np.isfinite(step) else int(ds.sizes["bearing"]))
         ax.set_title(
-            f"{ds.attrs.get('title', '')}\n{freqs[k]:g} kHz{when}; bearings every "
-            f"{float(ds.attrs.get('coverage_bearing_step_deg', np.nan)):g} deg, interpolated between",
+            f"{ds.attrs.get('title', '')}\n{freqs[k]:g} kHz{when}; bearings every {step:g} deg"
+            + (f" and {extra} more along coasts" if extra > 0 else "")
+            + ", interpolated between",
             fontsize=9,
         )
     return fig
