@@ -578,9 +578,7 @@ class Simulation:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
                 # step only as far as the wave can reach before the next search
-                last_col = K.last_active_column(n_cols - 1, self.ez, self.er, self.hp, self.jz, self.jr,
-                                                self.psi_zh, self.psi_ze, self.sib_psi, self.ir0,
-                                                self.psi_rh, self.psi_re)
+                last_col = K.last_active_column(n_cols - 1, fields, ground, top_h, far_h, top_e, far_e)
                 if self.magnetised:
                     last_col = max(last_col, K.last_active_column_te(
                         n_cols - 1, self.ephi, self.hr, self.hz, self.jphi, self.psi_hr, self.psi_pz,

@@ -150,9 +150,14 @@ def _any_nonzero(row):
 
 
 @nb.njit(**_OPTS)
-def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, psi_rh, psi_re):
+def last_active_column(start, fields, ground, top_h, far_h, top_e, far_e):
     """Last column, searching down from ``start``, that holds any nonzero field, plasma current or
     absorber/ground memory; -1 if none.
+
+    Takes the argument groups of :func:`step_h` and :func:`step_e` (:class:`Fields`,
+    :class:`GroundMemory`, the top and far :class:`Absorber` of each half-step) and searches every
+    array among them that a column carries: Ez, Er, H_phi, jz, jr, the ground memory and the four
+    absorber memories (the far layers' rows start at ``far_h.start``).
 
     Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
     nonzero values at most ``reach`` columns further out: one for the Yee stencil (H at column i
@@ -161,6 +166,9 @@ def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, 
     active one plus ``reach`` times the steps until the next search is therefore exact, and skips
     the still-empty far part of a long path during the first passage of the wave.
     """
+    ez, er, hp, jz, jr = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
+    psi_zh, psi_ze, sib_psi = top_h.psi, top_e.psi, ground.psi
+    ir0, psi_rh, psi_re = far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
         if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
                 or _any_nonzero(jr[i]) or _any_nonzero(psi_zh[i]) or _any_nonzero(psi_ze[i])
