@@ -18,6 +18,7 @@ import numpy as np
 
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
+from cavity.ionosphere_forms import form_of
 from cavity.medium import ionosphere_along
 
 #: Margin beyond the farthest receiver of a path: ``farthest * (1 + fraction) + extra``.
@@ -106,8 +107,9 @@ def direction_dependent(scenario) -> str | None:
     """
     if scenario.ground.kind == "auto":
         return 'ground kind = "auto" (land/sea map along each path)'
-    if scenario.ionosphere.form == "utc":
-        return "ionosphere utc = ... (sun position along each path)"
+    ion_direction = form_of(scenario.ionosphere).direction
+    if ion_direction:
+        return ion_direction
     if scenario.geomagnetic.model == "igrf":
         return 'geomagnetic model = "igrf" (the field along each path)'
     return None

@@ -20,19 +20,36 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import json
 import math
 import os
 import tomllib
 from dataclasses import dataclass, field
-from datetime import date, datetime, time, timezone
+from datetime import date, datetime
 from pathlib import Path
-from typing import Any
 
 from cavity.constants import C0
 from cavity.errors import ScenarioError
 from cavity.fdtd.grid import DEFAULT_CELLS_PER_WAVELENGTH
 from cavity.ground import GROUND_CLASSES
+from cavity.ionosphere_forms import (  # noqa: F401  (the forms' ranges and tops: public here too)
+    BETA_RANGE_PER_KM,
+    CEILING_RANGE_KM,
+    DEFAULT_TOP_KM,
+    FORMS,
+    HPRIME_RANGE_KM,
+    IONOSPHERE_KEYS,
+    NO_IONOSPHERE_TOP_KM,
+    Ionosphere,
+    form_of,
+    parse_ionosphere,
+)
+from cavity.tomltable import Table as _Table
+from cavity.tomltable import exact_quotient as _edge
+from cavity.tomltable import number_text as _number_text
+from cavity.tomltable import shortest_quotient as _edge_short
+from cavity.tomltable import show as _show
+from cavity.tomltable import toml_lines as _lines
+from cavity.tomltable import toml_value as _toml_value
 
 # Allowed ranges, in the file's units (km, kHz, kW, degrees).
 FREQUENCY_RANGE_KHZ = (0.3, 60.0)
@@ -41,9 +58,6 @@ LATITUDE_RANGE_DEG = (-90.0, 90.0)
 LONGITUDE_RANGE_DEG = (-180.0, 360.0)  # upper end excluded
 RANGE_LIMITS_KM = (1.0, 15000.0)
 MIN_RECEIVER_DISTANCE_KM = 1.0
-HPRIME_RANGE_KM = (50.0, 100.0)
-BETA_RANGE_PER_KM = (0.1, 1.5)
-CEILING_RANGE_KM = (20.0, 200.0)
 CELL_RANGE_M = (10.0, 5000.0)
 TOP_RANGE_KM = (60.0, 600.0)
 PML_CELLS_RANGE = (5, 100)
@@ -68,28 +82,15 @@ RECORD_RANGE_MS = (1.0, 200.0)
 #: The record must last this long after the pulse reaches the farthest receiver.
 RECORD_MARGIN_MS = 2.0
 
-#: Top of the physical domain when the scenario does not set ``top_km`` (exponential, preset, utc
-#: and file forms; under a ceiling the ceiling is the top; with no ionosphere the open top is high).
-DEFAULT_TOP_KM = 120.0
-NO_IONOSPHERE_TOP_KM = 400.0
-
-IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
-    "exponential": ("hprime_km", "beta_per_km"),
-    "preset": ("preset",),
-    "utc": ("utc",),
-    "ceiling": ("ceiling_km",),
-    "file": ("profile_file",),
-    "none": ("no_ionosphere",),
-}
-_FORM_TEXT = "hprime_km + beta_per_km, preset, utc, ceiling_km, profile_file or no_ionosphere = true"
+#: The ionosphere forms and the keys that select each (every form lives in :mod:`cavity.ionosphere_forms`).
+IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {name: form.keys for name, form in FORMS.items()}
 GROUND_KINDS: tuple[str, ...] = (*GROUND_CLASSES, "custom", "auto")
 
 _TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "geomagnetic", "solver", "source")
 _GEOMAGNETIC_KEYS = ("model", "date", "altitude_km", "strength_nt", "dip_deg", "azimuth_deg")
 _TRANSMITTER_KEYS = ("name", "latitude_deg", "longitude_deg", "frequency_khz", "radiated_power_kw")
 _RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
-_IONOSPHERE_KEYS = ("hprime_km", "beta_per_km", "preset", "utc", "day_preset", "night_preset",
-                    "ceiling_km", "profile_file", "no_ionosphere")
+_IONOSPHERE_KEYS = IONOSPHERE_KEYS
 _GROUND_KEYS = ("kind", "conductivity_s_per_m", "relative_permittivity", "segment")
 _SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_permittivity")
 _SOURCE_KEYS = ("kind", "peak_current_ka", "rise_time_constant_us", "decay_time_constant_us", "heidler_exponent",
@@ -127,28 +128,6 @@ class Receiver:
     latitude_deg: float | None = None
     longitude_deg: float | None = None
     range_m: float | None = None
-
-
-@dataclass(frozen=True)
-class Ionosphere:
-    """One ionosphere description; ``form`` says which fields are used.
-
-    ``"exponential"``: Wait-Spies h' (km) and beta (1/km); ``"preset"``: a named pair from
-    :data:`profiles.daynight.PRESETS`; ``"utc"``: the sun's position along each path at ``utc``
-    (tz-aware, UTC) picks between ``day_preset`` and ``night_preset``; ``"ceiling"``: a perfectly
-    conducting ceiling at ``ceiling_m`` (verification); ``"file"``: a user profile at
-    ``profile_path`` (absolute); ``"none"``: free space above the ground (verification).
-    """
-
-    form: str
-    hprime_km: float | None = None
-    beta_per_km: float | None = None
-    preset: str | None = None
-    utc: datetime | None = None
-    ceiling_m: float | None = None
-    profile_path: str | None = None
-    day_preset: str = "day"
-    night_preset: str = "night"
 
 
 @dataclass(frozen=True)
@@ -291,13 +270,7 @@ class Scenario:
 
     def planned_top_m(self) -> float:
         """Top of the physical domain: ``solver.top_m``, the ceiling, or a default by ionosphere form."""
-        if self.ionosphere.form == "ceiling":
-            return self.ionosphere.ceiling_m
-        if self.solver.top_m is not None:
-            return self.solver.top_m
-        if self.ionosphere.form == "none":
-            return NO_IONOSPHERE_TOP_KM * 1e3
-        return DEFAULT_TOP_KM * 1e3
+        return form_of(self.ionosphere).top_m(self.ionosphere, self.solver.top_m)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -367,7 +340,7 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     title = top.string("title", required=True)
     transmitter = _parse_transmitter(top.table("transmitter", required=True))
     receivers = _parse_receivers(top)
-    ionosphere = _parse_ionosphere(top.table("ionosphere", required=True), base)
+    ionosphere = parse_ionosphere(top.table("ionosphere", required=True), base)
     ground = _parse_ground(top.table("ground", required=True))
     solver = _parse_solver(top.table("solver", required=False) or _Table({}, "solver"), ionosphere)
     source = _parse_source(top.table("source", required=False))
@@ -376,134 +349,6 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     _check_geometry(scenario)
     _check_source(scenario)
     return scenario
-
-
-def _show(value: Any) -> str:
-    """A value as the user wrote it in TOML, on one line."""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False)
-    if isinstance(value, float):
-        return repr(value)
-    if isinstance(value, (datetime, date, time)):
-        return value.isoformat()
-    if isinstance(value, dict):
-        return "a table"
-    if isinstance(value, list):
-        return "[" + ", ".join(_show(v) for v in value) + "]"
-    return str(value)
-
-
-def _number_text(x: float) -> str:
-    return f"{x:g}"
-
-
-class _Table:
-    """One TOML table and its key path, with typed, range-checked readers."""
-
-    def __init__(self, data: dict, prefix: str):
-        self.data = data
-        self.prefix = prefix
-
-    def key(self, name: str) -> str:
-        if not name or not name.isprintable() or any(c.isspace() or c in '."' for c in name):
-            name = _show(name)  # quoted like a TOML key, control characters escaped: one line
-        return f"{self.prefix}.{name}" if self.prefix else name
-
-    def has(self, name: str) -> bool:
-        return name in self.data
-
-    def fail(self, name: str, value: Any, problem: str) -> ScenarioError:
-        return ScenarioError(f"{self.key(name)} = {_show(value)} {problem}")
-
-    def missing(self, name: str, what: str) -> ScenarioError:
-        return ScenarioError(f"{self.key(name)} is missing ({what})")
-
-    def raw(self, name: str) -> Any:
-        return self.data.get(name)
-
-    def finish(self, allowed: tuple[str, ...]) -> None:
-        """Raise on the first key that is not in ``allowed``, with a "did you mean" hint."""
-        for name in self.data:
-            if name in allowed:
-                continue
-            close = difflib.get_close_matches(name, allowed, n=1, cutoff=0.6)
-            close = close or [k for k in allowed if k.startswith(f"{name}_")][:1]  # unit suffix left off
-            hint = f"; did you mean {close[0]!r}?" if close else f" (known keys: {', '.join(allowed)})"
-            raise ScenarioError(f"{self.key(name)}: unknown key{hint}")
-
-    def table(self, name: str, *, required: bool) -> _Table | None:
-        value = self.raw(name)
-        if value is None:
-            if required:
-                raise ScenarioError(f"[{self.key(name)}] section is missing")
-            return None
-        if not isinstance(value, dict):
-            raise self.fail(name, value, f"must be a table [{self.key(name)}]")
-        return _Table(value, self.key(name))
-
-    def string(self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes") -> str | None:
-        value = self.raw(name)
-        if value is None:
-            if required:
-                raise self.missing(name, what)
-            return default
-        if not isinstance(value, str):
-            raise self.fail(name, value, "must be a text in quotes")
-        if not value.strip():
-            raise self.fail(name, value, "must not be empty")
-        return value.strip()
-
-    def boolean(self, name: str, default: bool) -> bool:
-        value = self.raw(name)
-        if value is None:
-            return default
-        if not isinstance(value, bool):
-            raise self.fail(name, value, "must be true or false")
-        return value
-
-    def number(
-        self,
-        name: str,
-        low: float,
-        high: float,
-        unit: str,
-        *,
-        required: bool = False,
-        low_open: bool = False,
-        high_open: bool = False,
-        allowed: str | None = None,
-        integer: bool = False,
-        value: Any = None,
-        label: str | None = None,
-    ) -> float | int | None:
-        """Check a number (never a boolean) is finite and within [low, high] (ends open if asked)."""
-        if value is None:
-            value = self.raw(name)
-        label = label or name
-        if allowed is None:
-            lo = f"> {_number_text(low)}" if low_open else _number_text(low)
-            hi = f"< {_number_text(high)}" if high_open else _number_text(high)
-            allowed = f"allowed range {lo} to {hi} {unit}".rstrip()
-        if value is None:
-            if required:
-                raise self.missing(label, allowed)
-            return None
-        kind = "an integer" if integer else "a number"
-        if isinstance(value, bool):
-            raise self.fail(label, value, f"must be {kind}, not true/false ({allowed})")
-        if integer and not isinstance(value, int):
-            raise self.fail(label, value, f"must be {kind} ({allowed})")
-        if not isinstance(value, (int, float)):
-            raise self.fail(label, value, f"must be {kind} ({allowed})")
-        if isinstance(value, float) and not math.isfinite(value):  # ints are finite (and may exceed float)
-            raise self.fail(label, value, f"must be a finite number ({allowed})")
-        too_low = value <= low if low_open else value < low
-        too_high = value >= high if high_open else value > high
-        if too_low or too_high:
-            raise self.fail(label, value, f"is outside the {allowed}")
-        return int(value) if integer else float(value)
 
 
 def _km(x: float | None) -> float | None:
@@ -579,74 +424,6 @@ def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
     return tuple(receivers)
 
 
-def _known_presets() -> tuple[str, ...]:
-    from profiles.daynight import PRESETS
-
-    return tuple(PRESETS)
-
-
-def _preset_name(t: _Table, name: str, *, required: bool, default: str | None = None) -> str | None:
-    value = t.string(name, required=required, default=default)
-    if value is None or not t.has(name):
-        return value
-    known = _known_presets()
-    if value not in known:
-        close = difflib.get_close_matches(value, known, n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
-        raise t.fail(name, value, f"is not a known preset (choose from {', '.join(known)}){hint}")
-    return value
-
-
-def _parse_ionosphere(t: _Table, base: Path) -> Ionosphere:
-    t.finish(_IONOSPHERE_KEYS)
-    forms = [form for form, keys in IONOSPHERE_FORMS.items() if any(t.has(k) for k in keys)]
-    if not forms:
-        raise ScenarioError(f"[ionosphere] gives no form; give exactly one of {_FORM_TEXT}")
-    if len(forms) > 1:
-        keys = [next(k for k in IONOSPHERE_FORMS[f] if t.has(k)) for f in forms]
-        raise ScenarioError(
-            f"{t.key(keys[1])}: [ionosphere] mixes {keys[0]} and {keys[1]}; give exactly one of {_FORM_TEXT}"
-        )
-    form = forms[0]
-    for extra in ("day_preset", "night_preset"):
-        if t.has(extra) and form != "utc":
-            raise t.fail(extra, t.data[extra], "is only used with utc = ...")
-    if form == "exponential":
-        hprime = t.number("hprime_km", *HPRIME_RANGE_KM, "km", required=True)
-        beta = t.number("beta_per_km", *BETA_RANGE_PER_KM, "per km", required=True)
-        return Ionosphere("exponential", hprime_km=hprime, beta_per_km=beta)
-    if form == "preset":
-        return Ionosphere("preset", preset=_preset_name(t, "preset", required=True))
-    if form == "utc":
-        value = t.raw("utc")
-        example = "e.g. utc = 2026-06-21T12:00:00Z, no quotes"
-        if isinstance(value, datetime):
-            if value.tzinfo is None:
-                raise t.fail("utc", value, f"has no UTC offset ({example})")
-            utc = value.astimezone(timezone.utc)
-        else:
-            raise t.fail("utc", value, f"must be a date and time with offset ({example})")
-        day = _preset_name(t, "day_preset", required=False, default="day")
-        night = _preset_name(t, "night_preset", required=False, default="night")
-        return Ionosphere("utc", utc=utc, day_preset=day, night_preset=night)
-    if form == "ceiling":
-        ceiling = t.number("ceiling_km", *CEILING_RANGE_KM, "km", required=True)
-        return Ionosphere("ceiling", ceiling_m=ceiling * 1e3)
-    if form == "file":
-        name = t.string("profile_file", required=True)
-        try:
-            resolved = (base / Path(name).expanduser()).resolve()
-        except (ValueError, RuntimeError, OSError) as exc:  # NUL, ~unknown-user, name too long
-            raise t.fail("profile_file", name, f"is not a usable file name ({exc})") from None
-        if not resolved.is_file():
-            raise t.fail("profile_file", name, f"is not an existing file (looked for {resolved})")
-        return Ionosphere("file", profile_path=str(resolved))
-    value = t.raw("no_ionosphere")
-    if value is not True:
-        raise t.fail("no_ionosphere", value, "must be true when given (remove it to use an ionosphere)")
-    return Ionosphere("none")
-
-
 def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, float | None]:
     """Conductivity and permittivity: given for custom, from the class table for named kinds."""
     sigma_given, eps_given = t.has("conductivity_s_per_m"), t.has("relative_permittivity")
@@ -716,13 +493,14 @@ def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, io
         if not EPOCH_RANGE[0] <= raw <= EPOCH_RANGE[1]:
             raise t.fail("date", raw, f"is outside the allowed range {EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14)")
         day = raw
-    if ionosphere.form == "utc":
+    instant = form_of(ionosphere).instant(ionosphere)
+    if instant is not None:
         if day is not None:
             raise t.fail("date", raw, "is not used when ionosphere.utc gives the date; remove one of them")
-        epoch, source = ionosphere.utc.date(), "ionosphere.utc"
+        epoch, source = instant.date(), "ionosphere.utc"
         if not EPOCH_RANGE[0] <= epoch <= EPOCH_RANGE[1]:
             raise ScenarioError(
-                f"ionosphere.utc = {_show(ionosphere.utc)} is outside the geomagnetic field's epochs "
+                f"ionosphere.utc = {_show(instant)} is outside the geomagnetic field's epochs "
                 f"{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = \"none\" or \"uniform\""
             )
     elif day is not None:
@@ -790,8 +568,9 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
             raise t.fail("cell_m", raw_cell, f"must be a number or \"auto\" ({allowed})")
         cell = t.number("cell_m", *CELL_RANGE_M, "m", allowed=allowed)
     top = t.number("top_km", *TOP_RANGE_KM, "km")
-    if top is not None and ionosphere.form == "ceiling":
-        raise t.fail("top_km", t.data["top_km"], "cannot be set with ceiling_km (the ceiling is the top)")
+    fixed_by = form_of(ionosphere).top_fixed_by()
+    if top is not None and fixed_by is not None:
+        raise t.fail("top_km", t.data["top_km"], f"cannot be set with {fixed_by} (the ceiling is the top)")
     earth_curvature = t.boolean("earth_curvature", True)
     pml = t.number("pml_cells", *PML_CELLS_RANGE, "cells", integer=True)
     cpw = t.number("cells_per_wavelength", *CELLS_PER_WAVELENGTH_RANGE, "")
@@ -896,16 +675,17 @@ def _check_geometry(s: Scenario) -> None:
                 f"transmitter.latitude_deg is missing (receiver[{i}] is given by position, so the "
                 "transmitter needs latitude_deg and longitude_deg)"
             )
+    form = form_of(s.ionosphere)
     if not has_tx:
-        if s.ionosphere.form == "utc":
-            raise ScenarioError("transmitter.latitude_deg is missing (ionosphere utc = ... needs positions to place the sun)")
+        if form.needs_positions:
+            raise ScenarioError(f"transmitter.latitude_deg is missing ({form.needs_positions})")
         if s.ground.kind == "auto":
             raise ScenarioError('transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)')
     direction = None
     if s.ground.kind == "auto":
         direction = 'ground kind = "auto" (land/sea along each path)'
-    elif s.ionosphere.form == "utc":
-        direction = "ionosphere utc = ... (the sun along each path)"
+    elif form.direction:
+        direction = form.direction
     if direction:
         for i, rx in enumerate(s.receivers, 1):
             if rx.range_m is not None:
@@ -940,49 +720,6 @@ def _check_geometry(s: Scenario) -> None:
 # --------------------------------------------------------------------------------------------------
 # Writing back
 # --------------------------------------------------------------------------------------------------
-
-
-def _edge(value_si: float, scale: float) -> float:
-    """``value_si / scale`` chosen so that multiplying it by ``scale`` gives ``value_si`` back exactly."""
-    q = value_si / scale
-    if not math.isfinite(q) or q * scale == value_si:
-        return q
-    up = down = q
-    for _ in range(4):
-        up, down = math.nextafter(up, math.inf), math.nextafter(down, -math.inf)
-        for candidate in (up, down):
-            if candidate * scale == value_si:
-                return candidate
-    return q
-
-
-def _edge_short(value_si: float, scale: float) -> float:
-    """Like :func:`_edge`, preferring the shortest decimal that gives ``value_si`` back (95.0, not 95.00000000000001)."""
-    for digits in (12, 15):
-        q = float(f"{value_si / scale:.{digits}g}")
-        if q * scale == value_si:
-            return q
-    return _edge(value_si, scale)
-
-
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        return repr(value)
-    if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False).replace("\x7f", "\\u007f")  # TOML escapes DEL too
-    if isinstance(value, datetime):
-        return value.astimezone(timezone.utc).isoformat().replace("+00:00", "Z")
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
-    raise TypeError(f"cannot write {value!r} as TOML")
-
-
-def _lines(items: list[tuple[str, Any]]) -> list[str]:
-    return [f"{key} = {_toml_value(value)}" for key, value in items if value is not None]
 
 
 def _named_constants_match(kind: str, sigma, eps, where: str) -> None:
@@ -1023,20 +760,7 @@ def _to_toml(s: Scenario) -> str:
         ])
     ion = s.ionosphere
     out += ["", "[ionosphere]"]
-    if ion.form == "exponential":
-        out += _lines([("hprime_km", ion.hprime_km), ("beta_per_km", ion.beta_per_km)])
-    elif ion.form == "preset":
-        out += _lines([("preset", ion.preset)])
-    elif ion.form == "utc":
-        out += _lines([("utc", ion.utc), ("day_preset", ion.day_preset), ("night_preset", ion.night_preset)])
-    elif ion.form == "ceiling":
-        out += _lines([("ceiling_km", None if ion.ceiling_m is None else _edge(ion.ceiling_m, 1e3))])
-    elif ion.form == "file":
-        out += _lines([("profile_file", ion.profile_path)])
-    elif ion.form == "none":
-        out += _lines([("no_ionosphere", True)])
-    else:
-        raise ScenarioError(f"ionosphere.form = {_show(ion.form)} is not a form (choose from {', '.join(IONOSPHERE_FORMS)})")
+    out += _lines(form_of(ion).dump(ion))
     g = s.ground
     out += ["", "[ground]", f"kind = {_toml_value(g.kind)}"]
     _named_constants_match(g.kind, g.conductivity_s_per_m, g.relative_permittivity, "ground")

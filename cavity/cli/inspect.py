@@ -38,28 +38,10 @@ def _runs(labels, range_m) -> str:
 
 
 def _ionosphere_lines(ion) -> list[str]:
-    """Description of the ionosphere form and its parameters."""
-    from profiles.daynight import PRESETS
+    """Description of the ionosphere form and its parameters (the form describes itself)."""
+    from cavity.ionosphere_forms import form_of
 
-    if ion.form == "exponential":
-        return [f"exponential (Wait-Spies): h' = {ion.hprime_km:g} km, beta = {ion.beta_per_km:g} per km"]
-    if ion.form == "preset":
-        p = PRESETS[ion.preset]
-        return [f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
-                f"reference: {p.reference}"]
-    if ion.form == "utc":
-        day, night = PRESETS[ion.day_preset], PRESETS[ion.night_preset]
-        return [
-            f"sun along each path at {ion.utc:%Y-%m-%d %H:%M:%S} UTC",
-            f"day   {ion.day_preset!r}: h' = {day.hprime_km:g} km, beta = {day.beta_per_km:g} per km",
-            f"night {ion.night_preset!r}: h' = {night.hprime_km:g} km, beta = {night.beta_per_km:g} per km",
-            "day for solar zenith <= 90 deg, night for >= 99 deg, linear between (common practice)",
-        ]
-    if ion.form == "ceiling":
-        return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"]
-    if ion.form == "file":
-        return [f"profile file {ion.profile_path}"]
-    return ["none: free space above the ground (verification)"]
+    return form_of(ion).describe(ion)
 
 
 def _ground_line(ground) -> str:
@@ -148,7 +130,9 @@ def describe(scenario) -> list[str]:
             lines.append(f"    field: {_field_text(path.geomagnetic)}")
 
     sv = s.solver
-    ceiling = s.ionosphere.form == "ceiling"
+    from cavity.ionosphere_forms import form_of
+
+    ceiling = form_of(s.ionosphere).ceiling_m(s.ionosphere) is not None
     top_m = s.planned_top_m()
     rows, plans, windows = [], [], []
     for path in paths:

@@ -68,6 +68,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     from pathlib import Path
 
     import cavity
+    from cavity.ionosphere_forms import form_of
     from cavity.sweeps import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
 
     if (start is None) != (stop is None):
@@ -77,7 +78,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     target = check_output_file(output, overwrite, what="sweep file")
     sc = cavity.load_scenario(scenario)
     times = sweep_times(start, stop, step) if start is not None else None
-    if times is None and sc.ionosphere.form == "utc" and not quiet:
+    if times is None and form_of(sc.ionosphere).instant(sc.ionosphere) is not None and not quiet:
         click.echo("note: no --start/--stop, so only the scenario's own instant is solved", err=True)
     parts_dir = Path(parts) if parts else default_parts_dir(target)
 

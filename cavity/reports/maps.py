@@ -212,11 +212,13 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
                                                             alpha=0.75, linewidth=0))
 
     legend = []
-    ion = scenario.ionosphere
-    if ion.form == "utc" and ion.utc is not None:
+    from cavity.ionosphere_forms import form_of
+
+    instant = form_of(scenario.ionosphere).instant(scenario.ionosphere)
+    if instant is not None:
         from datetime import timezone
 
-        when = ion.utc.astimezone(timezone.utc)
+        when = instant.astimezone(timezone.utc)
         # Nightshade's "refraction" is the sun's elevation (deg) at the shading edge: 0 gives chi > 90,
         # -9 gives chi > 99 (the D region in darkness under the day/night rule).
         ax.add_feature(Nightshade(when, refraction=90.0 - DAY_LIMIT_DEG, delta=0.5, **TWILIGHT_SHADE), zorder=2)
