@@ -7,7 +7,7 @@ Usage::
 One or more result files (from ``cavity run`` or ``cavity demo``). The memo and its figures are
 written side by side: ``memo.md``, ``memo_map.png``, ``memo_<run>.png`` for each run and, with two
 or more runs, ``memo_comparison.png`` (the first two runs). Existing files are replaced only with
-``--overwrite``. Everything comes from the public functions of :mod:`cavity.reports.tables` and the files
+``--overwrite``. Everything comes from the public functions of :mod:`cavity.reports` and the files
 themselves (the scenario each file embeds), so the memo shows exactly what was run.
 """
 
@@ -23,8 +23,9 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
                fit_km: tuple[float, float] | None = None) -> list[Path]:
     """Write the memo and its figures; return every path written (the memo last)."""
     import cavity
+    from cavity import reports as report
+    from cavity.files import write_text
     from cavity.paths import build_paths
-    from cavity.reports import tables as report
     from cavity.reports.maps import draw_map
     from cavity.results import open_result
 
@@ -102,7 +103,7 @@ def build_memo(files: list[Path], output: Path, *, required_db: float | None = N
     lines += ["## Cautions", ""]
     cautions = dict.fromkeys(str(ds.attrs.get("cautions", "")).strip() for ds in datasets)
     lines += [c for c in cautions if c] + [""]
-    written.append(report.write_text("\n".join(lines), output))
+    written.append(write_text("\n".join(lines), output))
     return written
 
 

@@ -445,7 +445,7 @@ def test_full_demo_in_minutes(tmp_path):
     import time
 
     from cavity.cli.demo import DEMO_FILES
-    from cavity.reports.tables import attenuation_rows
+    from cavity.reports.attenuation import attenuation_rows
 
     started = time.perf_counter()
     result = invoke("demo", "-o", tmp_path / "demo-output", "--quiet")

@@ -1,4 +1,4 @@
-"""Checks of cavity.reports.tables: receiver tables, attenuation fits, comparisons and figures.
+"""Checks of cavity.reports (tables, attenuation, compare, plots): receiver tables, attenuation fits, comparisons and figures.
 
 Synthetic results are built with cavity.results.assemble_dataset from fields whose answers are known
 in closed form; the golden result files in tests/data (small solver runs, made by tests/data/make_golden.py) guard the
@@ -19,28 +19,24 @@ import pytest
 
 from cavity.constants import C0
 from cavity.errors import CavityError
-from cavity.reports.tables import (
+from cavity.reports.attenuation import (
     EARTH_RADIUS_KM,
     attenuation_rate,
     attenuation_rows,
-    common_amplitude_limits,
-    common_frequencies,
-    comparison_figure,
-    comparison_report,
-    comparison_rows,
-    display_phase_deg,
-    near_field_km,
-    noise_in_bandwidth_db,
-    plot_comparison,
-    plot_result,
-    receiver_daylight,
-    receiver_rows,
-    receiver_table,
-    relative_phase_deg,
     result_attenuation,
-    result_figure,
     spreading_db,
 )
+from cavity.reports.compare import common_frequencies, comparison_report, comparison_rows
+from cavity.reports.phase import display_phase_deg, relative_phase_deg
+from cavity.reports.plots import (
+    common_amplitude_limits,
+    comparison_figure,
+    near_field_km,
+    plot_comparison,
+    plot_result,
+    result_figure,
+)
+from cavity.reports.tables import noise_in_bandwidth_db, receiver_daylight, receiver_rows, receiver_table
 from cavity.results import SolverRecord, assemble_dataset, open_result, write_result
 from cavity.scenario import load_scenario
 
@@ -484,7 +480,7 @@ def test_comparison_ground_strip_follows_the_ground_used():
     for ds in (day, night):  # land (1e-3 S/m, ITU-R P.527 medium dry ground) from 1000 to 2000 km
         r = ds["range"].values
         ds["ground_conductivity"].values[:, (r >= 1000) & (r < 2000)] = 1e-3
-    from cavity.reports.tables import ground_classes_along
+    from cavity.reports.plots import ground_classes_along
 
     cls = ground_classes_along(day)
     r = day["range"].values

@@ -42,14 +42,11 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
       cavity compare day.nc night.nc --fit-range 800 2500 -t comparison.md
     """
     from cavity.cli.table import file_labels, open_results
-    from cavity.reports.tables import (
-        common_frequencies,
-        comparison_report,
-        is_sweep,
-        plot_comparison,
-        run_labels,
-        write_text,
-    )
+    from cavity.files import write_text
+    from cavity.reports.compare import common_frequencies, comparison_report
+    from cavity.reports.plots import plot_comparison
+    from cavity.reports.reading import is_sweep
+    from cavity.reports.tables import run_labels
 
     if output.suffix.lower() not in _SUFFIXES:
         raise click.BadParameter(

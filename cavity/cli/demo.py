@@ -69,17 +69,13 @@ def command(folder, overwrite, quiet):
     Example:
       cavity demo -o demo-output
     """
+    from cavity.files import write_text
     from cavity.paths import build_paths
+    from cavity.reports.attenuation import attenuation_rows
+    from cavity.reports.compare import comparison_report
     from cavity.reports.maps import draw_map
-    from cavity.reports.tables import (
-        attenuation_rows,
-        common_amplitude_limits,
-        comparison_report,
-        plot_comparison,
-        plot_result,
-        receiver_table,
-        write_text,
-    )
+    from cavity.reports.plots import common_amplitude_limits, plot_comparison, plot_result
+    from cavity.reports.tables import receiver_table
     from cavity.results import write_result
 
     if folder.exists() and not folder.is_dir():

@@ -59,7 +59,8 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
       cavity plot day.nc -o day.png
       cavity plot night.nc -o night.pdf --phase unwrapped
     """
-    from cavity.reports.tables import is_sweep, plot_result
+    from cavity.reports.plots import plot_result
+    from cavity.reports.reading import is_sweep
     from cavity.results import open_result
 
     if output.suffix.lower() not in _SUFFIXES:

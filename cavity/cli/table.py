@@ -107,7 +107,9 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.reports.tables import is_sweep, receiver_table, run_labels, write_text
+    from cavity.files import write_text
+    from cavity.reports.reading import is_sweep
+    from cavity.reports.tables import receiver_table, run_labels
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")
