@@ -230,6 +230,7 @@ class Preset(IonosphereForm):
     def along(self, ion: Ionosphere, lats, lons, n: int) -> Along:
         from profiles.daynight import preset
 
+        assert ion.preset is not None  # set by parse
         p = preset(ion.preset)
         return None, np.full(n, p.hprime_km, dtype=float), np.full(n, p.beta_per_km, dtype=float), None
 
@@ -283,6 +284,7 @@ class SunAlongPath(IonosphereForm):
         from cavity.geo import solar_zenith_deg
         from profiles.daynight import daylight_class, linear_transition, preset
 
+        assert ion.utc is not None  # set by parse
         chi = np.asarray(solar_zenith_deg(ion.utc, lats, lons), dtype=float)
         hprime, beta = linear_transition(chi, day=preset(ion.day_preset), night=preset(ion.night_preset))
         return (
@@ -313,6 +315,7 @@ class Ceiling(IonosphereForm):
         return "ceiling_km"
 
     def describe(self, ion: Ionosphere) -> list[str]:
+        assert ion.ceiling_m is not None  # set by parse
         return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"]
 
     def document_text(self, doc: dict) -> str:

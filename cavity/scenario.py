@@ -301,7 +301,7 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     is_text = isinstance(source, str) and ("\n" in source or (
         "=" in source and not source.rstrip().lower().endswith(".toml") and not os.path.isfile(os.path.expanduser(source))))
     if is_text:
-        text, path, label, base = source, None, None, Path.cwd()
+        text, path, label, base = str(source), None, None, Path.cwd()
     else:
         file = Path(os.fspath(source))
         label = file.name or str(file)
@@ -371,11 +371,12 @@ def _parse_transmitter(t: _Table) -> Transmitter:
         if not raw:
             raise t.fail("frequency_khz", raw, f"must list at least one frequency ({band})")
         values = [
-            t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=v, label=f"frequency_khz[{i}]")
+            t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, allowed=band, value=v,
+                     label=f"frequency_khz[{i}]")
             for i, v in enumerate(raw, 1)
         ]
     else:
-        values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=raw)]
+        values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, allowed=band, value=raw)]
     frequencies = tuple(sorted({v * 1e3 for v in values}))
     power_kw = t.number(
         "radiated_power_kw", 0.0, POWER_MAX_KW, "kW", required=True, low_open=True,
@@ -553,6 +554,7 @@ def _parse_ground(t: _Table) -> Ground:
             else:
                 seg_kind = "custom"
                 seg_sigma, seg_eps = _ground_constants(s, "custom", "without kind")
+            assert seg_sigma is not None and seg_eps is not None  # a segment is never "auto"
             segments.append(GroundSegment(from_km * 1e3, to_km * 1e3, seg_kind, seg_sigma, seg_eps))
     return Ground(kind, sigma, eps, tuple(segments))
 
@@ -582,7 +584,7 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
         cell_m=cell,
         top_m=_km(top),
         earth_curvature=earth_curvature,
-        pml_cells=defaults.pml_cells if pml is None else pml,
+        pml_cells=defaults.pml_cells if pml is None else int(pml),
         cells_per_wavelength=defaults.cells_per_wavelength if cpw is None else cpw,
         receiver_time_series=time_series,
         uncertainty=uncertainty,
@@ -624,7 +626,7 @@ def _parse_source(t: _Table | None) -> Source | None:
         allowed = f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
         if not isinstance(raw, list) or len(raw) != 2:
             raise t.fail("band_khz", raw, f"must be two numbers {allowed}")
-        low, high = (t.number("band_khz", *FREQUENCY_RANGE_KHZ, "kHz", value=v, label=f"band_khz[{i}]",
+        low, high = (t.number("band_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, value=v, label=f"band_khz[{i}]",
                               allowed=f"allowed range {allowed}") for i, v in enumerate(raw, 1))
         if high <= low:
             raise t.fail("band_khz", raw, f"must give the low edge first and a higher edge second ({allowed})")

@@ -13,7 +13,7 @@ import difflib
 import json
 import math
 from datetime import date, datetime, time, timezone
-from typing import Any
+from typing import Any, Literal, overload
 
 from cavity.errors import ScenarioError
 
@@ -73,7 +73,13 @@ class Table:
             hint = f"; did you mean {close[0]!r}?" if close else f" (known keys: {', '.join(allowed)})"
             raise ScenarioError(f"{self.key(name)}: unknown key{hint}")
 
+    @overload
+    def table(self, name: str, *, required: Literal[True]) -> Table: ...
+    @overload
+    def table(self, name: str, *, required: bool) -> Table | None: ...
+
     def table(self, name: str, *, required: bool) -> Table | None:
+        """The sub-table ``name`` (None when absent and not required)."""
         value = self.raw(name)
         if value is None:
             if required:
@@ -83,7 +89,15 @@ class Table:
             raise self.fail(name, value, f"must be a table [{self.key(name)}]")
         return Table(value, self.key(name))
 
+    @overload
+    def string(self, name: str, *, required: Literal[True], default: str | None = None, what: str = ...) -> str: ...
+    @overload
+    def string(self, name: str, *, required: bool = False, default: str, what: str = ...) -> str: ...
+    @overload
+    def string(self, name: str, *, required: bool = False, default: None = None, what: str = ...) -> str | None: ...
+
     def string(self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes") -> str | None:
+        """A non-empty text, stripped; ``default`` when absent (a ScenarioError when absent and required)."""
         value = self.raw(name)
         if value is None:
             if required:
@@ -103,6 +117,15 @@ class Table:
             raise self.fail(name, value, "must be true or false")
         return value
 
+    @overload
+    def number(self, name: str, low: float, high: float, unit: str, *, required: Literal[True], low_open: bool = ...,
+               high_open: bool = ..., allowed: str | None = ..., integer: bool = ..., value: Any = ...,
+               label: str | None = ...) -> float: ...
+    @overload
+    def number(self, name: str, low: float, high: float, unit: str, *, required: bool = ..., low_open: bool = ...,
+               high_open: bool = ..., allowed: str | None = ..., integer: bool = ..., value: Any = ...,
+               label: str | None = ...) -> float | None: ...
+
     def number(
         self,
         name: str,
@@ -117,7 +140,7 @@ class Table:
         integer: bool = False,
         value: Any = None,
         label: str | None = None,
-    ) -> float | int | None:
+    ) -> float | None:
         """Check a number (never a boolean) is finite and within [low, high] (ends open if asked)."""
         if value is None:
             value = self.raw(name)

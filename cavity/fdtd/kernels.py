@@ -17,7 +17,7 @@ surface-impedance ground (Maloney and Smith 1992).
 from __future__ import annotations
 
 import os
-from typing import NamedTuple
+from typing import Any, NamedTuple
 
 # Idle OpenMP threads sleep instead of spinning: two barriers per time step cost microseconds, while
 # spinning threads steal the cores from working ones whenever the machine is shared (measured 2-4x
@@ -28,7 +28,7 @@ import numba as nb  # noqa: E402
 import numpy as np
 from numba import prange  # noqa: E402
 
-_OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
+_OPTS: dict[str, Any] = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
 #: Field values below this are set to zero. Waves decay exponentially into the dense plasma and the
 #: absorbers; without a floor they reach float32 subnormals (< 1.2e-38), which the CPU handles
 #: hundreds of times more slowly. Fields per unit source current stay above 1e-20 where they matter.
@@ -54,13 +54,13 @@ class HCurl(NamedTuple):
     """Faraday's-law coefficients: second-order inverse cells (ground row, absorbers), the stencil
     tables (:mod:`cavity.fdtd.stencil`), dt/mu0 and the ground row's (ha, hb) per column."""
 
-    inv_dr: float
-    inv_dz: float
+    inv_dr: np.float32
+    inv_dz: np.float32
     ar1: np.ndarray  # (nr,) dEz/dr = ar1 (Ez[i+1] - Ez[i]) + ar2 (Ez[i+2] - Ez[i-1])
     ar2: np.ndarray  # (nr,)
     kz1: np.ndarray  # (nz,) dEr/dz = kz1 (Er[j+1] - Er[j]) + kz2 (Er[j+2] - Er[j-1])
     kz2: np.ndarray  # (nz,)
-    ch: float
+    ch: np.float32
     ha: np.ndarray  # (nr,)
     hb: np.ndarray  # (nr,)
 

@@ -219,7 +219,7 @@ def _ql_tridiagonal(d, e, z, tol, max_iterations, breakdown):
     return 0
 
 
-_COMPILED = {}
+_COMPILED: dict = {}
 
 
 def _compiled_ql():
@@ -506,13 +506,13 @@ def solve_modes(
     lam, excitation = lam[order], excitation[order]
 
     n_keep = int(min(max(n_functions, 0), lam.size))
-    functions = {}
+    functions: dict[int, np.ndarray] = {}
     norm_t = max(np.abs(t_diag).max(), np.abs(t_off).max())
     if refine:
         lam0 = lam.copy()
         gaps = _neighbour_gaps(lam0)
         limit = 30.0 / float(_positive("refine_beyond_m", refine_beyond_m, "m"))
-        for m in np.flatnonzero(-_outgoing(lam0).imag < limit):
+        for m in np.flatnonzero(-_outgoing(lam0).imag < limit).tolist():
             u = _inverse_iteration(t_diag, t_off, lam0[m], norm_t) * scale
             new = _rayleigh_refine(pencil4, lam0[m], u, norm_t)
             if new is None or abs(new[0] - lam0[m]) > 0.2 * gaps[m]:
@@ -528,14 +528,14 @@ def solve_modes(
     k = _outgoing(lam)
     order = _attenuation_order(k, k0)
     k, excitation = k[order], excitation[order]
-    kept = {}
+    kept: dict[int, np.ndarray] = {}
     for m in range(n_keep):
         old = order[m]
         vec = functions.get(old)
         if vec is None:
             vec = _normalised(_inverse_iteration(t_diag, t_off, lam[old], norm_t) * scale, b_diag)
         kept[m] = vec
-    table = np.array([kept[m] for m in range(n_keep)], dtype=complex).reshape(n_keep, z.size)
+    table = np.array([kept[m] for m in range(n_keep)], dtype=np.complex128).reshape(n_keep, z.size)
     return ModeSet(
         frequency_hz=f,
         altitude_m=z,

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -41,8 +42,8 @@ COAST_COLOUR = "#4a4a4a"
 BACKGROUND_SAMPLES = 700
 #: Shading of the sun zones: twilight (sun below the horizon, D region not yet in night) hatched and
 #: light; night dark. Different in grey print too.
-TWILIGHT_SHADE = dict(facecolor="#9a9ab8", alpha=0.30, hatch="////", edgecolor="#6a6a90", linewidth=0.0)
-NIGHT_SHADE = dict(facecolor="#1c1c40", alpha=0.55, edgecolor="none", linewidth=0.0)
+TWILIGHT_SHADE: dict[str, Any] = dict(facecolor="#9a9ab8", alpha=0.30, hatch="////", edgecolor="#6a6a90", linewidth=0.0)
+NIGHT_SHADE: dict[str, Any] = dict(facecolor="#1c1c40", alpha=0.55, edgecolor="none", linewidth=0.0)
 
 #: Edges of the day/night transition in solar zenith angle, degrees (docs/physics.md, common
 #: practice): the ground is in sunlight for chi < 90; the D region is in night from chi >= 99.
@@ -211,7 +212,7 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
                         ha="center", va="center", bbox=dict(boxstyle="round,pad=0.1", facecolor="white",
                                                             alpha=0.75, linewidth=0))
 
-    legend = []
+    legend: list[Any] = []  # legend handles: patches and lines
     from cavity.ionosphere_forms import form_of
 
     instant = form_of(scenario.ionosphere).instant(scenario.ionosphere)

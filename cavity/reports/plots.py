@@ -227,7 +227,8 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
 
     freqs = common_frequencies(ds_a, ds_b, label_a, label_b)
     runs = ((ds_a, label_a, RUN_COLOURS[0]), (ds_b, label_b, RUN_COLOURS[1]))
-    strips = []  # (label, range, classes) per run and path; one strip when both runs share the ground
+    # (label, range, classes) per run and path; one strip when both runs share the ground
+    strips: list[tuple[str, np.ndarray, np.ndarray]] = []
     for ds, label, _ in runs:
         r = np.asarray(ds["range"].values, dtype=float)
         for p, path_label in enumerate(path_labels(ds)):
@@ -290,11 +291,11 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         # the field falls with range: near the transmitter the low levels are free of curves and labels
         ax.legend(fontsize=8, loc="lower left", framealpha=0.85)
         colours = dict(GROUND_STRIP)
-        for row, (_name, r_s, cls) in enumerate(strips):
+        for level, (_name, r_s, cls) in enumerate(strips):
             for kind, colour in GROUND_STRIP:
                 on = cls == kind
                 if on.any():
-                    ax_g.fill_between(r_s, row, row + 0.9, where=on, color=colour, step="mid", linewidth=0)
+                    ax_g.fill_between(r_s, level, level + 0.9, where=on, color=colour, step="mid", linewidth=0)
         ax_g.set_ylim(len(strips), 0)
         ax_g.set_yticks(np.arange(len(strips)) + 0.45, [name for name, _, _ in strips], fontsize=7)
         ax_g.set_xlabel("Ground range from the transmitter (km)")

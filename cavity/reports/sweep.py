@@ -14,7 +14,7 @@ import math
 import tomllib
 import warnings
 from datetime import datetime, timedelta, timezone
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -305,7 +305,7 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
         for k, f in enumerate(np.atleast_1d(ds["frequency"].values)):
             a = amp[i, k]
             ok = np.isfinite(a)
-            row = {"receiver": rx, "range_km": float(ranges[i]), "frequency_khz": float(f), "instants": int(ok.sum())}
+            row: dict[str, Any] = {"receiver": rx, "range_km": float(ranges[i]), "frequency_khz": float(f), "instants": int(ok.sum())}
             if ok.any():
                 lo, hi = int(np.nanargmin(a)), int(np.nanargmax(a))
                 row.update(

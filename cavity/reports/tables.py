@@ -17,7 +17,7 @@ import io
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -178,7 +178,9 @@ def receiver_rows(
     rx_path = receiver_paths(ds)
     path_bearing = (np.asarray(ds["path_bearing"].values, dtype=float).reshape(-1) if "path_bearing" in ds
                     else np.full(ds.sizes.get("path", 1), np.nan))
-    noise_band = None if noise_db is None else noise_in_bandwidth_db(noise_db, bandwidth_hz)
+    noise_band = None
+    if noise_db is not None and bandwidth_hz is not None:  # given together (checked above)
+        noise_band = noise_in_bandwidth_db(noise_db, bandwidth_hz)
     rows = []
     for i, name in enumerate(names):
         for k, f in enumerate(freqs):
@@ -261,7 +263,7 @@ def _cell(row: dict, column: Column, markdown: bool) -> str:
     value = row.get(column.key, "")
     if column.decimals is None:
         return attr_text(value)
-    digits = column.markdown_decimals if markdown else column.decimals
+    digits = column.markdown_decimals if markdown and column.markdown_decimals is not None else column.decimals
     if column.significant:
         return _significant(value, digits + 1 if markdown else digits)
     text = _format_number(value, digits)
@@ -415,17 +417,20 @@ def receiver_table(datasets: Sequence[xr.Dataset] | xr.Dataset, fmt: str = "mark
         See :func:`receiver_rows`.
     """
     if not isinstance(datasets, (list, tuple)):
-        datasets = [datasets]
+        datasets = [datasets]  # type: ignore[list-item]  # one Dataset
+    labels: Sequence[str | None]
     if runs is None:
-        runs = run_labels(datasets) if len(datasets) > 1 else [None]
+        labels = run_labels(datasets) if len(datasets) > 1 else [None]
+    else:
+        labels = runs
     rows = []
-    for ds, run in zip(datasets, runs):
+    for ds, run in zip(datasets, labels):
         rows += receiver_rows(ds, required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz, run=run)
-    kwargs = dict(required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz)
+    kwargs: dict[str, Any] = dict(required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz)
     if fmt != "markdown":
         return format_table(rows, receiver_columns(rows, **kwargs), fmt)
     heads = []
-    for ds, run in zip(datasets, runs):
+    for ds, run in zip(datasets, labels):
         heads.append(f"**{run}**: {run_header(ds)}." if run is not None else f"{run_header(ds)}.")
     bearings = {round(r["path_bearing_deg"], 6) if math.isfinite(r["path_bearing_deg"]) else None for r in rows}
     paths_per_run = {(r.get("run"), r["path"]) for r in rows}
