@@ -221,8 +221,10 @@ class Preset(IonosphereForm):
         from profiles.daynight import PRESETS
 
         p = PRESETS[str(ion.preset)]
-        return [f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
-                f"reference: {p.reference}"]
+        return [
+            f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
+            f"reference: {p.reference}",
+        ]
 
     def document_text(self, doc: dict) -> str:
         return _preset_text(doc["preset"])
@@ -277,8 +279,10 @@ class SunAlongPath(IonosphereForm):
         ]
 
     def document_text(self, doc: dict) -> str:
-        return (f"{_preset_text(doc.get('day_preset', 'day'))} by day, {_preset_text(doc.get('night_preset', 'night'))} "
-                "by night, from the sun along each path")
+        return (
+            f"{_preset_text(doc.get('day_preset', 'day'))} by day, {_preset_text(doc.get('night_preset', 'night'))} "
+            "by night, from the sun along each path"
+        )
 
     def along(self, ion: Ionosphere, lats, lons, n: int) -> Along:
         from cavity.geo import solar_zenith_deg

@@ -93,10 +93,27 @@ _RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
 _IONOSPHERE_KEYS = IONOSPHERE_KEYS
 _GROUND_KEYS = ("kind", "conductivity_s_per_m", "relative_permittivity", "segment")
 _SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_permittivity")
-_SOURCE_KEYS = ("kind", "peak_current_ka", "rise_time_constant_us", "decay_time_constant_us", "heidler_exponent",
-                "channel_speed_fraction", "channel_height_km", "record_ms", "band_khz")
-_SOLVER_KEYS = ("max_range_km", "cell_m", "top_km", "earth_curvature", "pml_cells",
-                "cells_per_wavelength", "receiver_time_series", "uncertainty")
+_SOURCE_KEYS = (
+    "kind",
+    "peak_current_ka",
+    "rise_time_constant_us",
+    "decay_time_constant_us",
+    "heidler_exponent",
+    "channel_speed_fraction",
+    "channel_height_km",
+    "record_ms",
+    "band_khz",
+)
+_SOLVER_KEYS = (
+    "max_range_km",
+    "cell_m",
+    "top_km",
+    "earth_curvature",
+    "pml_cells",
+    "cells_per_wavelength",
+    "receiver_time_series",
+    "uncertainty",
+)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -298,8 +315,14 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     ScenarioError
         One line naming the file, the key path, the value and the allowed range.
     """
-    is_text = isinstance(source, str) and ("\n" in source or (
-        "=" in source and not source.rstrip().lower().endswith(".toml") and not os.path.isfile(os.path.expanduser(source))))
+    is_text = isinstance(source, str) and (
+        "\n" in source
+        or (
+            "=" in source
+            and not source.rstrip().lower().endswith(".toml")
+            and not os.path.isfile(os.path.expanduser(source))
+        )
+    )
     if is_text:
         text, path, label, base = str(source), None, None, Path.cwd()
     else:
@@ -371,15 +394,27 @@ def _parse_transmitter(t: _Table) -> Transmitter:
         if not raw:
             raise t.fail("frequency_khz", raw, f"must list at least one frequency ({band})")
         values = [
-            t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, allowed=band, value=v,
-                     label=f"frequency_khz[{i}]")
+            t.number(
+                "frequency_khz",
+                *FREQUENCY_RANGE_KHZ,
+                "kHz",
+                required=True,
+                allowed=band,
+                value=v,
+                label=f"frequency_khz[{i}]",
+            )
             for i, v in enumerate(raw, 1)
         ]
     else:
         values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, allowed=band, value=raw)]
     frequencies = tuple(sorted({v * 1e3 for v in values}))
     power_kw = t.number(
-        "radiated_power_kw", 0.0, POWER_MAX_KW, "kW", required=True, low_open=True,
+        "radiated_power_kw",
+        0.0,
+        POWER_MAX_KW,
+        "kW",
+        required=True,
+        low_open=True,
         allowed=f"allowed range > 0 to {_number_text(POWER_MAX_KW)} kW",
     )
     return Transmitter(name, lat, lon, frequencies, power_kw * 1e3)
@@ -418,7 +453,11 @@ def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
             given, other = ("latitude_deg", "longitude_deg") if lat is not None else ("longitude_deg", "latitude_deg")
             raise ScenarioError(f"{t.key(other)} is missing (needed with {t.key(given)})")
         if range_km is not None and lat is not None:
-            raise t.fail("range_km", t.raw("range_km"), "given together with a position; give either latitude_deg and longitude_deg or range_km")
+            raise t.fail(
+                "range_km",
+                t.raw("range_km"),
+                "given together with a position; give either latitude_deg and longitude_deg or range_km",
+            )
         if range_km is None and lat is None:
             raise ScenarioError(f"{t.prefix} has no location: give latitude_deg and longitude_deg, or range_km")
         receivers.append(Receiver(name, lat, lon, _km(range_km)))
@@ -470,8 +509,9 @@ def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, io
             "uniform",
             strength_nt=t.number("strength_nt", *FIELD_STRENGTH_RANGE_NT, "nT", required=True),
             dip_deg=t.number("dip_deg", *DIP_RANGE_DEG, "deg (positive downward)", required=True),
-            azimuth_deg=t.number("azimuth_deg", *AZIMUTH_RANGE_DEG, "deg clockwise from magnetic north",
-                                 required=True, high_open=True),
+            azimuth_deg=t.number(
+                "azimuth_deg", *AZIMUTH_RANGE_DEG, "deg clockwise from magnetic north", required=True, high_open=True
+            ),
             given=given,
         )
     if not positioned:
@@ -502,15 +542,21 @@ def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, io
         if not EPOCH_RANGE[0] <= epoch <= EPOCH_RANGE[1]:
             raise ScenarioError(
                 f"ionosphere.utc = {_show(instant)} is outside the geomagnetic field's epochs "
-                f"{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = \"none\" or \"uniform\""
+                f'{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = "none" or "uniform"'
             )
     elif day is not None:
         epoch, source = day, "geomagnetic.date"
     else:
         epoch, source = DEFAULT_EPOCH, "default"
     altitude = t.number("altitude_km", *FIELD_ALTITUDE_RANGE_KM, "km")
-    return Geomagnetic("igrf", epoch=epoch, epoch_source=source, date=day,
-                       altitude_km=REFERENCE_ALTITUDE_KM if altitude is None else altitude, given=given)
+    return Geomagnetic(
+        "igrf",
+        epoch=epoch,
+        epoch_source=source,
+        date=day,
+        altitude_km=REFERENCE_ALTITUDE_KM if altitude is None else altitude,
+        given=given,
+    )
 
 
 def _parse_ground(t: _Table) -> Ground:
@@ -525,7 +571,9 @@ def _parse_ground(t: _Table) -> Ground:
     segments: list[GroundSegment] = []
     if raw is not None:
         if isinstance(raw, dict):
-            raise ScenarioError(f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)")
+            raise ScenarioError(
+                f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)"
+            )
         if not isinstance(raw, list):
             raise t.fail("segment", raw, "must be [[ground.segment]] tables")
         for i, s in _each_table(raw, "ground.segment", "[[ground.segment]]", _SEGMENT_KEYS):
@@ -535,7 +583,8 @@ def _parse_ground(t: _Table) -> Ground:
                 raise s.fail("to_km", s.raw("to_km"), f"must be greater than from_km = {_show(s.raw('from_km'))}")
             if segments and from_km * 1e3 < segments[-1].to_m:
                 raise s.fail(
-                    "from_km", s.raw("from_km"),
+                    "from_km",
+                    s.raw("from_km"),
                     f"overlaps ground.segment[{i - 1}], which ends at {_number_text(segments[-1].to_m / 1e3)} km; "
                     "segments must be in order of range and must not overlap",
                 )
@@ -546,7 +595,8 @@ def _parse_ground(t: _Table) -> Ground:
                     close = difflib.get_close_matches(seg_kind, named, n=1)
                     hint = f"; did you mean {close[0]!r}?" if close else ""
                     raise s.fail(
-                        "kind", seg_kind,
+                        "kind",
+                        seg_kind,
                         f"is not a ground class (choose from {', '.join(named)}, or give "
                         f"conductivity_s_per_m and relative_permittivity instead){hint}",
                     )
@@ -565,9 +615,9 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
     raw_cell = t.raw("cell_m")
     cell = None
     if raw_cell is not None and raw_cell != "auto":
-        allowed = f"allowed range {_number_text(CELL_RANGE_M[0])} to {_number_text(CELL_RANGE_M[1])} m, or \"auto\""
+        allowed = f'allowed range {_number_text(CELL_RANGE_M[0])} to {_number_text(CELL_RANGE_M[1])} m, or "auto"'
         if isinstance(raw_cell, str):
-            raise t.fail("cell_m", raw_cell, f"must be a number or \"auto\" ({allowed})")
+            raise t.fail("cell_m", raw_cell, f'must be a number or "auto" ({allowed})')
         cell = t.number("cell_m", *CELL_RANGE_M, "m", allowed=allowed)
     top = t.number("top_km", *TOP_RANGE_KM, "km")
     fixed_by = form_of(ionosphere).top_fixed_by()
@@ -618,16 +668,32 @@ def _parse_source(t: _Table | None) -> Source | None:
     decay_s = d.decay_time_constant_s if decay is None else decay * 1e-6
     if decay_s <= rise_s:
         name = "decay_time_constant_us" if decay is not None else "rise_time_constant_us"
-        raise t.fail(name, t.data[name], f"leaves the decay ({_number_text(decay_s * 1e6)} us) no longer than "
-                     f"the rise ({_number_text(rise_s * 1e6)} us); the decay time constant must be the longer")
+        raise t.fail(
+            name,
+            t.data[name],
+            f"leaves the decay ({_number_text(decay_s * 1e6)} us) no longer than "
+            f"the rise ({_number_text(rise_s * 1e6)} us); the decay time constant must be the longer",
+        )
     band = d.band_hz
     raw = t.raw("band_khz")
     if raw is not None:
-        allowed = f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+        allowed = (
+            f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+        )
         if not isinstance(raw, list) or len(raw) != 2:
             raise t.fail("band_khz", raw, f"must be two numbers {allowed}")
-        low, high = (t.number("band_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, value=v, label=f"band_khz[{i}]",
-                              allowed=f"allowed range {allowed}") for i, v in enumerate(raw, 1))
+        low, high = (
+            t.number(
+                "band_khz",
+                *FREQUENCY_RANGE_KHZ,
+                "kHz",
+                required=True,
+                value=v,
+                label=f"band_khz[{i}]",
+                allowed=f"allowed range {allowed}",
+            )
+            for i, v in enumerate(raw, 1)
+        )
         if high <= low:
             raise t.fail("band_khz", raw, f"must give the low edge first and a higher edge second ({allowed})")
         band = (low * 1e3, high * 1e3)
@@ -682,7 +748,9 @@ def _check_geometry(s: Scenario) -> None:
         if form.needs_positions:
             raise ScenarioError(f"transmitter.latitude_deg is missing ({form.needs_positions})")
         if s.ground.kind == "auto":
-            raise ScenarioError('transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)')
+            raise ScenarioError(
+                'transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)'
+            )
     direction = None
     if s.ground.kind == "auto":
         direction = 'ground kind = "auto" (land/sea along each path)'
@@ -729,7 +797,9 @@ def _named_constants_match(kind: str, sigma, eps, where: str) -> None:
         return
     cls = GROUND_CLASSES.get(kind)
     if cls is None:
-        raise ScenarioError(f"{where}.kind = {_show(kind)} is not a ground kind (choose from {', '.join(GROUND_KINDS)})")
+        raise ScenarioError(
+            f"{where}.kind = {_show(kind)} is not a ground kind (choose from {', '.join(GROUND_KINDS)})"
+        )
     for name, given, fixed in (
         ("conductivity_s_per_m", sigma, cls.conductivity_s_per_m),
         ("relative_permittivity", eps, cls.relative_permittivity),
@@ -745,21 +815,25 @@ def _to_toml(s: Scenario) -> str:
     tx = s.transmitter
     freqs = [_edge(f, 1e3) for f in tx.frequencies_hz]
     out = [f"title = {_toml_value(s.title)}", "", "[transmitter]"]
-    out += _lines([
-        ("name", tx.name),
-        ("latitude_deg", tx.latitude_deg),
-        ("longitude_deg", tx.longitude_deg),
-        ("frequency_khz", freqs[0] if len(freqs) == 1 else freqs),
-        ("radiated_power_kw", _edge(tx.radiated_power_w, 1e3)),
-    ])
+    out += _lines(
+        [
+            ("name", tx.name),
+            ("latitude_deg", tx.latitude_deg),
+            ("longitude_deg", tx.longitude_deg),
+            ("frequency_khz", freqs[0] if len(freqs) == 1 else freqs),
+            ("radiated_power_kw", _edge(tx.radiated_power_w, 1e3)),
+        ]
+    )
     for rx in s.receivers:
         out += ["", "[[receiver]]"]
-        out += _lines([
-            ("name", rx.name),
-            ("latitude_deg", rx.latitude_deg),
-            ("longitude_deg", rx.longitude_deg),
-            ("range_km", None if rx.range_m is None else _edge(rx.range_m, 1e3)),
-        ])
+        out += _lines(
+            [
+                ("name", rx.name),
+                ("latitude_deg", rx.latitude_deg),
+                ("longitude_deg", rx.longitude_deg),
+                ("range_km", None if rx.range_m is None else _edge(rx.range_m, 1e3)),
+            ]
+        )
     ion = s.ionosphere
     out += ["", "[ionosphere]"]
     out += _lines(form_of(ion).dump(ion))
@@ -767,13 +841,20 @@ def _to_toml(s: Scenario) -> str:
     out += ["", "[ground]", f"kind = {_toml_value(g.kind)}"]
     _named_constants_match(g.kind, g.conductivity_s_per_m, g.relative_permittivity, "ground")
     if g.kind == "custom":
-        out += _lines([("conductivity_s_per_m", g.conductivity_s_per_m), ("relative_permittivity", g.relative_permittivity)])
+        out += _lines(
+            [("conductivity_s_per_m", g.conductivity_s_per_m), ("relative_permittivity", g.relative_permittivity)]
+        )
     for i, seg in enumerate(g.segments, 1):
         out += ["", "[[ground.segment]]"]
         out += _lines([("from_km", _edge(seg.from_m, 1e3)), ("to_km", _edge(seg.to_m, 1e3))])
         _named_constants_match(seg.kind, seg.conductivity_s_per_m, seg.relative_permittivity, f"ground.segment[{i}]")
         if seg.kind == "custom":
-            out += _lines([("conductivity_s_per_m", seg.conductivity_s_per_m), ("relative_permittivity", seg.relative_permittivity)])
+            out += _lines(
+                [
+                    ("conductivity_s_per_m", seg.conductivity_s_per_m),
+                    ("relative_permittivity", seg.relative_permittivity),
+                ]
+            )
         else:
             out += _lines([("kind", seg.kind)])
     gm = s.geomagnetic
@@ -786,28 +867,32 @@ def _to_toml(s: Scenario) -> str:
             out += _lines([("strength_nt", gm.strength_nt), ("dip_deg", gm.dip_deg), ("azimuth_deg", gm.azimuth_deg)])
     sv = s.solver
     out += ["", "[solver]"]
-    out += _lines([
-        ("max_range_km", None if sv.max_range_m is None else _edge(sv.max_range_m, 1e3)),
-        ("cell_m", "auto" if sv.cell_m is None else sv.cell_m),
-        ("top_km", None if sv.top_m is None else _edge(sv.top_m, 1e3)),
-        ("earth_curvature", sv.earth_curvature),
-        ("pml_cells", sv.pml_cells),
-        ("cells_per_wavelength", sv.cells_per_wavelength),
-        ("receiver_time_series", sv.receiver_time_series),
-        ("uncertainty", sv.uncertainty),
-    ])
+    out += _lines(
+        [
+            ("max_range_km", None if sv.max_range_m is None else _edge(sv.max_range_m, 1e3)),
+            ("cell_m", "auto" if sv.cell_m is None else sv.cell_m),
+            ("top_km", None if sv.top_m is None else _edge(sv.top_m, 1e3)),
+            ("earth_curvature", sv.earth_curvature),
+            ("pml_cells", sv.pml_cells),
+            ("cells_per_wavelength", sv.cells_per_wavelength),
+            ("receiver_time_series", sv.receiver_time_series),
+            ("uncertainty", sv.uncertainty),
+        ]
+    )
     src = s.source
     if src is not None:
         out += ["", "[source]"]
-        out += _lines([
-            ("kind", src.kind),
-            ("peak_current_ka", _edge_short(src.peak_current_a, 1e3)),
-            ("rise_time_constant_us", _edge_short(src.rise_time_constant_s, 1e-6)),
-            ("decay_time_constant_us", _edge_short(src.decay_time_constant_s, 1e-6)),
-            ("heidler_exponent", float(src.heidler_exponent)),
-            ("channel_speed_fraction", float(src.channel_speed_fraction)),
-            ("channel_height_km", _edge_short(src.channel_height_m, 1e3)),
-            ("record_ms", _edge_short(src.record_s, 1e-3)),
-            ("band_khz", [_edge_short(src.band_hz[0], 1e3), _edge_short(src.band_hz[1], 1e3)]),
-        ])
+        out += _lines(
+            [
+                ("kind", src.kind),
+                ("peak_current_ka", _edge_short(src.peak_current_a, 1e3)),
+                ("rise_time_constant_us", _edge_short(src.rise_time_constant_s, 1e-6)),
+                ("decay_time_constant_us", _edge_short(src.decay_time_constant_s, 1e-6)),
+                ("heidler_exponent", float(src.heidler_exponent)),
+                ("channel_speed_fraction", float(src.channel_speed_fraction)),
+                ("channel_height_km", _edge_short(src.channel_height_m, 1e3)),
+                ("record_ms", _edge_short(src.record_s, 1e-3)),
+                ("band_khz", [_edge_short(src.band_hz[0], 1e3), _edge_short(src.band_hz[1], 1e3)]),
+            ]
+        )
     return "\n".join(out) + "\n"

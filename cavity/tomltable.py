@@ -96,7 +96,9 @@ class Table:
     @overload
     def string(self, name: str, *, required: bool = False, default: None = None, what: str = ...) -> str | None: ...
 
-    def string(self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes") -> str | None:
+    def string(
+        self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes"
+    ) -> str | None:
         """A non-empty text, stripped; ``default`` when absent (a ScenarioError when absent and required)."""
         value = self.raw(name)
         if value is None:
@@ -118,13 +120,37 @@ class Table:
         return value
 
     @overload
-    def number(self, name: str, low: float, high: float, unit: str, *, required: Literal[True], low_open: bool = ...,
-               high_open: bool = ..., allowed: str | None = ..., integer: bool = ..., value: Any = ...,
-               label: str | None = ...) -> float: ...
+    def number(
+        self,
+        name: str,
+        low: float,
+        high: float,
+        unit: str,
+        *,
+        required: Literal[True],
+        low_open: bool = ...,
+        high_open: bool = ...,
+        allowed: str | None = ...,
+        integer: bool = ...,
+        value: Any = ...,
+        label: str | None = ...,
+    ) -> float: ...
     @overload
-    def number(self, name: str, low: float, high: float, unit: str, *, required: bool = ..., low_open: bool = ...,
-               high_open: bool = ..., allowed: str | None = ..., integer: bool = ..., value: Any = ...,
-               label: str | None = ...) -> float | None: ...
+    def number(
+        self,
+        name: str,
+        low: float,
+        high: float,
+        unit: str,
+        *,
+        required: bool = ...,
+        low_open: bool = ...,
+        high_open: bool = ...,
+        allowed: str | None = ...,
+        integer: bool = ...,
+        value: Any = ...,
+        label: str | None = ...,
+    ) -> float | None: ...
 
     def number(
         self,

@@ -112,9 +112,7 @@ def _read_csv(path: Path):
         if line.strip() and not line.lstrip().startswith("#")
     ]
     if not numbered:
-        raise ProfileError(
-            f"profile file {path} has no header or data (expected the header {','.join(CSV_COLUMNS)})"
-        )
+        raise ProfileError(f"profile file {path} has no header or data (expected the header {','.join(CSV_COLUMNS)})")
     rows = list(csv.reader(line for _, line in numbered))
     header = [name.strip() for name in rows[0]]
     header_line = numbered[0][0]
@@ -244,7 +242,9 @@ def _profile_altitude_km(profile: xr.Dataset) -> np.ndarray:
     altitude = profile["altitude"]
     scale = _ALTITUDE_UNITS.get(str(altitude.attrs.get("units", "km")).strip().lower())
     if scale is None:
-        raise ProfileError(f"profile altitude units = {altitude.attrs.get('units')!r} is not understood (allowed: km or m)")
+        raise ProfileError(
+            f"profile altitude units = {altitude.attrs.get('units')!r} is not understood (allowed: km or m)"
+        )
     return np.asarray(altitude.values, dtype=float) * scale
 
 

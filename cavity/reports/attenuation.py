@@ -88,8 +88,15 @@ def spreading_db(range_km, spreading: str = "sphere") -> np.ndarray:
         return 10.0 * np.log10(effective)
 
 
-def attenuation_rate(range_km, amplitude_db, start_km: float | None = None, stop_km: float | None = None,
-                     *, spreading: str = "sphere", what: str = "the result") -> AttenuationFit:
+def attenuation_rate(
+    range_km,
+    amplitude_db,
+    start_km: float | None = None,
+    stop_km: float | None = None,
+    *,
+    spreading: str = "sphere",
+    what: str = "the result",
+) -> AttenuationFit:
     """Fit the attenuation rate (dB per 1000 km) by least squares over a range window.
 
     The field in dB plus the spreading loss (:func:`spreading_db`) is fitted by a straight line
@@ -129,25 +136,36 @@ def attenuation_rate(range_km, amplitude_db, start_km: float | None = None, stop
     slope, intercept = np.polyfit(x / 1000.0, y, 1)
     residual = y - (intercept + slope * x / 1000.0)
     return AttenuationFit(
-        rate_db_per_1000km=float(-slope), intercept_db=float(intercept), start_km=float(x.min()),
-        stop_km=float(x.max()), points=int(x.size), rms_residual_db=float(np.sqrt(np.mean(residual**2))),
+        rate_db_per_1000km=float(-slope),
+        intercept_db=float(intercept),
+        start_km=float(x.min()),
+        stop_km=float(x.max()),
+        points=int(x.size),
+        rms_residual_db=float(np.sqrt(np.mean(residual**2))),
         spreading=spreading,
     )
 
 
-def result_attenuation(ds: xr.Dataset, *, path: int = 0, frequency_khz: float | None = None,
-                       start_km: float | None = None, stop_km: float | None = None,
-                       what: str = "the result") -> AttenuationFit:
+def result_attenuation(
+    ds: xr.Dataset,
+    *,
+    path: int = 0,
+    frequency_khz: float | None = None,
+    start_km: float | None = None,
+    stop_km: float | None = None,
+    what: str = "the result",
+) -> AttenuationFit:
     """:func:`attenuation_rate` of one path and frequency of a result (spreading from its scenario)."""
     freqs = frequencies_khz(ds)
     k = 0 if frequency_khz is None else frequency_index(freqs, frequency_khz, what)
     amp = ds["ez_amplitude"].transpose("path", "frequency", "range").values[path, k]
-    return attenuation_rate(ds["range"].values, amp, start_km, stop_km,
-                            spreading="sphere" if earth_curvature(ds) else "flat", what=what)
+    return attenuation_rate(
+        ds["range"].values, amp, start_km, stop_km, spreading="sphere" if earth_curvature(ds) else "flat", what=what
+    )
 
 
 def fit_caveat(fit: AttenuationFit) -> str:
-    """"" for a fit that describes the guide's loss; otherwise why it is only a rough slope."""
+    """ "" for a fit that describes the guide's loss; otherwise why it is only a rough slope."""
     reasons = []
     if fit.rms_residual_db > SHAKY_FIT_RESIDUAL_DB:
         reasons.append(f"residual above {SHAKY_FIT_RESIDUAL_DB:g} dB")
@@ -156,8 +174,14 @@ def fit_caveat(fit: AttenuationFit) -> str:
     return f"rough slope: modal interference ({', '.join(reasons)})" if reasons else ""
 
 
-def attenuation_rows(datasets: Sequence[xr.Dataset], labels: Sequence[str], *, start_km: float | None = None,
-                     stop_km: float | None = None, frequencies: Sequence[float] | None = None) -> list[dict]:
+def attenuation_rows(
+    datasets: Sequence[xr.Dataset],
+    labels: Sequence[str],
+    *,
+    start_km: float | None = None,
+    stop_km: float | None = None,
+    frequencies: Sequence[float] | None = None,
+) -> list[dict]:
     """Attenuation fits for each result, path and frequency (restricted to ``frequencies`` if given).
 
     Keys: run, path, frequency_khz, rate_db_per_1000km, start_km, stop_km, rms_residual_db,
@@ -168,14 +192,21 @@ def attenuation_rows(datasets: Sequence[xr.Dataset], labels: Sequence[str], *, s
         freqs = frequencies_khz(ds) if frequencies is None else np.asarray(frequencies, float)
         for p, path_label in enumerate(path_labels(ds)):
             for f in freqs:
-                fit = result_attenuation(ds, path=p, frequency_khz=f, start_km=start_km, stop_km=stop_km,
-                                         what=label)
-                rows.append({
-                    "run": label, "path": path_label, "frequency_khz": float(f),
-                    "rate_db_per_1000km": fit.rate_db_per_1000km, "start_km": fit.start_km,
-                    "stop_km": fit.stop_km, "rms_residual_db": fit.rms_residual_db,
-                    "spreading": fit.spreading_text(), "fit": fit, "note": fit_caveat(fit),
-                })
+                fit = result_attenuation(ds, path=p, frequency_khz=f, start_km=start_km, stop_km=stop_km, what=label)
+                rows.append(
+                    {
+                        "run": label,
+                        "path": path_label,
+                        "frequency_khz": float(f),
+                        "rate_db_per_1000km": fit.rate_db_per_1000km,
+                        "start_km": fit.start_km,
+                        "stop_km": fit.stop_km,
+                        "rms_residual_db": fit.rms_residual_db,
+                        "spreading": fit.spreading_text(),
+                        "fit": fit,
+                        "note": fit_caveat(fit),
+                    }
+                )
     return rows
 
 

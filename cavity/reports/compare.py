@@ -71,18 +71,25 @@ def comparison_rows(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", labe
         j = names_b.index(name)
         for f in freqs:
             ka, kb = frequency_index(fa, f, label_a), frequency_index(fb, f, label_b)
-            rows.append({
-                "receiver": name,
-                "frequency_khz": f,
-                "range_km": float(range_a[i]),
-                "a_db": float(amp_a[i, ka]),
-                "b_db": float(amp_b[j, kb]),
-                "difference_db": float(amp_b[j, kb] - amp_a[i, ka]),
-                "phase_difference_deg": float(_wrap_deg(ph_b[j, kb] - ph_a[i, ka])),
-                "note": "; ".join(n for n in (
-                    _null_note(ds_a, label_a, ka, int(path_a[i]), float(range_a[i])),
-                    _null_note(ds_b, label_b, kb, int(path_b[j]), float(range_a[i]))) if n),
-            })
+            rows.append(
+                {
+                    "receiver": name,
+                    "frequency_khz": f,
+                    "range_km": float(range_a[i]),
+                    "a_db": float(amp_a[i, ka]),
+                    "b_db": float(amp_b[j, kb]),
+                    "difference_db": float(amp_b[j, kb] - amp_a[i, ka]),
+                    "phase_difference_deg": float(_wrap_deg(ph_b[j, kb] - ph_a[i, ka])),
+                    "note": "; ".join(
+                        n
+                        for n in (
+                            _null_note(ds_a, label_a, ka, int(path_a[i]), float(range_a[i])),
+                            _null_note(ds_b, label_b, kb, int(path_b[j]), float(range_a[i])),
+                        )
+                        if n
+                    ),
+                }
+            )
     return rows
 
 
@@ -137,9 +144,16 @@ def comparison_columns(label_a: str = "A", label_b: str = "B") -> list[Column]:
     ]
 
 
-def comparison_report(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", label_b: str = "B", *,
-                      start_km: float | None = None, stop_km: float | None = None,
-                      fmt: str = "markdown") -> str:
+def comparison_report(
+    ds_a: xr.Dataset,
+    ds_b: xr.Dataset,
+    label_a: str = "A",
+    label_b: str = "B",
+    *,
+    start_km: float | None = None,
+    stop_km: float | None = None,
+    fmt: str = "markdown",
+) -> str:
     """The text of a comparison: differences at receivers, then attenuation rates (Markdown or CSV).
 
     In CSV only the differences table is written (one table per file).
@@ -160,12 +174,16 @@ def comparison_report(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
     )
     text += format_table(fits, ATTENUATION_COLUMNS)
     if any(f["note"] for f in fits):
-        text += ("\nRows marked \"rough slope\": the curve is dominated by modal interference in the window, "
-                 "so the rate is a rough slope, not the waveguide's attenuation.\n")
+        text += (
+            '\nRows marked "rough slope": the curve is dominated by modal interference in the window, '
+            "so the rate is a rough slope, not the waveguide's attenuation.\n"
+        )
     if any(r["note"] for r in rows):
-        text += ("\nRows marked \"near a ... modal null\": the receiver lies within "
-                 f"{NULL_NEIGHBOURHOOD_KM:g} km of a deep minimum of that run's curve, where a small change of "
-                 "h' moves the field by many dB; plan on the path level, not on that value.\n")
+        text += (
+            '\nRows marked "near a ... modal null": the receiver lies within '
+            f"{NULL_NEIGHBOURHOOD_KM:g} km of a deep minimum of that run's curve, where a small change of "
+            "h' moves the field by many dB; plan on the path level, not on that value.\n"
+        )
     cautions = table_notes([ds_a, ds_b])[-1:]
     for note in cautions:
         if note.startswith("Cautions"):
@@ -175,12 +193,14 @@ def comparison_report(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
 
 def comparison_title(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", label_b: str = "B") -> str:
     """Station, frequency and power from the files' scenarios, then what is compared."""
+
     def station(ds):
         tx = scenario_document(ds).get("transmitter", {})
         tx = tx if isinstance(tx, dict) else {}
         power = tx.get("radiated_power_kw")
-        return (f"{tx.get('name', attr_text(ds.attrs.get('title', '?')))}, {frequency_text(frequencies_khz(ds))}"
-                + (f", {float(power):g} kW radiated" if power is not None else ""))
+        return f"{tx.get('name', attr_text(ds.attrs.get('title', '?')))}, {frequency_text(frequencies_khz(ds))}" + (
+            f", {float(power):g} kW radiated" if power is not None else ""
+        )
 
     sa, sb = station(ds_a), station(ds_b)
     if sa == sb:

@@ -29,9 +29,11 @@ def wrap_phase_deg(phase_deg):
 #: Name of the one phase quantity shown in tables and plots (see :func:`display_phase_deg`).
 PHASE_QUANTITY = "Ez phase re c delay"
 #: Its definition, for table notes and figure captions.
-PHASE_DEFINITION = ("phase re c delay = Ez phase + 360 f d / c (the speed-of-light delay removed; "
-                    "exp(+j omega t), relative to the transmitter current), wrapped to (-180, 180] deg; "
-                    "the result file keeps the unwrapped phase")
+PHASE_DEFINITION = (
+    "phase re c delay = Ez phase + 360 f d / c (the speed-of-light delay removed; "
+    "exp(+j omega t), relative to the transmitter current), wrapped to (-180, 180] deg; "
+    "the result file keeps the unwrapped phase"
+)
 
 
 def display_phase_deg(phase_deg, range_km, frequency_khz):

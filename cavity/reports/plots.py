@@ -79,8 +79,16 @@ def _mark_near_field(ax_a, ax_p, frequency_khz) -> None:
     d = near_field_km(frequency_khz)
     for ax in (ax_a, ax_p):
         ax.axvspan(0.0, d, color="#bbbbbb", alpha=0.35, linewidth=0, zorder=0)
-    ax_p.annotate(f"near field\n(d < {d:.0f} km)", xy=(d, 0.03), xycoords=("data", "axes fraction"),
-                  xytext=(3, 0), textcoords="offset points", fontsize=7, color="#555555", va="bottom")
+    ax_p.annotate(
+        f"near field\n(d < {d:.0f} km)",
+        xy=(d, 0.03),
+        xycoords=("data", "axes fraction"),
+        xytext=(3, 0),
+        textcoords="offset points",
+        fontsize=7,
+        color="#555555",
+        va="bottom",
+    )
 
 
 def _mark_receivers(ax, names, ranges, values, colour, *, label_names: bool, y_text: float | None = None):
@@ -89,13 +97,27 @@ def _mark_receivers(ax, names, ranges, values, colour, *, label_names: bool, y_t
         if np.isfinite(v):
             ax.plot([d], [v], marker="o", markersize=6, color=colour, markeredgecolor="k", zorder=4, linestyle="none")
         if label_names:
-            ax.annotate(name, xy=(d, 1.0), xycoords=("data", "axes fraction"), xytext=(2, -2),
-                        textcoords="offset points", ha="left", va="top", fontsize=8, rotation=90,
-                        color="#333333")
+            ax.annotate(
+                name,
+                xy=(d, 1.0),
+                xycoords=("data", "axes fraction"),
+                xytext=(2, -2),
+                textcoords="offset points",
+                ha="left",
+                va="top",
+                fontsize=8,
+                rotation=90,
+                color="#333333",
+            )
 
 
-def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None = None,
-                  amplitude_limits: tuple[float, float] | None = None) -> Figure:
+def result_figure(
+    ds: xr.Dataset,
+    *,
+    phase: str = "relative",
+    title: str | None = None,
+    amplitude_limits: tuple[float, float] | None = None,
+) -> Figure:
     """Amplitude and phase against range: one panel pair per path and frequency, receivers marked.
 
     Parameters
@@ -151,11 +173,20 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
         if "b_radial_amplitude" in ds:
             # with a geomagnetic field both horizontal B components reach a loop antenna
             ax_b = ax_a.twinx()
-            for name, text, style in (("b_amplitude", "B across the path", "--"), ("b_radial_amplitude", "B along the path", ":")):
+            for name, text, style in (
+                ("b_amplitude", "B across the path", "--"),
+                ("b_radial_amplitude", "B along the path", ":"),
+            ):
                 values = ds[name].transpose("path", "frequency", "range").values[p, k]
                 fine = np.isfinite(values)
-                ax_b.plot(r[fine], values[fine], color=RUN_COLOURS[2 % len(RUN_COLOURS)], linestyle=style,
-                          linewidth=1.0, label=text)
+                ax_b.plot(
+                    r[fine],
+                    values[fine],
+                    color=RUN_COLOURS[2 % len(RUN_COLOURS)],
+                    linestyle=style,
+                    linewidth=1.0,
+                    label=text,
+                )
             ax_b.set_ylabel("B (dB re 1 fT, RMS)")
             ax_b.legend(loc="upper right", fontsize=8)
         ax_a.set_title(f"{labels[p]}, {freqs[k]:g} kHz", fontsize=10)
@@ -180,8 +211,11 @@ def result_figure(ds: xr.Dataset, *, phase: str = "relative", title: str | None 
         if ok.any():
             ax_a.set_xlim(0.0, float(r[ok].max()))
     heading = title if title is not None else attr_text(ds.attrs.get("title", "cavity result"))
-    note = ("phase + 360 f d/c (speed-of-light delay removed), wrapped" if phase == "relative"
-            else "phase relative to the transmitter current")
+    note = (
+        "phase + 360 f d/c (speed-of-light delay removed), wrapped"
+        if phase == "relative"
+        else "phase relative to the transmitter current"
+    )
     fig.suptitle(f"{heading}\nRMS vertical field at the ground; {note}; dots: receivers", fontsize=10)
     return fig
 
@@ -194,7 +228,7 @@ COMPARISON_SPAN_DB = 60.0
 
 
 def ground_classes_along(ds: xr.Dataset, path: int = 0) -> np.ndarray:
-    """"sea", "land" or "perfect" at each range of a path, from the ground conductivity the run used."""
+    """ "sea", "land" or "perfect" at each range of a path, from the ground conductivity the run used."""
     sigma = np.asarray(ds["ground_conductivity"].values, dtype=float).reshape(-1, ds.sizes["range"])[path]
     return np.where(np.isinf(sigma), "perfect", np.where(sigma >= 1.0, "sea", "land"))
 
@@ -212,8 +246,15 @@ def _comparison_limits(curves: list[tuple[np.ndarray, np.ndarray]], near_km: flo
     return lo, hi
 
 
-def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", label_b: str = "B", *,
-                      fits: Sequence[dict] | None = None, title: str | None = None) -> Figure:
+def comparison_figure(
+    ds_a: xr.Dataset,
+    ds_b: xr.Dataset,
+    label_a: str = "A",
+    label_b: str = "B",
+    *,
+    fits: Sequence[dict] | None = None,
+    title: str | None = None,
+) -> Figure:
     """Two results' amplitude against range on one panel per common frequency, receivers marked.
 
     ``fits`` (rows of :func:`attenuation_rows`) adds each fitted line over its window, thin and
@@ -239,8 +280,9 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
     if len(strips) == 1:
         strips = [("ground", strips[0][1], strips[0][2])]
     fig = Figure(figsize=(9.5, 1.4 + (4.4 + 0.3 * len(strips)) * len(freqs)), layout="constrained")
-    axes = fig.subplots(2 * len(freqs), 1, squeeze=False,
-                        gridspec_kw={"height_ratios": [12, 0.8 * len(strips)] * len(freqs)})[:, 0]
+    axes = fig.subplots(
+        2 * len(freqs), 1, squeeze=False, gridspec_kw={"height_ratios": [12, 0.8 * len(strips)] * len(freqs)}
+    )[:, 0]
     for n, f in enumerate(freqs):
         ax, ax_g = axes[2 * n], axes[2 * n + 1]
         ax_g.sharex(ax)
@@ -253,8 +295,14 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
             for p, path_label in enumerate(labels):
                 ok = _finite_span(r, amp[p, k])
                 text = label if len(labels) == 1 else f"{label}, {path_label}"
-                ax.plot(r[ok], amp[p, k][ok], color=colour, linestyle=PATH_STYLES[p % len(PATH_STYLES)],
-                        linewidth=1.2, label=text)
+                ax.plot(
+                    r[ok],
+                    amp[p, k][ok],
+                    color=colour,
+                    linestyle=PATH_STYLES[p % len(PATH_STYLES)],
+                    linewidth=1.2,
+                    label=text,
+                )
                 curves.append((r[ok], amp[p, k][ok], colour))
             names = receiver_names(ds)
             rx_d = np.asarray(ds["receiver_range"].values, dtype=float).reshape(len(names))
@@ -266,10 +314,16 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
             fit = row["fit"]
             colour = RUN_COLOURS[0] if row["run"] == label_a else RUN_COLOURS[1]
             d = np.linspace(fit.start_km, fit.stop_km, 50)
-            rough = (f" (rough: residual {fit.rms_residual_db:.1f} dB, modal interference)"
-                     if fit_caveat(fit) else "")
-            ax.plot(d, fit.line_db(d), color=colour, linestyle=(0, (4, 2)), linewidth=0.9, alpha=0.9,
-                    label=f"fit {row['run']}: {fit.rate_db_per_1000km:.2f} dB/1000 km{rough}")
+            rough = f" (rough: residual {fit.rms_residual_db:.1f} dB, modal interference)" if fit_caveat(fit) else ""
+            ax.plot(
+                d,
+                fit.line_db(d),
+                color=colour,
+                linestyle=(0, (4, 2)),
+                linewidth=0.9,
+                alpha=0.9,
+                label=f"fit {row['run']}: {fit.rate_db_per_1000km:.2f} dB/1000 km{rough}",
+            )
         limits = _comparison_limits([(c[0], c[1]) for c in curves], near_field_km(f))
         if limits:
             ax.set_ylim(*limits)
@@ -281,8 +335,14 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
                 for i0, i1 in zip(edges[::2], edges[1::2]):
                     j = i0 + int(np.argmin(a_c[i0:i1]))
                     ax.plot([r_c[j]], [limits[0]], marker="v", color=colour, markersize=7, clip_on=False, zorder=5)
-                    ax.annotate(f"null {a_c[j]:.0f} dB", xy=(r_c[j], limits[0]), xytext=(4, 4),
-                                textcoords="offset points", fontsize=7, color=colour)
+                    ax.annotate(
+                        f"null {a_c[j]:.0f} dB",
+                        xy=(r_c[j], limits[0]),
+                        xytext=(4, 4),
+                        textcoords="offset points",
+                        fontsize=7,
+                        color=colour,
+                    )
         ax.set_xlim(0.0, max(float(np.nanmax(ds_a["range"].values)), float(np.nanmax(ds_b["range"].values))))
         ax.set_ylabel("Ez (dB re 1 uV/m, RMS)")
         ax.set_title(f"{f:g} kHz", fontsize=10)
@@ -300,11 +360,20 @@ def comparison_figure(ds_a: xr.Dataset, ds_b: xr.Dataset, label_a: str = "A", la
         ax_g.set_yticks(np.arange(len(strips)) + 0.45, [name for name, _, _ in strips], fontsize=7)
         ax_g.set_xlabel("Ground range from the transmitter (km)")
         present = [k for k, _ in GROUND_STRIP if any((c == k).any() for _, _, c in strips)]
-        ax_g.legend(handles=[Patch(color=colours[k], label=k) for k in present], fontsize=7, ncol=len(present),
-                    loc="center left", bbox_to_anchor=(1.0, 0.5), frameon=False)
+        ax_g.legend(
+            handles=[Patch(color=colours[k], label=k) for k in present],
+            fontsize=7,
+            ncol=len(present),
+            loc="center left",
+            bbox_to_anchor=(1.0, 0.5),
+            frameon=False,
+        )
     heading = title if title is not None else comparison_title(ds_a, ds_b, label_a, label_b)
-    fig.suptitle(f"{heading}\nRMS vertical field at the ground; dots: receivers; "
-                 "fits: spreading removed, loss per 1000 km; strip: ground along the path", fontsize=10)
+    fig.suptitle(
+        f"{heading}\nRMS vertical field at the ground; dots: receivers; "
+        "fits: spreading removed, loss per 1000 km; strip: ground along the path",
+        fontsize=10,
+    )
     return fig
 
 
@@ -320,15 +389,30 @@ def common_amplitude_limits(datasets: Sequence[xr.Dataset]) -> tuple[float, floa
     return _comparison_limits(curves, near)
 
 
-def plot_result(ds: xr.Dataset, output, *, phase: str = "relative", dpi: int = 150,
-                amplitude_limits: tuple[float, float] | None = None) -> Path:
+def plot_result(
+    ds: xr.Dataset,
+    output,
+    *,
+    phase: str = "relative",
+    dpi: int = 150,
+    amplitude_limits: tuple[float, float] | None = None,
+) -> Path:
     """Draw :func:`result_figure` and write it (PNG or PDF, atomically); returns the path."""
     check_figure_output(output)
     return save_figure(result_figure(ds, phase=phase, amplitude_limits=amplitude_limits), output, dpi=dpi)
 
 
-def plot_comparison(ds_a: xr.Dataset, ds_b: xr.Dataset, output, label_a: str = "A", label_b: str = "B", *,
-                    start_km: float | None = None, stop_km: float | None = None, dpi: int = 150) -> Path:
+def plot_comparison(
+    ds_a: xr.Dataset,
+    ds_b: xr.Dataset,
+    output,
+    label_a: str = "A",
+    label_b: str = "B",
+    *,
+    start_km: float | None = None,
+    stop_km: float | None = None,
+    dpi: int = 150,
+) -> Path:
     """Draw :func:`comparison_figure` with the attenuation fits and write it; returns the path."""
     check_figure_output(output)
     freqs = common_frequencies(ds_a, ds_b, label_a, label_b)

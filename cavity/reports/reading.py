@@ -54,7 +54,7 @@ def frequencies_khz(ds: xr.Dataset) -> np.ndarray:
 
 
 def frequency_text(freqs_khz) -> str:
-    """"16 kHz" or "16, 27.6 kHz": a frequency set for messages."""
+    """ "16 kHz" or "16, 27.6 kHz": a frequency set for messages."""
     values = [f"{float(f):g}" for f in np.atleast_1d(freqs_khz)]
     return f"{', '.join(values) or 'none'} kHz"
 

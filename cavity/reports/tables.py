@@ -70,7 +70,7 @@ def _preset_daylight(name) -> str:
 
 
 def receiver_daylight(ds: xr.Dataset) -> list[str]:
-    """"day", "night", "transition" or "-" for each receiver of a result.
+    """ "day", "night", "transition" or "-" for each receiver of a result.
 
     From the solar zenith angle along the receiver's path at its range when the file holds one
     (ionosphere form "utc"), classified by :func:`profiles.daynight.daylight_class` (day for
@@ -162,22 +162,36 @@ def receiver_rows(
     n = len(names)
     freqs = frequencies_khz(ds)
     ranges = np.asarray(ds["receiver_range"].values, dtype=float).reshape(n)
-    bearings = (np.asarray(ds["receiver_bearing"].values, dtype=float).reshape(n)
-                if "receiver_bearing" in ds else np.full(n, np.nan))
+    bearings = (
+        np.asarray(ds["receiver_bearing"].values, dtype=float).reshape(n)
+        if "receiver_bearing" in ds
+        else np.full(n, np.nan)
+    )
     ez = np.asarray(ds["receiver_ez_amplitude"].transpose("receiver", "frequency").values, dtype=float)
     phase = np.asarray(ds["receiver_ez_phase"].transpose("receiver", "frequency").values, dtype=float)
-    b = (np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
-         if "receiver_b_amplitude" in ds else np.full((n, freqs.size), np.nan))
+    b = (
+        np.asarray(ds["receiver_b_amplitude"].transpose("receiver", "frequency").values, dtype=float)
+        if "receiver_b_amplitude" in ds
+        else np.full((n, freqs.size), np.nan)
+    )
     # with a geomagnetic field: the other horizontal B component and the azimuthal E at the ground
-    extra = {key: np.asarray(ds[name].transpose("receiver", "frequency").values, dtype=float)
-             for key, name in (("b_radial_db", "receiver_b_radial_amplitude"), ("ephi_db", "receiver_ephi_amplitude"))
-             if name in ds}
-    unc = (np.asarray(ds["receiver_ez_uncertainty"].transpose("receiver", "frequency").values, dtype=float)
-           if "receiver_ez_uncertainty" in ds else None)
+    extra = {
+        key: np.asarray(ds[name].transpose("receiver", "frequency").values, dtype=float)
+        for key, name in (("b_radial_db", "receiver_b_radial_amplitude"), ("ephi_db", "receiver_ephi_amplitude"))
+        if name in ds
+    }
+    unc = (
+        np.asarray(ds["receiver_ez_uncertainty"].transpose("receiver", "frequency").values, dtype=float)
+        if "receiver_ez_uncertainty" in ds
+        else None
+    )
     daylight = receiver_daylight(ds)
     rx_path = receiver_paths(ds)
-    path_bearing = (np.asarray(ds["path_bearing"].values, dtype=float).reshape(-1) if "path_bearing" in ds
-                    else np.full(ds.sizes.get("path", 1), np.nan))
+    path_bearing = (
+        np.asarray(ds["path_bearing"].values, dtype=float).reshape(-1)
+        if "path_bearing" in ds
+        else np.full(ds.sizes.get("path", 1), np.nan)
+    )
     noise_band = None
     if noise_db is not None and bandwidth_hz is not None:  # given together (checked above)
         noise_band = noise_in_bandwidth_db(noise_db, bandwidth_hz)
@@ -212,9 +226,14 @@ def receiver_rows(
     return rows
 
 
-def receiver_columns(rows: Sequence[dict], *, required_db: float | None = None,
-                     noise_db: float | None = None, bandwidth_hz: float | None = None,
-                     bearing: str = "receiver") -> list[Column]:
+def receiver_columns(
+    rows: Sequence[dict],
+    *,
+    required_db: float | None = None,
+    noise_db: float | None = None,
+    bandwidth_hz: float | None = None,
+    bearing: str = "receiver",
+) -> list[Column]:
     """The columns of a receiver table, for the keys present in ``rows``.
 
     ``bearing``: "receiver" (each receiver's own bearing, every row: CSV), "path" (the path's
@@ -276,8 +295,9 @@ def _markdown_escape(text: str) -> str:
     return text.replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
 
 
-def format_table(rows: Sequence[dict], columns: Sequence[Column], fmt: str = "markdown", *,
-                 notes: Sequence[str] = ()) -> str:
+def format_table(
+    rows: Sequence[dict], columns: Sequence[Column], fmt: str = "markdown", *, notes: Sequence[str] = ()
+) -> str:
     """Rows as a Markdown table (notes as paragraphs below it) or as CSV (no notes, one header line).
 
     Markdown rounds for reading (0.1 dB, 0.1 deg, 0.1 km, 4 significant uV/m); CSV keeps more digits
@@ -308,13 +328,20 @@ def format_table(rows: Sequence[dict], columns: Sequence[Column], fmt: str = "ma
     return text
 
 
-def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = None,
-                noise_db: float | None = None, bandwidth_hz: float | None = None) -> list[str]:
+def table_notes(
+    datasets: Sequence[xr.Dataset],
+    *,
+    required_db: float | None = None,
+    noise_db: float | None = None,
+    bandwidth_hz: float | None = None,
+) -> list[str]:
     """The lines printed under a Markdown receiver table: definitions used, then the cautions."""
     notes = []
     if required_db is not None:
-        notes.append(f"Margin = Ez - {required_db:g} dB re 1 uV/m (the required field); "
-                     f"{SHORT_FLAG} marks a negative margin: the field falls short of the required level.")
+        notes.append(
+            f"Margin = Ez - {required_db:g} dB re 1 uV/m (the required field); "
+            f"{SHORT_FLAG} marks a negative margin: the field falls short of the required level."
+        )
     if noise_db is not None and bandwidth_hz is not None:
         band = noise_in_bandwidth_db(noise_db, bandwidth_hz)
         notes.append(
@@ -323,9 +350,11 @@ def table_notes(datasets: Sequence[xr.Dataset], *, required_db: float | None = N
         )
     notes.append(f"Fields are RMS at the ground; {PHASE_DEFINITION}.")
     if any("receiver_ez_uncertainty" in ds for ds in datasets):
-        notes.append("+- is the numerical uncertainty of Ez (grid convergence index from a companion solve on a "
-                     "1.5 times coarser grid); empty when it was not computed. It does not cover the "
-                     "uncertainty of the ionosphere and ground given.")
+        notes.append(
+            "+- is the numerical uncertainty of Ez (grid convergence index from a companion solve on a "
+            "1.5 times coarser grid); empty when it was not computed. It does not cover the "
+            "uncertainty of the ionosphere and ground given."
+        )
     cautions = list(dict.fromkeys(attr_text(ds.attrs.get("cautions", "")).strip() for ds in datasets))
     cautions = [c for c in cautions if c]
     if cautions:
@@ -371,8 +400,10 @@ def run_header(ds: xr.Dataset) -> str:
     tx = doc.get("transmitter", {}) if isinstance(doc.get("transmitter"), dict) else {}
     ion = doc.get("ionosphere", {}) if isinstance(doc.get("ionosphere"), dict) else {}
     power = tx.get("radiated_power_kw")
-    parts = [f"{tx.get('name', attr_text(ds.attrs.get('title', 'cavity result')))}, {frequency_text(frequencies_khz(ds))}"
-             + (f", {float(power):g} kW radiated" if power is not None else "")]
+    parts = [
+        f"{tx.get('name', attr_text(ds.attrs.get('title', 'cavity result')))}, {frequency_text(frequencies_khz(ds))}"
+        + (f", {float(power):g} kW radiated" if power is not None else "")
+    ]
     parts.append(f"ionosphere {_ionosphere_text(ion)}")
     if "utc" in ion:
         utc = ion["utc"]
@@ -396,9 +427,15 @@ def _group_by_path(rows: list[dict]) -> list[dict]:
     return out
 
 
-def receiver_table(datasets: Sequence[xr.Dataset] | xr.Dataset, fmt: str = "markdown", *,
-                   runs: Sequence[str] | None = None, required_db: float | None = None,
-                   noise_db: float | None = None, bandwidth_hz: float | None = None) -> str:
+def receiver_table(
+    datasets: Sequence[xr.Dataset] | xr.Dataset,
+    fmt: str = "markdown",
+    *,
+    runs: Sequence[str] | None = None,
+    required_db: float | None = None,
+    noise_db: float | None = None,
+    bandwidth_hz: float | None = None,
+) -> str:
     """The receiver table of one or more results as Markdown (with notes and cautions) or CSV.
 
     Markdown opens with one line per run naming transmitter, frequency, power, ionosphere and time
@@ -436,8 +473,11 @@ def receiver_table(datasets: Sequence[xr.Dataset] | xr.Dataset, fmt: str = "mark
     paths_per_run = {(r.get("run"), r["path"]) for r in rows}
     if len(bearings) == 1 and len(paths_per_run) == len({r.get("run") for r in rows}):
         (only,) = bearings
-        heads.append(f"Every receiver on one path, bearing {only:.1f} deg." if only is not None
-                     else "Receivers given by range only (the path serves every bearing).")
+        heads.append(
+            f"Every receiver on one path, bearing {only:.1f} deg."
+            if only is not None
+            else "Receivers given by range only (the path serves every bearing)."
+        )
         columns = receiver_columns(rows, bearing="none", **kwargs)
     else:
         rows = _group_by_path(rows)
