@@ -619,6 +619,7 @@ def test_cli_bad_inputs_are_one_line_and_exit_1(tmp_path, write_scenario):
     cases = [
         (["--bearing-step", "7"], "bearing_step_deg = 7 does not divide 360"),
         (["--range-km", "20000"], "range_km = 20000.0 is outside the allowed range 50 to 10000 km"),
+        (["--refine-to", "20"], "refine_to_deg = 20.0 is outside the allowed range 0.125 to 10 deg"),
         (["--noise", "10"], "noise and bandwidth go together"),
         (["--sector-deg", "50", "--required", "40"], "sector_deg = 50.0 must divide 360"),
     ]
