@@ -24,9 +24,17 @@ from typing import NamedTuple
 # slower under load). Set before numba starts its threading layer; a user's own setting wins.
 os.environ.setdefault("OMP_WAIT_POLICY", "PASSIVE")
 
+import llvmlite.binding as _llvm  # noqa: E402
 import numba as nb  # noqa: E402
 import numpy as np
 from numba import prange  # noqa: E402
+
+# The compiler vectorises a loop over arrays it cannot prove distinct only behind run-time overlap
+# checks, and gives up beyond 128 of them (LLVM's vectorize-memory-check-threshold). The magnetised
+# update of :func:`step_e_mag` reads 21 coefficient rows and nine field rows and writes six, which
+# needs a few hundred checks: once per column of 100-200 rows, they cost far less than the scalar
+# loop they replace (measured 1.8x faster). Process-wide, before the first kernel is compiled.
+_llvm.set_option("", "-vectorize-memory-check-threshold=1024")
 
 _OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
 #: Field values below this are set to zero. Waves decay exponentially into the dense plasma and the
