@@ -122,6 +122,57 @@ class Dft(NamedTuple):
     sin: np.ndarray
 
 
+# Groups of the six-component kernels (geomagnetic field); Fields, Absorber, GroundMemory and Dft serve
+# them too: Fields.jz/jr hold the scaled currents uz/ur there, one Absorber per stretched derivative.
+
+
+class FieldsTE(NamedTuple):
+    """The TE set stepped in place with the geomagnetic field: Ephi, Hr, Hz and the scaled azimuthal
+    current u_phi (float32)."""
+
+    ephi: np.ndarray  # (nr, nz + 1)
+    hr: np.ndarray  # (nr, nz)
+    hz: np.ndarray  # (nr, nz + 1)
+    jphi: np.ndarray  # (nr, nz - jp0)
+
+
+class HCurlTE(NamedTuple):
+    """Faraday's-law coefficients of the TE set: 1/dz, dt/mu0, the radial operator of r Ephi per
+    column, (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr) = qp[i] E_{i+1} - qm[i] E_i, and the ground
+    row's (ha, hb) per column."""
+
+    inv_dz: float
+    ch: float
+    qp: np.ndarray  # (nr,)
+    qm: np.ndarray  # (nr,)
+    ha: np.ndarray  # (nr,)
+    hb: np.ndarray  # (nr,)
+
+
+class ECurlMag(NamedTuple):
+    """Ampere's-law coefficients of the six-component scheme (second-order Yee): (1/r) d(r H_phi)/dr
+    at column i = rp[i] H[i] - rm[i] H[i-1], 1/dr and 1/dz, dt/eps per row, first plasma row."""
+
+    rp: np.ndarray  # (nr,)
+    rm: np.ndarray  # (nr,)
+    inv_dr: float
+    inv_dz: float
+    cez: np.ndarray  # (nz,)
+    cer: np.ndarray  # (nz + 1,)
+    jp0: int
+
+
+class Magnetoplasma(NamedTuple):
+    """The triples' trapezoidal update (:func:`step_e_mag`): coefficients per key (key, 21, plasma
+    row), key of the triple anchored at each Ez column for this step's pairing, the pairing (+1: Er
+    after Ez, -1: before) and the square roots of the volume weights (3, nr)."""
+
+    coef: np.ndarray
+    tab: np.ndarray  # (nr,) int32
+    shift: int
+    wsq: np.ndarray
+
+
 @nb.njit(parallel=True, **_OPTS)
 def max_abs(a):
     """Largest |a| and its flat index (NaN propagates as the largest)."""
@@ -470,11 +521,15 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
 
 
 @nb.njit(**_OPTS)
-def last_active_column_te(start, ephi, hr, hz, jphi, psi_hr, psi_pz, sib_psi_r, ir0, psi_hz, psi_pr):
-    """:func:`last_active_column` for the arrays of the TE set and the azimuthal plasma current."""
+def last_active_column_te(start, te, ground, top_h, top_e, far_h, far_e):
+    """:func:`last_active_column` for the arrays of the TE set and the azimuthal plasma current, with
+    the memories of its ground row (``ground.psi``) and absorbers (``top_h.psi`` of dEphi/dz for Hr,
+    ``top_e.psi`` of dHr/dz for Ephi, ``far_h.psi``/``far_e.psi`` of the radial operators)."""
+    ephi, hr, hz, jphi = te.ephi, te.hr, te.hz, te.jphi
+    sib_psi, psi_hr, psi_pz, ir0, psi_hz, psi_pr = ground.psi, top_h.psi, top_e.psi, far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
         if (_any_nonzero(ephi[i]) or _any_nonzero(hr[i]) or _any_nonzero(hz[i]) or _any_nonzero(jphi[i])
-                or _any_nonzero(psi_hr[i]) or _any_nonzero(psi_pz[i]) or _any_nonzero(sib_psi_r[i])):
+                or _any_nonzero(psi_hr[i]) or _any_nonzero(psi_pz[i]) or _any_nonzero(sib_psi[i])):
             return i
         if i >= ir0 and (_any_nonzero(psi_hz[i - ir0]) or _any_nonzero(psi_pr[i - ir0])):
             return i
@@ -482,9 +537,7 @@ def last_active_column_te(start, ephi, hr, hz, jphi, psi_hr, psi_pz, sib_psi_r, 
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
-              jz0, b_zh, c_zh, kd_zh, psi_hr, ir0, b_rh, c_rh, kd_rh, psi_hz,
-              acc_re, acc_im, cos_h, sin_h, n_cols):
+def step_h_te(te, curl, ground, top, far, dft, n_cols):
     """H half-step of the TE set: mu0 dHr/dt = dEphi/dz, mu0 dHz/dt = -(1/r) d(r Ephi)/dr.
 
     Ground row of Hr (z = dz/2) with the impedance ground: Ephi(0) = +Zs Hr (Leontovich,
@@ -495,6 +548,12 @@ def step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
     :func:`step_h`: the top layer on dEphi/dz (Hr rows >= jz0), the far-end layer on the radial
     operator of Hz (columns >= ir0). DFT of Hr at the ground row.
     """
+    hr, hz, ephi = te.hr, te.hz, te.ephi
+    inv_dz, ch, qp, qm, ha, hb = curl.inv_dz, curl.ch, curl.qp, curl.qm, curl.ha, curl.hb
+    sib_q, sib_w, sib_psi = ground.q, ground.w, ground.psi
+    jz0, b_zh, c_zh, kd_zh, psi_hr = top.start, top.b, top.c, top.kd, top.psi
+    ir0, b_rh, c_rh, kd_rh, psi_hz = far.start, far.b, far.c, far.kd, far.psi
+    acc_re, acc_im, cos_h, sin_h = dft.acc_re, dft.acc_im, dft.cos, dft.sin
     nr, nz = hr.shape
     nk = sib_q.shape[0]
     n_top = psi_hr.shape[1]
@@ -577,9 +636,7 @@ def _flush(v):
 
 
 @nb.njit(parallel=True, **_OPTS)
-def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, coef, tab, shift, wsq, uz, ur, up,
-               jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz, ir0, b_re, c_re, kd_re, psi_re, psi_pr,
-               src, acc_re, acc_im, cos_e, sin_e, n_cols, scratch):
+def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n_cols, scratch):
     """E half-step of the six-component scheme with the magnetised plasma current.
 
     Ampere's law for Ez, Er (as :func:`step_e`) and eps dEphi/dt = dHr/dz - dHz/dr - Jphi. In the
@@ -602,7 +659,19 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
     the ground-row DFT of Ez. Curls are gathered per column first
     and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it;
     ``scratch`` (3, nr, nz) float32 holds the curls (no allocation in the loop).
+
+    Groups: ``fields`` (Ez, Er, H_phi and the scaled currents uz, ur in its jz, jr), ``te`` (Ephi,
+    Hr, Hz, u_phi), ``curl`` (:class:`ECurlMag`), ``plasma`` (:class:`Magnetoplasma`), the top
+    layer's memories of dH_phi/dz for Er (``top_r``) and of dHr/dz for Ephi (``top_p``), the far
+    layer's of the radial operators for Ez (``far_z``) and Ephi (``far_p``).
     """
+    ez, er, hp, uz, ur = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
+    ephi, hr, hz, up = te.ephi, te.hr, te.hz, te.jphi
+    rp, rm, inv_dr, inv_dz, cez, cer, jp0 = curl.rp, curl.rm, curl.inv_dr, curl.inv_dz, curl.cez, curl.cer, curl.jp0
+    coef, tab, shift, wsq = plasma.coef, plasma.tab, plasma.shift, plasma.wsq
+    jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz = top_r.start, top_r.b, top_r.c, top_r.kd, top_r.psi, top_p.psi
+    ir0, b_re, c_re, kd_re, psi_re, psi_pr = far_z.start, far_z.b, far_z.c, far_z.kd, far_z.psi, far_p.psi
+    acc_re, acc_im, cos_e, sin_e = dft.acc_re, dft.acc_im, dft.cos, dft.sin
     nr, nz = ez.shape
     n = nz - jp0
     n_top = psi_ze.shape[1]
@@ -750,9 +819,14 @@ def step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, 
 
 
 @nb.njit(**_OPTS)
-def step_er_alone(er, hp, inv_dz, cer, jp0, coef, t, wsq, ur, jz0, b_ze, c_ze, kd_ze, psi_ze, col):
+def step_er_alone(fields, curl, plasma, t, top_r, col):
     """The Er column that no triple holds this step (the last one when ``shift`` = -1): its own
-    update with its radial current alone (``coef[t]`` built with Ez and Ephi absent)."""
+    update with its radial current alone (``plasma.coef[t]`` built with Ez and Ephi absent). Groups
+    as in :func:`step_e_mag`."""
+    er, hp, ur = fields.er, fields.hp, fields.jr
+    inv_dz, cer, jp0 = curl.inv_dz, curl.cer, curl.jp0
+    coef, wsq = plasma.coef, plasma.wsq
+    jz0, b_ze, c_ze, kd_ze, psi_ze = top_r.start, top_r.b, top_r.c, top_r.kd, top_r.psi
     nz = er.shape[1] - 1
     zero = np.float32(0.0)
     h = hp[col]
