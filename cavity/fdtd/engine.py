@@ -425,7 +425,6 @@ class Simulation:
         self.ephi = np.zeros((nr, nz + 1), f32)
         self.hr = np.zeros((nr, nz), f32)
         self.hz = np.zeros((nr, nz + 1), f32)
-        self.scratch = np.zeros((3, nr, nz), f32)  # curls of step_e_mag
         n_pl = nz - self.jp0
         self.jphi = np.zeros((nr, n_pl), f32)
         # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
@@ -633,7 +632,7 @@ class Simulation:
                 # triples alternate between the Er node after and before each Ez node (kernels.step_e_mag)
                 shift = 1 if step % 2 == 0 else -1
                 K.step_e_mag(fields, te, curl_mag, pairing[shift], top_er, top_ep, far_ez, far_ep, src_kick,
-                             K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols, self.scratch)
+                             K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
                 if shift < 0 and n_cols >= nr:
                     K.step_er_alone(fields, curl_mag, pairing[shift], self.t_left, top_er, nr - 1)
             else:

@@ -635,8 +635,12 @@ def _flush(v):
     return v if abs(v) > TINY else np.float32(0.0)
 
 
+#: Columns per parallel work item of :func:`step_e_mag` (one curl buffer each).
+MAG_CHUNK = 16
+
+
 @nb.njit(parallel=True, **_OPTS)
-def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n_cols, scratch):
+def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n_cols):
     """E half-step of the six-component scheme with the magnetised plasma current.
 
     Ampere's law for Ez, Er (as :func:`step_e`) and eps dEphi/dt = dHr/dz - dHz/dr - Jphi. In the
@@ -656,9 +660,10 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
     Absorbers (Roden and Gedney 2000) stretch the curls before the update: the top layer the
     z derivatives of Er and Ephi, the far-end layer the radial operators of Ez and Ephi.
     Finally ``ez[0, :len(src)] -= src`` (current elements in the axis cells from the ground up) and
-    the ground-row DFT of Ez. Curls are gathered per column first
-    and the triple loop runs branch-free over contiguous rows so that the compiler can vectorise it;
-    ``scratch`` (3, nr, nz) float32 holds the curls (no allocation in the loop).
+    the ground-row DFT of Ez. Curls are gathered per column first and the triple loop runs
+    branch-free over contiguous rows so that the compiler can vectorise it. Columns are shared out
+    in blocks of :data:`MAG_CHUNK`, each block with one small curl buffer that never leaves the
+    cache (a whole-grid buffer cost about a tenth of the step in memory traffic).
 
     Groups: ``fields`` (Ez, Er, H_phi and the scaled currents uz, ur in its jz, jr), ``te`` (Ephi,
     Hr, Hz, u_phi), ``curl`` (:class:`ECurlMag`), ``plasma`` (:class:`Magnetoplasma`), the top
@@ -678,144 +683,148 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
     nf = acc_re.shape[0]
     zero = np.float32(0.0)
     half = np.float32(0.5)
-    for i in prange(n_cols):
-        ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
-        a = rp[i]
-        b = rm[i]
-        im = i - 1 if i > 0 else 0
-        h = hp[i]
-        hm = hp[im]
-        far = i >= ir0
-        kk = i - ir0
-        # curls of every row (vacuum and plasma), stretched in the absorbers
-        cz = scratch[0, i]
-        cp = scratch[1, i]
-        cr = scratch[2, i]
-        for j in range(nz):
-            cz[j] = a * h[j] - b * hm[j]
-            cp[j] = zero
-            cr[j] = zero
-        if far:
+    n_chunks = (n_cols + MAG_CHUNK - 1) // MAG_CHUNK
+    for blk in prange(n_chunks):
+        # the curls of one column at a time, in a buffer that stays in the first-level cache
+        curls = np.empty((3, nz), np.float32)
+        for i in range(blk * MAG_CHUNK, min(n_cols, (blk + 1) * MAG_CHUNK)):
+            ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
+            a = rp[i]
+            b = rm[i]
+            im = i - 1 if i > 0 else 0
+            h = hp[i]
+            hm = hp[im]
+            far = i >= ir0
+            kk = i - ir0
+            # curls of every row (vacuum and plasma), stretched in the absorbers
+            cz = curls[0]
+            cp = curls[1]
+            cr = curls[2]
             for j in range(nz):
-                p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz[j]
-                psi_re[kk, j] = p
-                cz[j] = cz[j] + kd_re[kk] * cz[j] + p
-        if i > 0:
-            g_r = hr[i]
-            g_z = hz[i]
-            g_zm = hz[i - 1]
-            for j in range(1, nz):
-                cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (g_z[j] - g_zm[j]) * inv_dr
-            for k in range(n_top):
-                j = jz0 + k
-                d = (g_r[j] - g_r[j - 1]) * inv_dz
-                p = b_ze[k] * psi_pz[i, k] + c_ze[k] * d
-                psi_pz[i, k] = p
-                cp[j] += kd_ze[k] * d + p
+                cz[j] = a * h[j] - b * hm[j]
+                cp[j] = zero
+                cr[j] = zero
             if far:
+                for j in range(nz):
+                    p = b_re[kk] * psi_re[kk, j] + c_re[kk] * cz[j]
+                    psi_re[kk, j] = p
+                    cz[j] = cz[j] + kd_re[kk] * cz[j] + p
+            if i > 0:
+                g_r = hr[i]
+                g_z = hz[i]
+                g_zm = hz[i - 1]
                 for j in range(1, nz):
-                    d = -(g_z[j] - g_zm[j]) * inv_dr
-                    p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * d
-                    psi_pr[kk, j] = p
-                    cp[j] += kd_re[kk] * d + p
-        if ie >= 0:
-            he = hp[ie]
-            for j in range(1, nz):
-                cr[j] = -(he[j] - he[j - 1]) * inv_dz
-            for k in range(n_top):
-                j = jz0 + k
-                d = cr[j]
-                p = b_ze[k] * psi_ze[ie, k] + c_ze[k] * d
-                psi_ze[ie, k] = p
-                cr[j] += kd_ze[k] * d + p
-        # vacuum rows
-        e_z = ez[i]
-        for j in range(jp0):
-            e_z[j] += cez[j] * cz[j]
-        if i > 0:
-            e_p = ephi[i]
-            for j in range(1, jp0):
-                e_p[j] += cer[j] * cp[j]
-        if ie >= 0:
-            e_r = er[ie]
-            for j in range(1, jp0):
-                e_r[j] += cer[j] * cr[j]
-        # plasma rows: one triple per row
-        t = tab[i]
-        q = coef[t]
-        if i > 0 and ie >= 0:
-            sz, sr, sp = wsq[0, i], wsq[1, ie], wsq[2, i]
-            iz, ir_, ip = np.float32(1.0) / sz, np.float32(1.0) / sr, np.float32(1.0) / sp
-            xz_ = ez[i, jp0:]
-            xr_ = er[ie, jp0:]
-            xp_ = ephi[i, jp0:]
-            wz = uz[i]
-            wr = ur[ie]
-            wp = up[i]
-            ccz = cz[jp0:]
-            ccr = cr[jp0:]
-            ccp = cp[jp0:]
-            ez_c = cez[jp0:]
-            er_c = cer[jp0:]
-            for k in range(n):
-                e_zo = xz_[k]
-                e_ro = xr_[k]
-                e_po = xp_[k]
-                u_z = wz[k]
-                u_r = wr[k]
-                u_p = wp[k]
-                dz_ = ez_c[k] * ccz[k]
-                dr_ = er_c[k] * ccr[k]
-                dp_ = er_c[k] * ccp[k]
-                vr = sr * u_r
-                vp = sp * u_p
-                vz = sz * u_z
-                yr = sr * (e_ro + half * dr_)
-                yp = sp * (e_po + half * dp_)
-                yz = sz * (e_zo + half * dz_)
-                nr_ = (q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz) * ir_
-                np_ = (q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz) * ip
-                nz_ = (q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz) * iz
-                v1 = e_ro + dr_ - q[18, k] * (nr_ + u_r)
-                v2 = e_po + dp_ - q[19, k] * (np_ + u_p)
-                v3 = e_zo + dz_ - q[20, k] * (nz_ + u_z)
-                xr_[k] = v1 if abs(v1) > TINY else zero
-                xp_[k] = v2 if abs(v2) > TINY else zero
-                xz_[k] = v3 if abs(v3) > TINY else zero
-                wr[k] = nr_ if abs(nr_) > TINY else zero
-                wp[k] = np_ if abs(np_) > TINY else zero
-                wz[k] = nz_ if abs(nz_) > TINY else zero
-        else:
-            # the axis column and the column without an Er partner: absent components are zero
-            one = np.float32(1.0)
-            for k in range(n):
-                j = jp0 + k
-                er_old = zero
-                ur_old = zero
-                sr = one
-                if ie >= 0:
-                    er_old = er[ie, j]
-                    ur_old = ur[ie, k]
-                    sr = wsq[1, ie]
-                sp = wsq[2, i] if i > 0 else one
-                ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
-                    coef, t, k, ez[i, j], er_old, ephi[i, j], cz[j], cr[j], cp[j], uz[i, k], ur_old, up[i, k],
-                    cez[j], cer[j], cer[j], wsq[0, i], sr, sp)
-                ez[i, j] = _flush(ez_new)
-                uz[i, k] = _flush(uz_new)
-                if i > 0:
-                    ephi[i, j] = _flush(ep_new)
-                    up[i, k] = _flush(up_new)
-                if ie >= 0:
-                    er[ie, j] = _flush(er_new)
-                    ur[ie, k] = _flush(ur_new)
-        if i == 0:
-            for j in range(src.shape[0]):
-                ez[0, j] -= src[j]
-        v = np.float64(ez[i, 0])
-        for f in range(nf):
-            acc_re[f, i] += v * cos_e[f]
-            acc_im[f, i] -= v * sin_e[f]
+                    cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (g_z[j] - g_zm[j]) * inv_dr
+                for k in range(n_top):
+                    j = jz0 + k
+                    d = (g_r[j] - g_r[j - 1]) * inv_dz
+                    p = b_ze[k] * psi_pz[i, k] + c_ze[k] * d
+                    psi_pz[i, k] = p
+                    cp[j] += kd_ze[k] * d + p
+                if far:
+                    for j in range(1, nz):
+                        d = -(g_z[j] - g_zm[j]) * inv_dr
+                        p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * d
+                        psi_pr[kk, j] = p
+                        cp[j] += kd_re[kk] * d + p
+            if ie >= 0:
+                he = hp[ie]
+                for j in range(1, nz):
+                    cr[j] = -(he[j] - he[j - 1]) * inv_dz
+                for k in range(n_top):
+                    j = jz0 + k
+                    d = cr[j]
+                    p = b_ze[k] * psi_ze[ie, k] + c_ze[k] * d
+                    psi_ze[ie, k] = p
+                    cr[j] += kd_ze[k] * d + p
+            # vacuum rows
+            e_z = ez[i]
+            for j in range(jp0):
+                e_z[j] += cez[j] * cz[j]
+            if i > 0:
+                e_p = ephi[i]
+                for j in range(1, jp0):
+                    e_p[j] += cer[j] * cp[j]
+            if ie >= 0:
+                e_r = er[ie]
+                for j in range(1, jp0):
+                    e_r[j] += cer[j] * cr[j]
+            # plasma rows: one triple per row
+            t = tab[i]
+            q = coef[t]
+            if i > 0 and ie >= 0:
+                sz, sr, sp = wsq[0, i], wsq[1, ie], wsq[2, i]
+                iz, ir_, ip = np.float32(1.0) / sz, np.float32(1.0) / sr, np.float32(1.0) / sp
+                xz_ = ez[i, jp0:]
+                xr_ = er[ie, jp0:]
+                xp_ = ephi[i, jp0:]
+                wz = uz[i]
+                wr = ur[ie]
+                wp = up[i]
+                ccz = cz[jp0:]
+                ccr = cr[jp0:]
+                ccp = cp[jp0:]
+                ez_c = cez[jp0:]
+                er_c = cer[jp0:]
+                for k in range(n):
+                    e_zo = xz_[k]
+                    e_ro = xr_[k]
+                    e_po = xp_[k]
+                    u_z = wz[k]
+                    u_r = wr[k]
+                    u_p = wp[k]
+                    dz_ = ez_c[k] * ccz[k]
+                    dr_ = er_c[k] * ccr[k]
+                    dp_ = er_c[k] * ccp[k]
+                    vr = sr * u_r
+                    vp = sp * u_p
+                    vz = sz * u_z
+                    yr = sr * (e_ro + half * dr_)
+                    yp = sp * (e_po + half * dp_)
+                    yz = sz * (e_zo + half * dz_)
+                    nr_ = (q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz) * ir_
+                    np_ = (q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz) * ip
+                    nz_ = (q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz) * iz
+                    v1 = e_ro + dr_ - q[18, k] * (nr_ + u_r)
+                    v2 = e_po + dp_ - q[19, k] * (np_ + u_p)
+                    v3 = e_zo + dz_ - q[20, k] * (nz_ + u_z)
+                    xr_[k] = v1 if abs(v1) > TINY else zero
+                    xp_[k] = v2 if abs(v2) > TINY else zero
+                    xz_[k] = v3 if abs(v3) > TINY else zero
+                    wr[k] = nr_ if abs(nr_) > TINY else zero
+                    wp[k] = np_ if abs(np_) > TINY else zero
+                    wz[k] = nz_ if abs(nz_) > TINY else zero
+            else:
+                # the axis column and the column without an Er partner: absent components are zero
+                one = np.float32(1.0)
+                for k in range(n):
+                    j = jp0 + k
+                    er_old = zero
+                    ur_old = zero
+                    sr = one
+                    if ie >= 0:
+                        er_old = er[ie, j]
+                        ur_old = ur[ie, k]
+                        sr = wsq[1, ie]
+                    sp = wsq[2, i] if i > 0 else one
+                    ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
+                        coef, t, k, ez[i, j], er_old, ephi[i, j], cz[j], cr[j], cp[j], uz[i, k], ur_old, up[i, k],
+                        cez[j], cer[j], cer[j], wsq[0, i], sr, sp)
+                    ez[i, j] = _flush(ez_new)
+                    uz[i, k] = _flush(uz_new)
+                    if i > 0:
+                        ephi[i, j] = _flush(ep_new)
+                        up[i, k] = _flush(up_new)
+                    if ie >= 0:
+                        er[ie, j] = _flush(er_new)
+                        ur[ie, k] = _flush(ur_new)
+            if i == 0:
+                for j in range(src.shape[0]):
+                    ez[0, j] -= src[j]
+            v = np.float64(ez[i, 0])
+            for f in range(nf):
+                acc_re[f, i] += v * cos_e[f]
+                acc_im[f, i] -= v * sin_e[f]
 
 
 @nb.njit(**_OPTS)
