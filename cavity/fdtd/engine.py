@@ -264,8 +264,6 @@ class Simulation:
     track_front: bool = True
     #: Isotropic plasma inside the absorbing layers (experiment).
     field_off_in_absorbers: bool = False
-    #: Collision frequency added in the top absorber, in units of the largest gyro frequency (experiment).
-    absorber_collisions: float = 0.0
 
     def __init__(self, medium: Medium, settings: Settings):
         self.medium = medium
@@ -510,11 +508,6 @@ class Simulation:
         gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
         if self.field_off_in_absorbers:
             gyro[:, max(self.jz0 - self.jp0, 0):, :] = 0.0
-        if self.absorber_collisions:
-            k0 = max(self.jz0 - self.jp0, 0)
-            depth = (np.arange(n_pl) - (self.jz0 - self.jp0) + 1.0) / self.plan.pml_z_cells
-            ramp = np.clip(depth, 0.0, 1.0) ** 2 * self.absorber_collisions * self.gyro_max
-            nu = nu + ramp[None, :, None]
         # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
         self.mag_coef = np.ascontiguousarray(
             media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32))
