@@ -110,10 +110,10 @@ REFERENCE_ENGINE_RATES = (0.5e9, 0.7e9)
 REFERENCE_MACHINE = "a 2-core machine like the development one, idle"
 
 
-#: Cost of a run with the geomagnetic field in isotropic cell updates: a step costs 1.7-1.9 times an
-#: isotropic one (processor time, whole 3,000 km night grid, measured interleaved) and the DFTs take
-#: about 1.35 times the steps to settle (17,682 against 13,051 steps on that path).
-MAGNETISED_COST_FACTOR = 2.4
+#: Cost of a run with the geomagnetic field in isotropic cell updates: on the 3,000 km night path at
+#: 20 kHz a step costs 1.5-1.75 times an isotropic one and the DFTs take 1.56 times the steps to
+#: settle (17,682 against 11,367); the whole run 2.7 times the processor time (measured interleaved).
+MAGNETISED_COST_FACTOR = 2.7
 
 
 def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]:
