@@ -225,8 +225,8 @@ def test_last_active_column_te_sees_every_array():
         layer = lambda start, psi: K.Absorber(start, none, none, none.astype(float), psi, np.zeros((0, 0), F32))  # noqa: E731
         return K.last_active_column_te(nr - 1, K.FieldsTE(a["ephi"], a["hr"], a["hz"], a["jphi"]),
                                        K.GroundMemory(np.zeros(3), np.zeros((nr, 3)), a["sib"]),
-                                       layer(nz - nzp, a["psi_hr"]), layer(nz - nzp, a["psi_pz"]),
-                                       layer(ir0, a["psi_hz"]), layer(ir0, a["psi_pr"]))
+                                       layer(nz - nzp, a["psi_hr"]), layer(ir0, a["psi_hz"]),
+                                       layer(nz - nzp, a["psi_pz"]), layer(ir0, a["psi_pr"]))
 
     assert last() == -1
     for name, col in (("hr", 1), ("ephi", 2), ("jphi", 3), ("psi_pz", 4), ("sib", 5), ("hz", 6), ("psi_hz", 9),

@@ -17,7 +17,7 @@ surface-impedance ground (Maloney and Smith 1992).
 from __future__ import annotations
 
 import os
-from typing import NamedTuple
+from typing import Any, NamedTuple
 
 # Idle OpenMP threads sleep instead of spinning: two barriers per time step cost microseconds, while
 # spinning threads steal the cores from working ones whenever the machine is shared (measured 2-4x
@@ -36,7 +36,7 @@ from numba import prange  # noqa: E402
 # loop they replace (measured 1.8x faster). Process-wide, before the first kernel is compiled.
 _llvm.set_option("", "-vectorize-memory-check-threshold=1024")
 
-_OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
+_OPTS: dict[str, Any] = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
 #: Field values below this are set to zero. Waves decay exponentially into the dense plasma and the
 #: absorbers; without a floor they reach float32 subnormals (< 1.2e-38), which the CPU handles
 #: hundreds of times more slowly. Fields per unit source current stay above 1e-20 where they matter.
@@ -62,13 +62,13 @@ class HCurl(NamedTuple):
     """Faraday's-law coefficients: second-order inverse cells (ground row, absorbers), the stencil
     tables (:mod:`cavity.fdtd.stencil`), dt/mu0 and the ground row's (ha, hb) per column."""
 
-    inv_dr: float
-    inv_dz: float
+    inv_dr: np.float32
+    inv_dz: np.float32
     ar1: np.ndarray  # (nr,) dEz/dr = ar1 (Ez[i+1] - Ez[i]) + ar2 (Ez[i+2] - Ez[i-1])
     ar2: np.ndarray  # (nr,)
     kz1: np.ndarray  # (nz,) dEr/dz = kz1 (Er[j+1] - Er[j]) + kz2 (Er[j+2] - Er[j-1])
     kz2: np.ndarray  # (nz,)
-    ch: float
+    ch: np.float32
     ha: np.ndarray  # (nr,)
     hb: np.ndarray  # (nr,)
 
@@ -141,8 +141,8 @@ class HCurlTE(NamedTuple):
     column, (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr) = qp[i] E_{i+1} - qm[i] E_i, and the ground
     row's (ha, hb) per column."""
 
-    inv_dz: float
-    ch: float
+    inv_dz: np.float32
+    ch: np.float32
     qp: np.ndarray  # (nr,)
     qm: np.ndarray  # (nr,)
     ha: np.ndarray  # (nr,)
@@ -155,8 +155,8 @@ class ECurlMag(NamedTuple):
 
     rp: np.ndarray  # (nr,)
     rm: np.ndarray  # (nr,)
-    inv_dr: float
-    inv_dz: float
+    inv_dr: np.float32
+    inv_dz: np.float32
     cez: np.ndarray  # (nz,)
     cer: np.ndarray  # (nz + 1,)
     jp0: int
@@ -209,9 +209,14 @@ def _any_nonzero(row):
 
 
 @nb.njit(**_OPTS)
-def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, psi_rh, psi_re):
+def last_active_column(start, fields, ground, top_h, far_h, top_e, far_e):
     """Last column, searching down from ``start``, that holds any nonzero field, plasma current or
     absorber/ground memory; -1 if none.
+
+    Takes the argument groups of :func:`step_h` and :func:`step_e` (:class:`Fields`,
+    :class:`GroundMemory`, the top and far :class:`Absorber` of each half-step) and searches every
+    array among them that a column carries: Ez, Er, H_phi, jz, jr, the ground memory and the four
+    absorber memories (the far layers' rows start at ``far_h.start``).
 
     Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
     nonzero values at most ``reach`` columns further out: one for the Yee stencil (H at column i
@@ -220,6 +225,9 @@ def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, 
     active one plus ``reach`` times the steps until the next search is therefore exact, and skips
     the still-empty far part of a long path during the first passage of the wave.
     """
+    ez, er, hp, jz, jr = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
+    psi_zh, psi_ze, sib_psi = top_h.psi, top_e.psi, ground.psi
+    ir0, psi_rh, psi_re = far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
         if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
                 or _any_nonzero(jr[i]) or _any_nonzero(psi_zh[i]) or _any_nonzero(psi_ze[i])
@@ -521,7 +529,7 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
 
 
 @nb.njit(**_OPTS)
-def last_active_column_te(start, te, ground, top_h, top_e, far_h, far_e):
+def last_active_column_te(start, te, ground, top_h, far_h, top_e, far_e):
     """:func:`last_active_column` for the arrays of the TE set and the azimuthal plasma current, with
     the memories of its ground row (``ground.psi``) and absorbers (``top_h.psi`` of dEphi/dz for Hr,
     ``top_e.psi`` of dHr/dz for Ephi, ``far_h.psi``/``far_e.psi`` of the radial operators)."""
