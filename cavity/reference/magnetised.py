@@ -541,7 +541,7 @@ class MagnetisedModes:
         when the set is complete.
     continuation : dict
         For each mode started at B0 = 0: (state, field fraction reached), state "ok", "dropped"
-        (too lossy or evanescent), "lost" or "merged" (see :func:`_follow`).
+        (too lossy or evanescent), "lost" or "merged" (see :func:`_continue`).
     """
 
     frequency_hz: float
@@ -694,13 +694,13 @@ def magnetised_modes(
        of starting values (0 < Re C < 0.65). Every mode below ``start_attenuation_db_per_mm`` at
        B0 = 0 is followed.
     2. Continuation in the field strength (the idea of following each mode from a known solution as
-       a parameter changes, as in Morfitt and Shellman 1976): each mode on its own
-       (:func:`_follow`), the field fraction t growing geometrically from 1e-3, a linear predictor in
-       log t and a secant corrector; a step is accepted only when the corrector lands within half
-       the predicted move of the prediction, and is halved otherwise (a root that would jump to a
-       neighbour lands far from the prediction). A mode whose attenuation passes four times the
-       window, or that turns evanescent, is dropped. Two modes that end on one root are followed
-       again with steps an eighth as long; if they still merge, one is kept and stage 4 finds the other.
+       a parameter changes, as in Morfitt and Shellman 1976; :func:`_continue`): the field fraction t
+       grows geometrically from 1e-3, a linear predictor in log t and a secant corrector; a step is
+       accepted only when every corrector lands within a trust radius of its prediction (half the
+       predicted move, at most a third of the distance to the nearest other prediction), and is
+       halved otherwise. A mode whose attenuation passes four times the window, or that turns
+       evanescent, is dropped; one that still fails at the smallest step is given up while the
+       others go on (stages 3 and 4 find it again if it matters).
     3. A search from a lattice of starting values at the full field adds modes with no low-loss
        ancestor at B0 = 0 (they come in from high attenuation as the field grows; origin "F<n>").
     4. Completeness (unless ``n_tm``/``n_te`` limit the set, or ``check_count`` is False): the
@@ -778,15 +778,7 @@ def magnetised_modes(
     status = {}
     if np.linalg.norm(b) > 0.0:
         drop = 4.0 * max(window, max_att)
-        followed = [_follow(guide_at, c, attenuation, drop) for c in roots]
-        # Two modes on one root: follow both again with shorter steps.
-        for i in range(len(followed)):
-            for j in range(i):
-                ci, cj = followed[i][0], followed[j][0]
-                if ci is not None and cj is not None and _same_root(ci, cj):
-                    log.info("continuation: %s and %s merged; following again with shorter steps", names[j], names[i])
-                    followed[j] = _follow(guide_at, roots[j], attenuation, drop, max_step=_LOG_STEP / 8.0)
-                    followed[i] = _follow(guide_at, roots[i], attenuation, drop, max_step=_LOG_STEP / 8.0)
+        followed = _continue(guide_at, roots, attenuation, drop)
         kept_roots, kept_names = [], []
         for (c, state, where), name in zip(followed, names):
             status[name] = (state, where)
@@ -907,56 +899,81 @@ def _lattice_roots(fun, attenuation, max_attenuation):
     return found
 
 
-def _follow(guide_at, c, attenuation, drop_db, max_step=_LOG_STEP):
-    """Follow one root of D(C) = det(I - Rg R) from B0 = 0 to the full field.
+def _continue(guide_at, roots, attenuation, drop_db, max_step=_LOG_STEP):
+    """Follow every root of D(C) = det(I - Rg R) from B0 = 0 to the full field, all on one ladder of t.
 
-    Returns (root or None, state, field fraction reached) with state "ok", "dropped" (attenuation
-    above ``drop_db`` or evanescent: |Re S| small) or "lost" (no acceptable step above
-    :data:`_MIN_LOG_STEP`). The field fraction t grows geometrically from 1e-3 (where the roots are
-    those of B0 = 0 to a few parts in 1e3) to 1: the gyrofrequency passes the wave frequency at a
-    few percent of the geomagnetic field, where the roots move fastest. Predictor: linear in log t
-    from the last two accepted points; corrector: secant iteration on D. A step is accepted when
-    the corrector converges within half the predicted move (at least 2e-4) of the prediction:
-    the predictor's error falls as the square of the step on a smooth path, so halving the step
-    always ends in acceptance unless the root is lost, and a corrector that jumps to a neighbouring
-    root lands far from the prediction.
+    Returns one (root or None, state, field fraction reached) per start, state "ok", "dropped"
+    (attenuation above ``drop_db``, or evanescent: Re S < 0.05) or "lost" (no acceptable step above
+    :data:`_MIN_LOG_STEP`; the others go on without it). The field fraction t grows geometrically
+    from 1e-3 (where the roots are those of B0 = 0 to a few parts in 1e3) to 1: the gyrofrequency
+    passes the wave frequency at a few percent of the geomagnetic field, where the roots move
+    fastest. Predictor: linear in log t from the last two accepted points; corrector: secant
+    iteration on D. A step is accepted when every root's corrector converges within a trust radius
+    of its prediction: half the predicted move (at least 2e-4), and at most a third of the distance
+    from its prediction to the nearest other root's prediction. The predictor's error falls as the
+    square of the step on a smooth path, so halving the step ends in acceptance unless a root is
+    lost; a corrector that jumps to a neighbouring root lands outside the radius. A root still
+    failing at the smallest step is given up (and searched for at the full field by the callers).
     """
+    n = len(roots)
+    result = [(None, "lost", _FIRST_FRACTION)] * n
     log_t = math.log(_FIRST_FRACTION)
-    try:
-        root, ok = _secant(guide_at(_FIRST_FRACTION).det, complex(c), max_move=0.02)
-    except SolverError:
-        ok = False
-    if not ok:
-        return None, "lost", _FIRST_FRACTION
-    history = [(log_t, root)]
-    step = max_step
-    while log_t < -1e-12:
-        new_log_t = min(log_t + step, 0.0)
-        last = history[-1][1]
-        if len(history) >= 2:
-            (la, ca), (lb, cb) = history[-2], history[-1]
-            predicted = cb + (new_log_t - lb) / (lb - la) * (cb - ca)
-        else:
-            predicted = last
-        radius = max(0.5 * abs(predicted - last), 2e-4)
+    guide = guide_at(_FIRST_FRACTION)
+    current = {}
+    for i, c in enumerate(roots):
         try:
-            root, ok = _secant(guide_at(math.exp(new_log_t)).det, predicted, max_move=3.0 * radius)
+            root, ok = _secant(guide.det, complex(c), max_move=0.02)
         except SolverError:
             ok = False
-        if ok and abs(root - predicted) <= radius:
-            log_t = new_log_t
-            history.append((log_t, root))
-            step = min(1.5 * step, max_step)
-            s = _sine(root)
-            if attenuation(root) > drop_db or abs(s.real) < 0.05:
-                log.debug("continuation: C = %.6g dropped at t = %.4f", root, math.exp(log_t))
-                return None, "dropped", math.exp(log_t)
+        if ok:
+            current[i] = root
+    history = [(log_t, dict(current))]
+    step = max_step
+    while log_t < -1e-12 and current:
+        new_log_t = min(log_t + step, 0.0)
+        if len(history) >= 2:
+            (la, ra), (lb, rb) = history[-2], history[-1]
+            w = (new_log_t - lb) / (lb - la)
+            predicted = {i: rb[i] + w * (rb[i] - ra[i]) if i in ra else rb[i] for i in current}
         else:
-            step /= 2.0
-            if step < _MIN_LOG_STEP:
-                log.info("continuation: root near C = %.6g lost at t = %.4f", last, math.exp(new_log_t))
-                return None, "lost", math.exp(log_t)
-    return root, "ok", 1.0
+            predicted = dict(current)
+        guide = guide_at(math.exp(new_log_t))
+        new, failed = {}, []
+        for i, p in predicted.items():
+            radius = max(0.5 * abs(p - current[i]), 2e-4)
+            others = [abs(p - q) for j, q in predicted.items() if j != i]
+            if others:
+                radius = min(radius, min(others) / 3.0)
+            try:
+                root, ok = _secant(guide.det, p, max_move=3.0 * radius)
+            except SolverError:
+                ok = False
+            if ok and abs(root - p) <= radius:
+                new[i] = root
+            else:
+                failed.append(i)
+        if not failed:
+            log_t = new_log_t
+            current = new
+            for i, c in list(current.items()):
+                if attenuation(c) > drop_db or _sine(c).real < 0.05:
+                    log.debug("continuation: C = %.6g dropped at t = %.4f", c, math.exp(log_t))
+                    result[i] = (None, "dropped", math.exp(log_t))
+                    del current[i]
+            history.append((log_t, dict(current)))
+            step = min(1.5 * step, max_step)
+            continue
+        step /= 2.0
+        if step < _MIN_LOG_STEP:
+            for i in failed:
+                log.info("continuation: root near C = %.6g lost at t = %.4f", current[i], math.exp(log_t))
+                result[i] = (None, "lost", math.exp(log_t))
+                del current[i]
+            history = [(lt, {i: c for i, c in r.items() if i in current}) for lt, r in history]
+            step = 64.0 * _MIN_LOG_STEP
+    for i, c in current.items():
+        result[i] = (c, "ok", 1.0)
+    return result
 
 
 # --------------------------------------------------------------------------------------------------
