@@ -440,3 +440,29 @@ def test_argument_principle_counts_zeros_under_a_fast_phase():
 
     assert mg._winding(fun, region, 2 * rate) == 2
     assert mg._winding(fun, (0.7, 0.9, -0.02, -1e-6), 2 * rate) == 1
+
+
+@pytest.mark.slow
+def test_mirrored_dip_gives_the_same_modes(night_east_west):
+    # Reciprocity (Budden 1961; the reflection-matrix test above): R(B_r, B_phi, -B_z) =
+    # P R(B_r, B_phi, B_z)^T P, so det(I - Rg R) is unchanged when the vertical component of B0 is
+    # reversed (Rg diagonal): eastward at dip +20 deg (northern hemisphere) has the same modes as
+    # eastward at dip -20 deg (southern). Every mode found at +20 deg must be a root at -20 deg, and
+    # the argument principle must count as many roots there; westward differs.
+    f = 17.3e3
+    z = grid()
+    ne, nu = wait_spies(z, *NIGHT)
+    ms = night_east_west[20.0, "east"]
+    assert ms.counted_modes == ms.found_in_count_region > 3
+    mirrored = mg.field_from_dip_azimuth(FIELD_T, -20.0, 90.0)
+    assert np.allclose(mirrored, ms.b_path_frame_t * [1, 1, -1], atol=1e-18)
+    eps = mg.magnetoionic_permittivity(z, ne, nu, mirrored, f)
+    guide = mg._Guide(mg._profile(z, eps, f), f, SEA, "leontovich")
+    for c in ms.cos_incidence:
+        h = 1e-6 * abs(c)
+        slope = abs(guide.det(c + h) - guide.det(c - h)) / (2 * h)
+        assert abs(guide.det(c)) < 1e-7 * slope * abs(c)  # a root to 1e-7 of C
+    k0 = 2 * math.pi * f / C0
+    assert mg.count_modes(guide, mg._count_region(k0, 20.0)) == ms.found_in_count_region
+    west = night_east_west[20.0, "west"]
+    assert np.abs(np.sort(west.attenuation_db_per_mm)[:3] - np.sort(ms.attenuation_db_per_mm)[:3]).max() > 0.1

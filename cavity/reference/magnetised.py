@@ -705,7 +705,7 @@ def magnetised_modes(
        ancestor at B0 = 0 (they come in from high attenuation as the field grows; origin "F<n>").
     4. Completeness (unless ``n_tm``/``n_te`` limit the set, or ``check_count`` is False): the
        argument principle counts the zeros of the analytic form of the mode equation inside the
-       region of the S = sin(theta) plane where 0.6 <= Re S <= 1.05 and the attenuation lies
+       region of the S = sin(theta) plane where 0.15 <= Re S <= 1.05 and the attenuation lies
        between 0.005 dB/Mm and the window (:func:`count_modes`). If the count exceeds the modes found
        there, the region is bisected (counting again in each part) until every missing root is
        isolated and found by Newton's method (origin "A<n>"). The count and the number found are
@@ -981,9 +981,9 @@ def _continue(guide_at, roots, attenuation, drop_db, max_step=_LOG_STEP):
 # --------------------------------------------------------------------------------------------------
 
 
-#: Edges of the counting region: Re S from 0.6 to 1.05 (phase velocities 0.95-1.7 c) and attenuation
+#: Edges of the counting region: Re S from 0.15 to 1.05 (phase velocities 0.95-6.7 c: up to near cutoff) and attenuation
 #: from this value (dB/Mm) to the window.
-_COUNT_RE_S = (0.6, 1.05)
+_COUNT_RE_S = (0.15, 1.05)
 _COUNT_MIN_DB_PER_MM = 0.005
 
 
