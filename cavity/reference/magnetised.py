@@ -44,7 +44,12 @@ isotropic reference's ground; Zs from :func:`cavity.reference.dipole.surface_imp
 Delta = Zs / eta0): Rg = diag((C - Delta) / (C + Delta), (C Delta - 1) / (C Delta + 1)); or the
 exact Fresnel coefficients of the homogeneous ground.
 
-Modes. det(I - Rg R) = 0 (Budden 1962). Field of a vertical element on the ground, derived from the
+Modes. det(I - Rg R) = 0 (Budden 1962), followed from B0 = 0 as the field is turned on (a
+predictor-corrector continuation with trust radii, the mode-following idea of Morfitt and Shellman
+1976) and completed and checked by the argument principle: the zeros of the analytic form
+det(u - Rg d) inside a region of the S plane are counted from the turns of its phase along the
+region's edge (Delves and Lyness 1967), and any root the continuation missed is found by bisecting the region
+(:func:`magnetised_modes`). Field of a vertical element on the ground, derived from the
 Sommerfeld representation of the source, the plane-wave recursion u = (I - Rg R)^-1 (I + Rg) s,
 d = R u, s = (1, 0), and the residues in the lower half of the horizontal-wavenumber plane:
 
@@ -72,6 +77,11 @@ Clemmow, P. C., and Heading, J. (1954), Coupled forms of the differential equati
 radio propagation in the ionosphere, Proc. Camb. Phil. Soc. 50, 319-333.
 Pitteway, M. L. V. (1965), The numerical calculation of wave-fields, reflexion coefficients and
 polarizations for long radio waves in the lower ionosphere, Phil. Trans. R. Soc. A 257, 219-241.
+Delves, L. M., and Lyness, J. N. (1967), A numerical method for locating the zeros of an analytic
+function, Math. Comp. 21, 543-560 (zeros counted by the argument principle; regions subdivided).
+Morfitt, D. G., and Shellman, C. H. (1976), Naval Electronics Laboratory Center Interim Report 77T
+(from memory; mode constants followed as a parameter of the guide changes: only the published
+method is used).
 Richter, J. H. (1966), Radio Science 1(12) (earth flattening).
 Wait, J. R. (1960), J. Res. NBS 64D(2), 153-204 (mode sum between plates).
 """
