@@ -312,8 +312,11 @@ class Simulation:
             self.gamma = radial_dispersion_factor(self.frequencies_hz, dr, dt)
         else:
             self.gamma = stencil.dispersion_factor(self.frequencies_hz, dr, dz, dt, order)
+        edge = None
+        if order == 4 and s.dispersion_correction:
+            edge = stencil.edge_factor(self.frequencies_hz, dr, dz, dt, self.gamma)
         self.stencil = stencil.build(nr, nz, dr, dz, order=order, gamma=self.gamma, ir0=nr - p.pml_r_cells,
-                                     jz0=nz - p.pml_z_cells, radial_gamma_only=(order == 2))
+                                     jz0=nz - p.pml_z_cells, radial_gamma_only=(order == 2), edge_gamma=edge)
         st = self.stencil
         # second-order factors of the ground row and the absorbers (equal to the tables there)
         self.inv_dr, self.inv_dz = f32(st.ar1[-1]), f32(st.kz1[-1])
