@@ -113,8 +113,10 @@ def distance_bearing(lat1, lon1, lat2, lon2, *, ellipsoid: str = ELLIPSOID):
     scalar = all(np.ndim(x) == 0 for x in (lat1, lon1, lat2, lon2))
     lat1, lon1, lat2, lon2 = np.broadcast_arrays(lat1, lon1, lat2, lon2)
     az12, _az21, dist = _geod(ellipsoid).inv(
-        np.array(lon1, dtype=float), np.array(lat1, dtype=float),
-        np.array(lon2, dtype=float), np.array(lat2, dtype=float),
+        np.array(lon1, dtype=float),
+        np.array(lat1, dtype=float),
+        np.array(lon2, dtype=float),
+        np.array(lat2, dtype=float),
     )
     bearing = np.mod(np.asarray(az12, dtype=float), 360.0)
     bearing = np.where(bearing >= 360.0, 0.0, bearing)  # -1e-17 mod 360 rounds to 360.0
@@ -124,8 +126,7 @@ def distance_bearing(lat1, lon1, lat2, lon2, *, ellipsoid: str = ELLIPSOID):
     return dist, bearing
 
 
-def points_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *,
-                 ellipsoid: str = ELLIPSOID):
+def points_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *, ellipsoid: str = ELLIPSOID):
     """Positions at the given ranges along the geodesic leaving a point at a bearing.
 
     Parameters
@@ -164,8 +165,9 @@ def _direct(lat_deg, lon_deg, bearing_deg, ranges_m, ellipsoid):
     return lons, lats, back, ranges
 
 
-def headings_along(lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *,
-                   ellipsoid: str = ELLIPSOID) -> np.ndarray:
+def headings_along(
+    lat_deg: float, lon_deg: float, bearing_deg: float, ranges_m, *, ellipsoid: str = ELLIPSOID
+) -> np.ndarray:
     """Local direction of travel (degrees clockwise from true north, in [0, 360)) at the given ranges
     along the geodesic leaving a point at a bearing.
 
@@ -232,9 +234,7 @@ def solar_zenith_deg(when_utc: datetime, lat_deg, lon_deg):
         + math.radians(0.020) * math.sin(2.0 * mean_anomaly)
     )
     obliquity = math.radians(23.439 - 0.0000004 * n)
-    right_ascension = math.atan2(
-        math.cos(obliquity) * math.sin(ecliptic_longitude), math.cos(ecliptic_longitude)
-    )
+    right_ascension = math.atan2(math.cos(obliquity) * math.sin(ecliptic_longitude), math.cos(ecliptic_longitude))
     declination = math.asin(math.sin(obliquity) * math.sin(ecliptic_longitude))
     # Greenwich mean sidereal time in hours: n already holds the fraction of the day, so the UT hour
     # plus n's 0.0657098242 h/day drift advance GMST by 1.0027379 h per UT hour; at J2000.0 (n = 0,
@@ -300,9 +300,7 @@ def ground_kind_along(lats, lons) -> np.ndarray:
     lons = np.atleast_1d(wrap_longitude(_check_longitudes(lons, "longitude_deg")))
     lats, lons = np.broadcast_arrays(lats, lons)
     land = is_land(lats, lons)
-    ice = land & (
-        (lats < ANTARCTIC_ICE_LATITUDE_DEG) | _inside_polygon(lats, lons, GREENLAND_POLYGON_DEG)
-    )
+    ice = land & ((lats < ANTARCTIC_ICE_LATITUDE_DEG) | _inside_polygon(lats, lons, GREENLAND_POLYGON_DEG))
     kinds = np.where(land, "land", "sea").astype("<U8")
     kinds[ice] = "ice"
     return kinds

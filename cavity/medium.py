@@ -1,11 +1,11 @@
-"""The medium along a path: the one home of what each ionosphere form puts into a solve.
+"""The medium along a path: what a path hands to the engine.
 
 Two steps, both here: :func:`ionosphere_along` gives the per-sample description a path carries
-(solar zenith angle, Wait-Spies h' and beta, day/night class) for the forms that vary along a path,
-and :func:`path_medium` turns a path into the engine's :class:`~cavity.fdtd.engine.Medium` (ground per
-sample, electron density and collision frequency per sample and altitude, or a ceiling). A new
-ionosphere form, or a new quantity of the medium (a geomagnetic field per column), is added here and
-in the scenario's parser (:mod:`cavity.scenario`); see DEVELOPERS.md.
+(solar zenith angle, Wait-Spies h' and beta, day/night class), and :func:`path_medium` turns a path
+into the engine's :class:`~cavity.fdtd.engine.Medium` (ground per sample, electron density and
+collision frequency per sample and altitude, or a ceiling, and the geomagnetic field). What each
+ionosphere form contributes is asked of the form (:mod:`cavity.ionosphere_forms`); a new quantity of
+the medium (a geomagnetic field per column) is added here; see DEVELOPERS.md.
 """
 
 from __future__ import annotations
@@ -13,6 +13,8 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 import numpy as np
+
+from cavity.ionosphere_forms import form_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from cavity.fdtd.engine import Medium
@@ -25,49 +27,24 @@ def ionosphere_along(scenario, lats, lons, n):
     """(chi, h', beta, daylight) per path sample for the scenario's ionosphere form.
 
     ``lats``/``lons`` are the samples' positions (None for a path given by range only); forms without
-    a per-sample description (ceiling, file, none) give four Nones and are built in :func:`path_medium`.
+    a per-sample description (ceiling, file, none) give four Nones (see
+    :meth:`cavity.ionosphere_forms.IonosphereForm.along`).
     """
-    from profiles.daynight import daylight_class, linear_transition, preset
-
     ion = scenario.ionosphere
-    if ion.form == "exponential":
-        return None, np.full(n, ion.hprime_km, dtype=float), np.full(n, ion.beta_per_km, dtype=float), None
-    if ion.form == "preset":
-        p = preset(ion.preset)
-        return None, np.full(n, p.hprime_km, dtype=float), np.full(n, p.beta_per_km, dtype=float), None
-    if ion.form == "utc":
-        from cavity.geo import solar_zenith_deg
-
-        chi = np.asarray(solar_zenith_deg(ion.utc, lats, lons), dtype=float)
-        hprime, beta = linear_transition(chi, day=preset(ion.day_preset), night=preset(ion.night_preset))
-        return (
-            chi,
-            np.asarray(hprime, dtype=float),
-            np.asarray(beta, dtype=float),
-            np.asarray(daylight_class(chi)).astype(str),
-        )
-    return None, None, None, None
+    return form_of(ion).along(ion, lats, lons, n)
 
 
 def path_medium(scenario, path) -> Medium:
     """The engine's medium for one path: ground per sample and the ionosphere profile per sample."""
-    import profiles
     from cavity.fdtd import engine as eng
     from profiles.exponential import ALTITUDE_RANGE_M
 
     ion = scenario.ionosphere
+    form = form_of(ion)
     top = scenario.planned_top_m()
     z = np.arange(0.0, top + 40e3 + PROFILE_STEP_M, PROFILE_STEP_M)
     z = z[z <= ALTITUDE_RANGE_M[1]]  # profiles end at 500 km; the engine holds the top value above
-    ne = nu = None
-    if path.hprime_km is not None:
-        ne = profiles.electron_density(z[None, :], path.hprime_km[:, None], path.beta_per_km[:, None])
-        nu = np.broadcast_to(profiles.collision_frequency(z)[None, :], ne.shape).copy()
-    elif ion.form == "file":
-        ds = profiles.read_profile(ion.profile_path)
-        ne1, nu1 = profiles.sample_profile(ds, z)
-        ne = np.broadcast_to(np.asarray(ne1, float)[None, :], (path.n_samples, z.size)).copy()
-        nu = np.broadcast_to(np.asarray(nu1, float)[None, :], (path.n_samples, z.size)).copy()
+    ne, nu = form.profiles(ion, path, z)
     # the geomagnetic field per sample in the path frame (tesla): six components in the engine
     field = getattr(path, "geomagnetic", None)
     b0 = None
@@ -80,6 +57,6 @@ def path_medium(scenario, path) -> Medium:
         altitude_m=z if ne is not None else None,
         electron_density=ne,
         collision_frequency=nu,
-        ceiling_m=ion.ceiling_m if ion.form == "ceiling" else None,
+        ceiling_m=form.ceiling_m(ion),
         magnetic_field_t=b0,
     )

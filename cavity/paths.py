@@ -18,6 +18,7 @@ import numpy as np
 
 from cavity.errors import ScenarioError
 from cavity.ground import GROUND_CLASSES
+from cavity.ionosphere_forms import form_of
 from cavity.medium import ionosphere_along
 
 #: Margin beyond the farthest receiver of a path: ``farthest * (1 + fraction) + extra``.
@@ -84,9 +85,19 @@ class PathModel:
     geomagnetic: object | None = None  # cavity.geomag.FieldAlong
 
     def __post_init__(self):
-        for name in ("range_m", "latitude_deg", "longitude_deg", "ground_conductivity_s_per_m",
-                     "ground_relative_permittivity", "ground_kind", "solar_zenith_deg", "hprime_km",
-                     "beta_per_km", "daylight", "heading_deg"):
+        for name in (
+            "range_m",
+            "latitude_deg",
+            "longitude_deg",
+            "ground_conductivity_s_per_m",
+            "ground_relative_permittivity",
+            "ground_kind",
+            "solar_zenith_deg",
+            "hprime_km",
+            "beta_per_km",
+            "daylight",
+            "heading_deg",
+        ):
             value = getattr(self, name)
             if isinstance(value, np.ndarray):
                 value.setflags(write=False)  # the model is frozen; so are its arrays
@@ -106,8 +117,9 @@ def direction_dependent(scenario) -> str | None:
     """
     if scenario.ground.kind == "auto":
         return 'ground kind = "auto" (land/sea map along each path)'
-    if scenario.ionosphere.form == "utc":
-        return "ionosphere utc = ... (sun position along each path)"
+    ion_direction = form_of(scenario.ionosphere).direction
+    if ion_direction:
+        return ion_direction
     if scenario.geomagnetic.model == "igrf":
         return 'geomagnetic model = "igrf" (the field along each path)'
     return None
@@ -126,9 +138,7 @@ def _receiver_geometry(scenario) -> tuple[list[float], list[float | None]]:
             bearings.append(None)
         else:
             if tx.latitude_deg is None or tx.longitude_deg is None:
-                raise ScenarioError(
-                    f"transmitter.latitude_deg is missing (receiver {rx.name!r} is given by position)"
-                )
+                raise ScenarioError(f"transmitter.latitude_deg is missing (receiver {rx.name!r} is given by position)")
             d, b = distance_bearing(tx.latitude_deg, tx.longitude_deg, rx.latitude_deg, rx.longitude_deg)
             ranges.append(d)
             bearings.append(b)
@@ -279,11 +289,21 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         field = field_along(scenario.geomagnetic, None, r.size)
         return [
             PathModel(
-                label=label, bearing_deg=None,
-                receiver_indices=tuple(range(len(ranges))), receiver_ranges_m=tuple(ranges),
-                max_range_m=max_range, range_m=r, latitude_deg=None, longitude_deg=None,
-                ground_conductivity_s_per_m=sigma, ground_relative_permittivity=eps, ground_kind=kinds,
-                solar_zenith_deg=chi, hprime_km=hprime, beta_per_km=beta, daylight=daylight,
+                label=label,
+                bearing_deg=None,
+                receiver_indices=tuple(range(len(ranges))),
+                receiver_ranges_m=tuple(ranges),
+                max_range_m=max_range,
+                range_m=r,
+                latitude_deg=None,
+                longitude_deg=None,
+                ground_conductivity_s_per_m=sigma,
+                ground_relative_permittivity=eps,
+                ground_kind=kinds,
+                solar_zenith_deg=chi,
+                hprime_km=hprime,
+                beta_per_km=beta,
+                daylight=daylight,
                 geomagnetic=field,
             )
         ]
@@ -310,11 +330,21 @@ def build_paths(scenario, *, sample_km: float = 10.0, bearing_tolerance_deg: flo
         chi, hprime, beta, daylight = ionosphere_along(scenario, lats, lons, r.size)
         heading = headings_along(tx.latitude_deg, tx.longitude_deg, bearing, r)
         path = PathModel(
-            label=f"bearing {bearing:.1f} deg", bearing_deg=bearing,
-            receiver_indices=tuple(group), receiver_ranges_m=group_ranges,
-            max_range_m=max_range, range_m=r, latitude_deg=lats, longitude_deg=lons,
-            ground_conductivity_s_per_m=sigma, ground_relative_permittivity=eps, ground_kind=kinds,
-            solar_zenith_deg=chi, hprime_km=hprime, beta_per_km=beta, daylight=daylight,
+            label=f"bearing {bearing:.1f} deg",
+            bearing_deg=bearing,
+            receiver_indices=tuple(group),
+            receiver_ranges_m=group_ranges,
+            max_range_m=max_range,
+            range_m=r,
+            latitude_deg=lats,
+            longitude_deg=lons,
+            ground_conductivity_s_per_m=sigma,
+            ground_relative_permittivity=eps,
+            ground_kind=kinds,
+            solar_zenith_deg=chi,
+            hprime_km=hprime,
+            beta_per_km=beta,
+            daylight=daylight,
             heading_deg=heading,
         )
         field = field_along(scenario.geomagnetic, path, r.size)

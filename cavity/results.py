@@ -63,93 +63,247 @@ VARIABLES: dict[str, dict[str, str]] = {
     "range": {"units": "km", "long_name": "ground range from the transmitter"},
     "frequency": {"units": "kHz", "long_name": "transmitted frequency", "standard_name": "radiation_frequency"},
     # The model's ground is the geoid (no terrain), so height above it is CF's "altitude".
-    "altitude": {"units": "km", "long_name": "altitude above the ground", "standard_name": "altitude",
-                 "positive": "up", "axis": "Z"},
+    "altitude": {
+        "units": "km",
+        "long_name": "altitude above the ground",
+        "standard_name": "altitude",
+        "positive": "up",
+        "axis": "Z",
+    },
     "path": {"units": "1", "long_name": "path index, one per distinct bearing solved"},
     # Not named "time": it is elapsed time without a calendar origin, which CF's time axis requires.
-    "lag": {"units": "s", "long_name": "time since the source started (the carrier switched on, or the lightning stroke's onset)"},
+    "lag": {
+        "units": "s",
+        "long_name": "time since the source started (the carrier switched on, or the lightning stroke's onset)",
+    },
     "spectrum_frequency": {"units": "kHz", "long_name": "frequency of the waveform spectra"},
     # per path
     "path_label": {"long_name": "path label"},
-    "path_bearing": {"units": "degree", "long_name": "bearing of the path at the transmitter, clockwise from true north (NaN: the path serves every bearing)"},
+    "path_bearing": {
+        "units": "degree",
+        "long_name": "bearing of the path at the transmitter, clockwise from true north (NaN: the path serves every bearing)",
+    },
     # fields along each path
     "ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the ground, {_DB_E}"},
-    "ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the ground, {_PHASE}, unwrapped along range"},
+    "ez_phase": {
+        "units": "degree",
+        "long_name": f"phase of the vertical electric field at the ground, {_PHASE}, unwrapped along range",
+    },
     "b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the ground, {_DB_B}"},
-    "b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
+    "b_phase": {
+        "units": "degree",
+        "long_name": f"phase of the horizontal magnetic flux density at the ground, {_PHASE}, unwrapped along range",
+    },
     # the other horizontal components (magnetised ionosphere only: [geomagnetic] model other than "none")
-    "b_radial_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density along the path (radial) at the ground, {_DB_B}"},
-    "b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the ground, {_PHASE}, unwrapped along range"},
-    "ephi_amplitude": {"units": "1", "long_name": f"horizontal electric field across the path (azimuthal) at the ground, {_DB_E}"},
-    "ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the ground, {_PHASE}, unwrapped along range"},
+    "b_radial_amplitude": {
+        "units": "1",
+        "long_name": f"horizontal magnetic flux density along the path (radial) at the ground, {_DB_B}",
+    },
+    "b_radial_phase": {
+        "units": "degree",
+        "long_name": f"phase of the radial magnetic flux density at the ground, {_PHASE}, unwrapped along range",
+    },
+    "ephi_amplitude": {
+        "units": "1",
+        "long_name": f"horizontal electric field across the path (azimuthal) at the ground, {_DB_E}",
+    },
+    "ephi_phase": {
+        "units": "degree",
+        "long_name": f"phase of the azimuthal electric field at the ground, {_PHASE}, unwrapped along range",
+    },
     # receivers
     "receiver_name": {"long_name": "receiver name"},
     "receiver_range": {"units": "km", "long_name": "ground range of the receiver from the transmitter"},
     "receiver_path": {"units": "1", "long_name": "index of the path the receiver lies on"},
-    "receiver_bearing": {"units": "degree", "long_name": "bearing of the receiver from the transmitter, clockwise from true north (NaN: given by range only)"},
-    "receiver_latitude": {"units": "degrees_north", "long_name": "receiver latitude (NaN: given by range only)", "standard_name": "latitude"},
-    "receiver_longitude": {"units": "degrees_east", "long_name": "receiver longitude (NaN: given by range only)", "standard_name": "longitude"},
+    "receiver_bearing": {
+        "units": "degree",
+        "long_name": "bearing of the receiver from the transmitter, clockwise from true north (NaN: given by range only)",
+    },
+    "receiver_latitude": {
+        "units": "degrees_north",
+        "long_name": "receiver latitude (NaN: given by range only)",
+        "standard_name": "latitude",
+    },
+    "receiver_longitude": {
+        "units": "degrees_east",
+        "long_name": "receiver longitude (NaN: given by range only)",
+        "standard_name": "longitude",
+    },
     "receiver_ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the receiver, {_DB_E}"},
-    "receiver_ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
-    "receiver_ez_uncertainty": {"units": "1", "long_name": "numerical uncertainty of the vertical electric field at the receiver in dB (grid convergence index from a companion run on a coarser grid; NaN: not computed)"},
+    "receiver_ez_phase": {
+        "units": "degree",
+        "long_name": f"phase of the vertical electric field at the receiver, {_PHASE}, on the branch of the path's unwrapped phase",
+    },
+    "receiver_ez_uncertainty": {
+        "units": "1",
+        "long_name": "numerical uncertainty of the vertical electric field at the receiver in dB (grid convergence index from a companion run on a coarser grid; NaN: not computed)",
+    },
     "receiver_b_amplitude": {"units": "1", "long_name": f"horizontal magnetic flux density at the receiver, {_DB_B}"},
-    "receiver_b_phase": {"units": "degree", "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase"},
-    "receiver_b_radial_amplitude": {"units": "1", "long_name": f"radial horizontal magnetic flux density at the receiver, {_DB_B}"},
-    "receiver_b_radial_phase": {"units": "degree", "long_name": f"phase of the radial magnetic flux density at the receiver, {_PHASE}"},
-    "receiver_ephi_amplitude": {"units": "1", "long_name": f"azimuthal horizontal electric field at the receiver, {_DB_E}"},
-    "receiver_ephi_phase": {"units": "degree", "long_name": f"phase of the azimuthal electric field at the receiver, {_PHASE}"},
-    "receiver_ez_time_series": {"units": "V m-1", "long_name": "vertical electric field at the receiver against time (instantaneous value)"},
+    "receiver_b_phase": {
+        "units": "degree",
+        "long_name": f"phase of the horizontal magnetic flux density at the receiver, {_PHASE}, on the branch of the path's unwrapped phase",
+    },
+    "receiver_b_radial_amplitude": {
+        "units": "1",
+        "long_name": f"radial horizontal magnetic flux density at the receiver, {_DB_B}",
+    },
+    "receiver_b_radial_phase": {
+        "units": "degree",
+        "long_name": f"phase of the radial magnetic flux density at the receiver, {_PHASE}",
+    },
+    "receiver_ephi_amplitude": {
+        "units": "1",
+        "long_name": f"azimuthal horizontal electric field at the receiver, {_DB_E}",
+    },
+    "receiver_ephi_phase": {
+        "units": "degree",
+        "long_name": f"phase of the azimuthal electric field at the receiver, {_PHASE}",
+    },
+    "receiver_ez_time_series": {
+        "units": "V m-1",
+        "long_name": "vertical electric field at the receiver against time (instantaneous value)",
+    },
     # sferics (cavity.sferic): waveforms, their spectra and the source
-    "receiver_b_time_series": {"units": "T", "long_name": "horizontal magnetic flux density at the receiver against time (instantaneous value)"},
-    "receiver_ez_spectrum": {"units": "1", "long_name": "amplitude spectral density of the vertical electric field waveform at the receiver (magnitude of its Fourier transform), dB re 1 uV/m/Hz"},
-    "receiver_b_spectrum": {"units": "1", "long_name": "amplitude spectral density of the horizontal magnetic flux density waveform at the receiver (magnitude of its Fourier transform), dB re 1 fT/Hz"},
-    "receiver_cutoff_frequency": {"units": "kHz", "long_name": "lowest waveguide cutoff estimated from the sferic's tail at the receiver (NaN: none found)"},
+    "receiver_b_time_series": {
+        "units": "T",
+        "long_name": "horizontal magnetic flux density at the receiver against time (instantaneous value)",
+    },
+    "receiver_ez_spectrum": {
+        "units": "1",
+        "long_name": "amplitude spectral density of the vertical electric field waveform at the receiver (magnitude of its Fourier transform), dB re 1 uV/m/Hz",
+    },
+    "receiver_b_spectrum": {
+        "units": "1",
+        "long_name": "amplitude spectral density of the horizontal magnetic flux density waveform at the receiver (magnitude of its Fourier transform), dB re 1 fT/Hz",
+    },
+    "receiver_cutoff_frequency": {
+        "units": "kHz",
+        "long_name": "lowest waveguide cutoff estimated from the sferic's tail at the receiver (NaN: none found)",
+    },
     "source_current": {"units": "A", "long_name": "lightning channel-base current"},
-    "source_current_moment": {"units": "A m", "long_name": "current moment of the lightning channel (current integrated along the channel)"},
+    "source_current_moment": {
+        "units": "A m",
+        "long_name": "current moment of the lightning channel (current integrated along the channel)",
+    },
     # media along each path
     "electron_density": {"units": "m-3", "long_name": "electron density"},
     "collision_frequency": {"units": "s-1", "long_name": "effective electron collision frequency"},
     "ground_conductivity": {"units": "S m-1", "long_name": "ground conductivity"},
     "ground_relative_permittivity": {"units": "1", "long_name": "ground relative permittivity"},
-    "solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the ground", "standard_name": "solar_zenith_angle"},
+    "solar_zenith_angle": {
+        "units": "degree",
+        "long_name": "solar zenith angle at the ground",
+        "standard_name": "solar_zenith_angle",
+    },
     "hprime": {"units": "km", "long_name": "Wait-Spies reference height h'"},
     "beta": {"units": "km-1", "long_name": "Wait-Spies sharpness beta"},
-    "geomagnetic_field_r": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, component along the path (direction of travel)"},
-    "geomagnetic_field_phi": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, horizontal component across the path (to the left of the direction of travel)"},
+    "geomagnetic_field_r": {
+        "units": "nT",
+        "long_name": "geomagnetic field in the ionosphere, component along the path (direction of travel)",
+    },
+    "geomagnetic_field_phi": {
+        "units": "nT",
+        "long_name": "geomagnetic field in the ionosphere, horizontal component across the path (to the left of the direction of travel)",
+    },
     "geomagnetic_field_z": {"units": "nT", "long_name": "geomagnetic field in the ionosphere, upward component"},
     # coverage maps (cavity.sweeps.coverage): the map on a latitude/longitude grid and the bearings behind it
-    "latitude": {"units": "degrees_north", "long_name": "latitude of the map grid point", "standard_name": "latitude", "axis": "Y"},
-    "longitude": {"units": "degrees_east", "long_name": "longitude of the map grid point (continuous about the transmitter)", "standard_name": "longitude", "axis": "X"},
-    "bearing": {"units": "degree", "long_name": "bearing of a solved path at the transmitter, clockwise from true north"},
-    "map_range": {"units": "km", "long_name": "ground range of the grid point from the transmitter (WGS84 geodesic; NaN beyond the map's range)"},
-    "map_bearing": {"units": "degree", "long_name": "bearing of the grid point from the transmitter, clockwise from true north (NaN beyond the map's range)"},
-    "map_solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the grid point", "standard_name": "solar_zenith_angle"},
-    "bearing_ez_amplitude": {"units": "1", "long_name": f"vertical electric field at the ground along each solved bearing, {_DB_E}"},
-    "bearing_ez_phase": {"units": "degree", "long_name": f"phase of the vertical electric field along each solved bearing, {_PHASE}, unwrapped along range"},
+    "latitude": {
+        "units": "degrees_north",
+        "long_name": "latitude of the map grid point",
+        "standard_name": "latitude",
+        "axis": "Y",
+    },
+    "longitude": {
+        "units": "degrees_east",
+        "long_name": "longitude of the map grid point (continuous about the transmitter)",
+        "standard_name": "longitude",
+        "axis": "X",
+    },
+    "bearing": {
+        "units": "degree",
+        "long_name": "bearing of a solved path at the transmitter, clockwise from true north",
+    },
+    "map_range": {
+        "units": "km",
+        "long_name": "ground range of the grid point from the transmitter (WGS84 geodesic; NaN beyond the map's range)",
+    },
+    "map_bearing": {
+        "units": "degree",
+        "long_name": "bearing of the grid point from the transmitter, clockwise from true north (NaN beyond the map's range)",
+    },
+    "map_solar_zenith_angle": {
+        "units": "degree",
+        "long_name": "solar zenith angle at the grid point",
+        "standard_name": "solar_zenith_angle",
+    },
+    "bearing_ez_amplitude": {
+        "units": "1",
+        "long_name": f"vertical electric field at the ground along each solved bearing, {_DB_E}",
+    },
+    "bearing_ez_phase": {
+        "units": "degree",
+        "long_name": f"phase of the vertical electric field along each solved bearing, {_PHASE}, unwrapped along range",
+    },
     "bearing_ground_conductivity": {"units": "S m-1", "long_name": "ground conductivity along each solved bearing"},
-    "bearing_ground_relative_permittivity": {"units": "1", "long_name": "ground relative permittivity along each solved bearing"},
-    "bearing_solar_zenith_angle": {"units": "degree", "long_name": "solar zenith angle at the ground along each solved bearing", "standard_name": "solar_zenith_angle"},
+    "bearing_ground_relative_permittivity": {
+        "units": "1",
+        "long_name": "ground relative permittivity along each solved bearing",
+    },
+    "bearing_solar_zenith_angle": {
+        "units": "degree",
+        "long_name": "solar zenith angle at the ground along each solved bearing",
+        "standard_name": "solar_zenith_angle",
+    },
     "bearing_hprime": {"units": "km", "long_name": "Wait-Spies reference height h' along each solved bearing"},
     "bearing_beta": {"units": "km-1", "long_name": "Wait-Spies sharpness beta along each solved bearing"},
 }
 
 #: Variables every result file holds (the conventions' minimum).
 REQUIRED_VARIABLES: tuple[str, ...] = (
-    "range", "frequency", "altitude", "path", "ez_amplitude", "ez_phase", "b_amplitude", "receiver_name",
-    "receiver_range", "receiver_ez_amplitude", "receiver_ez_phase", "electron_density",
-    "collision_frequency", "ground_conductivity",
+    "range",
+    "frequency",
+    "altitude",
+    "path",
+    "ez_amplitude",
+    "ez_phase",
+    "b_amplitude",
+    "receiver_name",
+    "receiver_range",
+    "receiver_ez_amplitude",
+    "receiver_ez_phase",
+    "electron_density",
+    "collision_frequency",
+    "ground_conductivity",
 )
 
 #: Variables every coverage file holds (``cavity coverage``; it has latitude and bearing dimensions).
 COVERAGE_VARIABLES: tuple[str, ...] = (
-    "frequency", "latitude", "longitude", "bearing", "range", "ez_amplitude", "map_range", "map_bearing",
-    "bearing_ez_amplitude", "bearing_ez_phase",
+    "frequency",
+    "latitude",
+    "longitude",
+    "bearing",
+    "range",
+    "ez_amplitude",
+    "map_range",
+    "map_bearing",
+    "bearing_ez_amplitude",
+    "bearing_ez_phase",
 )
 
 #: Global attributes every result file carries.
 REQUIRED_ATTRIBUTES: tuple[str, ...] = (
-    "title", "Conventions", "history", "source", "scenario", "cautions", "solver_cells",
-    "solver_time_steps", "solver_cell_r_m", "solver_cell_z_m", "solver_time_step_s", "solver_wall_time_s",
+    "title",
+    "Conventions",
+    "history",
+    "source",
+    "scenario",
+    "cautions",
+    "solver_cells",
+    "solver_time_steps",
+    "solver_cell_r_m",
+    "solver_cell_z_m",
+    "solver_time_step_s",
+    "solver_wall_time_s",
 )
 
 
@@ -394,9 +548,10 @@ def assemble_dataset(
         "ground_conductivity": (("path", "range"), sigma),
     }
     if receiver_ez_uncertainty_db is not None:
-        data_vars["receiver_ez_uncertainty"] = (("receiver", "frequency"),
-                                                _array("receiver_ez_uncertainty_db", receiver_ez_uncertainty_db, (N, F), float,
-                                                       allow_nan=True))
+        data_vars["receiver_ez_uncertainty"] = (
+            ("receiver", "frequency"),
+            _array("receiver_ez_uncertainty_db", receiver_ez_uncertainty_db, (N, F), float, allow_nan=True),
+        )
     if receiver_path is not None:
         data_vars["receiver_path"] = (("receiver",), rx_path.astype(np.int32))
     optional_receiver = {
@@ -437,15 +592,19 @@ def assemble_dataset(
             _array("receiver_ez_time_series_v_per_m", receiver_ez_time_series_v_per_m, (N, t.size)),
         )
 
-    extra_fields = (("b_radial", b_radial_t, receiver_b_radial_t, B_REFERENCE_T),
-                    ("ephi", ephi_v_per_m, receiver_ephi_v_per_m, EZ_REFERENCE_V_PER_M))
+    extra_fields = (
+        ("b_radial", b_radial_t, receiver_b_radial_t, B_REFERENCE_T),
+        ("ephi", ephi_v_per_m, receiver_ephi_v_per_m, EZ_REFERENCE_V_PER_M),
+    )
     for name, along, at_rx, reference in extra_fields:
         if (along is None) != (at_rx is None):
             raise ValueError(f"{name}: the field along the paths and at the receivers go together")
         if along is None:
             continue
         db, deg = phasor_to_db_phase(_array(name, along, (P, F, R), complex, allow_nan=True), reference, unwrap_axis=-1)
-        rx_db, rx_deg = phasor_to_db_phase(_array(f"receiver_{name}", at_rx, (N, F), complex, allow_nan=True), reference)
+        rx_db, rx_deg = phasor_to_db_phase(
+            _array(f"receiver_{name}", at_rx, (N, F), complex, allow_nan=True), reference
+        )
         data_vars[f"{name}_amplitude"] = (("path", "frequency", "range"), db)
         data_vars[f"{name}_phase"] = (("path", "frequency", "range"), deg)
         data_vars[f"receiver_{name}_amplitude"] = (("receiver", "frequency"), rx_db)
@@ -546,7 +705,9 @@ def write_result(ds: xr.Dataset, path: str | os.PathLike, *, overwrite: bool = F
         raise ValueError(f"complex variables cannot be written ({', '.join(complex_vars)}); use assemble_dataset")
     ds = apply_metadata(ds.copy())
     ds.attrs["history"] = "\n".join(
-        line for line in (str(ds.attrs.get("history", "")), f"{_now()} cavity {__version__}: written to {target.name}") if line
+        line
+        for line in (str(ds.attrs.get("history", "")), f"{_now()} cavity {__version__}: written to {target.name}")
+        if line
     )
     try:
         with replacing(target, fsync=True) as temporary:
@@ -588,4 +749,3 @@ def open_result(path: str | os.PathLike) -> xr.Dataset:
     if missing:
         raise ResultFileError(f"{file} is not a cavity result file (missing variables: {', '.join(missing)})")
     return ds
-

@@ -20,19 +20,36 @@ from __future__ import annotations
 
 import dataclasses
 import difflib
-import json
 import math
 import os
 import tomllib
 from dataclasses import dataclass, field
-from datetime import date, datetime, time, timezone
+from datetime import date, datetime
 from pathlib import Path
-from typing import Any
 
 from cavity.constants import C0
 from cavity.errors import ScenarioError
 from cavity.fdtd.grid import DEFAULT_CELLS_PER_WAVELENGTH
 from cavity.ground import GROUND_CLASSES
+from cavity.ionosphere_forms import (  # noqa: F401  (the forms' ranges and tops: public here too)
+    BETA_RANGE_PER_KM,
+    CEILING_RANGE_KM,
+    DEFAULT_TOP_KM,
+    FORMS,
+    HPRIME_RANGE_KM,
+    IONOSPHERE_KEYS,
+    NO_IONOSPHERE_TOP_KM,
+    Ionosphere,
+    form_of,
+    parse_ionosphere,
+)
+from cavity.tomltable import Table as _Table
+from cavity.tomltable import exact_quotient as _edge
+from cavity.tomltable import number_text as _number_text
+from cavity.tomltable import shortest_quotient as _edge_short
+from cavity.tomltable import show as _show
+from cavity.tomltable import toml_lines as _lines
+from cavity.tomltable import toml_value as _toml_value
 
 # Allowed ranges, in the file's units (km, kHz, kW, degrees).
 FREQUENCY_RANGE_KHZ = (0.3, 60.0)
@@ -41,9 +58,6 @@ LATITUDE_RANGE_DEG = (-90.0, 90.0)
 LONGITUDE_RANGE_DEG = (-180.0, 360.0)  # upper end excluded
 RANGE_LIMITS_KM = (1.0, 15000.0)
 MIN_RECEIVER_DISTANCE_KM = 1.0
-HPRIME_RANGE_KM = (50.0, 100.0)
-BETA_RANGE_PER_KM = (0.1, 1.5)
-CEILING_RANGE_KM = (20.0, 200.0)
 CELL_RANGE_M = (10.0, 5000.0)
 TOP_RANGE_KM = (60.0, 600.0)
 PML_CELLS_RANGE = (5, 100)
@@ -68,34 +82,38 @@ RECORD_RANGE_MS = (1.0, 200.0)
 #: The record must last this long after the pulse reaches the farthest receiver.
 RECORD_MARGIN_MS = 2.0
 
-#: Top of the physical domain when the scenario does not set ``top_km`` (exponential, preset, utc
-#: and file forms; under a ceiling the ceiling is the top; with no ionosphere the open top is high).
-DEFAULT_TOP_KM = 120.0
-NO_IONOSPHERE_TOP_KM = 400.0
-
-IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {
-    "exponential": ("hprime_km", "beta_per_km"),
-    "preset": ("preset",),
-    "utc": ("utc",),
-    "ceiling": ("ceiling_km",),
-    "file": ("profile_file",),
-    "none": ("no_ionosphere",),
-}
-_FORM_TEXT = "hprime_km + beta_per_km, preset, utc, ceiling_km, profile_file or no_ionosphere = true"
+#: The ionosphere forms and the keys that select each (every form lives in :mod:`cavity.ionosphere_forms`).
+IONOSPHERE_FORMS: dict[str, tuple[str, ...]] = {name: form.keys for name, form in FORMS.items()}
 GROUND_KINDS: tuple[str, ...] = (*GROUND_CLASSES, "custom", "auto")
 
 _TOP_KEYS = ("title", "transmitter", "receiver", "ionosphere", "ground", "geomagnetic", "solver", "source")
 _GEOMAGNETIC_KEYS = ("model", "date", "altitude_km", "strength_nt", "dip_deg", "azimuth_deg")
 _TRANSMITTER_KEYS = ("name", "latitude_deg", "longitude_deg", "frequency_khz", "radiated_power_kw")
 _RECEIVER_KEYS = ("name", "latitude_deg", "longitude_deg", "range_km")
-_IONOSPHERE_KEYS = ("hprime_km", "beta_per_km", "preset", "utc", "day_preset", "night_preset",
-                    "ceiling_km", "profile_file", "no_ionosphere")
+_IONOSPHERE_KEYS = IONOSPHERE_KEYS
 _GROUND_KEYS = ("kind", "conductivity_s_per_m", "relative_permittivity", "segment")
 _SEGMENT_KEYS = ("from_km", "to_km", "kind", "conductivity_s_per_m", "relative_permittivity")
-_SOURCE_KEYS = ("kind", "peak_current_ka", "rise_time_constant_us", "decay_time_constant_us", "heidler_exponent",
-                "channel_speed_fraction", "channel_height_km", "record_ms", "band_khz")
-_SOLVER_KEYS = ("max_range_km", "cell_m", "top_km", "earth_curvature", "pml_cells",
-                "cells_per_wavelength", "receiver_time_series", "uncertainty")
+_SOURCE_KEYS = (
+    "kind",
+    "peak_current_ka",
+    "rise_time_constant_us",
+    "decay_time_constant_us",
+    "heidler_exponent",
+    "channel_speed_fraction",
+    "channel_height_km",
+    "record_ms",
+    "band_khz",
+)
+_SOLVER_KEYS = (
+    "max_range_km",
+    "cell_m",
+    "top_km",
+    "earth_curvature",
+    "pml_cells",
+    "cells_per_wavelength",
+    "receiver_time_series",
+    "uncertainty",
+)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -127,28 +145,6 @@ class Receiver:
     latitude_deg: float | None = None
     longitude_deg: float | None = None
     range_m: float | None = None
-
-
-@dataclass(frozen=True)
-class Ionosphere:
-    """One ionosphere description; ``form`` says which fields are used.
-
-    ``"exponential"``: Wait-Spies h' (km) and beta (1/km); ``"preset"``: a named pair from
-    :data:`profiles.daynight.PRESETS`; ``"utc"``: the sun's position along each path at ``utc``
-    (tz-aware, UTC) picks between ``day_preset`` and ``night_preset``; ``"ceiling"``: a perfectly
-    conducting ceiling at ``ceiling_m`` (verification); ``"file"``: a user profile at
-    ``profile_path`` (absolute); ``"none"``: free space above the ground (verification).
-    """
-
-    form: str
-    hprime_km: float | None = None
-    beta_per_km: float | None = None
-    preset: str | None = None
-    utc: datetime | None = None
-    ceiling_m: float | None = None
-    profile_path: str | None = None
-    day_preset: str = "day"
-    night_preset: str = "night"
 
 
 @dataclass(frozen=True)
@@ -291,13 +287,7 @@ class Scenario:
 
     def planned_top_m(self) -> float:
         """Top of the physical domain: ``solver.top_m``, the ceiling, or a default by ionosphere form."""
-        if self.ionosphere.form == "ceiling":
-            return self.ionosphere.ceiling_m
-        if self.solver.top_m is not None:
-            return self.solver.top_m
-        if self.ionosphere.form == "none":
-            return NO_IONOSPHERE_TOP_KM * 1e3
-        return DEFAULT_TOP_KM * 1e3
+        return form_of(self.ionosphere).top_m(self.ionosphere, self.solver.top_m)
 
 
 # --------------------------------------------------------------------------------------------------
@@ -325,10 +315,16 @@ def load_scenario(source: str | os.PathLike) -> Scenario:
     ScenarioError
         One line naming the file, the key path, the value and the allowed range.
     """
-    is_text = isinstance(source, str) and ("\n" in source or (
-        "=" in source and not source.rstrip().lower().endswith(".toml") and not os.path.isfile(os.path.expanduser(source))))
+    is_text = isinstance(source, str) and (
+        "\n" in source
+        or (
+            "=" in source
+            and not source.rstrip().lower().endswith(".toml")
+            and not os.path.isfile(os.path.expanduser(source))
+        )
+    )
     if is_text:
-        text, path, label, base = source, None, None, Path.cwd()
+        text, path, label, base = str(source), None, None, Path.cwd()
     else:
         file = Path(os.fspath(source))
         label = file.name or str(file)
@@ -367,7 +363,7 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     title = top.string("title", required=True)
     transmitter = _parse_transmitter(top.table("transmitter", required=True))
     receivers = _parse_receivers(top)
-    ionosphere = _parse_ionosphere(top.table("ionosphere", required=True), base)
+    ionosphere = parse_ionosphere(top.table("ionosphere", required=True), base)
     ground = _parse_ground(top.table("ground", required=True))
     solver = _parse_solver(top.table("solver", required=False) or _Table({}, "solver"), ionosphere)
     source = _parse_source(top.table("source", required=False))
@@ -376,134 +372,6 @@ def _parse_document(doc: dict, base: Path) -> Scenario:
     _check_geometry(scenario)
     _check_source(scenario)
     return scenario
-
-
-def _show(value: Any) -> str:
-    """A value as the user wrote it in TOML, on one line."""
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False)
-    if isinstance(value, float):
-        return repr(value)
-    if isinstance(value, (datetime, date, time)):
-        return value.isoformat()
-    if isinstance(value, dict):
-        return "a table"
-    if isinstance(value, list):
-        return "[" + ", ".join(_show(v) for v in value) + "]"
-    return str(value)
-
-
-def _number_text(x: float) -> str:
-    return f"{x:g}"
-
-
-class _Table:
-    """One TOML table and its key path, with typed, range-checked readers."""
-
-    def __init__(self, data: dict, prefix: str):
-        self.data = data
-        self.prefix = prefix
-
-    def key(self, name: str) -> str:
-        if not name or not name.isprintable() or any(c.isspace() or c in '."' for c in name):
-            name = _show(name)  # quoted like a TOML key, control characters escaped: one line
-        return f"{self.prefix}.{name}" if self.prefix else name
-
-    def has(self, name: str) -> bool:
-        return name in self.data
-
-    def fail(self, name: str, value: Any, problem: str) -> ScenarioError:
-        return ScenarioError(f"{self.key(name)} = {_show(value)} {problem}")
-
-    def missing(self, name: str, what: str) -> ScenarioError:
-        return ScenarioError(f"{self.key(name)} is missing ({what})")
-
-    def raw(self, name: str) -> Any:
-        return self.data.get(name)
-
-    def finish(self, allowed: tuple[str, ...]) -> None:
-        """Raise on the first key that is not in ``allowed``, with a "did you mean" hint."""
-        for name in self.data:
-            if name in allowed:
-                continue
-            close = difflib.get_close_matches(name, allowed, n=1, cutoff=0.6)
-            close = close or [k for k in allowed if k.startswith(f"{name}_")][:1]  # unit suffix left off
-            hint = f"; did you mean {close[0]!r}?" if close else f" (known keys: {', '.join(allowed)})"
-            raise ScenarioError(f"{self.key(name)}: unknown key{hint}")
-
-    def table(self, name: str, *, required: bool) -> _Table | None:
-        value = self.raw(name)
-        if value is None:
-            if required:
-                raise ScenarioError(f"[{self.key(name)}] section is missing")
-            return None
-        if not isinstance(value, dict):
-            raise self.fail(name, value, f"must be a table [{self.key(name)}]")
-        return _Table(value, self.key(name))
-
-    def string(self, name: str, *, required: bool = False, default: str | None = None, what: str = "a text in quotes") -> str | None:
-        value = self.raw(name)
-        if value is None:
-            if required:
-                raise self.missing(name, what)
-            return default
-        if not isinstance(value, str):
-            raise self.fail(name, value, "must be a text in quotes")
-        if not value.strip():
-            raise self.fail(name, value, "must not be empty")
-        return value.strip()
-
-    def boolean(self, name: str, default: bool) -> bool:
-        value = self.raw(name)
-        if value is None:
-            return default
-        if not isinstance(value, bool):
-            raise self.fail(name, value, "must be true or false")
-        return value
-
-    def number(
-        self,
-        name: str,
-        low: float,
-        high: float,
-        unit: str,
-        *,
-        required: bool = False,
-        low_open: bool = False,
-        high_open: bool = False,
-        allowed: str | None = None,
-        integer: bool = False,
-        value: Any = None,
-        label: str | None = None,
-    ) -> float | int | None:
-        """Check a number (never a boolean) is finite and within [low, high] (ends open if asked)."""
-        if value is None:
-            value = self.raw(name)
-        label = label or name
-        if allowed is None:
-            lo = f"> {_number_text(low)}" if low_open else _number_text(low)
-            hi = f"< {_number_text(high)}" if high_open else _number_text(high)
-            allowed = f"allowed range {lo} to {hi} {unit}".rstrip()
-        if value is None:
-            if required:
-                raise self.missing(label, allowed)
-            return None
-        kind = "an integer" if integer else "a number"
-        if isinstance(value, bool):
-            raise self.fail(label, value, f"must be {kind}, not true/false ({allowed})")
-        if integer and not isinstance(value, int):
-            raise self.fail(label, value, f"must be {kind} ({allowed})")
-        if not isinstance(value, (int, float)):
-            raise self.fail(label, value, f"must be {kind} ({allowed})")
-        if isinstance(value, float) and not math.isfinite(value):  # ints are finite (and may exceed float)
-            raise self.fail(label, value, f"must be a finite number ({allowed})")
-        too_low = value <= low if low_open else value < low
-        too_high = value >= high if high_open else value > high
-        if too_low or too_high:
-            raise self.fail(label, value, f"is outside the {allowed}")
-        return int(value) if integer else float(value)
 
 
 def _km(x: float | None) -> float | None:
@@ -526,14 +394,27 @@ def _parse_transmitter(t: _Table) -> Transmitter:
         if not raw:
             raise t.fail("frequency_khz", raw, f"must list at least one frequency ({band})")
         values = [
-            t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=v, label=f"frequency_khz[{i}]")
+            t.number(
+                "frequency_khz",
+                *FREQUENCY_RANGE_KHZ,
+                "kHz",
+                required=True,
+                allowed=band,
+                value=v,
+                label=f"frequency_khz[{i}]",
+            )
             for i, v in enumerate(raw, 1)
         ]
     else:
-        values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", allowed=band, value=raw)]
+        values = [t.number("frequency_khz", *FREQUENCY_RANGE_KHZ, "kHz", required=True, allowed=band, value=raw)]
     frequencies = tuple(sorted({v * 1e3 for v in values}))
     power_kw = t.number(
-        "radiated_power_kw", 0.0, POWER_MAX_KW, "kW", required=True, low_open=True,
+        "radiated_power_kw",
+        0.0,
+        POWER_MAX_KW,
+        "kW",
+        required=True,
+        low_open=True,
         allowed=f"allowed range > 0 to {_number_text(POWER_MAX_KW)} kW",
     )
     return Transmitter(name, lat, lon, frequencies, power_kw * 1e3)
@@ -572,79 +453,15 @@ def _parse_receivers(top: _Table) -> tuple[Receiver, ...]:
             given, other = ("latitude_deg", "longitude_deg") if lat is not None else ("longitude_deg", "latitude_deg")
             raise ScenarioError(f"{t.key(other)} is missing (needed with {t.key(given)})")
         if range_km is not None and lat is not None:
-            raise t.fail("range_km", t.raw("range_km"), "given together with a position; give either latitude_deg and longitude_deg or range_km")
+            raise t.fail(
+                "range_km",
+                t.raw("range_km"),
+                "given together with a position; give either latitude_deg and longitude_deg or range_km",
+            )
         if range_km is None and lat is None:
             raise ScenarioError(f"{t.prefix} has no location: give latitude_deg and longitude_deg, or range_km")
         receivers.append(Receiver(name, lat, lon, _km(range_km)))
     return tuple(receivers)
-
-
-def _known_presets() -> tuple[str, ...]:
-    from profiles.daynight import PRESETS
-
-    return tuple(PRESETS)
-
-
-def _preset_name(t: _Table, name: str, *, required: bool, default: str | None = None) -> str | None:
-    value = t.string(name, required=required, default=default)
-    if value is None or not t.has(name):
-        return value
-    known = _known_presets()
-    if value not in known:
-        close = difflib.get_close_matches(value, known, n=1)
-        hint = f"; did you mean {close[0]!r}?" if close else ""
-        raise t.fail(name, value, f"is not a known preset (choose from {', '.join(known)}){hint}")
-    return value
-
-
-def _parse_ionosphere(t: _Table, base: Path) -> Ionosphere:
-    t.finish(_IONOSPHERE_KEYS)
-    forms = [form for form, keys in IONOSPHERE_FORMS.items() if any(t.has(k) for k in keys)]
-    if not forms:
-        raise ScenarioError(f"[ionosphere] gives no form; give exactly one of {_FORM_TEXT}")
-    if len(forms) > 1:
-        keys = [next(k for k in IONOSPHERE_FORMS[f] if t.has(k)) for f in forms]
-        raise ScenarioError(
-            f"{t.key(keys[1])}: [ionosphere] mixes {keys[0]} and {keys[1]}; give exactly one of {_FORM_TEXT}"
-        )
-    form = forms[0]
-    for extra in ("day_preset", "night_preset"):
-        if t.has(extra) and form != "utc":
-            raise t.fail(extra, t.data[extra], "is only used with utc = ...")
-    if form == "exponential":
-        hprime = t.number("hprime_km", *HPRIME_RANGE_KM, "km", required=True)
-        beta = t.number("beta_per_km", *BETA_RANGE_PER_KM, "per km", required=True)
-        return Ionosphere("exponential", hprime_km=hprime, beta_per_km=beta)
-    if form == "preset":
-        return Ionosphere("preset", preset=_preset_name(t, "preset", required=True))
-    if form == "utc":
-        value = t.raw("utc")
-        example = "e.g. utc = 2026-06-21T12:00:00Z, no quotes"
-        if isinstance(value, datetime):
-            if value.tzinfo is None:
-                raise t.fail("utc", value, f"has no UTC offset ({example})")
-            utc = value.astimezone(timezone.utc)
-        else:
-            raise t.fail("utc", value, f"must be a date and time with offset ({example})")
-        day = _preset_name(t, "day_preset", required=False, default="day")
-        night = _preset_name(t, "night_preset", required=False, default="night")
-        return Ionosphere("utc", utc=utc, day_preset=day, night_preset=night)
-    if form == "ceiling":
-        ceiling = t.number("ceiling_km", *CEILING_RANGE_KM, "km", required=True)
-        return Ionosphere("ceiling", ceiling_m=ceiling * 1e3)
-    if form == "file":
-        name = t.string("profile_file", required=True)
-        try:
-            resolved = (base / Path(name).expanduser()).resolve()
-        except (ValueError, RuntimeError, OSError) as exc:  # NUL, ~unknown-user, name too long
-            raise t.fail("profile_file", name, f"is not a usable file name ({exc})") from None
-        if not resolved.is_file():
-            raise t.fail("profile_file", name, f"is not an existing file (looked for {resolved})")
-        return Ionosphere("file", profile_path=str(resolved))
-    value = t.raw("no_ionosphere")
-    if value is not True:
-        raise t.fail("no_ionosphere", value, "must be true when given (remove it to use an ionosphere)")
-    return Ionosphere("none")
 
 
 def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, float | None]:
@@ -692,8 +509,9 @@ def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, io
             "uniform",
             strength_nt=t.number("strength_nt", *FIELD_STRENGTH_RANGE_NT, "nT", required=True),
             dip_deg=t.number("dip_deg", *DIP_RANGE_DEG, "deg (positive downward)", required=True),
-            azimuth_deg=t.number("azimuth_deg", *AZIMUTH_RANGE_DEG, "deg clockwise from magnetic north",
-                                 required=True, high_open=True),
+            azimuth_deg=t.number(
+                "azimuth_deg", *AZIMUTH_RANGE_DEG, "deg clockwise from magnetic north", required=True, high_open=True
+            ),
             given=given,
         )
     if not positioned:
@@ -716,22 +534,29 @@ def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, io
         if not EPOCH_RANGE[0] <= raw <= EPOCH_RANGE[1]:
             raise t.fail("date", raw, f"is outside the allowed range {EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14)")
         day = raw
-    if ionosphere.form == "utc":
+    instant = form_of(ionosphere).instant(ionosphere)
+    if instant is not None:
         if day is not None:
             raise t.fail("date", raw, "is not used when ionosphere.utc gives the date; remove one of them")
-        epoch, source = ionosphere.utc.date(), "ionosphere.utc"
+        epoch, source = instant.date(), "ionosphere.utc"
         if not EPOCH_RANGE[0] <= epoch <= EPOCH_RANGE[1]:
             raise ScenarioError(
-                f"ionosphere.utc = {_show(ionosphere.utc)} is outside the geomagnetic field's epochs "
-                f"{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = \"none\" or \"uniform\""
+                f"ionosphere.utc = {_show(instant)} is outside the geomagnetic field's epochs "
+                f'{EPOCH_RANGE[0]} to {EPOCH_RANGE[1]} (IGRF-14); give [geomagnetic] model = "none" or "uniform"'
             )
     elif day is not None:
         epoch, source = day, "geomagnetic.date"
     else:
         epoch, source = DEFAULT_EPOCH, "default"
     altitude = t.number("altitude_km", *FIELD_ALTITUDE_RANGE_KM, "km")
-    return Geomagnetic("igrf", epoch=epoch, epoch_source=source, date=day,
-                       altitude_km=REFERENCE_ALTITUDE_KM if altitude is None else altitude, given=given)
+    return Geomagnetic(
+        "igrf",
+        epoch=epoch,
+        epoch_source=source,
+        date=day,
+        altitude_km=REFERENCE_ALTITUDE_KM if altitude is None else altitude,
+        given=given,
+    )
 
 
 def _parse_ground(t: _Table) -> Ground:
@@ -746,7 +571,9 @@ def _parse_ground(t: _Table) -> Ground:
     segments: list[GroundSegment] = []
     if raw is not None:
         if isinstance(raw, dict):
-            raise ScenarioError(f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)")
+            raise ScenarioError(
+                f"{t.key('segment')}: write each segment as a [[ground.segment]] table (double brackets)"
+            )
         if not isinstance(raw, list):
             raise t.fail("segment", raw, "must be [[ground.segment]] tables")
         for i, s in _each_table(raw, "ground.segment", "[[ground.segment]]", _SEGMENT_KEYS):
@@ -756,7 +583,8 @@ def _parse_ground(t: _Table) -> Ground:
                 raise s.fail("to_km", s.raw("to_km"), f"must be greater than from_km = {_show(s.raw('from_km'))}")
             if segments and from_km * 1e3 < segments[-1].to_m:
                 raise s.fail(
-                    "from_km", s.raw("from_km"),
+                    "from_km",
+                    s.raw("from_km"),
                     f"overlaps ground.segment[{i - 1}], which ends at {_number_text(segments[-1].to_m / 1e3)} km; "
                     "segments must be in order of range and must not overlap",
                 )
@@ -767,7 +595,8 @@ def _parse_ground(t: _Table) -> Ground:
                     close = difflib.get_close_matches(seg_kind, named, n=1)
                     hint = f"; did you mean {close[0]!r}?" if close else ""
                     raise s.fail(
-                        "kind", seg_kind,
+                        "kind",
+                        seg_kind,
                         f"is not a ground class (choose from {', '.join(named)}, or give "
                         f"conductivity_s_per_m and relative_permittivity instead){hint}",
                     )
@@ -775,6 +604,7 @@ def _parse_ground(t: _Table) -> Ground:
             else:
                 seg_kind = "custom"
                 seg_sigma, seg_eps = _ground_constants(s, "custom", "without kind")
+            assert seg_sigma is not None and seg_eps is not None  # a segment is never "auto"
             segments.append(GroundSegment(from_km * 1e3, to_km * 1e3, seg_kind, seg_sigma, seg_eps))
     return Ground(kind, sigma, eps, tuple(segments))
 
@@ -785,13 +615,14 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
     raw_cell = t.raw("cell_m")
     cell = None
     if raw_cell is not None and raw_cell != "auto":
-        allowed = f"allowed range {_number_text(CELL_RANGE_M[0])} to {_number_text(CELL_RANGE_M[1])} m, or \"auto\""
+        allowed = f'allowed range {_number_text(CELL_RANGE_M[0])} to {_number_text(CELL_RANGE_M[1])} m, or "auto"'
         if isinstance(raw_cell, str):
-            raise t.fail("cell_m", raw_cell, f"must be a number or \"auto\" ({allowed})")
+            raise t.fail("cell_m", raw_cell, f'must be a number or "auto" ({allowed})')
         cell = t.number("cell_m", *CELL_RANGE_M, "m", allowed=allowed)
     top = t.number("top_km", *TOP_RANGE_KM, "km")
-    if top is not None and ionosphere.form == "ceiling":
-        raise t.fail("top_km", t.data["top_km"], "cannot be set with ceiling_km (the ceiling is the top)")
+    fixed_by = form_of(ionosphere).top_fixed_by()
+    if top is not None and fixed_by is not None:
+        raise t.fail("top_km", t.data["top_km"], f"cannot be set with {fixed_by} (the ceiling is the top)")
     earth_curvature = t.boolean("earth_curvature", True)
     pml = t.number("pml_cells", *PML_CELLS_RANGE, "cells", integer=True)
     cpw = t.number("cells_per_wavelength", *CELLS_PER_WAVELENGTH_RANGE, "")
@@ -803,7 +634,7 @@ def _parse_solver(t: _Table, ionosphere: Ionosphere) -> Solver:
         cell_m=cell,
         top_m=_km(top),
         earth_curvature=earth_curvature,
-        pml_cells=defaults.pml_cells if pml is None else pml,
+        pml_cells=defaults.pml_cells if pml is None else int(pml),
         cells_per_wavelength=defaults.cells_per_wavelength if cpw is None else cpw,
         receiver_time_series=time_series,
         uncertainty=uncertainty,
@@ -837,16 +668,32 @@ def _parse_source(t: _Table | None) -> Source | None:
     decay_s = d.decay_time_constant_s if decay is None else decay * 1e-6
     if decay_s <= rise_s:
         name = "decay_time_constant_us" if decay is not None else "rise_time_constant_us"
-        raise t.fail(name, t.data[name], f"leaves the decay ({_number_text(decay_s * 1e6)} us) no longer than "
-                     f"the rise ({_number_text(rise_s * 1e6)} us); the decay time constant must be the longer")
+        raise t.fail(
+            name,
+            t.data[name],
+            f"leaves the decay ({_number_text(decay_s * 1e6)} us) no longer than "
+            f"the rise ({_number_text(rise_s * 1e6)} us); the decay time constant must be the longer",
+        )
     band = d.band_hz
     raw = t.raw("band_khz")
     if raw is not None:
-        allowed = f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+        allowed = (
+            f"[low, high] within {_number_text(FREQUENCY_RANGE_KHZ[0])}-{_number_text(FREQUENCY_RANGE_KHZ[1])} kHz"
+        )
         if not isinstance(raw, list) or len(raw) != 2:
             raise t.fail("band_khz", raw, f"must be two numbers {allowed}")
-        low, high = (t.number("band_khz", *FREQUENCY_RANGE_KHZ, "kHz", value=v, label=f"band_khz[{i}]",
-                              allowed=f"allowed range {allowed}") for i, v in enumerate(raw, 1))
+        low, high = (
+            t.number(
+                "band_khz",
+                *FREQUENCY_RANGE_KHZ,
+                "kHz",
+                required=True,
+                value=v,
+                label=f"band_khz[{i}]",
+                allowed=f"allowed range {allowed}",
+            )
+            for i, v in enumerate(raw, 1)
+        )
         if high <= low:
             raise t.fail("band_khz", raw, f"must give the low edge first and a higher edge second ({allowed})")
         band = (low * 1e3, high * 1e3)
@@ -896,16 +743,19 @@ def _check_geometry(s: Scenario) -> None:
                 f"transmitter.latitude_deg is missing (receiver[{i}] is given by position, so the "
                 "transmitter needs latitude_deg and longitude_deg)"
             )
+    form = form_of(s.ionosphere)
     if not has_tx:
-        if s.ionosphere.form == "utc":
-            raise ScenarioError("transmitter.latitude_deg is missing (ionosphere utc = ... needs positions to place the sun)")
+        if form.needs_positions:
+            raise ScenarioError(f"transmitter.latitude_deg is missing ({form.needs_positions})")
         if s.ground.kind == "auto":
-            raise ScenarioError('transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)')
+            raise ScenarioError(
+                'transmitter.latitude_deg is missing (ground kind = "auto" needs positions for the land/sea map)'
+            )
     direction = None
     if s.ground.kind == "auto":
         direction = 'ground kind = "auto" (land/sea along each path)'
-    elif s.ionosphere.form == "utc":
-        direction = "ionosphere utc = ... (the sun along each path)"
+    elif form.direction:
+        direction = form.direction
     if direction:
         for i, rx in enumerate(s.receivers, 1):
             if rx.range_m is not None:
@@ -942,55 +792,14 @@ def _check_geometry(s: Scenario) -> None:
 # --------------------------------------------------------------------------------------------------
 
 
-def _edge(value_si: float, scale: float) -> float:
-    """``value_si / scale`` chosen so that multiplying it by ``scale`` gives ``value_si`` back exactly."""
-    q = value_si / scale
-    if not math.isfinite(q) or q * scale == value_si:
-        return q
-    up = down = q
-    for _ in range(4):
-        up, down = math.nextafter(up, math.inf), math.nextafter(down, -math.inf)
-        for candidate in (up, down):
-            if candidate * scale == value_si:
-                return candidate
-    return q
-
-
-def _edge_short(value_si: float, scale: float) -> float:
-    """Like :func:`_edge`, preferring the shortest decimal that gives ``value_si`` back (95.0, not 95.00000000000001)."""
-    for digits in (12, 15):
-        q = float(f"{value_si / scale:.{digits}g}")
-        if q * scale == value_si:
-            return q
-    return _edge(value_si, scale)
-
-
-def _toml_value(value: Any) -> str:
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    if isinstance(value, int):
-        return str(value)
-    if isinstance(value, float):
-        return repr(value)
-    if isinstance(value, str):
-        return json.dumps(value, ensure_ascii=False).replace("\x7f", "\\u007f")  # TOML escapes DEL too
-    if isinstance(value, datetime):
-        return value.astimezone(timezone.utc).isoformat().replace("+00:00", "Z")
-    if isinstance(value, (list, tuple)):
-        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
-    raise TypeError(f"cannot write {value!r} as TOML")
-
-
-def _lines(items: list[tuple[str, Any]]) -> list[str]:
-    return [f"{key} = {_toml_value(value)}" for key, value in items if value is not None]
-
-
 def _named_constants_match(kind: str, sigma, eps, where: str) -> None:
     if kind in ("custom", "auto"):
         return
     cls = GROUND_CLASSES.get(kind)
     if cls is None:
-        raise ScenarioError(f"{where}.kind = {_show(kind)} is not a ground kind (choose from {', '.join(GROUND_KINDS)})")
+        raise ScenarioError(
+            f"{where}.kind = {_show(kind)} is not a ground kind (choose from {', '.join(GROUND_KINDS)})"
+        )
     for name, given, fixed in (
         ("conductivity_s_per_m", sigma, cls.conductivity_s_per_m),
         ("relative_permittivity", eps, cls.relative_permittivity),
@@ -1006,48 +815,46 @@ def _to_toml(s: Scenario) -> str:
     tx = s.transmitter
     freqs = [_edge(f, 1e3) for f in tx.frequencies_hz]
     out = [f"title = {_toml_value(s.title)}", "", "[transmitter]"]
-    out += _lines([
-        ("name", tx.name),
-        ("latitude_deg", tx.latitude_deg),
-        ("longitude_deg", tx.longitude_deg),
-        ("frequency_khz", freqs[0] if len(freqs) == 1 else freqs),
-        ("radiated_power_kw", _edge(tx.radiated_power_w, 1e3)),
-    ])
+    out += _lines(
+        [
+            ("name", tx.name),
+            ("latitude_deg", tx.latitude_deg),
+            ("longitude_deg", tx.longitude_deg),
+            ("frequency_khz", freqs[0] if len(freqs) == 1 else freqs),
+            ("radiated_power_kw", _edge(tx.radiated_power_w, 1e3)),
+        ]
+    )
     for rx in s.receivers:
         out += ["", "[[receiver]]"]
-        out += _lines([
-            ("name", rx.name),
-            ("latitude_deg", rx.latitude_deg),
-            ("longitude_deg", rx.longitude_deg),
-            ("range_km", None if rx.range_m is None else _edge(rx.range_m, 1e3)),
-        ])
+        out += _lines(
+            [
+                ("name", rx.name),
+                ("latitude_deg", rx.latitude_deg),
+                ("longitude_deg", rx.longitude_deg),
+                ("range_km", None if rx.range_m is None else _edge(rx.range_m, 1e3)),
+            ]
+        )
     ion = s.ionosphere
     out += ["", "[ionosphere]"]
-    if ion.form == "exponential":
-        out += _lines([("hprime_km", ion.hprime_km), ("beta_per_km", ion.beta_per_km)])
-    elif ion.form == "preset":
-        out += _lines([("preset", ion.preset)])
-    elif ion.form == "utc":
-        out += _lines([("utc", ion.utc), ("day_preset", ion.day_preset), ("night_preset", ion.night_preset)])
-    elif ion.form == "ceiling":
-        out += _lines([("ceiling_km", None if ion.ceiling_m is None else _edge(ion.ceiling_m, 1e3))])
-    elif ion.form == "file":
-        out += _lines([("profile_file", ion.profile_path)])
-    elif ion.form == "none":
-        out += _lines([("no_ionosphere", True)])
-    else:
-        raise ScenarioError(f"ionosphere.form = {_show(ion.form)} is not a form (choose from {', '.join(IONOSPHERE_FORMS)})")
+    out += _lines(form_of(ion).dump(ion))
     g = s.ground
     out += ["", "[ground]", f"kind = {_toml_value(g.kind)}"]
     _named_constants_match(g.kind, g.conductivity_s_per_m, g.relative_permittivity, "ground")
     if g.kind == "custom":
-        out += _lines([("conductivity_s_per_m", g.conductivity_s_per_m), ("relative_permittivity", g.relative_permittivity)])
+        out += _lines(
+            [("conductivity_s_per_m", g.conductivity_s_per_m), ("relative_permittivity", g.relative_permittivity)]
+        )
     for i, seg in enumerate(g.segments, 1):
         out += ["", "[[ground.segment]]"]
         out += _lines([("from_km", _edge(seg.from_m, 1e3)), ("to_km", _edge(seg.to_m, 1e3))])
         _named_constants_match(seg.kind, seg.conductivity_s_per_m, seg.relative_permittivity, f"ground.segment[{i}]")
         if seg.kind == "custom":
-            out += _lines([("conductivity_s_per_m", seg.conductivity_s_per_m), ("relative_permittivity", seg.relative_permittivity)])
+            out += _lines(
+                [
+                    ("conductivity_s_per_m", seg.conductivity_s_per_m),
+                    ("relative_permittivity", seg.relative_permittivity),
+                ]
+            )
         else:
             out += _lines([("kind", seg.kind)])
     gm = s.geomagnetic
@@ -1060,28 +867,32 @@ def _to_toml(s: Scenario) -> str:
             out += _lines([("strength_nt", gm.strength_nt), ("dip_deg", gm.dip_deg), ("azimuth_deg", gm.azimuth_deg)])
     sv = s.solver
     out += ["", "[solver]"]
-    out += _lines([
-        ("max_range_km", None if sv.max_range_m is None else _edge(sv.max_range_m, 1e3)),
-        ("cell_m", "auto" if sv.cell_m is None else sv.cell_m),
-        ("top_km", None if sv.top_m is None else _edge(sv.top_m, 1e3)),
-        ("earth_curvature", sv.earth_curvature),
-        ("pml_cells", sv.pml_cells),
-        ("cells_per_wavelength", sv.cells_per_wavelength),
-        ("receiver_time_series", sv.receiver_time_series),
-        ("uncertainty", sv.uncertainty),
-    ])
+    out += _lines(
+        [
+            ("max_range_km", None if sv.max_range_m is None else _edge(sv.max_range_m, 1e3)),
+            ("cell_m", "auto" if sv.cell_m is None else sv.cell_m),
+            ("top_km", None if sv.top_m is None else _edge(sv.top_m, 1e3)),
+            ("earth_curvature", sv.earth_curvature),
+            ("pml_cells", sv.pml_cells),
+            ("cells_per_wavelength", sv.cells_per_wavelength),
+            ("receiver_time_series", sv.receiver_time_series),
+            ("uncertainty", sv.uncertainty),
+        ]
+    )
     src = s.source
     if src is not None:
         out += ["", "[source]"]
-        out += _lines([
-            ("kind", src.kind),
-            ("peak_current_ka", _edge_short(src.peak_current_a, 1e3)),
-            ("rise_time_constant_us", _edge_short(src.rise_time_constant_s, 1e-6)),
-            ("decay_time_constant_us", _edge_short(src.decay_time_constant_s, 1e-6)),
-            ("heidler_exponent", float(src.heidler_exponent)),
-            ("channel_speed_fraction", float(src.channel_speed_fraction)),
-            ("channel_height_km", _edge_short(src.channel_height_m, 1e3)),
-            ("record_ms", _edge_short(src.record_s, 1e-3)),
-            ("band_khz", [_edge_short(src.band_hz[0], 1e3), _edge_short(src.band_hz[1], 1e3)]),
-        ])
+        out += _lines(
+            [
+                ("kind", src.kind),
+                ("peak_current_ka", _edge_short(src.peak_current_a, 1e3)),
+                ("rise_time_constant_us", _edge_short(src.rise_time_constant_s, 1e-6)),
+                ("decay_time_constant_us", _edge_short(src.decay_time_constant_s, 1e-6)),
+                ("heidler_exponent", float(src.heidler_exponent)),
+                ("channel_speed_fraction", float(src.channel_speed_fraction)),
+                ("channel_height_km", _edge_short(src.channel_height_m, 1e3)),
+                ("record_ms", _edge_short(src.record_s, 1e-3)),
+                ("band_khz", [_edge_short(src.band_hz[0], 1e3), _edge_short(src.band_hz[1], 1e3)]),
+            ]
+        )
     return "\n".join(out) + "\n"

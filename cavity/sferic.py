@@ -83,9 +83,18 @@ def source_group_delay_s(stroke, frequency_hz: float) -> float:
 # --------------------------------------------------------------------------------------------------
 
 
-def estimate_cutoff(time_s, field, range_m: float, *, origin_s: float = 0.0,
-                    search_hz: tuple[float, float] = CUTOFF_SEARCH_HZ, start_s: float = 0.3e-3,
-                    envelope_power: float = 2.0, min_prominence: float = 4.0, max_width: float = 0.15) -> float:
+def estimate_cutoff(
+    time_s,
+    field,
+    range_m: float,
+    *,
+    origin_s: float = 0.0,
+    search_hz: tuple[float, float] = CUTOFF_SEARCH_HZ,
+    start_s: float = 0.3e-3,
+    envelope_power: float = 2.0,
+    min_prominence: float = 4.0,
+    max_width: float = 0.15,
+) -> float:
     """The lowest waveguide cutoff frequency read from a sferic's tail at one receiver, Hz.
 
     Near its cutoff f_c a waveguide mode carries energy slowly: the component at f reaches range r at
@@ -148,7 +157,7 @@ def estimate_cutoff(time_s, field, range_m: float, *, origin_s: float = 0.0,
     above = np.nonzero(spectrum[k:] <= half)[0]
     if below.size == 0 or above.size == 0 or (above[0] + k - below[-1]) * (f[1] - f[0]) > max_width * f[k]:
         return math.nan
-    a, b, c = np.log(spectrum[k - 1:k + 2])
+    a, b, c = np.log(spectrum[k - 1 : k + 2])
     shift = 0.5 * (a - c) / (a - 2 * b + c)
     return float(f[k] + shift * (f[1] - f[0]))
 
@@ -182,7 +191,7 @@ def amplitude_spectrum(time_s, values, frequency_hz, taper_fraction: float = SPE
     w = np.ones(n)
     m = int(round(taper_fraction * n))
     if m > 1:
-        w[n - m:] = 0.5 * (1 + np.cos(np.pi * np.arange(m) / (m - 1)))
+        w[n - m :] = 0.5 * (1 + np.cos(np.pi * np.arange(m) / (m - 1)))
     f = np.asarray(frequency_hz, float)
     out = np.empty((f.size, x.shape[1]))
     for j in range(x.shape[1]):
@@ -200,7 +209,7 @@ def tail_level_db(values) -> float:
     peak = float(np.max(np.abs(x)))
     if peak == 0:
         return -math.inf
-    tail = x[int(0.9 * x.size):]
+    tail = x[int(0.9 * x.size) :]
     return float(20 * np.log10(max(np.sqrt(np.mean(tail**2)), 1e-300) / peak))
 
 
@@ -292,8 +301,10 @@ def sferic_variables(ds, scenario, stroke, solutions, raws, *, earth_curvature: 
             cutoff[i_rx] = fc
             level = tail_level_db(ez[:, j])
             if level > TAIL_LIMIT_DB:
-                notes.append(f"{scenario.receivers[i_rx].name}: the sferic still rings at the end of the record "
-                             f"({level:.0f} dB below its peak); lengthen record_ms")
+                notes.append(
+                    f"{scenario.receivers[i_rx].name}: the sferic still rings at the end of the record "
+                    f"({level:.0f} dB below its peak); lengthen record_ms"
+                )
     first = raws[0]
     t_src = np.concatenate([[0.0], first.time_s])
     current = np.interp(lag, t_src, np.concatenate([[0.0], first.source_current]))
@@ -303,7 +314,10 @@ def sferic_variables(ds, scenario, stroke, solutions, raws, *, earth_curvature: 
     with np.errstate(divide="ignore"):
         ds["receiver_ez_time_series"] = (("receiver", "lag"), ez_t)
         ds["receiver_b_time_series"] = (("receiver", "lag"), b_t)
-        ds["receiver_ez_spectrum"] = (("receiver", "spectrum_frequency"), 20 * np.log10(np.maximum(ez_s, 1e-300) / 1e-6))
+        ds["receiver_ez_spectrum"] = (
+            ("receiver", "spectrum_frequency"),
+            20 * np.log10(np.maximum(ez_s, 1e-300) / 1e-6),
+        )
         ds["receiver_b_spectrum"] = (("receiver", "spectrum_frequency"), 20 * np.log10(np.maximum(b_s, 1e-300) / 1e-15))
     ds["receiver_cutoff_frequency"] = (("receiver",), cutoff / 1e3)
     ds["source_current"] = (("lag",), current)

@@ -100,8 +100,9 @@ def engine_settings(scenario, path, *, waveform=None, drive: Excitation | None =
     if drive.stroke is not None:
         from cavity.sferic import record_settings
 
-        return eng.Settings(**common, probe_ranges_m=tuple(float(r) for r in path.receiver_ranges_m),
-                            **record_settings(scenario))
+        return eng.Settings(
+            **common, probe_ranges_m=tuple(float(r) for r in path.receiver_ranges_m), **record_settings(scenario)
+        )
     probes = tuple(path.receiver_ranges_m) if sv.receiver_time_series else ()
     return eng.Settings(**common, dr_m=sv.cell_m, probe_ranges_m=probes, record_time_series=bool(probes))
 
@@ -126,41 +127,63 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     drive = drive if drive is not None else excitation(scenario, waveform)
     medium = path_medium(scenario, path)
     settings = engine_settings(scenario, path, drive=drive)
-    want_uncertainty = (bool(getattr(scenario.solver, "uncertainty", False)) and drive.stroke is None
-                        and waveform is None)
+    want_uncertainty = (
+        bool(getattr(scenario.solver, "uncertainty", False)) and drive.stroke is None and waveform is None
+    )
     sim = eng.Simulation(medium, settings)
     coarse = None
     main_share = 1.0
     if want_uncertainty:
         r = unc.COMPANION_CELL_RATIO
-        coarse = dataclasses.replace(settings, dr_m=r * sim.plan.dr_m, dz_m=r * sim.plan.dz_m,
-                                     probe_ranges_m=(), record_time_series=False)
+        coarse = dataclasses.replace(
+            settings, dr_m=r * sim.plan.dr_m, dz_m=r * sim.plan.dz_m, probe_ranges_m=(), record_time_series=False
+        )
         # progress shares from the engine's cost model, so that the time left counts the companion
         main_cost = sim.plan.expected_cell_updates
         main_share = main_cost / (main_cost + eng.make_plan(medium, coarse).grid.expected_cell_updates)
     main_progress = progress
     if progress is not None and coarse is not None:
+
         def main_progress(fraction, text=""):
             progress(main_share * fraction, text)
+
     if drive.stroke is None:
         log.info(
             "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, >= %d steps, ~%.2f GB",
-            path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
-            sim.plan.n_steps, sim.plan.memory_bytes / 1e9,
+            path.label,
+            sim.plan.nr,
+            sim.plan.nz,
+            sim.plan.dr_m,
+            sim.plan.dz_m,
+            sim.plan.dt_s,
+            sim.plan.n_steps,
+            sim.plan.memory_bytes / 1e9,
         )
     else:
         log.info(
             "path %s: %d x %d cells (dr %.0f m, dz %.0f m), dt %.3g s, %d steps (%.1f ms record), ~%.2f GB",
-            path.label, sim.plan.nr, sim.plan.nz, sim.plan.dr_m, sim.plan.dz_m, sim.plan.dt_s,
-            int(math.ceil(sim.t_max / sim.plan.dt_s)), sim.t_max * 1e3, sim.plan.memory_bytes / 1e9,
+            path.label,
+            sim.plan.nr,
+            sim.plan.nz,
+            sim.plan.dr_m,
+            sim.plan.dz_m,
+            sim.plan.dt_s,
+            int(math.ceil(sim.t_max / sim.plan.dt_s)),
+            sim.t_max * 1e3,
+            sim.plan.memory_bytes / 1e9,
         )
     res = sim.run(main_progress)
     fit_error = sim.impedance_fit_error
     del sim  # the companion solve reuses the memory
     companion = None
     if coarse is not None:
-        sub = None if progress is None else (
-            lambda fraction, text="": progress(main_share + (1.0 - main_share) * fraction, f"uncertainty: {text}"))
+        sub = (
+            None
+            if progress is None
+            else (
+                lambda fraction, text="": progress(main_share + (1.0 - main_share) * fraction, f"uncertainty: {text}")
+            )
+        )
         companion = eng.run(medium, coarse, sub)
         res.wall_time_s += companion.wall_time_s
     raw = None
@@ -168,8 +191,9 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         res.notes = []  # the record has a fixed length; completeness is judged from the tail (cavity.sferic)
         raw = res
         # the waveforms are the sferic's (a lightning moment, not a carrier's): the carrier assembly gets none
-        res = dataclasses.replace(res, time_s=None, ez_series=None, hphi_series=None, source_current=None,
-                                  source_moment=None)
+        res = dataclasses.replace(
+            res, time_s=None, ez_series=None, hphi_series=None, source_current=None, source_moment=None
+        )
     f = res.frequencies_hz
     moment = np.array([moment_for_power(scenario.transmitter.radiated_power_w, fk) for fk in f])
     scale = moment[:, None]
@@ -191,13 +215,16 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw,
-                       ez_unc, rx_unc)
+    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw, ez_unc, rx_unc)
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
         sol.ephi = res.ephi * scale
-        sol.receiver_b_radial = np.stack([interpolate_phasor(res.range_m, sol.b_radial[k], rx_r) for k in range(f.size)], axis=1)
-        sol.receiver_ephi = np.stack([interpolate_phasor(res.range_m, sol.ephi[k], rx_r) for k in range(f.size)], axis=1)
+        sol.receiver_b_radial = np.stack(
+            [interpolate_phasor(res.range_m, sol.b_radial[k], rx_r) for k in range(f.size)], axis=1
+        )
+        sol.receiver_ephi = np.stack(
+            [interpolate_phasor(res.range_m, sol.ephi[k], rx_r) for k in range(f.size)], axis=1
+        )
     return sol
 
 
@@ -215,16 +242,31 @@ def solve_key(scenario, path, *, waveform=None) -> str | None:
     medium = path_medium(scenario, path)
     settings = engine_settings(scenario, path)
     digest = hashlib.sha256()
-    for name in ("range_m", "ground_conductivity", "ground_permittivity", "altitude_m", "electron_density",
-                 "collision_frequency", "magnetic_field_t"):
+    for name in (
+        "range_m",
+        "ground_conductivity",
+        "ground_permittivity",
+        "altitude_m",
+        "electron_density",
+        "collision_frequency",
+        "magnetic_field_t",
+    ):
         value = getattr(medium, name)
         digest.update(name.encode())
         if value is not None:
             value = np.ascontiguousarray(value, dtype=float)
             digest.update(repr(value.shape).encode() + value.tobytes())
-    digest.update(repr((medium.ceiling_m, settings, bool(getattr(scenario.solver, "uncertainty", False)),
-                        float(scenario.transmitter.radiated_power_w),
-                        tuple(float(x) for x in path.receiver_ranges_m))).encode())
+    digest.update(
+        repr(
+            (
+                medium.ceiling_m,
+                settings,
+                bool(getattr(scenario.solver, "uncertainty", False)),
+                float(scenario.transmitter.radiated_power_w),
+                tuple(float(x) for x in path.receiver_ranges_m),
+            )
+        ).encode()
+    )
     return digest.hexdigest()
 
 
@@ -257,8 +299,14 @@ def interpolate_phasor(range_m, values, at_m):
     return np.exp(a + 1j * p)
 
 
-def simulate(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None, sample_km: float = 10.0,
-             bearing_tolerance_deg: float = 1.0, waveform: Callable[..., Any] | None = None) -> xr.Dataset:
+def simulate(
+    scenario: Scenario,
+    *,
+    progress: Callable[[float, str], None] | None = None,
+    sample_km: float = 10.0,
+    bearing_tolerance_deg: float = 1.0,
+    waveform: Callable[..., Any] | None = None,
+) -> xr.Dataset:
     """Run the waveguide solver for every path of a scenario and return the result dataset.
 
     Parameters
@@ -294,13 +342,24 @@ def simulate(scenario: Scenario, *, progress: Callable[[float, str], None] | Non
     from cavity.results import apply_metadata
     from cavity.sferic import sferic_variables
 
-    ds = sferic_variables(ds, scenario, drive.stroke, solutions, [s.raw for s in solutions],
-                          earth_curvature=scenario.solver.earth_curvature)
+    ds = sferic_variables(
+        ds,
+        scenario,
+        drive.stroke,
+        solutions,
+        [s.raw for s in solutions],
+        earth_curvature=scenario.solver.earth_curvature,
+    )
     return apply_metadata(ds)
 
 
-def simulate_sferic(scenario: Scenario, *, progress: Callable[[float, str], None] | None = None,
-                    sample_km: float = 10.0, bearing_tolerance_deg: float = 1.0) -> xr.Dataset:
+def simulate_sferic(
+    scenario: Scenario,
+    *,
+    progress: Callable[[float, str], None] | None = None,
+    sample_km: float = 10.0,
+    bearing_tolerance_deg: float = 1.0,
+) -> xr.Dataset:
     """Run a lightning scenario (:func:`simulate`), refusing a scenario without a lightning ``[source]``.
 
     Raises
@@ -321,8 +380,12 @@ def geomagnetic_attributes(scenario) -> dict:
     if gm is None or gm.model == "none":
         return {"geomagnetic_model": "none (isotropic ionosphere)"}
     if gm.model == "uniform":
-        return {"geomagnetic_model": (f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), "
-                                      f"azimuth of travel {gm.azimuth_deg:g} deg from magnetic north")}
+        return {
+            "geomagnetic_model": (
+                f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), "
+                f"azimuth of travel {gm.azimuth_deg:g} deg from magnetic north"
+            )
+        }
     return {
         "geomagnetic_model": "IGRF-14 (IAGA International Geomagnetic Reference Field, ppigrf)",
         "geomagnetic_epoch": f"{gm.epoch.isoformat()} ({'default epoch' if gm.epoch_source == 'default' else 'from ' + gm.epoch_source})",
@@ -451,7 +514,9 @@ def to_dataset(scenario, solutions):
         receiver_path=rx_path,
         receiver_bearing_deg=[math.nan if g.bearing_deg is None else g.bearing_deg for g in geometry],
         receiver_latitude_deg=[math.nan if rx.latitude_deg is None else rx.latitude_deg for rx in scenario.receivers],
-        receiver_longitude_deg=[math.nan if rx.longitude_deg is None else rx.longitude_deg for rx in scenario.receivers],
+        receiver_longitude_deg=[
+            math.nan if rx.longitude_deg is None else rx.longitude_deg for rx in scenario.receivers
+        ],
         path_bearing_deg=None if any(x is None for x in bearings) else bearings,
         ground_relative_permittivity=extra["ground_relative_permittivity"],
         solar_zenith_angle_deg=extra.get("solar_zenith_deg"),

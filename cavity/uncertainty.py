@@ -43,9 +43,18 @@ ENVELOPE_KM = 5.0
 FLOOR_DB = 0.05
 
 
-def grid_convergence_index_db(range_m, fine, coarse_range_m, coarse, *, ratio: float = COMPANION_CELL_RATIO,
-                              order: float = ASSUMED_ORDER, safety: float = SAFETY_FACTOR,
-                              envelope_km: float = ENVELOPE_KM, floor_db: float = FLOOR_DB) -> np.ndarray:
+def grid_convergence_index_db(
+    range_m,
+    fine,
+    coarse_range_m,
+    coarse,
+    *,
+    ratio: float = COMPANION_CELL_RATIO,
+    order: float = ASSUMED_ORDER,
+    safety: float = SAFETY_FACTOR,
+    envelope_km: float = ENVELOPE_KM,
+    floor_db: float = FLOOR_DB,
+) -> np.ndarray:
     """Uncertainty in dB of the fine-grid field at ``range_m`` from the coarse-grid field.
 
     Parameters

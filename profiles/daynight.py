@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import difflib
 from dataclasses import dataclass
-from typing import Protocol
+from typing import Any, Protocol
 
 import numpy as np
 
@@ -100,7 +100,7 @@ class TransitionRule(Protocol):
     take further keyword arguments, which :func:`parameters_for_zenith` passes through.
     """
 
-    def __call__(self, solar_zenith_deg, **kwargs) -> tuple[np.ndarray, np.ndarray]: ...
+    def __call__(self, solar_zenith_deg: Any, *args: Any, **kwargs: Any) -> tuple[np.ndarray, np.ndarray]: ...
 
 
 def _zenith(solar_zenith_deg) -> np.ndarray:

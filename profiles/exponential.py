@@ -118,9 +118,7 @@ def electron_density(altitude_m, hprime_km, beta_per_km, cap_altitude_m=100e3) -
         cap_km = check_range("cap_altitude_m", cap_altitude_m, *ALTITUDE_RANGE_M, "m") / 1e3
         z_km = np.minimum(z_km, cap_km)
     return (
-        DENSITY_COEFFICIENT_M3
-        * np.exp(-DENSITY_SCALE_PER_KM * h)
-        * np.exp((beta - DENSITY_SCALE_PER_KM) * (z_km - h))
+        DENSITY_COEFFICIENT_M3 * np.exp(-DENSITY_SCALE_PER_KM * h) * np.exp((beta - DENSITY_SCALE_PER_KM) * (z_km - h))
     )
 
 

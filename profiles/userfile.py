@@ -21,6 +21,7 @@ import difflib
 import os
 import tempfile
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 import xarray as xr
@@ -111,9 +112,7 @@ def _read_csv(path: Path):
         if line.strip() and not line.lstrip().startswith("#")
     ]
     if not numbered:
-        raise ProfileError(
-            f"profile file {path} has no header or data (expected the header {','.join(CSV_COLUMNS)})"
-        )
+        raise ProfileError(f"profile file {path} has no header or data (expected the header {','.join(CSV_COLUMNS)})")
     rows = list(csv.reader(line for _, line in numbered))
     header = [name.strip() for name in rows[0]]
     header_line = numbered[0][0]
@@ -173,7 +172,7 @@ def _read_netcdf(path: Path):
     except Exception as exc:  # netCDF4/HDF5 raise assorted types for corrupt files
         message = str(exc).strip().splitlines()[0] if str(exc).strip() else exc.__class__.__name__
         raise ProfileError(f"profile file {path} cannot be read as netCDF: {message}") from None
-    names = set(ds.variables)
+    names = {str(name) for name in ds.variables}
     missing = [name for name in ("altitude", "electron_density", "collision_frequency") if name not in names]
     if missing:
         hints = [
@@ -243,7 +242,9 @@ def _profile_altitude_km(profile: xr.Dataset) -> np.ndarray:
     altitude = profile["altitude"]
     scale = _ALTITUDE_UNITS.get(str(altitude.attrs.get("units", "km")).strip().lower())
     if scale is None:
-        raise ProfileError(f"profile altitude units = {altitude.attrs.get('units')!r} is not understood (allowed: km or m)")
+        raise ProfileError(
+            f"profile altitude units = {altitude.attrs.get('units')!r} is not understood (allowed: km or m)"
+        )
     return np.asarray(altitude.values, dtype=float) * scale
 
 
@@ -397,7 +398,7 @@ def write_profile(profile: xr.Dataset, path, overwrite: bool = False) -> Path:
         history = str(profile.attrs.get("history", "")).strip()
         out.attrs["Conventions"] = "CF-1.10"
         out.attrs["history"] = (history + "\n" if history else "") + f"{stamp} written by profiles.write_profile"
-        encoding = {
+        encoding: dict[str, dict[str, Any]] = {
             "altitude": {"_FillValue": None},
             "electron_density": {"_FillValue": None, "zlib": True, "complevel": 2},
             "collision_frequency": {"_FillValue": None, "zlib": True, "complevel": 2},

@@ -30,7 +30,11 @@ def test_bundled_example_prints_receivers_and_grid():
     assert "Quillon Head" in out and "14.3 kHz" in out and "200 kW radiated" in out
     # ranges and bearings against pyproj's WGS84 geodesic (reference library)
     geod = Geod(ellps="WGS84")
-    for name, lat, lon in (("Ember Ridge", -16.46, 39.75), ("Saltreed Flats", -16.75, 30.5), ("Oryx Hollow", -19.9, 16.6)):
+    for name, lat, lon in (
+        ("Ember Ridge", -16.46, 39.75),
+        ("Saltreed Flats", -16.75, 30.5),
+        ("Oryx Hollow", -19.9, 16.6),
+    ):
         azimuth, _, distance = geod.inv(44.6, -16.35, lon, lat)
         row = next(line for line in out.splitlines() if line.strip().startswith(name))
         assert f"{distance / 1e3:.1f}" in row and f"{azimuth % 360:.1f}" in row
@@ -87,7 +91,10 @@ def test_ceiling_and_free_space_tops(write_scenario):
 @pytest.mark.parametrize(
     "text, fragment",
     [
-        ('title = "t"\n[transmitter]\nname = "T"\nfrequency_khz = 75.0\n', "transmitter.frequency_khz = 75.0 is outside the supported band 0.3-60 kHz"),
+        (
+            'title = "t"\n[transmitter]\nname = "T"\nfrequency_khz = 75.0\n',
+            "transmitter.frequency_khz = 75.0 is outside the supported band 0.3-60 kHz",
+        ),
         ('title = "t"\n[transmitter\n', "invalid TOML"),
     ],
 )

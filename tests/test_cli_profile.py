@@ -179,9 +179,11 @@ def test_profile_and_scenario_refuse_the_same_hprime_and_beta(tmp_path):
     from cavity.errors import ScenarioError
     from cavity.scenario import BETA_RANGE_PER_KM, HPRIME_RANGE_KM, load_scenario
 
-    text = ('title = "Invented range check"\n[transmitter]\nname = "T"\nfrequency_khz = 20.0\n'
-            'radiated_power_kw = 1.0\n[[receiver]]\nname = "R"\nrange_km = 500.0\n'
-            '[ionosphere]\nhprime_km = {h}\nbeta_per_km = {b}\n[ground]\nkind = "sea"\n')
+    text = (
+        'title = "Invented range check"\n[transmitter]\nname = "T"\nfrequency_khz = 20.0\n'
+        'radiated_power_kw = 1.0\n[[receiver]]\nname = "R"\nrange_km = 500.0\n'
+        '[ionosphere]\nhprime_km = {h}\nbeta_per_km = {b}\n[ground]\nkind = "sea"\n'
+    )
     for h, b, bad in ((45.0, 0.5, "--hprime"), (74.0, 1.8, "--beta")):
         with pytest.raises(ScenarioError):
             load_scenario(text.format(h=h, b=b))

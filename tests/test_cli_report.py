@@ -129,13 +129,16 @@ def test_table_help_defines_snr():
     assert "Example" in text
 
 
-@pytest.mark.parametrize("argv, fragments", [
-    (["--noise", "3"], ("--noise and --bandwidth",)),
-    (["--bandwidth", "100"], ("--noise and --bandwidth",)),
-    (["--noise", "3", "--bandwidth", "0"], ("--bandwidth",)),
-    (["--required", "nan"], ("not a finite number",)),
-    (["--format", "xml"], ("xml",)),
-])
+@pytest.mark.parametrize(
+    "argv, fragments",
+    [
+        (["--noise", "3"], ("--noise and --bandwidth",)),
+        (["--bandwidth", "100"], ("--noise and --bandwidth",)),
+        (["--noise", "3", "--bandwidth", "0"], ("--bandwidth",)),
+        (["--required", "nan"], ("not a finite number",)),
+        (["--format", "xml"], ("xml",)),
+    ],
+)
 def test_table_bad_options_are_usage_errors(argv, fragments):
     result = invoke("table", DAY, *argv)
     assert result.exit_code == 2
@@ -208,19 +211,25 @@ def test_compare_different_frequencies_names_both_sets(tmp_path):
     assert not (tmp_path / "c.png").exists()
 
 
-@pytest.mark.parametrize("argv, fragment", [
-    (["--fit-range", "500", "100"], "START_KM < STOP_KM"),
-    (["--fit-range", "-5", "100"], "START_KM < STOP_KM"),
-    (["-o", "fig.jpg"], ".png or .pdf"),
-])
+@pytest.mark.parametrize(
+    "argv, fragment",
+    [
+        (["--fit-range", "500", "100"], "START_KM < STOP_KM"),
+        (["--fit-range", "-5", "100"], "START_KM < STOP_KM"),
+        (["-o", "fig.jpg"], ".png or .pdf"),
+    ],
+)
 def test_compare_bad_options(argv, fragment, tmp_path):
     result = invoke("compare", DAY, NIGHT, *argv, cwd=tmp_path)
     assert result.exit_code == 2 and fragment in result.stderr and "Traceback" not in result.output
 
 
 def test_compare_fit_range_outside_the_data(tmp_path):
-    one_line_error(invoke("compare", DAY, NIGHT, "-o", tmp_path / "c.png", "--fit-range", 1000, 3000),
-                   "fit range 1000-3000 km", "computed")
+    one_line_error(
+        invoke("compare", DAY, NIGHT, "-o", tmp_path / "c.png", "--fit-range", 1000, 3000),
+        "fit range 1000-3000 km",
+        "computed",
+    )
 
 
 @pytest.mark.parametrize("kind", ["missing", "not-a-result", "corrupt"])
@@ -277,8 +286,11 @@ def sweep_file(monkeypatch):
     base = open_result(DAWN)
     times = np.array(["2026-03-20T05:00", "2026-03-20T06:00"], dtype="datetime64[ns]")
     # as a sweep file: the fields and the ionosphere vary with time, the geometry does not
-    varying = [n for n, v in base.data_vars.items()
-               if "frequency" in v.dims or n in ("solar_zenith_angle", "hprime", "beta", "electron_density")]
+    varying = [
+        n
+        for n, v in base.data_vars.items()
+        if "frequency" in v.dims or n in ("solar_zenith_angle", "hprime", "beta", "electron_density")
+    ]
     ds = base.copy()
     for name in varying:
         ds[name] = base[name].expand_dims(time=times)
@@ -445,7 +457,7 @@ def test_full_demo_in_minutes(tmp_path):
     import time
 
     from cavity.cli.demo import DEMO_FILES
-    from cavity.reports.tables import attenuation_rows
+    from cavity.reports.attenuation import attenuation_rows
 
     started = time.perf_counter()
     result = invoke("demo", "-o", tmp_path / "demo-output", "--quiet")
@@ -497,8 +509,11 @@ def test_memo_report_from_day_and_night(tmp_path, capsys):
     # the receiver table in the memo carries the file's numbers
     ez = open_result(DAY)["receiver_ez_amplitude"].values
     table = text.split("## Receiver table", 1)[1]
-    rows = [[c.strip() for c in line.strip().strip("|").split(" | ")] for line in table.splitlines()
-            if line.startswith("| day ")]
+    rows = [
+        [c.strip() for c in line.strip().strip("|").split(" | ")]
+        for line in table.splitlines()
+        if line.startswith("| day ")
+    ]
     assert len(rows) == ez.size
     header = next(line for line in table.splitlines() if line.startswith("| Run "))
     header = [c.strip() for c in header.strip().strip("|").split(" | ")]

@@ -64,7 +64,10 @@ def examples(n: int) -> settings:
 VALID = {
     "title": "Fuzz base",
     "transmitter": {
-        "name": "Tx", "latitude_deg": 50.0, "longitude_deg": 0.0, "frequency_khz": [16.0, 27.6],
+        "name": "Tx",
+        "latitude_deg": 50.0,
+        "longitude_deg": 0.0,
+        "frequency_khz": [16.0, 27.6],
         "radiated_power_kw": 50.0,
     },
     "receiver": [
@@ -93,22 +96,74 @@ ALL_KEYS = sorted({k for keys in KEYS.values() for k in keys})
 
 # ------------------------------------------------------------------------------------- values
 finite_or_not = st.floats(allow_nan=True, allow_infinity=True)
-edge_floats = st.sampled_from([
-    0.0, -0.0, 1e-320, -1.0, 1e308, -1e308, math.nan, math.inf, -math.inf, 0.3, 60.0, 60.000001, 90.0, 90.0000001,
-    -180.0, 360.0, 15000.0, 15000.0001, 1.0, 0.999999, 5000.0, 10.0, 1e-6,
-])
+edge_floats = st.sampled_from(
+    [
+        0.0,
+        -0.0,
+        1e-320,
+        -1.0,
+        1e308,
+        -1e308,
+        math.nan,
+        math.inf,
+        -math.inf,
+        0.3,
+        60.0,
+        60.000001,
+        90.0,
+        90.0000001,
+        -180.0,
+        360.0,
+        15000.0,
+        15000.0001,
+        1.0,
+        0.999999,
+        5000.0,
+        10.0,
+        1e-6,
+    ]
+)
 numbers = st.one_of(
-    finite_or_not, edge_floats, st.integers(), st.sampled_from([2**63, -(2**63) - 1, 10**20, 10**400, -(10**400)]),
+    finite_or_not,
+    edge_floats,
+    st.integers(),
+    st.sampled_from([2**63, -(2**63) - 1, 10**20, 10**400, -(10**400)]),
     st.floats(-1e6, 1e6),
 )
 texts = st.one_of(
     st.text(max_size=30),
-    st.sampled_from(["", " ", "auto", "sea", "land", "custom", "perfect", "day", "night", "dya", "seaa",
-                     "profile.csv", "/", ".", "..", "nan", "20", "true", "\x7f", "é", "A"]),
+    st.sampled_from(
+        [
+            "",
+            " ",
+            "auto",
+            "sea",
+            "land",
+            "custom",
+            "perfect",
+            "day",
+            "night",
+            "dya",
+            "seaa",
+            "profile.csv",
+            "/",
+            ".",
+            "..",
+            "nan",
+            "20",
+            "true",
+            "\x7f",
+            "é",
+            "A",
+        ]
+    ),
 )
 datetimes = st.one_of(
-    st.datetimes(timezones=st.none() | st.just(timezone.utc) | st.builds(
-        lambda h: timezone(timedelta(minutes=h)), st.integers(-1439, 1439))),
+    st.datetimes(
+        timezones=st.none()
+        | st.just(timezone.utc)
+        | st.builds(lambda h: timezone(timedelta(minutes=h)), st.integers(-1439, 1439))
+    ),
     st.dates(),
     st.times(),
 )
@@ -123,15 +178,34 @@ values = st.recursive(
 )
 #: Values near or inside the allowed ranges, so that changed documents often still load.
 plausible = st.one_of(
-    st.floats(-200.0, 400.0), st.floats(0.0, 16000.0), st.integers(-5, 200),
+    st.floats(-200.0, 400.0),
+    st.floats(0.0, 16000.0),
+    st.integers(-5, 200),
     st.sampled_from(["sea", "land", "ice", "perfect", "custom", "auto", "day", "night", "Tx", "C"]),
     st.lists(st.floats(0.0, 70.0), min_size=1, max_size=3),
-    st.datetimes(timezones=st.just(timezone.utc)), st.booleans(),
+    st.datetimes(timezones=st.just(timezone.utc)),
+    st.booleans(),
 )
 key_names = st.one_of(
     st.sampled_from(ALL_KEYS),
-    st.sampled_from(["frequency_hz", "latitude", "lon", "range", "power_kw", "hprime", "beta", "cell",
-                     "segments", "source", "reciever", "Title", "kind ", "solver.cell_m"]),
+    st.sampled_from(
+        [
+            "frequency_hz",
+            "latitude",
+            "lon",
+            "range",
+            "power_kw",
+            "hprime",
+            "beta",
+            "cell",
+            "segments",
+            "source",
+            "reciever",
+            "Title",
+            "kind ",
+            "solver.cell_m",
+        ]
+    ),
     st.text(min_size=1, max_size=12),
 )
 
@@ -150,8 +224,11 @@ documents = st.fixed_dictionaries(
         "ionosphere": st.one_of(section(_IONOSPHERE_KEYS), values),
         "ground": st.one_of(
             section(_GROUND_KEYS).map(dict),
-            st.builds(lambda g, segs: {**g, "segment": segs}, section(("kind", "conductivity_s_per_m", "relative_permittivity")),
-                      st.lists(section(_SEGMENT_KEYS), max_size=3)),
+            st.builds(
+                lambda g, segs: {**g, "segment": segs},
+                section(("kind", "conductivity_s_per_m", "relative_permittivity")),
+                st.lists(section(_SEGMENT_KEYS), max_size=3),
+            ),
             values,
         ),
         "solver": st.one_of(section(_SOLVER_KEYS), values),
@@ -244,8 +321,16 @@ def _leaves(node, prefix=()):
 
 LEAF_PATHS = [p for p, _ in _leaves(VALID)]
 SCALAR_PATHS = [p for p, v in _leaves(VALID) if not isinstance(v, (dict, list))]
-TABLE_PATHS = [(), ("transmitter",), ("receiver", 0), ("receiver", 1), ("ionosphere",), ("ground",),
-               ("ground", "segment", 0), ("solver",)]
+TABLE_PATHS = [
+    (),
+    ("transmitter",),
+    ("receiver", 0),
+    ("receiver", 1),
+    ("ionosphere",),
+    ("ground",),
+    ("ground", "segment", 0),
+    ("solver",),
+]
 
 #: Per key, values straddling the allowed range (both ends and a little beyond), so that a changed
 #: document loads about as often as it is refused.
@@ -273,8 +358,10 @@ changes_strategy = st.one_of(
     # any value anywhere, tables and lists included
     st.tuples(st.sampled_from(LEAF_PATHS), plausible | values),
     # a key added to a table: a real key of any section (wrong place or a second form) or junk
-    st.tuples(st.tuples(st.sampled_from(TABLE_PATHS), st.sampled_from(ALL_KEYS) | key_names).map(lambda t: t[0] + (t[1],)),
-              plausible | values),
+    st.tuples(
+        st.tuples(st.sampled_from(TABLE_PATHS), st.sampled_from(ALL_KEYS) | key_names).map(lambda t: t[0] + (t[1],)),
+        plausible | values,
+    ),
 )
 
 
@@ -309,9 +396,13 @@ VALID_TEXT = tomli_w.dumps(VALID)
 @examples(150)
 @given(
     edits=st.lists(
-        st.tuples(st.sampled_from(["delete", "duplicate", "insert"]), st.integers(0, len(VALID_TEXT) - 1),
-                  st.sampled_from(list('="[]{},.\n #\\\'0-+eEx'))),
-        min_size=1, max_size=4,
+        st.tuples(
+            st.sampled_from(["delete", "duplicate", "insert"]),
+            st.integers(0, len(VALID_TEXT) - 1),
+            st.sampled_from(list("=\"[]{},.\n #\\'0-+eEx")),
+        ),
+        min_size=1,
+        max_size=4,
     )
 )
 def test_valid_text_with_characters_mangled(edits):
@@ -319,7 +410,7 @@ def test_valid_text_with_characters_mangled(edits):
     for op, at, ch in edits:
         at = min(at, len(text) - 1)
         if op == "delete":
-            text = text[:at] + text[at + 1:]
+            text = text[:at] + text[at + 1 :]
         elif op == "duplicate":
             text = text[:at] + text[at] + text[at:]
         else:

@@ -206,10 +206,14 @@ def test_last_active_column_sees_every_kind_of_state():
                                                       ("psi_rh", h["psi_rh"]), ("psi_re", e["psi_re"]))}
     ir0 = h["ir0"]
 
+    # the same groups the engine hands to step_h / step_e, over the arrays set one by one below
+    groups_h = _h_groups(arrays, {**h, **{k: arrays[k] for k in ("sib_psi", "psi_zh", "psi_rh")}})
+    groups_e = _e_groups(arrays, {**e, **{k: arrays[k] for k in ("psi_ze", "psi_re")}})
+    fields_g, _, ground, top_h, far_h, _ = groups_h
+    _, _, _, _, top_e, far_e, _, _ = groups_e
+
     def last(start=nr - 1):
-        a = arrays
-        return K.last_active_column(start, a["ez"], a["er"], a["hp"], a["jz"], a["jr"], a["psi_zh"], a["psi_ze"],
-                                    a["sib_psi"], ir0, a["psi_rh"], a["psi_re"])
+        return K.last_active_column(start, fields_g, ground, top_h, far_h, top_e, far_e)
 
     assert last() == -1
     for name, col in (("hp", 3), ("sib_psi", 5), ("jr", 7), ("psi_ze", 9), ("psi_rh", ir0 + 2), ("psi_re", ir0 + 4)):

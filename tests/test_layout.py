@@ -119,6 +119,9 @@ def test_one_way_rules():
         "cavity.sferic",
         "cavity.paths",
         "cavity.scenario",
+        "cavity.ionosphere_forms",
+        "cavity.tomltable",
+        "cavity.medium",
         "cavity.results",
         "cavity.fdtd.engine",
         "cavity.fdtd.media",
@@ -131,3 +134,30 @@ def test_one_way_rules():
             if isinstance(node, ast.ImportFrom | ast.Import):
                 names = [node.module or ""] if isinstance(node, ast.ImportFrom) else [a.name for a in node.names]
                 assert not any(n == "cavity" or n.startswith("cavity.") for n in names), path
+
+
+def form_comparisons(tree: ast.AST) -> list[int]:
+    """Lines where a ``.form`` attribute is compared (``x.form == "utc"``, ``x.form in (...)``)."""
+    lines = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Compare):
+            if any(isinstance(x, ast.Attribute) and x.attr == "form" for x in (node.left, *node.comparators)):
+                lines.append(node.lineno)
+    return lines
+
+
+def test_form_check_sees_a_comparison():
+    # the check below can fail: both spellings of a comparison by name are found, a call is not
+    source = 'if s.ionosphere.form == "utc":\n    pass\nok = "file" in ion.form\nform_of(ion).instant(ion)\n'
+    assert form_comparisons(ast.parse(source)) == [1, 3]
+
+
+def test_ionosphere_forms_are_asked_not_named():
+    """One home per ionosphere form: outside cavity/ionosphere_forms.py no module compares a form's name;
+    they dispatch through ``ionosphere_forms.form_of``."""
+    offenders = []
+    for name, path in module_names("cavity").items():
+        if name != "cavity.ionosphere_forms":
+            tree = ast.parse(path.read_text(), filename=str(path))
+            offenders += [f"{path.relative_to(ROOT)}:{line}" for line in form_comparisons(tree)]
+    assert not offenders, "ionosphere form compared by name: " + ", ".join(offenders)

@@ -38,8 +38,9 @@ def heidler_vec(t):
 
 def formula_peak(**kw):
     t_guess = TAU1 * 10
-    res = minimize_scalar(lambda t: -heidler(t, **kw), bounds=(0.1 * TAU1, 100 * TAU1), method="bounded",
-                          options={"xatol": 1e-14})
+    res = minimize_scalar(
+        lambda t: -heidler(t, **kw), bounds=(0.1 * TAU1, 100 * TAU1), method="bounded", options={"xatol": 1e-14}
+    )
     assert res.x > 0.1 * TAU1 and t_guess > 0
     return res.x, -res.fun
 
@@ -103,14 +104,16 @@ def _current_ft(f):
 
 def _radiation_spectrum_peak(height_m, speed):
     """Peak of |v I(f) (1 - exp(-j w H/v))| (the TL channel's dM/dt), I(f) from quad, bounded search."""
+
     def magnitude(f):
         w = 2 * math.pi * f
         return abs(speed * _current_ft(float(f)) * (1 - np.exp(-1j * w * height_m / speed)))
 
     grid = np.geomspace(1e3, 20e3, 40)
     k = int(np.argmax([magnitude(f) for f in grid]))
-    res = minimize_scalar(lambda f: -magnitude(f), bounds=(grid[k - 1], grid[k + 1]), method="bounded",
-                          options={"xatol": 0.5})
+    res = minimize_scalar(
+        lambda f: -magnitude(f), bounds=(grid[k - 1], grid[k + 1]), method="bounded", options={"xatol": 0.5}
+    )
     return res.x
 
 
@@ -155,10 +158,17 @@ def test_end_of_the_waveform(stroke):
     assert stroke.end_s == pytest.approx(stroke.decay_end_s + stroke.channel_height_m / stroke.channel_speed_m_per_s)
 
 
-@pytest.mark.parametrize("kw", [
-    {"peak_current_a": -1.0}, {"rise_time_constant_s": 0.0}, {"decay_time_constant_s": 1e-6},
-    {"channel_speed_m_per_s": 2 * C0}, {"channel_height_m": float("nan")}, {"exponent": 0.5},
-])
+@pytest.mark.parametrize(
+    "kw",
+    [
+        {"peak_current_a": -1.0},
+        {"rise_time_constant_s": 0.0},
+        {"decay_time_constant_s": 1e-6},
+        {"channel_speed_m_per_s": 2 * C0},
+        {"channel_height_m": float("nan")},
+        {"exponent": 0.5},
+    ],
+)
 def test_bad_parameters_are_refused(kw):
     with pytest.raises(ValueError, match=next(iter(kw))):
         HeidlerStroke(**kw)
@@ -171,9 +181,18 @@ def test_engine_drives_the_channel_and_records_its_moment():
     from cavity.fdtd import engine as eng
 
     stroke = HeidlerStroke(channel_height_m=6e3)
-    settings = eng.Settings(frequencies_hz=(5e3,), max_range_m=20e3, dr_m=500.0, dz_m=500.0, earth_curvature=False,
-                            waveform=stroke, probe_ranges_m=(10e3,), record_time_series=True,
-                            convergence_db=0.0, max_duration_s=0.3e-3)
+    settings = eng.Settings(
+        frequencies_hz=(5e3,),
+        max_range_m=20e3,
+        dr_m=500.0,
+        dz_m=500.0,
+        earth_curvature=False,
+        waveform=stroke,
+        probe_ranges_m=(10e3,),
+        record_time_series=True,
+        convergence_db=0.0,
+        max_duration_s=0.3e-3,
+    )
     res = eng.run(eng.Medium.uniform(ceiling_m=20e3), settings)
     t = res.time_s
     assert np.allclose(res.source_current, stroke(t), rtol=1e-12)

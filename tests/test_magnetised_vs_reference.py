@@ -25,7 +25,9 @@ GROUNDS = {"sea": (5.0, 70.0), "land": (1e-3, 15.0)}
 AZIMUTH_DEG = {"east": 90.0, "west": 270.0}
 TOLERANCE_DB = {"day": 1.0, "night": 1.5}
 MAX_RANGE_M = 3000e3
-CASES = [(t, g, d, a) for t in ("day", "night") for g in ("sea", "land") for d in (20.0, 60.0) for a in ("east", "west")]
+CASES = [
+    (t, g, d, a) for t in ("day", "night") for g in ("sea", "land") for d in (20.0, 60.0) for a in ("east", "west")
+]
 
 
 def case_id(case):
@@ -49,8 +51,15 @@ def engine_run(tod, ground, dip_deg, direction, cells_per_wavelength=24.0, frequ
     from cavity.reference import magnetised as mg
 
     b = mg.field_from_dip_azimuth(FIELD_T, dip_deg, AZIMUTH_DEG[direction]) if field else None
-    return ionosphere_run(frequency_hz, *PROFILES[tod], *GROUNDS[ground], MAX_RANGE_M + 30e3, magnetic_field_t=b,
-                          stencil_order=2, cells_per_wavelength=cells_per_wavelength)
+    return ionosphere_run(
+        frequency_hz,
+        *PROFILES[tod],
+        *GROUNDS[ground],
+        MAX_RANGE_M + 30e3,
+        magnetic_field_t=b,
+        stencil_order=2,
+        cells_per_wavelength=cells_per_wavelength,
+    )
 
 
 def compare(res, modes, min_range_m=300e3, max_range_m=MAX_RANGE_M):

@@ -16,8 +16,9 @@ from cavity.scenario import Receiver, load_scenario
 from profiles.daynight import PRESETS
 
 
-def scenario_text(receivers, *, tx=(0.0, 0.0), ionosphere='utc = 2026-03-20T18:00:00Z',
-                  ground='kind = "sea"', solver=""):
+def scenario_text(
+    receivers, *, tx=(0.0, 0.0), ionosphere="utc = 2026-03-20T18:00:00Z", ground='kind = "sea"', solver=""
+):
     """TOML for an invented scenario with the given receivers (dicts of receiver keys)."""
     lines = [
         'title = "Invented test scenario"',
@@ -105,8 +106,9 @@ def test_group_bearings_and_circular_mean():
 def test_uniform_scenario_single_path_with_range_only_receivers():
     rx = [{"range_km": 1500.0}, receiver_at(45.0, 700.0), receiver_at(200.0, 2500.0)]
     s = load_scenario(
-        scenario_text(rx, ionosphere="hprime_km = 74.0\nbeta_per_km = 0.3", ground='kind = "land"',
-                      solver="max_range_km = 4000.0")
+        scenario_text(
+            rx, ionosphere="hprime_km = 74.0\nbeta_per_km = 0.3", ground='kind = "land"', solver="max_range_km = 4000.0"
+        )
     )
     (path,) = build_paths(s, sample_km=10.0)
     assert path.label == "uniform" and path.bearing_deg is None
@@ -153,8 +155,10 @@ def test_segments_override_ground():
         "[[ground.segment]]\nfrom_km = 300.0\nto_km = 400.0\nconductivity_s_per_m = 0.002\n"
         "relative_permittivity = 10.0"
     )
-    (p,) = build_paths(load_scenario(scenario_text(rx, ionosphere="hprime_km = 74.0\nbeta_per_km = 0.3",
-                                                   ground=ground)), sample_km=10.0)
+    (p,) = build_paths(
+        load_scenario(scenario_text(rx, ionosphere="hprime_km = 74.0\nbeta_per_km = 0.3", ground=ground)),
+        sample_km=10.0,
+    )
     assert p.label == "all bearings" and p.bearing_deg is None
     r_km = p.range_m / 1e3
     expect = np.where((r_km >= 100) & (r_km < 300), "land", np.where((r_km >= 300) & (r_km < 400), "custom", "sea"))

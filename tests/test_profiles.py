@@ -233,7 +233,13 @@ def test_linear_transition_at_reference_angles():
     )
     np.testing.assert_allclose(
         beta,
-        [day.beta_per_km, day.beta_per_km, (day.beta_per_km + night.beta_per_km) / 2, night.beta_per_km, night.beta_per_km],
+        [
+            day.beta_per_km,
+            day.beta_per_km,
+            (day.beta_per_km + night.beta_per_km) / 2,
+            night.beta_per_km,
+            night.beta_per_km,
+        ],
     )
     assert profiles.daylight_class(chi).tolist() == ["day", "day", "transition", "night", "night"]
 
@@ -271,7 +277,9 @@ def test_terminator_zenith():
     np.testing.assert_allclose(chi, [97.8, 100.1], atol=0.05)
     # Independent form (tangent-line geometry): the horizon dip angle satisfies tan = sqrt(2 a h + h^2)/a.
     a, h = 6371e3, 80e3
-    assert profiles.terminator_zenith_deg(h) == pytest.approx(90 + math.degrees(math.atan(math.sqrt(2 * a * h + h * h) / a)))
+    assert profiles.terminator_zenith_deg(h) == pytest.approx(
+        90 + math.degrees(math.atan(math.sqrt(2 * a * h + h * h) / a))
+    )
     assert profiles.terminator_zenith_deg(0.0) == 90.0
 
 
@@ -326,9 +334,9 @@ def test_read_netcdf_units_and_layouts(tmp_path):
     with pytest.raises(ProfileError, match="furlong"):
         profiles.read_profile(tmp_path / "c.nc")
 
-    ds.rename({"collision_frequency": "collision_freq"}).assign_coords(altitude=("altitude", z_m, {"units": "m"})).to_netcdf(
-        tmp_path / "d.nc"
-    )
+    ds.rename({"collision_frequency": "collision_freq"}).assign_coords(
+        altitude=("altitude", z_m, {"units": "m"})
+    ).to_netcdf(tmp_path / "d.nc")
     with pytest.raises(ProfileError, match="missing variable.*collision_frequency"):
         profiles.read_profile(tmp_path / "d.nc")
 
@@ -359,10 +367,16 @@ HEADER = "altitude_km,electron_density_m3,collision_frequency_s\n"
         (HEADER + "60,1e6,2e7\n70,1e7,inf\n80,1e8,1e6\n", "line 3: collision_frequency_s = inf"),
         (HEADER + "60,1e6,2e7\n60,1e7,5e6\n80,1e8,1e6\n", "strictly increasing"),
         (HEADER + "60,1e6,2e7\n70,-1e7,5e6\n80,1e8,1e6\n", "electron_density_m3 = -1e+07 is outside the allowed range"),
-        (HEADER + "60,1e6,2e7\n70,1e7,-5e6\n80,1e8,1e6\n", "collision_frequency_s = -5e+06 is outside the allowed range"),
+        (
+            HEADER + "60,1e6,2e7\n70,1e7,-5e6\n80,1e8,1e6\n",
+            "collision_frequency_s = -5e+06 is outside the allowed range",
+        ),
         (HEADER + "60,1e6,2e7\n70,1e7,0\n80,1e8,1e6\n", "collision_frequency_s = 0 is outside the allowed range"),
         (HEADER + "60,1e6,2e7\n70,1e7,5e6\n", "has 2 levels; at least 3"),
-        (HEADER + "60,1e6,2e7\n70,1e7,5e6\n600,1e8,1e6\n", "altitude_km = 600 is outside the allowed range (0 to 500 km)"),
+        (
+            HEADER + "60,1e6,2e7\n70,1e7,5e6\n600,1e8,1e6\n",
+            "altitude_km = 600 is outside the allowed range (0 to 500 km)",
+        ),
         (HEADER + "-5,1e6,2e7\n70,1e7,5e6\n80,1e8,1e6\n", "altitude_km = -5 is outside"),
         (HEADER + "60,1e6,2e7\n70,1e7\n80,1e8,1e6\n", "line 3: 2 fields"),
     ],

@@ -392,11 +392,26 @@ def test_verify_table_fits_100_columns_with_labelled_columns():
     from cavity.checks.verify import TABLE_WIDTH, CheckResult, format_table
 
     long = "x" * 150
-    results = [CheckResult("calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); " + long,
-                           "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km", "worst 0.042 dB", "0.2 dB",
-                           True, 6.4),
-               CheckResult("plasma stability", "Yu and Simpson 2010", "bounded for 100000 steps",
-                           "max |Ez| 2.9e-06", "finite, no growth", False, 20.0)]
+    results = [
+        CheckResult(
+            "calibration 1 kW",
+            "ITU-R P.368 (300 V cymomotive force); " + long,
+            "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km",
+            "worst 0.042 dB",
+            "0.2 dB",
+            True,
+            6.4,
+        ),
+        CheckResult(
+            "plasma stability",
+            "Yu and Simpson 2010",
+            "bounded for 100000 steps",
+            "max |Ez| 2.9e-06",
+            "finite, no growth",
+            False,
+            20.0,
+        ),
+    ]
     text = format_table(results)
     assert max(len(line) for line in text.splitlines()) <= TABLE_WIDTH <= 100
     header = text.splitlines()[0]

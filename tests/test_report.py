@@ -1,4 +1,4 @@
-"""Checks of cavity.reports.tables: receiver tables, attenuation fits, comparisons and figures.
+"""Checks of cavity.reports (tables, attenuation, compare, plots): receiver tables, attenuation fits, comparisons and figures.
 
 Synthetic results are built with cavity.results.assemble_dataset from fields whose answers are known
 in closed form; the golden result files in tests/data (small solver runs, made by tests/data/make_golden.py) guard the
@@ -19,28 +19,24 @@ import pytest
 
 from cavity.constants import C0
 from cavity.errors import CavityError
-from cavity.reports.tables import (
+from cavity.reports.attenuation import (
     EARTH_RADIUS_KM,
     attenuation_rate,
     attenuation_rows,
-    common_amplitude_limits,
-    common_frequencies,
-    comparison_figure,
-    comparison_report,
-    comparison_rows,
-    display_phase_deg,
-    near_field_km,
-    noise_in_bandwidth_db,
-    plot_comparison,
-    plot_result,
-    receiver_daylight,
-    receiver_rows,
-    receiver_table,
-    relative_phase_deg,
     result_attenuation,
-    result_figure,
     spreading_db,
 )
+from cavity.reports.compare import common_frequencies, comparison_report, comparison_rows
+from cavity.reports.phase import display_phase_deg, relative_phase_deg
+from cavity.reports.plots import (
+    common_amplitude_limits,
+    comparison_figure,
+    near_field_km,
+    plot_comparison,
+    plot_result,
+    result_figure,
+)
+from cavity.reports.tables import noise_in_bandwidth_db, receiver_daylight, receiver_rows, receiver_table
 from cavity.results import SolverRecord, assemble_dataset, open_result, write_result
 from cavity.scenario import load_scenario
 
@@ -55,19 +51,28 @@ GOLDEN = {name: DATA / f"golden_{name}.nc" for name in ("day", "night", "dawn")}
 
 def scenario_text(freqs="20.0", ionosphere='preset = "day"', names=("Site North", "Site | Mid", "Site South")):
     """An invented scenario (made-up names): receivers given by range on a uniform sea path."""
-    receivers = "".join(
-        f'[[receiver]]\nname = "{n}"\nrange_km = {d}\n' for n, d in zip(names, (600.0, 1500.0, 2900.0))
-    )
+    receivers = "".join(f'[[receiver]]\nname = "{n}"\nrange_km = {d}\n' for n, d in zip(names, (600.0, 1500.0, 2900.0)))
     return (
         'title = "Invented synthetic result"\n'
         f'[transmitter]\nname = "Test mast"\nfrequency_khz = {freqs}\nradiated_power_kw = 10.0\n'
-        f"{receivers}[ionosphere]\n{ionosphere}\n[ground]\nkind = \"sea\"\n"
+        f'{receivers}[ionosphere]\n{ionosphere}\n[ground]\nkind = "sea"\n'
     )
 
 
-def synthetic(rate_db_per_1000km=2.0, freqs_khz=(20.0,), *, spreading="sphere", phase_velocity_ratio=1.003,
-              ionosphere='preset = "day"', receiver_km=(600.0, 1500.0, 2900.0), e0_db=80.0, ripple_db=0.0,
-              sza=None, paths=1, bearings=None):
+def synthetic(
+    rate_db_per_1000km=2.0,
+    freqs_khz=(20.0,),
+    *,
+    spreading="sphere",
+    phase_velocity_ratio=1.003,
+    ionosphere='preset = "day"',
+    receiver_km=(600.0, 1500.0, 2900.0),
+    e0_db=80.0,
+    ripple_db=0.0,
+    sza=None,
+    paths=1,
+    bearings=None,
+):
     """A result whose field is E0 exp(-alpha d) / sqrt(spreading) exactly (optionally with a ripple).
 
     The phase is that of a wave travelling at ``phase_velocity_ratio`` times c.
@@ -76,24 +81,39 @@ def synthetic(rate_db_per_1000km=2.0, freqs_khz=(20.0,), *, spreading="sphere", 
     scenario = load_scenario(scenario_text(", ".join(f"{f:g}" for f in freqs).join("[]"), ionosphere))
     r_km = np.linspace(0.0, 3200.0, 641)
     d = np.maximum(r_km, 1e-3)
-    db = (e0_db - rate_db_per_1000km * d / 1000.0 - spreading_db(d, spreading)
-          + ripple_db * np.sin(2 * np.pi * d / 700.0))
+    db = (
+        e0_db - rate_db_per_1000km * d / 1000.0 - spreading_db(d, spreading) + ripple_db * np.sin(2 * np.pi * d / 700.0)
+    )
     ez = np.empty((paths, freqs.size, r_km.size), complex)
     for k, f in enumerate(freqs):
         k0 = 2 * np.pi * f * 1e3 / (C0 * phase_velocity_ratio)
         ez[:, k] = (1e-6 * 10 ** (db / 20.0) * np.exp(-1j * k0 * d * 1e3))[None, :]
     rx_km = np.asarray(receiver_km, float)
-    rx = np.stack([1e-6 * 10 ** (np.interp(rx_km, d, db) / 20.0)
-                   * np.exp(-1j * 2 * np.pi * f * 1e3 / (C0 * phase_velocity_ratio) * rx_km * 1e3)
-                   for f in freqs], axis=1)
+    rx = np.stack(
+        [
+            1e-6
+            * 10 ** (np.interp(rx_km, d, db) / 20.0)
+            * np.exp(-1j * 2 * np.pi * f * 1e3 / (C0 * phase_velocity_ratio) * rx_km * 1e3)
+            for f in freqs
+        ],
+        axis=1,
+    )
     alt = np.arange(40e3, 121e3, 20e3)
     P, R = paths, r_km.size
     return assemble_dataset(
-        scenario, range_m=r_km * 1e3, frequency_hz=freqs * 1e3, altitude_m=alt,
+        scenario,
+        range_m=r_km * 1e3,
+        frequency_hz=freqs * 1e3,
+        altitude_m=alt,
         path_labels=[f"path {p}" for p in range(P)] if paths > 1 else ["uniform"],
-        ez_v_per_m=ez, b_t=ez / C0, receiver_names=[rx.name for rx in scenario.receivers],
-        receiver_range_m=rx_km * 1e3, receiver_ez_v_per_m=rx, receiver_b_t=rx / C0,
-        electron_density_m3=np.ones((P, R, alt.size)), collision_frequency_s=np.ones((P, R, alt.size)),
+        ez_v_per_m=ez,
+        b_t=ez / C0,
+        receiver_names=[rx.name for rx in scenario.receivers],
+        receiver_range_m=rx_km * 1e3,
+        receiver_ez_v_per_m=rx,
+        receiver_b_t=rx / C0,
+        electron_density_m3=np.ones((P, R, alt.size)),
+        collision_frequency_s=np.ones((P, R, alt.size)),
         ground_conductivity_s_per_m=np.full((P, R), 5.0),
         solver=SolverRecord(cells=1, time_steps=1, cell_r_m=500.0, cell_z_m=500.0, time_step_s=1e-6, wall_time_s=1.0),
         receiver_path=np.zeros(len(rx_km), int),
@@ -113,7 +133,9 @@ def test_spreading_on_sphere_and_flat():
     d = np.array([5000.0, 10000.0])
     extra = spreading_db(d, "flat") - spreading_db(d, "sphere")  # power ratio of the two, dB
     amplitude_correction = extra  # 10 log10 of the power ratio = 20 log10 of the amplitude ratio
-    assert amplitude_correction[0] == pytest.approx(10 * math.log10(5000 / (EARTH_RADIUS_KM * math.sin(5000 / EARTH_RADIUS_KM))))
+    assert amplitude_correction[0] == pytest.approx(
+        10 * math.log10(5000 / (EARTH_RADIUS_KM * math.sin(5000 / EARTH_RADIUS_KM)))
+    )
     assert amplitude_correction[0] == pytest.approx(0.5, abs=0.1)
     assert amplitude_correction[1] == pytest.approx(2.0, abs=0.4)
     with pytest.raises(ValueError):
@@ -160,9 +182,11 @@ def test_near_field_band_holds_the_phase_turn():
     f = 22.3
     edge = near_field_km(f)
     k = 2 * np.pi * f * 1e3 / C0
+
     def bracket_phase(d_km):
         kd = k * np.asarray(d_km) * 1e3
         return np.degrees(np.angle(1 + 1 / (1j * kd) + 1 / (1j * kd) ** 2))
+
     assert np.all(np.abs(bracket_phase(np.linspace(edge, 50 * edge, 400))) < 10.0)
     assert abs(bracket_phase(0.01 * edge)) > 170.0
 
@@ -245,8 +269,7 @@ def parse_markdown(text):
             if rows:
                 break
             continue
-        cells = [c.strip().replace("\\|", "|") for c in
-                 line.strip().strip("|").replace("\\|", "\0").split("|")]
+        cells = [c.strip().replace("\\|", "|") for c in line.strip().strip("|").replace("\\|", "\0").split("|")]
         rows.append([c.replace("\0", "|") for c in cells])
     return [rows[0]] + rows[2:]
 
@@ -256,7 +279,10 @@ def test_receiver_rows_hold_the_file_numbers():
     rows = receiver_rows(ds, required_db=40.0, noise_db=5.0, bandwidth_hz=200.0)
     assert len(rows) == 3 * 2
     assert [(r["receiver"], r["frequency_khz"]) for r in rows[:3]] == [
-        ("Site North", 16.0), ("Site North", 31.5), ("Site | Mid", 16.0)]
+        ("Site North", 16.0),
+        ("Site North", 31.5),
+        ("Site | Mid", 16.0),
+    ]
     for i in range(3):
         for k in range(2):
             row = rows[2 * i + k]
@@ -290,7 +316,9 @@ def test_csv_table_parses_and_equals_the_file():
         assert abs(float(row["ez_db_re_1uv_per_m"]) - ez) <= 0.0005
         assert abs(float(row["b_db_re_1ft"]) - float(ds["receiver_b_amplitude"].values[i, k])) <= 0.0005
         light = 360.0 * float(ds["frequency"].values[k]) * 1e3 * float(ds["receiver_range"].values[i]) * 1e3 / C0
-        expected = math.degrees(cmath.phase(cmath.exp(1j * math.radians(float(ds["receiver_ez_phase"].values[i, k]) + light))))
+        expected = math.degrees(
+            cmath.phase(cmath.exp(1j * math.radians(float(ds["receiver_ez_phase"].values[i, k]) + light)))
+        )
         assert abs((float(row["ez_phase_re_c_delay_deg"]) - expected + 180.0) % 360.0 - 180.0) <= 0.005
         assert abs(float(row["range_km"]) - float(ds["receiver_range"].values[i])) <= 0.005
         assert float(row["ez_uv_per_m"]) == pytest.approx(10 ** (ez / 20), rel=1e-5)
@@ -326,10 +354,17 @@ def test_several_runs_get_a_run_column():
     assert [r["day_night"] for r in rows] == ["day"] * 3 + ["night"] * 3
 
 
-@pytest.mark.parametrize("ionosphere, expected", [
-    ('preset = "day"', "day"), ('preset = "night"', "night"), ('preset = "textbook-night"', "night"),
-    ('preset = "day-2017"', "day"), ("hprime_km = 75.0\nbeta_per_km = 0.4", "-"), ("ceiling_km = 80.0", "-"),
-])
+@pytest.mark.parametrize(
+    "ionosphere, expected",
+    [
+        ('preset = "day"', "day"),
+        ('preset = "night"', "night"),
+        ('preset = "textbook-night"', "night"),
+        ('preset = "day-2017"', "day"),
+        ("hprime_km = 75.0\nbeta_per_km = 0.4", "-"),
+        ("ceiling_km = 80.0", "-"),
+    ],
+)
 def test_daylight_from_the_scenario_preset(ionosphere, expected):
     assert receiver_daylight(synthetic(ionosphere=ionosphere)) == [expected] * 3
 
@@ -484,7 +519,7 @@ def test_comparison_ground_strip_follows_the_ground_used():
     for ds in (day, night):  # land (1e-3 S/m, ITU-R P.527 medium dry ground) from 1000 to 2000 km
         r = ds["range"].values
         ds["ground_conductivity"].values[:, (r >= 1000) & (r < 2000)] = 1e-3
-    from cavity.reports.tables import ground_classes_along
+    from cavity.reports.plots import ground_classes_along
 
     cls = ground_classes_along(day)
     r = day["range"].values
@@ -499,8 +534,7 @@ def test_rough_fits_and_receivers_near_nulls_are_marked_on_their_rows():
     # A 6 dB ripple over a 700 km period leaves a residual above 2 dB: common practice reads such a
     # slope as modal interference, not the guide's attenuation.
     day = synthetic(2.5, (20.0,))
-    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0, ripple_db=6.0),
-                      1500.0, 25.0)
+    night = with_null(synthetic(1.0, (20.0,), ionosphere='preset = "night"', e0_db=83.0, ripple_db=6.0), 1500.0, 25.0)
     fits = attenuation_rows([day, night], ["day", "night"])
     notes = {row["run"]: row["note"] for row in fits}
     assert notes["day"] == "" and notes["night"].startswith("rough slope")
@@ -525,8 +559,7 @@ def golden():
     return {name: open_result(path) for name, path in GOLDEN.items()}
 
 
-@pytest.mark.parametrize("name, fmt", [("day", "markdown"), ("day", "csv"), ("dawn", "markdown"),
-                                       ("night", "csv")])
+@pytest.mark.parametrize("name, fmt", [("day", "markdown"), ("day", "csv"), ("dawn", "markdown"), ("night", "csv")])
 def test_golden_table_text_is_unchanged(golden, name, fmt):
     suffix = "md" if fmt == "markdown" else "csv"
     expected = (DATA / f"golden_{name}_table.{suffix}").read_text(encoding="utf-8")
@@ -604,8 +637,14 @@ def test_markdown_table_opens_with_the_run_and_flags_short_margins():
     head = text.split("\n| ")[0]
     # the header names transmitter, frequency, power and ionosphere as the embedded scenario gives them
     doc = tomllib.loads(str(day.attrs["scenario"]))
-    for fragment in (doc["transmitter"]["name"], "16 kHz", f"{doc['transmitter']['radiated_power_kw']:g} kW",
-                     'preset "day"', 'preset "night"', "time"):
+    for fragment in (
+        doc["transmitter"]["name"],
+        "16 kHz",
+        f"{doc['transmitter']['radiated_power_kw']:g} kW",
+        'preset "day"',
+        'preset "night"',
+        "time",
+    ):
         assert fragment in head, fragment
     rows = parse_markdown(text)
     header, body = rows[0], rows[1:]

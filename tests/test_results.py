@@ -34,8 +34,9 @@ from cavity.results import (
 from cavity.scenario import load_scenario
 
 EXAMPLES = Path(__file__).resolve().parents[1] / "examples"
-RECORD = SolverRecord(cells=4000 * 260, time_steps=12000, cell_r_m=765.0, cell_z_m=250.0,
-                      time_step_s=5.6e-7, wall_time_s=12.5)
+RECORD = SolverRecord(
+    cells=4000 * 260, time_steps=12000, cell_r_m=765.0, cell_z_m=250.0, time_step_s=5.6e-7, wall_time_s=12.5
+)
 
 
 def far_field(range_m, frequency_hz, power_w=1e3):
@@ -61,10 +62,20 @@ def build(scenario_name="quillon_head.toml", paths=3, ground=5.0, **extra):
     ne = np.broadcast_to(1e8 * np.exp(0.3 * (z / 1e3 - 74.0)), (paths, r.size, z.size))
     nu = np.broadcast_to(1.816e11 * np.exp(-0.15 * z / 1e3), (paths, r.size, z.size))
     kwargs = dict(
-        range_m=r, frequency_hz=f, altitude_m=z, path_labels=[f"bearing {b} deg" for b in (268, 266, 258)][:paths],
-        ez_v_per_m=ez, b_t=ez / C0, receiver_names=[x.name for x in s.receivers], receiver_range_m=rx_range,
-        receiver_ez_v_per_m=rx_ez, receiver_b_t=rx_ez / C0, electron_density_m3=ne, collision_frequency_s=nu,
-        ground_conductivity_s_per_m=np.full((paths, r.size), ground), solver=RECORD,
+        range_m=r,
+        frequency_hz=f,
+        altitude_m=z,
+        path_labels=[f"bearing {b} deg" for b in (268, 266, 258)][:paths],
+        ez_v_per_m=ez,
+        b_t=ez / C0,
+        receiver_names=[x.name for x in s.receivers],
+        receiver_range_m=rx_range,
+        receiver_ez_v_per_m=rx_ez,
+        receiver_b_t=rx_ez / C0,
+        electron_density_m3=ne,
+        collision_frequency_s=nu,
+        ground_conductivity_s_per_m=np.full((paths, r.size), ground),
+        solver=RECORD,
     )
     kwargs.update(extra)
     return s, assemble_dataset(s, **kwargs)
@@ -72,13 +83,20 @@ def build(scenario_name="quillon_head.toml", paths=3, ground=5.0, **extra):
 
 @pytest.fixture(scope="module")
 def dataset():
-    return build(receiver_path=[0, 1, 2], receiver_bearing_deg=[268.0, 266.3, 258.2],
-                 receiver_latitude_deg=[-16.46, -16.75, -19.9], receiver_longitude_deg=[39.75, 30.5, 16.6],
-                 path_bearing_deg=[268.0, 266.3, 258.2], solar_zenith_angle_deg=np.full((3, 6400), 95.0),
-                 hprime_km=np.full((3, 6400), 80.0), beta_per_km=np.full((3, 6400), 0.5),
-                 ground_relative_permittivity=np.full((3, 6400), 70.0),
-                 time_s=np.arange(100) * 1e-6, receiver_ez_time_series_v_per_m=np.zeros((3, 100)),
-                 receiver_ez_uncertainty_db=np.array([[0.2, 0.3], [0.4, np.nan], [1.5, 2.0]]))
+    return build(
+        receiver_path=[0, 1, 2],
+        receiver_bearing_deg=[268.0, 266.3, 258.2],
+        receiver_latitude_deg=[-16.46, -16.75, -19.9],
+        receiver_longitude_deg=[39.75, 30.5, 16.6],
+        path_bearing_deg=[268.0, 266.3, 258.2],
+        solar_zenith_angle_deg=np.full((3, 6400), 95.0),
+        hprime_km=np.full((3, 6400), 80.0),
+        beta_per_km=np.full((3, 6400), 0.5),
+        ground_relative_permittivity=np.full((3, 6400), 70.0),
+        time_s=np.arange(100) * 1e-6,
+        receiver_ez_time_series_v_per_m=np.zeros((3, 100)),
+        receiver_ez_uncertainty_db=np.array([[0.2, 0.3], [0.4, np.nan], [1.5, 2.0]]),
+    )
 
 
 def test_calibration_levels_in_db(dataset):
@@ -109,9 +127,13 @@ def test_receiver_phase_on_path_branch(dataset):
     _, ds = dataset
     for i, r_km in enumerate(ds.receiver_range.values):
         for k in range(ds.sizes["frequency"]):
-            on_path = np.interp(r_km, ds.range.values, ds.ez_phase.isel(path=int(ds.receiver_path[i]), frequency=k).values)
+            on_path = np.interp(
+                r_km, ds.range.values, ds.ez_phase.isel(path=int(ds.receiver_path[i]), frequency=k).values
+            )
             assert abs(ds.receiver_ez_phase[i, k] - on_path) < 1.0  # same branch, 500 m sampling
-    assert np.allclose(ds.receiver_ez_amplitude, 20 * np.log10(math.sqrt(90e3) / (ds.receiver_range.values[:, None] * 1e3) / 1e-6))
+    assert np.allclose(
+        ds.receiver_ez_amplitude, 20 * np.log10(math.sqrt(90e3) / (ds.receiver_range.values[:, None] * 1e3) / 1e-6)
+    )
 
 
 def test_shorter_path_is_nan_beyond_its_range(dataset):
@@ -187,7 +209,10 @@ def test_write_and_read_round_trip(dataset, tmp_path):
     back = open_result(written)
     xr.testing.assert_equal(back, ds)  # values, dims and coordinates
     for name in ds.variables:
-        assert np.array_equal(back[name].values, ds[name].values, equal_nan=back[name].dtype.kind == "f") or back[name].dtype.kind == "O"
+        assert (
+            np.array_equal(back[name].values, ds[name].values, equal_nan=back[name].dtype.kind == "f")
+            or back[name].dtype.kind == "O"
+        )
         for key, value in ds[name].attrs.items():
             assert back[name].attrs[key] == value
     assert list(back.receiver_name.values) == list(ds.receiver_name.values)
@@ -255,7 +280,9 @@ def test_unknown_variable_needs_metadata(dataset):
     _, ds = dataset
     with pytest.raises(ValueError, match="'mystery'"):
         apply_metadata(ds.assign(mystery=xr.DataArray(np.arange(3.0), dims="receiver")))
-    ok = ds.assign(mystery=xr.DataArray(np.arange(3.0), dims="receiver", attrs={"units": "km", "long_name": "mystery range"}))
+    ok = ds.assign(
+        mystery=xr.DataArray(np.arange(3.0), dims="receiver", attrs={"units": "km", "long_name": "mystery range"})
+    )
     assert apply_metadata(ok).mystery.attrs["units"] == "km"
 
 
@@ -263,7 +290,10 @@ def test_foreign_and_corrupt_files_rejected(dataset, tmp_path):
     _, ds = dataset
     foreign = tmp_path / "foreign.nc"
     xr.Dataset({"t": ("x", np.arange(3.0))}, attrs={"source": "some other model"}).to_netcdf(foreign)
-    with pytest.raises(ResultFileError, match=r"foreign\.nc is not a cavity result file \(its source attribute is 'some other model'\)$"):
+    with pytest.raises(
+        ResultFileError,
+        match=r"foreign\.nc is not a cavity result file \(its source attribute is 'some other model'\)$",
+    ):
         open_result(foreign)
     partial = tmp_path / "partial.nc"
     write_result(ds.drop_vars(["electron_density", "collision_frequency"]), partial)
@@ -299,8 +329,12 @@ def test_cf_compliance_checker_passes(dataset, tmp_path):
     files = [write_result(ds, tmp_path / "full.nc"), write_result(single, tmp_path / "single.nc")]
     for file in files:
         report = tmp_path / f"{file.stem}.json"
-        done = subprocess.run([_checker(), "--test", "cf:1.10", "-f", "json", "-o", str(report), str(file)],
-                              capture_output=True, text=True, timeout=300)
+        done = subprocess.run(
+            [_checker(), "--test", "cf:1.10", "-f", "json", "-o", str(report), str(file)],
+            capture_output=True,
+            text=True,
+            timeout=300,
+        )
         result = json.loads(report.read_text())["cf:1.10"]
         failed = [(p["name"], p["msgs"]) for p in result["all_priorities"] if p["value"][0] < p["value"][1]]
         assert result["high_count"] == 0, failed

@@ -48,8 +48,14 @@ BASE = {
 
 def tx(**values: str | None) -> str:
     """A [transmitter] table with some keys replaced (TOML value text; None drops the key)."""
-    keys = {"name": '"Greyhaven Mast"', "latitude_deg": "50.0", "longitude_deg": "0.0", "frequency_khz": "20.0",
-            "radiated_power_kw": "10.0", **values}
+    keys = {
+        "name": '"Greyhaven Mast"',
+        "latitude_deg": "50.0",
+        "longitude_deg": "0.0",
+        "frequency_khz": "20.0",
+        "radiated_power_kw": "10.0",
+        **values,
+    }
     return "[transmitter]\n" + "\n".join(f"{k} = {v}" for k, v in keys.items() if v is not None)
 
 
@@ -97,115 +103,349 @@ def _png_bytes() -> bytes:
 
 CATALOGUE: list[Case] = [
     # --- malformed TOML and unreadable scenario files
-    Case("toml-unclosed-string", "malformed TOML", ("invalid TOML", "line 1"), 'title = "Greyhaven\n' + scenario(top="")),
-    Case("toml-duplicate-key", "malformed TOML", ("invalid TOML", "line 9"), scenario(transmitter=tx() + "\nfrequency_khz = 30.0")),
-    Case("toml-duplicate-table", "malformed TOML", ("invalid TOML", "ground", "twice"), scenario() + '\n[ground]\nkind = "land"\n'),
-    Case("toml-unclosed-array", "malformed TOML", ("invalid TOML",), scenario(transmitter=tx(frequency_khz="[16.0, 20.0"))),
+    Case(
+        "toml-unclosed-string", "malformed TOML", ("invalid TOML", "line 1"), 'title = "Greyhaven\n' + scenario(top="")
+    ),
+    Case(
+        "toml-duplicate-key",
+        "malformed TOML",
+        ("invalid TOML", "line 9"),
+        scenario(transmitter=tx() + "\nfrequency_khz = 30.0"),
+    ),
+    Case(
+        "toml-duplicate-table",
+        "malformed TOML",
+        ("invalid TOML", "ground", "twice"),
+        scenario() + '\n[ground]\nkind = "land"\n',
+    ),
+    Case(
+        "toml-unclosed-array",
+        "malformed TOML",
+        ("invalid TOML",),
+        scenario(transmitter=tx(frequency_khz="[16.0, 20.0")),
+    ),
     Case("toml-png-as-scenario", "malformed TOML", ("bad.toml", "not UTF-8"), _png_bytes()),
     Case("toml-empty-file", "malformed TOML", ("bad.toml", "title is missing"), ""),
-    Case("scenario-is-a-folder", "scenario file", ("folder.toml", "is a folder"), None, ("inspect", "folder.toml"),
-         setup=lambda d: (d / "folder.toml").mkdir()),
-    Case("scenario-not-utf8", "scenario file", ("bad.toml", "not UTF-8", "offset 12"),
-         scenario(top="").replace("[transmitter]", 'title = "caf\u00e9"\n[transmitter]', 1).encode("latin-1")),
-    Case("scenario-missing", "scenario file", ("nowhere.toml", "not found"), None, ("run", "nowhere.toml", "-o", "out.nc")),
+    Case(
+        "scenario-is-a-folder",
+        "scenario file",
+        ("folder.toml", "is a folder"),
+        None,
+        ("inspect", "folder.toml"),
+        setup=lambda d: (d / "folder.toml").mkdir(),
+    ),
+    Case(
+        "scenario-not-utf8",
+        "scenario file",
+        ("bad.toml", "not UTF-8", "offset 12"),
+        scenario(top="").replace("[transmitter]", 'title = "caf\u00e9"\n[transmitter]', 1).encode("latin-1"),
+    ),
+    Case(
+        "scenario-missing",
+        "scenario file",
+        ("nowhere.toml", "not found"),
+        None,
+        ("run", "nowhere.toml", "-o", "out.nc"),
+    ),
     # --- unknown or misspelt keys ("did you mean")
-    Case("key-power-in-watts", "unknown key", ("transmitter.radiated_power_w", "unknown key", "'radiated_power_kw'"),
-         scenario(transmitter=tx(radiated_power_kw=None, radiated_power_w="1e4"))),
-    Case("key-section-misspelt", "unknown key", ("ionosphre", "unknown key", "'ionosphere'"),
-         scenario(ionosphere="[ionosphre]\nhprime_km = 74.0\nbeta_per_km = 0.3")),
-    Case("key-unit-left-off", "unknown key", ("receiver[1].latitude", "unknown key", "'latitude_deg'"),
-         scenario(receivers=rx(latitude="51.0", longitude_deg="1.0"))),
-    Case("key-solver-misspelt", "unknown key", ("solver.cellsize_m", "unknown key", "'cell_m'"),
-         scenario(solver="[solver]\ncellsize_m = 500.0")),
-    Case("key-unplanned-section", "unknown key", ("antenna", "unknown key", "known keys"),
-         scenario() + '\n[antenna]\nheight_m = 200.0\n'),
+    Case(
+        "key-power-in-watts",
+        "unknown key",
+        ("transmitter.radiated_power_w", "unknown key", "'radiated_power_kw'"),
+        scenario(transmitter=tx(radiated_power_kw=None, radiated_power_w="1e4")),
+    ),
+    Case(
+        "key-section-misspelt",
+        "unknown key",
+        ("ionosphre", "unknown key", "'ionosphere'"),
+        scenario(ionosphere="[ionosphre]\nhprime_km = 74.0\nbeta_per_km = 0.3"),
+    ),
+    Case(
+        "key-unit-left-off",
+        "unknown key",
+        ("receiver[1].latitude", "unknown key", "'latitude_deg'"),
+        scenario(receivers=rx(latitude="51.0", longitude_deg="1.0")),
+    ),
+    Case(
+        "key-solver-misspelt",
+        "unknown key",
+        ("solver.cellsize_m", "unknown key", "'cell_m'"),
+        scenario(solver="[solver]\ncellsize_m = 500.0"),
+    ),
+    Case(
+        "key-unplanned-section",
+        "unknown key",
+        ("antenna", "unknown key", "known keys"),
+        scenario() + "\n[antenna]\nheight_m = 200.0\n",
+    ),
     # --- wrong types
-    Case("type-power-with-unit-text", "wrong type", ("transmitter.radiated_power_kw", '"100 kW"', "must be a number", "> 0 to 5000 kW"),
-         scenario(transmitter=tx(radiated_power_kw='"100 kW"'))),
-    Case("type-latitude-array", "wrong type", ("transmitter.latitude_deg", "[50, 0]", "-90 to 90 deg"),
-         scenario(transmitter=tx(latitude_deg="[50, 0]"))),
-    Case("type-transmitter-text", "wrong type", ('transmitter = "Greyhaven"', "must be a table"),
-         scenario(transmitter="", top='title = "x"\ntransmitter = "Greyhaven"')),
-    Case("type-transmitter-array-of-tables", "wrong type", ("transmitter", "must be a table"),
-         scenario(transmitter=tx().replace("[transmitter]", "[[transmitter]]"))),
-    Case("type-receivers-empty-list", "wrong type", ("receiver = []", "[[receiver]]"),
-         scenario(receivers="", top='title = "x"\nreceiver = []')),
-    Case("type-pml-text", "wrong type", ("solver.pml_cells", '"20"', "integer", "5 to 100 cells"),
-         scenario(solver='[solver]\npml_cells = "20"')),
-    Case("type-hprime-date", "wrong type", ("ionosphere.hprime_km", "1979-05-27", "50 to 100 km"),
-         scenario(ionosphere="[ionosphere]\nhprime_km = 1979-05-27\nbeta_per_km = 0.3")),
-    Case("type-receiver-name-bool", "wrong type", ("receiver[1].name", "true", "text in quotes"),
-         scenario(receivers=rx(name="true", range_km="40.0"))),
-    Case("type-ground-kind-number", "wrong type", ("ground.kind", "= 5", "text in quotes"), scenario(ground="[ground]\nkind = 5")),
-    Case("type-curvature-integer", "wrong type", ("solver.earth_curvature", "= 1", "true or false"),
-         scenario(solver="[solver]\nearth_curvature = 1")),
-    Case("type-utc-date-only", "wrong type", ("ionosphere.utc", "2026-06-21", "date and time with offset"),
-         scenario(ionosphere="[ionosphere]\nutc = 2026-06-21", receivers=at_position("51.0", "1.0"))),
+    Case(
+        "type-power-with-unit-text",
+        "wrong type",
+        ("transmitter.radiated_power_kw", '"100 kW"', "must be a number", "> 0 to 5000 kW"),
+        scenario(transmitter=tx(radiated_power_kw='"100 kW"')),
+    ),
+    Case(
+        "type-latitude-array",
+        "wrong type",
+        ("transmitter.latitude_deg", "[50, 0]", "-90 to 90 deg"),
+        scenario(transmitter=tx(latitude_deg="[50, 0]")),
+    ),
+    Case(
+        "type-transmitter-text",
+        "wrong type",
+        ('transmitter = "Greyhaven"', "must be a table"),
+        scenario(transmitter="", top='title = "x"\ntransmitter = "Greyhaven"'),
+    ),
+    Case(
+        "type-transmitter-array-of-tables",
+        "wrong type",
+        ("transmitter", "must be a table"),
+        scenario(transmitter=tx().replace("[transmitter]", "[[transmitter]]")),
+    ),
+    Case(
+        "type-receivers-empty-list",
+        "wrong type",
+        ("receiver = []", "[[receiver]]"),
+        scenario(receivers="", top='title = "x"\nreceiver = []'),
+    ),
+    Case(
+        "type-pml-text",
+        "wrong type",
+        ("solver.pml_cells", '"20"', "integer", "5 to 100 cells"),
+        scenario(solver='[solver]\npml_cells = "20"'),
+    ),
+    Case(
+        "type-hprime-date",
+        "wrong type",
+        ("ionosphere.hprime_km", "1979-05-27", "50 to 100 km"),
+        scenario(ionosphere="[ionosphere]\nhprime_km = 1979-05-27\nbeta_per_km = 0.3"),
+    ),
+    Case(
+        "type-receiver-name-bool",
+        "wrong type",
+        ("receiver[1].name", "true", "text in quotes"),
+        scenario(receivers=rx(name="true", range_km="40.0")),
+    ),
+    Case(
+        "type-ground-kind-number",
+        "wrong type",
+        ("ground.kind", "= 5", "text in quotes"),
+        scenario(ground="[ground]\nkind = 5"),
+    ),
+    Case(
+        "type-curvature-integer",
+        "wrong type",
+        ("solver.earth_curvature", "= 1", "true or false"),
+        scenario(solver="[solver]\nearth_curvature = 1"),
+    ),
+    Case(
+        "type-utc-date-only",
+        "wrong type",
+        ("ionosphere.utc", "2026-06-21", "date and time with offset"),
+        scenario(ionosphere="[ionosphere]\nutc = 2026-06-21", receivers=at_position("51.0", "1.0")),
+    ),
     # --- NaN and infinity
-    Case("nan-latitude", "NaN or infinity", ("transmitter.latitude_deg", "nan", "finite", "-90 to 90 deg"),
-         scenario(transmitter=tx(latitude_deg="nan"))),
-    Case("inf-range", "NaN or infinity", ("receiver[1].range_km", "inf", "finite", "1 to 15000 km"), scenario(receivers=rx(range_km="inf"))),
-    Case("minus-inf-frequency", "NaN or infinity", ("transmitter.frequency_khz", "-inf", "finite", "supported band 0.3-60 kHz"),
-         scenario(transmitter=tx(frequency_khz="-inf"))),
-    Case("nan-cell", "NaN or infinity", ("solver.cell_m", "nan", "finite", "10 to 5000 m"), scenario(solver="[solver]\ncell_m = nan")),
-    Case("minus-nan-hprime", "NaN or infinity", ("ionosphere.hprime_km", "nan", "finite", "50 to 100 km"),
-         scenario(ionosphere="[ionosphere]\nhprime_km = -nan\nbeta_per_km = 0.3")),
-    Case("inf-conductivity", "NaN or infinity", ("ground.conductivity_s_per_m", "inf", "finite", "1e-06 to 1000 S/m"),
-         scenario(ground='[ground]\nkind = "custom"\nconductivity_s_per_m = inf\nrelative_permittivity = 10.0')),
-    Case("overflowing-exponent", "NaN or infinity", ("transmitter.radiated_power_kw", "inf", "finite"),
-         scenario(transmitter=tx(radiated_power_kw="1e400"))),
+    Case(
+        "nan-latitude",
+        "NaN or infinity",
+        ("transmitter.latitude_deg", "nan", "finite", "-90 to 90 deg"),
+        scenario(transmitter=tx(latitude_deg="nan")),
+    ),
+    Case(
+        "inf-range",
+        "NaN or infinity",
+        ("receiver[1].range_km", "inf", "finite", "1 to 15000 km"),
+        scenario(receivers=rx(range_km="inf")),
+    ),
+    Case(
+        "minus-inf-frequency",
+        "NaN or infinity",
+        ("transmitter.frequency_khz", "-inf", "finite", "supported band 0.3-60 kHz"),
+        scenario(transmitter=tx(frequency_khz="-inf")),
+    ),
+    Case(
+        "nan-cell",
+        "NaN or infinity",
+        ("solver.cell_m", "nan", "finite", "10 to 5000 m"),
+        scenario(solver="[solver]\ncell_m = nan"),
+    ),
+    Case(
+        "minus-nan-hprime",
+        "NaN or infinity",
+        ("ionosphere.hprime_km", "nan", "finite", "50 to 100 km"),
+        scenario(ionosphere="[ionosphere]\nhprime_km = -nan\nbeta_per_km = 0.3"),
+    ),
+    Case(
+        "inf-conductivity",
+        "NaN or infinity",
+        ("ground.conductivity_s_per_m", "inf", "finite", "1e-06 to 1000 S/m"),
+        scenario(ground='[ground]\nkind = "custom"\nconductivity_s_per_m = inf\nrelative_permittivity = 10.0'),
+    ),
+    Case(
+        "overflowing-exponent",
+        "NaN or infinity",
+        ("transmitter.radiated_power_kw", "inf", "finite"),
+        scenario(transmitter=tx(radiated_power_kw="1e400")),
+    ),
     # --- zero or negative power
-    Case("power-negative", "power", ("transmitter.radiated_power_kw", "-5.0", "> 0 to 5000 kW"), scenario(transmitter=tx(radiated_power_kw="-5.0"))),
-    Case("power-zero-float", "power", ("transmitter.radiated_power_kw", "= 0.0", "> 0 to 5000 kW"), scenario(transmitter=tx(radiated_power_kw="0.0"))),
-    Case("power-huge", "power", ("transmitter.radiated_power_kw", "1e+300", "> 0 to 5000 kW"), scenario(transmitter=tx(radiated_power_kw="1e300"))),
-    Case("power-integer-beyond-float", "power", ("transmitter.radiated_power_kw", "1" + "0" * 400, "> 0 to 5000 kW"),
-         scenario(transmitter=tx(radiated_power_kw="1" + "0" * 400))),
+    Case(
+        "power-negative",
+        "power",
+        ("transmitter.radiated_power_kw", "-5.0", "> 0 to 5000 kW"),
+        scenario(transmitter=tx(radiated_power_kw="-5.0")),
+    ),
+    Case(
+        "power-zero-float",
+        "power",
+        ("transmitter.radiated_power_kw", "= 0.0", "> 0 to 5000 kW"),
+        scenario(transmitter=tx(radiated_power_kw="0.0")),
+    ),
+    Case(
+        "power-huge",
+        "power",
+        ("transmitter.radiated_power_kw", "1e+300", "> 0 to 5000 kW"),
+        scenario(transmitter=tx(radiated_power_kw="1e300")),
+    ),
+    Case(
+        "power-integer-beyond-float",
+        "power",
+        ("transmitter.radiated_power_kw", "1" + "0" * 400, "> 0 to 5000 kW"),
+        scenario(transmitter=tx(radiated_power_kw="1" + "0" * 400)),
+    ),
     # --- frequency outside the supported band
-    Case("frequency-zero", "frequency band", ("transmitter.frequency_khz", "= 0 ", "outside the supported band 0.3-60 kHz"),
-         scenario(transmitter=tx(frequency_khz="0"))),
-    Case("frequency-in-hz", "frequency band", ("transmitter.frequency_khz", "20000.0", "supported band 0.3-60 kHz"),
-         scenario(transmitter=tx(frequency_khz="20000.0"))),
-    Case("frequency-negative-in-list", "frequency band", ("transmitter.frequency_khz[1]", "-20.0", "supported band 0.3-60 kHz"),
-         scenario(transmitter=tx(frequency_khz="[-20.0, 20.0]"))),
-    Case("frequency-just-above", "frequency band", ("transmitter.frequency_khz", "60.0001", "supported band 0.3-60 kHz"),
-         scenario(transmitter=tx(frequency_khz="60.0001"))),
+    Case(
+        "frequency-zero",
+        "frequency band",
+        ("transmitter.frequency_khz", "= 0 ", "outside the supported band 0.3-60 kHz"),
+        scenario(transmitter=tx(frequency_khz="0")),
+    ),
+    Case(
+        "frequency-in-hz",
+        "frequency band",
+        ("transmitter.frequency_khz", "20000.0", "supported band 0.3-60 kHz"),
+        scenario(transmitter=tx(frequency_khz="20000.0")),
+    ),
+    Case(
+        "frequency-negative-in-list",
+        "frequency band",
+        ("transmitter.frequency_khz[1]", "-20.0", "supported band 0.3-60 kHz"),
+        scenario(transmitter=tx(frequency_khz="[-20.0, 20.0]")),
+    ),
+    Case(
+        "frequency-just-above",
+        "frequency band",
+        ("transmitter.frequency_khz", "60.0001", "supported band 0.3-60 kHz"),
+        scenario(transmitter=tx(frequency_khz="60.0001")),
+    ),
     # --- latitude and longitude out of range
-    Case("receiver-latitude-south", "latitude/longitude", ("receiver[1].latitude_deg", "-91.0", "-90 to 90 deg"),
-         scenario(receivers=at_position("-91.0", "0.0"))),
-    Case("receiver-longitude-west", "latitude/longitude", ("receiver[1].longitude_deg", "-181.0", "-180 to < 360 deg"),
-         scenario(receivers=at_position("50.0", "-181.0"))),
-    Case("transmitter-longitude-400", "latitude/longitude", ("transmitter.longitude_deg", "400.0", "-180 to < 360 deg"),
-         scenario(transmitter=tx(longitude_deg="400.0"))),
+    Case(
+        "receiver-latitude-south",
+        "latitude/longitude",
+        ("receiver[1].latitude_deg", "-91.0", "-90 to 90 deg"),
+        scenario(receivers=at_position("-91.0", "0.0")),
+    ),
+    Case(
+        "receiver-longitude-west",
+        "latitude/longitude",
+        ("receiver[1].longitude_deg", "-181.0", "-180 to < 360 deg"),
+        scenario(receivers=at_position("50.0", "-181.0")),
+    ),
+    Case(
+        "transmitter-longitude-400",
+        "latitude/longitude",
+        ("transmitter.longitude_deg", "400.0", "-180 to < 360 deg"),
+        scenario(transmitter=tx(longitude_deg="400.0")),
+    ),
     # --- receiver at the transmitter or beyond the supported range
-    Case("receiver-on-transmitter", "receiver range", ("receiver[1].latitude_deg = 50.0", "0.000 km", "at least 1 km", "1 to 15000 km"),
-         scenario(receivers=at_position("50.0", "0.0"))),
-    Case("receiver-range-zero", "receiver range", ("receiver[1].range_km", "0.0", "1 to 15000 km"), scenario(receivers=rx(range_km="0.0"))),
-    Case("receiver-range-just-beyond", "receiver range", ("receiver[1].range_km", "15000.1", "1 to 15000 km"),
-         scenario(receivers=rx(range_km="15000.1"))),
-    Case("max-range-beyond", "receiver range", ("solver.max_range_km", "15001.0", "1 to 15000 km"),
-         scenario(solver="[solver]\nmax_range_km = 15001.0")),
+    Case(
+        "receiver-on-transmitter",
+        "receiver range",
+        ("receiver[1].latitude_deg = 50.0", "0.000 km", "at least 1 km", "1 to 15000 km"),
+        scenario(receivers=at_position("50.0", "0.0")),
+    ),
+    Case(
+        "receiver-range-zero",
+        "receiver range",
+        ("receiver[1].range_km", "0.0", "1 to 15000 km"),
+        scenario(receivers=rx(range_km="0.0")),
+    ),
+    Case(
+        "receiver-range-just-beyond",
+        "receiver range",
+        ("receiver[1].range_km", "15000.1", "1 to 15000 km"),
+        scenario(receivers=rx(range_km="15000.1")),
+    ),
+    Case(
+        "max-range-beyond",
+        "receiver range",
+        ("solver.max_range_km", "15001.0", "1 to 15000 km"),
+        scenario(solver="[solver]\nmax_range_km = 15001.0"),
+    ),
     # --- antipodal or near-antipodal paths
-    Case("antipode-exact-equator", "antipodal path", ("receiver[1].latitude_deg = 0.0", "180.0", "antipode", "1 to 15000 km"),
-         scenario(transmitter=tx(latitude_deg="0.0"), receivers=at_position("0.0", "180.0"))),
-    Case("antipode-near", "antipodal path", ("receiver[1].latitude_deg = -49.9", "179.9", "antipode", "1 to 15000 km"),
-         scenario(receivers=at_position("-49.9", "179.9"))),
-    Case("beyond-15000-km", "antipodal path", ("receiver[1].latitude_deg = -60.0", "120.0", "antipode", "1 to 15000 km"),
-         scenario(receivers=at_position("-60.0", "120.0"))),
+    Case(
+        "antipode-exact-equator",
+        "antipodal path",
+        ("receiver[1].latitude_deg = 0.0", "180.0", "antipode", "1 to 15000 km"),
+        scenario(transmitter=tx(latitude_deg="0.0"), receivers=at_position("0.0", "180.0")),
+    ),
+    Case(
+        "antipode-near",
+        "antipodal path",
+        ("receiver[1].latitude_deg = -49.9", "179.9", "antipode", "1 to 15000 km"),
+        scenario(receivers=at_position("-49.9", "179.9")),
+    ),
+    Case(
+        "beyond-15000-km",
+        "antipodal path",
+        ("receiver[1].latitude_deg = -60.0", "120.0", "antipode", "1 to 15000 km"),
+        scenario(receivers=at_position("-60.0", "120.0")),
+    ),
     # --- contradictory ionosphere forms
-    Case("ionosphere-ceiling-and-none", "contradictory ionosphere", ("ceiling_km", "no_ionosphere", "exactly one"),
-         scenario(ionosphere="[ionosphere]\nceiling_km = 80.0\nno_ionosphere = true")),
-    Case("ionosphere-utc-and-preset", "contradictory ionosphere", ("preset", "utc", "exactly one"),
-         scenario(ionosphere='[ionosphere]\nutc = 2026-06-21T12:00:00Z\npreset = "day"', receivers=at_position("51.0", "1.0"))),
-    Case("ionosphere-file-and-hprime", "contradictory ionosphere", ("hprime_km", "profile_file", "exactly one"),
-         scenario(ionosphere=profile("profile_negative_density.csv") + "\nhprime_km = 74.0")),
-    Case("ionosphere-day-preset-without-utc", "contradictory ionosphere", ("ionosphere.day_preset", '"day"', "only used with utc"),
-         scenario(ionosphere='[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 0.3\nday_preset = "day"')),
+    Case(
+        "ionosphere-ceiling-and-none",
+        "contradictory ionosphere",
+        ("ceiling_km", "no_ionosphere", "exactly one"),
+        scenario(ionosphere="[ionosphere]\nceiling_km = 80.0\nno_ionosphere = true"),
+    ),
+    Case(
+        "ionosphere-utc-and-preset",
+        "contradictory ionosphere",
+        ("preset", "utc", "exactly one"),
+        scenario(
+            ionosphere='[ionosphere]\nutc = 2026-06-21T12:00:00Z\npreset = "day"', receivers=at_position("51.0", "1.0")
+        ),
+    ),
+    Case(
+        "ionosphere-file-and-hprime",
+        "contradictory ionosphere",
+        ("hprime_km", "profile_file", "exactly one"),
+        scenario(ionosphere=profile("profile_negative_density.csv") + "\nhprime_km = 74.0"),
+    ),
+    Case(
+        "ionosphere-day-preset-without-utc",
+        "contradictory ionosphere",
+        ("ionosphere.day_preset", '"day"', "only used with utc"),
+        scenario(ionosphere='[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 0.3\nday_preset = "day"'),
+    ),
     # --- user profile files (read when the run starts, before the grid is allocated)
     *[
-        Case(f"profile-{name}", "user profile", fragments, scenario(ionosphere=profile(f"profile_{name}.csv")), also_inspect=False)
+        Case(
+            f"profile-{name}",
+            "user profile",
+            fragments,
+            scenario(ionosphere=profile(f"profile_{name}.csv")),
+            also_inspect=False,
+        )
         for name, fragments in [
-            ("repeated_altitude", ("profile_repeated_altitude.csv", "line 5", "altitude_km = 70", "strictly increasing")),
-            ("negative_density", ("profile_negative_density.csv", "line 4", "electron_density_m3 = -1e+07", "at least 0 m-3")),
+            (
+                "repeated_altitude",
+                ("profile_repeated_altitude.csv", "line 5", "altitude_km = 70", "strictly increasing"),
+            ),
+            (
+                "negative_density",
+                ("profile_negative_density.csv", "line 4", "electron_density_m3 = -1e+07", "at least 0 m-3"),
+            ),
             ("nan_density", ("profile_nan_density.csv", "line 4", "electron_density_m3 = nan", "at least 0 m-3")),
             ("zero_collisions", ("profile_zero_collisions.csv", "collision_frequency_s = 0", "above 0 s-1")),
             ("metres_as_km", ("profile_metres_as_km.csv", "altitude_km = 60000", "0 to 500 km")),
@@ -216,20 +456,60 @@ CATALOGUE: list[Case] = [
         ]
     ],
     # --- grids too large for memory: refused with the estimate before anything is allocated
-    Case("grid-tiny-cells-long-range", "grid too large", ("10 m x 10 m", "needs about", "GB", "solver.cell_m >=", "solver.max_range_km"),
-         scenario(receivers=rx(range_km="14000.0"), solver="[solver]\ncell_m = 10.0\nmax_range_km = 15000.0"), also_inspect=False),
-    Case("grid-fine-auto-cells", "grid too large", ("needs about", "GB", "solver.cell_m >="),
-         scenario(transmitter=tx(frequency_khz="60.0"), receivers=rx(range_km="14000.0"),
-                  solver="[solver]\ncells_per_wavelength = 200.0\nmax_range_km = 15000.0"), also_inspect=False),
+    Case(
+        "grid-tiny-cells-long-range",
+        "grid too large",
+        ("10 m x 10 m", "needs about", "GB", "solver.cell_m >=", "solver.max_range_km"),
+        scenario(receivers=rx(range_km="14000.0"), solver="[solver]\ncell_m = 10.0\nmax_range_km = 15000.0"),
+        also_inspect=False,
+    ),
+    Case(
+        "grid-fine-auto-cells",
+        "grid too large",
+        ("needs about", "GB", "solver.cell_m >="),
+        scenario(
+            transmitter=tx(frequency_khz="60.0"),
+            receivers=rx(range_km="14000.0"),
+            solver="[solver]\ncells_per_wavelength = 200.0\nmax_range_km = 15000.0",
+        ),
+        also_inspect=False,
+    ),
     # --- output paths, refused before the run starts
-    Case("output-folder-missing", "output path", ("out.nc", "folder", "no_such_folder", "does not exist"), scenario(),
-         ("run", "bad.toml", "-o", "no_such_folder/out.nc"), also_inspect=False),
-    Case("output-under-a-file", "output path", ("notes.txt", "is a file, not a folder"), scenario(),
-         ("run", "bad.toml", "-o", "notes.txt/out.nc"), setup=lambda d: (d / "notes.txt").write_text("x"), also_inspect=False),
-    Case("output-exists", "output path", ("previous.nc", "already exists", "--overwrite"), scenario(),
-         ("run", "bad.toml", "-o", "previous.nc"), setup=lambda d: (d / "previous.nc").write_bytes(b"precious"), also_inspect=False),
-    Case("output-folder-not-writable", "output path", ("not writable",), scenario(), ("run", "bad.toml", "-o", "{locked}/out.nc"),
-         also_inspect=False, extra={"locked": True}),
+    Case(
+        "output-folder-missing",
+        "output path",
+        ("out.nc", "folder", "no_such_folder", "does not exist"),
+        scenario(),
+        ("run", "bad.toml", "-o", "no_such_folder/out.nc"),
+        also_inspect=False,
+    ),
+    Case(
+        "output-under-a-file",
+        "output path",
+        ("notes.txt", "is a file, not a folder"),
+        scenario(),
+        ("run", "bad.toml", "-o", "notes.txt/out.nc"),
+        setup=lambda d: (d / "notes.txt").write_text("x"),
+        also_inspect=False,
+    ),
+    Case(
+        "output-exists",
+        "output path",
+        ("previous.nc", "already exists", "--overwrite"),
+        scenario(),
+        ("run", "bad.toml", "-o", "previous.nc"),
+        setup=lambda d: (d / "previous.nc").write_bytes(b"precious"),
+        also_inspect=False,
+    ),
+    Case(
+        "output-folder-not-writable",
+        "output path",
+        ("not writable",),
+        scenario(),
+        ("run", "bad.toml", "-o", "{locked}/out.nc"),
+        also_inspect=False,
+        extra={"locked": True},
+    ),
 ]
 
 
@@ -303,7 +583,9 @@ def test_catalogue_through_cavity_run(case: Case, tmp_path):
     assert elapsed < 30.0, elapsed  # generous: the machine is shared; a run that started would take far longer
 
 
-@pytest.mark.parametrize("case", [pytest.param(c, id=c.id) for c in CATALOGUE if c.also_inspect and c.argv[1] == "bad.toml"])
+@pytest.mark.parametrize(
+    "case", [pytest.param(c, id=c.id) for c in CATALOGUE if c.also_inspect and c.argv[1] == "bad.toml"]
+)
 def test_catalogue_through_cavity_inspect(case: Case, tmp_path):
     """`cavity inspect` refuses the same scenario problems with the same one line."""
     data = case.text if isinstance(case.text, bytes) else case.text.encode("utf-8")
@@ -314,8 +596,7 @@ def test_catalogue_through_cavity_inspect(case: Case, tmp_path):
 
 def test_catalogue_size_and_distinct_inputs():
     """At least 40 distinct bad inputs in at least 14 categories."""
-    keys = [repr(c.text) + repr(c.argv) + repr(sorted(c.extra)) + c.id * (c.setup is not None)
-            for c in CATALOGUE]
+    keys = [repr(c.text) + repr(c.argv) + repr(sorted(c.extra)) + c.id * (c.setup is not None) for c in CATALOGUE]
     assert len(set(keys)) == len(CATALOGUE) >= 40
     assert len({c.category for c in CATALOGUE}) >= 14
 
@@ -341,7 +622,8 @@ def test_grid_too_large_is_refused_before_allocation(tmp_path, monkeypatch):
     built = []
     monkeypatch.setattr(engine.Simulation, "_build", lambda self: built.append(True))
     (tmp_path / "bad.toml").write_text(
-        scenario(receivers=rx(range_km="14000.0"), solver="[solver]\ncell_m = 10.0\nmax_range_km = 15000.0"))
+        scenario(receivers=rx(range_km="14000.0"), solver="[solver]\ncell_m = 10.0\nmax_range_km = 15000.0")
+    )
     tracemalloc.start()
     try:
         result = invoke(["run", "bad.toml", "-o", "out.nc", "-q"], tmp_path)
@@ -367,16 +649,25 @@ def test_unstable_run_stops_naming_step_and_region(tmp_path, monkeypatch):
 
     module = sys.modules["cavity.solve"]
     original = module.engine_settings
-    monkeypatch.setattr(module, "engine_settings",
-                        lambda *a, **k: dataclasses.replace(original(*a, **k), courant_safety=1.5))
+    monkeypatch.setattr(
+        module, "engine_settings", lambda *a, **k: dataclasses.replace(original(*a, **k), courant_safety=1.5)
+    )
     (tmp_path / "tiny.toml").write_text(scenario())
     (tmp_path / "kept.nc").write_bytes(b"an earlier result")
     result = invoke(["run", "tiny.toml", "-o", "kept.nc", "--overwrite", "-q"], tmp_path)
     line = assert_one_line_error(result, ("solver became unstable at step", "no result written"))
-    match = re.search(r"at step (\d+) \(t = [0-9.]+ ms\): \|Ez\| = \S+ V/m at r = [0-9.]+ km, z = [0-9.]+ km \(([a-z -]+)\)", line)
+    match = re.search(
+        r"at step (\d+) \(t = [0-9.]+ ms\): \|Ez\| = \S+ V/m at r = [0-9.]+ km, z = [0-9.]+ km \(([a-z -]+)\)", line
+    )
     assert match, line
     assert int(match.group(1)) > 0
-    assert match.group(2) in {"ground", "ionosphere", "free space below the ionosphere", "top absorber", "far-end absorber"}
+    assert match.group(2) in {
+        "ground",
+        "ionosphere",
+        "free space below the ionosphere",
+        "top absorber",
+        "far-end absorber",
+    }
     assert (tmp_path / "kept.nc").read_bytes() == b"an earlier result"
     assert _files(tmp_path) == {"tiny.toml", "kept.nc"}
 
@@ -400,10 +691,23 @@ def _write_result(path: Path, frequency_khz: float) -> Path:
     ne = np.broadcast_to(1e8 * np.exp(0.3 * (z / 1e3 - 74.0)), (1, r.size, z.size))
     nu = np.broadcast_to(1.816e11 * np.exp(-0.15 * z / 1e3), (1, r.size, z.size))
     ds = assemble_dataset(
-        s, range_m=r, frequency_hz=f, altitude_m=z, path_labels=["uniform"], ez_v_per_m=ez, b_t=ez / C0,
-        receiver_names=["Marker 40"], receiver_range_m=[40e3], receiver_ez_v_per_m=rx_ez, receiver_b_t=rx_ez / C0,
-        electron_density_m3=ne, collision_frequency_s=nu, ground_conductivity_s_per_m=np.full((1, r.size), 5.0),
-        solver=SolverRecord(cells=1000, time_steps=100, cell_r_m=1000.0, cell_z_m=500.0, time_step_s=1e-6, wall_time_s=0.1),
+        s,
+        range_m=r,
+        frequency_hz=f,
+        altitude_m=z,
+        path_labels=["uniform"],
+        ez_v_per_m=ez,
+        b_t=ez / C0,
+        receiver_names=["Marker 40"],
+        receiver_range_m=[40e3],
+        receiver_ez_v_per_m=rx_ez,
+        receiver_b_t=rx_ez / C0,
+        electron_density_m3=ne,
+        collision_frequency_s=nu,
+        ground_conductivity_s_per_m=np.full((1, r.size), 5.0),
+        solver=SolverRecord(
+            cells=1000, time_steps=100, cell_r_m=1000.0, cell_z_m=500.0, time_step_s=1e-6, wall_time_s=0.1
+        ),
     )
     return write_result(ds, path)
 
@@ -441,7 +745,16 @@ def _bad_results(folder: Path) -> dict[str, tuple[Path, tuple[str, ...]]]:
     return out
 
 
-BAD_RESULT_IDS = ["text-named-nc", "truncated", "empty", "foreign", "missing-variables", "a-profile-file", "missing", "a-folder"]
+BAD_RESULT_IDS = [
+    "text-named-nc",
+    "truncated",
+    "empty",
+    "foreign",
+    "missing-variables",
+    "a-profile-file",
+    "missing",
+    "a-folder",
+]
 
 
 def _needs(command: str):
@@ -619,7 +932,8 @@ def test_sigterm_handler_is_installed_only_while_a_command_runs():
     assert result.exit_code == 143, result.stderr
     assert result.stderr.strip().splitlines() == [
         "Error: interrupted by SIGTERM; the command did not finish "
-        "(files are written whole or not at all: nothing partial was left)"]
+        "(files are written whole or not at all: nothing partial was left)"
+    ]
     assert callable(seen[0]) and seen[0] is not before and len(seen) == 1
     assert signal.getsignal(signal.SIGTERM) is before
     assert issubclass(Interrupted, KeyboardInterrupt)
@@ -660,10 +974,24 @@ def test_signal_while_writing_leaves_the_old_file(tmp_path, monkeypatch):
 # ----------------------------------------------------------------------------------------------
 @pytest.mark.parametrize(
     "argv",
-    [["run", "bad.toml"], ["run", "bad.toml", "-o", "x.nc", "--overwrit"], ["inspect"], ["no-such-command"],
-     ["map", "bad.toml", "-o", "map.jpg"], ["run", "folder.toml", "-o", "x.nc"], ["run", "bad.toml", "-o", "results.nc"]],
-    ids=["run-without-output", "misspelt-option", "missing-argument", "unknown-command", "map-bad-suffix",
-         "scenario-is-a-folder", "output-is-a-folder"],
+    [
+        ["run", "bad.toml"],
+        ["run", "bad.toml", "-o", "x.nc", "--overwrit"],
+        ["inspect"],
+        ["no-such-command"],
+        ["map", "bad.toml", "-o", "map.jpg"],
+        ["run", "folder.toml", "-o", "x.nc"],
+        ["run", "bad.toml", "-o", "results.nc"],
+    ],
+    ids=[
+        "run-without-output",
+        "misspelt-option",
+        "missing-argument",
+        "unknown-command",
+        "map-bad-suffix",
+        "scenario-is-a-folder",
+        "output-is-a-folder",
+    ],
 )
 def test_bad_usage_exit_2(argv, tmp_path):
     """click checks usage and path kinds itself: usage, a hint and one 'Error:' line, exit 2."""
@@ -682,17 +1010,32 @@ def test_bad_usage_exit_2(argv, tmp_path):
 EXTREME_VALID = {
     # top_km up to 600 is allowed while profiles end at 500 km (was refused from inside profiles)
     "top-600-km": scenario(solver="[solver]\ntop_km = 600.0"),
-    "lowest-frequency-longest-range": scenario(transmitter=tx(frequency_khz="0.3"), receivers=rx(range_km="15000.0"), solver=""),
-    "transmitter-at-north-pole": scenario(transmitter=tx(latitude_deg="90.0"), receivers=at_position("80.0", "359.99"), solver=""),
-    "south-pole-with-sun": scenario(transmitter=tx(latitude_deg="-90.0", longitude_deg="-180.0"), receivers=at_position("-80.0", "0.0"),
-                                    ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z", solver=""),
-    "across-the-date-line": scenario(transmitter=tx(latitude_deg="0.0", longitude_deg="179.99"), receivers=at_position("0.0", "-179.99"),
-                                     solver=""),
-    "lowest-ceiling-coarsest-cell": scenario(ionosphere="[ionosphere]\nceiling_km = 20.0", solver="[solver]\ncell_m = 5000.0"),
-    "receiver-at-1-km-largest-cell": scenario(receivers=rx(range_km="1.0"), solver="[solver]\ncell_m = 5000.0\nmax_range_km = 1.0"),
+    "lowest-frequency-longest-range": scenario(
+        transmitter=tx(frequency_khz="0.3"), receivers=rx(range_km="15000.0"), solver=""
+    ),
+    "transmitter-at-north-pole": scenario(
+        transmitter=tx(latitude_deg="90.0"), receivers=at_position("80.0", "359.99"), solver=""
+    ),
+    "south-pole-with-sun": scenario(
+        transmitter=tx(latitude_deg="-90.0", longitude_deg="-180.0"),
+        receivers=at_position("-80.0", "0.0"),
+        ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z",
+        solver="",
+    ),
+    "across-the-date-line": scenario(
+        transmitter=tx(latitude_deg="0.0", longitude_deg="179.99"), receivers=at_position("0.0", "-179.99"), solver=""
+    ),
+    "lowest-ceiling-coarsest-cell": scenario(
+        ionosphere="[ionosphere]\nceiling_km = 20.0", solver="[solver]\ncell_m = 5000.0"
+    ),
+    "receiver-at-1-km-largest-cell": scenario(
+        receivers=rx(range_km="1.0"), solver="[solver]\ncell_m = 5000.0\nmax_range_km = 1.0"
+    ),
     "band-edges-and-duplicates": scenario(transmitter=tx(frequency_khz="[60.0, 0.3, 20.0, 20]"), solver=""),
-    "user-profile-under-a-high-top": scenario(ionosphere=f'[ionosphere]\nprofile_file = "{(BAD_DATA.parent / "profile_night_invented.csv").as_posix()}"',
-                                              solver="[solver]\ntop_km = 500.0"),
+    "user-profile-under-a-high-top": scenario(
+        ionosphere=f'[ionosphere]\nprofile_file = "{(BAD_DATA.parent / "profile_night_invented.csv").as_posix()}"',
+        solver="[solver]\ntop_km = 500.0",
+    ),
 }
 
 

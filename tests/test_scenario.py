@@ -71,8 +71,14 @@ TX_NO_POSITION = """
 
 def tx(**values: str) -> str:
     """A transmitter section with some keys replaced (value text as TOML; None drops the key)."""
-    keys = {"name": '"Tx"', "latitude_deg": "50.0", "longitude_deg": "0.0", "frequency_khz": "20.0",
-            "radiated_power_kw": "100.0", **values}
+    keys = {
+        "name": '"Tx"',
+        "latitude_deg": "50.0",
+        "longitude_deg": "0.0",
+        "frequency_khz": "20.0",
+        "radiated_power_kw": "100.0",
+        **values,
+    }
     return "[transmitter]\n" + "\n".join(f"{k} = {v}" for k, v in keys.items() if v is not None)
 
 
@@ -80,80 +86,257 @@ def rx(*receivers: dict) -> str:
     return "\n".join("[[receiver]]\n" + "\n".join(f"{k} = {v}" for k, v in r.items()) for r in receivers)
 
 
-POSITIONED = rx({"name": '"A"', "latitude_deg": "50.0", "longitude_deg": "7.0"}, {"name": '"B"', "latitude_deg": "45.0", "longitude_deg": "-10.0"})
+POSITIONED = rx(
+    {"name": '"A"', "latitude_deg": "50.0", "longitude_deg": "7.0"},
+    {"name": '"B"', "latitude_deg": "45.0", "longitude_deg": "-10.0"},
+)
 
 # (id, scenario text, fragments that must all appear in the one-line message)
 BAD = [
     ("freq-high", make(transmitter=tx(frequency_khz="75.0")), ["transmitter.frequency_khz", "75.0", "0.3-60 kHz"]),
     ("freq-low", make(transmitter=tx(frequency_khz="0.1")), ["transmitter.frequency_khz", "0.1", "0.3-60 kHz"]),
-    ("freq-list-item", make(transmitter=tx(frequency_khz="[20.0, 61.0]")), ["transmitter.frequency_khz[2]", "61.0", "0.3-60 kHz"]),
+    (
+        "freq-list-item",
+        make(transmitter=tx(frequency_khz="[20.0, 61.0]")),
+        ["transmitter.frequency_khz[2]", "61.0", "0.3-60 kHz"],
+    ),
     ("freq-string", make(transmitter=tx(frequency_khz='"20"')), ["transmitter.frequency_khz", '"20"', "0.3-60 kHz"]),
     ("freq-bool", make(transmitter=tx(frequency_khz="true")), ["transmitter.frequency_khz", "true", "not true/false"]),
     ("freq-nan", make(transmitter=tx(frequency_khz="nan")), ["transmitter.frequency_khz", "nan", "finite"]),
     ("freq-empty-list", make(transmitter=tx(frequency_khz="[]")), ["transmitter.frequency_khz", "[]", "0.3-60 kHz"]),
     ("freq-missing", make(transmitter=tx(frequency_khz=None)), ["transmitter.frequency_khz", "missing", "0.3-60 kHz"]),
-    ("power-zero", make(transmitter=tx(radiated_power_kw="0")), ["transmitter.radiated_power_kw", "= 0 ", "> 0 to 5000 kW"]),
-    ("power-high", make(transmitter=tx(radiated_power_kw="6000.0")), ["transmitter.radiated_power_kw", "6000.0", "5000 kW"]),
+    (
+        "power-zero",
+        make(transmitter=tx(radiated_power_kw="0")),
+        ["transmitter.radiated_power_kw", "= 0 ", "> 0 to 5000 kW"],
+    ),
+    (
+        "power-high",
+        make(transmitter=tx(radiated_power_kw="6000.0")),
+        ["transmitter.radiated_power_kw", "6000.0", "5000 kW"],
+    ),
     ("power-inf", make(transmitter=tx(radiated_power_kw="inf")), ["transmitter.radiated_power_kw", "inf", "finite"]),
-    ("power-missing", make(transmitter=tx(radiated_power_kw=None)), ["transmitter.radiated_power_kw", "missing", "5000 kW"]),
+    (
+        "power-missing",
+        make(transmitter=tx(radiated_power_kw=None)),
+        ["transmitter.radiated_power_kw", "missing", "5000 kW"],
+    ),
     ("lat-range", make(transmitter=tx(latitude_deg="95.0")), ["transmitter.latitude_deg", "95.0", "-90 to 90 deg"]),
-    ("lon-range", make(transmitter=tx(longitude_deg="360.0")), ["transmitter.longitude_deg", "360.0", "-180 to < 360 deg"]),
+    (
+        "lon-range",
+        make(transmitter=tx(longitude_deg="360.0")),
+        ["transmitter.longitude_deg", "360.0", "-180 to < 360 deg"],
+    ),
     ("lon-missing", make(transmitter=tx(longitude_deg=None)), ["transmitter.longitude_deg", "missing", "latitude_deg"]),
-    ("tx-unknown-key", make(transmitter=tx(frequency_hz="20000.0")), ["transmitter.frequency_hz", "unknown", "'frequency_khz'"]),
+    (
+        "tx-unknown-key",
+        make(transmitter=tx(frequency_hz="20000.0")),
+        ["transmitter.frequency_hz", "unknown", "'frequency_khz'"],
+    ),
     ("tx-name-number", make(transmitter=tx(name="7")), ["transmitter.name", "= 7", "text"]),
-    ("top-unknown", make(receivers=SECTIONS["receivers"].replace("[[receiver]]", "[[reciever]]")), ["reciever", "unknown", "'receiver'"]),
+    (
+        "top-unknown",
+        make(receivers=SECTIONS["receivers"].replace("[[receiver]]", "[[reciever]]")),
+        ["reciever", "unknown", "'receiver'"],
+    ),
     ("title-missing", make(top=""), ["title", "missing"]),
     ("title-number", make(top="title = 5"), ["title", "= 5", "text"]),
-    ("rx-range-far", make(receivers=rx({"name": '"A"', "range_km": "20000.0"})), ["receiver[1].range_km", "20000.0", "1 to 15000 km"]),
-    ("rx-range-near", make(receivers=rx({"name": '"A"', "range_km": "1.0"}, {"name": '"B"', "range_km": "0.5"})), ["receiver[2].range_km", "0.5", "1 to 15000 km"]),
-    ("rx-range-bool", make(receivers=rx({"name": '"A"', "range_km": "false"})), ["receiver[1].range_km", "false", "not true/false"]),
-    ("rx-duplicate-name", make(receivers=rx({"name": '"A"', "range_km": "100.0"}, {"name": '"A"', "range_km": "200.0"})), ["receiver[2].name", '"A"', "receiver[1]"]),
-    ("rx-position-and-range", make(receivers=rx({"name": '"A"', "latitude_deg": "51.0", "longitude_deg": "1.0", "range_km": "100.0"})), ["receiver[1].range_km", "100.0", "either"]),
+    (
+        "rx-range-far",
+        make(receivers=rx({"name": '"A"', "range_km": "20000.0"})),
+        ["receiver[1].range_km", "20000.0", "1 to 15000 km"],
+    ),
+    (
+        "rx-range-near",
+        make(receivers=rx({"name": '"A"', "range_km": "1.0"}, {"name": '"B"', "range_km": "0.5"})),
+        ["receiver[2].range_km", "0.5", "1 to 15000 km"],
+    ),
+    (
+        "rx-range-bool",
+        make(receivers=rx({"name": '"A"', "range_km": "false"})),
+        ["receiver[1].range_km", "false", "not true/false"],
+    ),
+    (
+        "rx-duplicate-name",
+        make(receivers=rx({"name": '"A"', "range_km": "100.0"}, {"name": '"A"', "range_km": "200.0"})),
+        ["receiver[2].name", '"A"', "receiver[1]"],
+    ),
+    (
+        "rx-position-and-range",
+        make(receivers=rx({"name": '"A"', "latitude_deg": "51.0", "longitude_deg": "1.0", "range_km": "100.0"})),
+        ["receiver[1].range_km", "100.0", "either"],
+    ),
     ("rx-no-location", make(receivers=rx({"name": '"A"'})), ["receiver[1]", "no location", "range_km"]),
-    ("rx-at-transmitter", make(receivers=rx({"name": '"A"', "latitude_deg": "50.0", "longitude_deg": "0.001"})), ["receiver[1].latitude_deg = 50.0", "0.001", "at least 1 km"]),
-    ("rx-antipodal", make(receivers=rx({"name": '"A"', "latitude_deg": "-50.0", "longitude_deg": "180.0"})), ["receiver[1].latitude_deg = -50.0", "180.0", "antipode", "15000 km"]),
-    ("rx-unknown-key", make(receivers=rx({"name": '"A"', "range": "100.0"})), ["receiver[1].range", "unknown", "'range_km'"]),
+    (
+        "rx-at-transmitter",
+        make(receivers=rx({"name": '"A"', "latitude_deg": "50.0", "longitude_deg": "0.001"})),
+        ["receiver[1].latitude_deg = 50.0", "0.001", "at least 1 km"],
+    ),
+    (
+        "rx-antipodal",
+        make(receivers=rx({"name": '"A"', "latitude_deg": "-50.0", "longitude_deg": "180.0"})),
+        ["receiver[1].latitude_deg = -50.0", "180.0", "antipode", "15000 km"],
+    ),
+    (
+        "rx-unknown-key",
+        make(receivers=rx({"name": '"A"', "range": "100.0"})),
+        ["receiver[1].range", "unknown", "'range_km'"],
+    ),
     ("rx-none", make(receivers=""), ["receiver", "missing", "[[receiver]]"]),
     ("rx-single-table", make(receivers='[receiver]\nname = "A"\nrange_km = 100.0'), ["receiver", "[[receiver]]"]),
-    ("rx-position-no-tx-position", make(transmitter=TX_NO_POSITION, receivers=rx({"name": '"A"', "latitude_deg": "51.0", "longitude_deg": "1.0"})), ["transmitter.latitude_deg", "missing", "receiver[1]"]),
-    ("hprime-low", make(ionosphere="[ionosphere]\nhprime_km = 45.0\nbeta_per_km = 0.3"), ["ionosphere.hprime_km", "45.0", "50 to 100 km"]),
-    ("beta-high", make(ionosphere="[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 2.0"), ["ionosphere.beta_per_km", "2.0", "0.1 to 1.5 per km"]),
-    ("beta-missing", make(ionosphere="[ionosphere]\nhprime_km = 74.0"), ["ionosphere.beta_per_km", "missing", "0.1 to 1.5"]),
-    ("two-forms", make(ionosphere='[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 0.3\npreset = "day"'), ["ionosphere.preset", "hprime_km", "exactly one"]),
+    (
+        "rx-position-no-tx-position",
+        make(transmitter=TX_NO_POSITION, receivers=rx({"name": '"A"', "latitude_deg": "51.0", "longitude_deg": "1.0"})),
+        ["transmitter.latitude_deg", "missing", "receiver[1]"],
+    ),
+    (
+        "hprime-low",
+        make(ionosphere="[ionosphere]\nhprime_km = 45.0\nbeta_per_km = 0.3"),
+        ["ionosphere.hprime_km", "45.0", "50 to 100 km"],
+    ),
+    (
+        "beta-high",
+        make(ionosphere="[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 2.0"),
+        ["ionosphere.beta_per_km", "2.0", "0.1 to 1.5 per km"],
+    ),
+    (
+        "beta-missing",
+        make(ionosphere="[ionosphere]\nhprime_km = 74.0"),
+        ["ionosphere.beta_per_km", "missing", "0.1 to 1.5"],
+    ),
+    (
+        "two-forms",
+        make(ionosphere='[ionosphere]\nhprime_km = 74.0\nbeta_per_km = 0.3\npreset = "day"'),
+        ["ionosphere.preset", "hprime_km", "exactly one"],
+    ),
     ("no-form", make(ionosphere="[ionosphere]"), ["[ionosphere]", "no form", "exactly one"]),
     ("no-ionosphere-section", make(ionosphere=""), ["[ionosphere]", "missing"]),
     ("preset-unknown", make(ionosphere='[ionosphere]\npreset = "dya"'), ["ionosphere.preset", '"dya"', "'day'"]),
-    ("utc-no-offset", make(ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00"), ["ionosphere.utc", "2026-06-21T12:00:00", "offset"]),
+    (
+        "utc-no-offset",
+        make(ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00"),
+        ["ionosphere.utc", "2026-06-21T12:00:00", "offset"],
+    ),
     ("utc-string", make(ionosphere='[ionosphere]\nutc = "noon"'), ["ionosphere.utc", '"noon"', "2026-06-21T12:00:00Z"]),
-    ("utc-no-tx-position", make(transmitter=TX_NO_POSITION, ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z"), ["transmitter.latitude_deg", "missing", "utc"]),
-    ("night-preset-without-utc", make(ionosphere='[ionosphere]\npreset = "day"\nnight_preset = "night"'), ["ionosphere.night_preset", '"night"', "utc"]),
-    ("ceiling-low", make(ionosphere="[ionosphere]\nceiling_km = 10.0"), ["ionosphere.ceiling_km", "10.0", "20 to 200 km"]),
-    ("profile-file-missing", make(ionosphere='[ionosphere]\nprofile_file = "no_such_profile.csv"'), ["ionosphere.profile_file", '"no_such_profile.csv"', "existing file"]),
-    ("no-ionosphere-false", make(ionosphere="[ionosphere]\nno_ionosphere = false"), ["ionosphere.no_ionosphere", "false", "true"]),
-    ("ionosphere-unknown-key", make(ionosphere="[ionosphere]\nhprime = 74.0\nbeta_per_km = 0.3"), ["ionosphere.hprime", "unknown", "'hprime_km'"]),
+    (
+        "utc-no-tx-position",
+        make(transmitter=TX_NO_POSITION, ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z"),
+        ["transmitter.latitude_deg", "missing", "utc"],
+    ),
+    (
+        "night-preset-without-utc",
+        make(ionosphere='[ionosphere]\npreset = "day"\nnight_preset = "night"'),
+        ["ionosphere.night_preset", '"night"', "utc"],
+    ),
+    (
+        "ceiling-low",
+        make(ionosphere="[ionosphere]\nceiling_km = 10.0"),
+        ["ionosphere.ceiling_km", "10.0", "20 to 200 km"],
+    ),
+    (
+        "profile-file-missing",
+        make(ionosphere='[ionosphere]\nprofile_file = "no_such_profile.csv"'),
+        ["ionosphere.profile_file", '"no_such_profile.csv"', "existing file"],
+    ),
+    (
+        "no-ionosphere-false",
+        make(ionosphere="[ionosphere]\nno_ionosphere = false"),
+        ["ionosphere.no_ionosphere", "false", "true"],
+    ),
+    (
+        "ionosphere-unknown-key",
+        make(ionosphere="[ionosphere]\nhprime = 74.0\nbeta_per_km = 0.3"),
+        ["ionosphere.hprime", "unknown", "'hprime_km'"],
+    ),
     ("ground-kind-typo", make(ground='[ground]\nkind = "seaa"'), ["ground.kind", '"seaa"', "'sea'"]),
     ("ground-kind-missing", make(ground="[ground]"), ["ground.kind", "missing"]),
-    ("ground-custom-missing-sigma", make(ground='[ground]\nkind = "custom"\nrelative_permittivity = 10.0'), ["ground.conductivity_s_per_m", "missing", "S/m"]),
-    ("ground-custom-negative-sigma", make(ground='[ground]\nkind = "custom"\nconductivity_s_per_m = -1e-3\nrelative_permittivity = 10.0'), ["ground.conductivity_s_per_m", "-0.001", "1e-06 to 1000 S/m"]),
-    ("ground-sigma-with-named-kind", make(ground='[ground]\nkind = "sea"\nconductivity_s_per_m = 4.0'), ["ground.conductivity_s_per_m", "4.0", "custom"]),
-    ("ground-auto-range-receiver", make(ground='[ground]\nkind = "auto"'), ["receiver[1].range_km", "500.0", "no direction", "auto"]),
-    ("utc-range-receiver", make(ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z"), ["receiver[1].range_km", "500.0", "no direction", "utc"]),
-    ("ground-auto-no-tx-position", make(transmitter=TX_NO_POSITION, ground='[ground]\nkind = "auto"'), ["transmitter.latitude_deg", "missing", "auto"]),
-    ("segment-overlap", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto_km = 300.0\nkind = "land"\n[[ground.segment]]\nfrom_km = 250.0\nto_km = 400.0\nkind = "ice"'), ["ground.segment[2].from_km", "250.0", "overlap"]),
-    ("segment-reversed", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 300.0\nto_km = 100.0\nkind = "land"'), ["ground.segment[1].to_km", "100.0", "greater than from_km = 300.0"]),
-    ("segment-kind-auto", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto_km = 100.0\nkind = "auto"'), ["ground.segment[1].kind", '"auto"', "ground class"]),
-    ("segment-unknown-key", make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto = 100.0\nkind = "land"'), ["ground.segment[1].to", "unknown", "'to_km'"]),
-    ("segments-typo", make(ground='[ground]\nkind = "sea"\n[[ground.segments]]\nfrom_km = 0.0\nto_km = 100.0\nkind = "land"'), ["ground.segments", "unknown", "'segment'"]),
+    (
+        "ground-custom-missing-sigma",
+        make(ground='[ground]\nkind = "custom"\nrelative_permittivity = 10.0'),
+        ["ground.conductivity_s_per_m", "missing", "S/m"],
+    ),
+    (
+        "ground-custom-negative-sigma",
+        make(ground='[ground]\nkind = "custom"\nconductivity_s_per_m = -1e-3\nrelative_permittivity = 10.0'),
+        ["ground.conductivity_s_per_m", "-0.001", "1e-06 to 1000 S/m"],
+    ),
+    (
+        "ground-sigma-with-named-kind",
+        make(ground='[ground]\nkind = "sea"\nconductivity_s_per_m = 4.0'),
+        ["ground.conductivity_s_per_m", "4.0", "custom"],
+    ),
+    (
+        "ground-auto-range-receiver",
+        make(ground='[ground]\nkind = "auto"'),
+        ["receiver[1].range_km", "500.0", "no direction", "auto"],
+    ),
+    (
+        "utc-range-receiver",
+        make(ionosphere="[ionosphere]\nutc = 2026-06-21T12:00:00Z"),
+        ["receiver[1].range_km", "500.0", "no direction", "utc"],
+    ),
+    (
+        "ground-auto-no-tx-position",
+        make(transmitter=TX_NO_POSITION, ground='[ground]\nkind = "auto"'),
+        ["transmitter.latitude_deg", "missing", "auto"],
+    ),
+    (
+        "segment-overlap",
+        make(
+            ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto_km = 300.0\nkind = "land"\n[[ground.segment]]\nfrom_km = 250.0\nto_km = 400.0\nkind = "ice"'
+        ),
+        ["ground.segment[2].from_km", "250.0", "overlap"],
+    ),
+    (
+        "segment-reversed",
+        make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 300.0\nto_km = 100.0\nkind = "land"'),
+        ["ground.segment[1].to_km", "100.0", "greater than from_km = 300.0"],
+    ),
+    (
+        "segment-kind-auto",
+        make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto_km = 100.0\nkind = "auto"'),
+        ["ground.segment[1].kind", '"auto"', "ground class"],
+    ),
+    (
+        "segment-unknown-key",
+        make(ground='[ground]\nkind = "sea"\n[[ground.segment]]\nfrom_km = 0.0\nto = 100.0\nkind = "land"'),
+        ["ground.segment[1].to", "unknown", "'to_km'"],
+    ),
+    (
+        "segments-typo",
+        make(ground='[ground]\nkind = "sea"\n[[ground.segments]]\nfrom_km = 0.0\nto_km = 100.0\nkind = "land"'),
+        ["ground.segments", "unknown", "'segment'"],
+    ),
     ("cell-small", make(solver="[solver]\ncell_m = 5.0"), ["solver.cell_m", "5.0", "10 to 5000 m"]),
     ("cell-word", make(solver='[solver]\ncell_m = "fine"'), ["solver.cell_m", '"fine"', '"auto"']),
     ("top-high", make(solver="[solver]\ntop_km = 1000.0"), ["solver.top_km", "1000.0", "60 to 600 km"]),
-    ("top-with-ceiling", make(ionosphere="[ionosphere]\nceiling_km = 80.0", solver="[solver]\ntop_km = 100.0"), ["solver.top_km", "100.0", "ceiling"]),
+    (
+        "top-with-ceiling",
+        make(ionosphere="[ionosphere]\nceiling_km = 80.0", solver="[solver]\ntop_km = 100.0"),
+        ["solver.top_km", "100.0", "ceiling"],
+    ),
     ("pml-fraction", make(solver="[solver]\npml_cells = 20.5"), ["solver.pml_cells", "20.5", "integer", "5 to 100"]),
     ("pml-few", make(solver="[solver]\npml_cells = 3"), ["solver.pml_cells", "= 3", "5 to 100 cells"]),
-    ("cpw-low", make(solver="[solver]\ncells_per_wavelength = 4.0"), ["solver.cells_per_wavelength", "4.0", "8 to 200"]),
-    ("curvature-string", make(solver='[solver]\nearth_curvature = "yes"'), ["solver.earth_curvature", '"yes"', "true or false"]),
-    ("max-range-short", make(solver="[solver]\nmax_range_km = 800.0"), ["solver.max_range_km", "800.0", "'B'", "1000.0 km"]),
-    ("solver-unknown", make(solver="[solver]\ncells_per_wavelenght = 30.0"), ["solver.cells_per_wavelenght", "unknown", "'cells_per_wavelength'"]),
+    (
+        "cpw-low",
+        make(solver="[solver]\ncells_per_wavelength = 4.0"),
+        ["solver.cells_per_wavelength", "4.0", "8 to 200"],
+    ),
+    (
+        "curvature-string",
+        make(solver='[solver]\nearth_curvature = "yes"'),
+        ["solver.earth_curvature", '"yes"', "true or false"],
+    ),
+    (
+        "max-range-short",
+        make(solver="[solver]\nmax_range_km = 800.0"),
+        ["solver.max_range_km", "800.0", "'B'", "1000.0 km"],
+    ),
+    (
+        "solver-unknown",
+        make(solver="[solver]\ncells_per_wavelenght = 30.0"),
+        ["solver.cells_per_wavelenght", "unknown", "'cells_per_wavelength'"],
+    ),
     ("solver-not-table", make(top='title = "Test scenario"\nsolver = 3', solver=""), ["solver", "= 3", "table"]),
     ("malformed-toml", 'title = "x"\n[transmitter]\nname = \n', ["invalid TOML", "line 3"]),
 ]
@@ -204,10 +387,10 @@ def test_good_values_in_si(write_scenario):
     text = make(
         transmitter=tx(frequency_khz="[31.5, 16.0, 27.6, 16.0]", radiated_power_kw="250"),
         receivers=POSITIONED,
-        ionosphere="[ionosphere]\nutc = 2026-06-21T14:00:00+02:00\nnight_preset = \"textbook-night\"",
+        ionosphere='[ionosphere]\nutc = 2026-06-21T14:00:00+02:00\nnight_preset = "textbook-night"',
         ground='[ground]\nkind = "custom"\nconductivity_s_per_m = 3e-3\nrelative_permittivity = 15\n'
         '[[ground.segment]]\nfrom_km = 0\nto_km = 40.5\nkind = "sea"\n'
-        '[[ground.segment]]\nfrom_km = 100\nto_km = 200\nconductivity_s_per_m = 1e-4\nrelative_permittivity = 3.0',
+        "[[ground.segment]]\nfrom_km = 100\nto_km = 200\nconductivity_s_per_m = 1e-4\nrelative_permittivity = 3.0",
         solver="[solver]\nmax_range_km = 1600\ncell_m = 250\ntop_km = 150\nearth_curvature = false\npml_cells = 30\n"
         "cells_per_wavelength = 40\nreceiver_time_series = true",
     )
@@ -220,7 +403,9 @@ def test_good_values_in_si(write_scenario):
     assert s.ionosphere.utc.tzinfo == timezone.utc
     assert (s.ionosphere.day_preset, s.ionosphere.night_preset) == ("day", "textbook-night")
     assert s.ground == Ground(
-        "custom", 3e-3, 15.0,
+        "custom",
+        3e-3,
+        15.0,
         (GroundSegment(0.0, 40.5e3, "sea", 5.0, 70.0), GroundSegment(100e3, 200e3, "custom", 1e-4, 3.0)),
     )
     assert s.solver == Solver(1600e3, 250.0, 150e3, False, 30, 40.0, True)
@@ -244,12 +429,17 @@ def test_ionosphere_forms_and_top(write_scenario, tmp_path):
     (tmp_path / "profiles").mkdir()
     (tmp_path / "profiles" / "night.csv").write_text("altitude_km,electron_density_m3\n60,1e6\n")
     cases = {
-        "[ionosphere]\nhprime_km = 74\nbeta_per_km = 0.3": (Ionosphere("exponential", hprime_km=74.0, beta_per_km=0.3), 120e3),
+        "[ionosphere]\nhprime_km = 74\nbeta_per_km = 0.3": (
+            Ionosphere("exponential", hprime_km=74.0, beta_per_km=0.3),
+            120e3,
+        ),
         '[ionosphere]\npreset = "night"': (Ionosphere("preset", preset="night"), 120e3),
         "[ionosphere]\nceiling_km = 70": (Ionosphere("ceiling", ceiling_m=70e3), 70e3),
         "[ionosphere]\nno_ionosphere = true": (Ionosphere("none"), 400e3),
         '[ionosphere]\nprofile_file = "profiles/night.csv"': (
-            Ionosphere("file", profile_path=str((tmp_path / "profiles" / "night.csv").resolve())), 120e3),
+            Ionosphere("file", profile_path=str((tmp_path / "profiles" / "night.csv").resolve())),
+            120e3,
+        ),
     }
     for section, (expected, top_m) in cases.items():
         s = load_scenario(write_scenario(make(ionosphere=section, solver="")))
@@ -274,8 +464,15 @@ def test_receiver_geometry_against_spherical_formula(write_scenario):
         lat2, lon2 = map(math.radians, (rx_.latitude_deg, rx_.longitude_deg))
         dlon = lon2 - lon1
         central = math.acos(math.sin(lat1) * math.sin(lat2) + math.cos(lat1) * math.cos(lat2) * math.cos(dlon))
-        bearing = math.degrees(math.atan2(math.sin(dlon) * math.cos(lat2),
-                                          math.cos(lat1) * math.sin(lat2) - math.sin(lat1) * math.cos(lat2) * math.cos(dlon))) % 360
+        bearing = (
+            math.degrees(
+                math.atan2(
+                    math.sin(dlon) * math.cos(lat2),
+                    math.cos(lat1) * math.sin(lat2) - math.sin(lat1) * math.cos(lat2) * math.cos(dlon),
+                )
+            )
+            % 360
+        )
         assert geo.range_m == pytest.approx(6371e3 * central, rel=5e-3)
         assert abs((geo.bearing_deg - bearing + 180) % 360 - 180) < 0.5
 
@@ -305,11 +502,13 @@ def test_round_trip_examples(name):
 def test_round_trip_every_feature(write_scenario):
     text = make(
         transmitter=tx(frequency_khz="[16.0, 27.6, 31.5]", longitude_deg="359.5"),
-        receivers=rx({"name": '"Far \\"quoted\\" site"', "latitude_deg": "40.0", "longitude_deg": "20.0"},
-                     {"name": '"Marker"', "latitude_deg": "44.4", "longitude_deg": "10.1"}),
-        ionosphere="[ionosphere]\nutc = 2026-12-21T23:59:59.5Z\nday_preset = \"day-2017\"",
+        receivers=rx(
+            {"name": '"Far \\"quoted\\" site"', "latitude_deg": "40.0", "longitude_deg": "20.0"},
+            {"name": '"Marker"', "latitude_deg": "44.4", "longitude_deg": "10.1"},
+        ),
+        ionosphere='[ionosphere]\nutc = 2026-12-21T23:59:59.5Z\nday_preset = "day-2017"',
         ground='[ground]\nkind = "auto"\n[[ground.segment]]\nfrom_km = 0.1\nto_km = 33.3\nkind = "ice"\n'
-        '[[ground.segment]]\nfrom_km = 33.3\nto_km = 99.9\nconductivity_s_per_m = 2e-5\nrelative_permittivity = 4.5',
+        "[[ground.segment]]\nfrom_km = 33.3\nto_km = 99.9\nconductivity_s_per_m = 2e-5\nrelative_permittivity = 4.5",
         solver="[solver]\nmax_range_km = 2345.6\ncell_m = 333.3\ntop_km = 97.5\npml_cells = 12",
     )
     s = load_scenario(write_scenario(text))

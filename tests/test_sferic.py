@@ -166,8 +166,16 @@ def test_waveform_between_plates_matches_the_mode_sum():
 
     stroke = HeidlerStroke()
     h, r = 30e3, 100e3
-    settings = eng.Settings(frequencies_hz=(5e3, 30e3), max_range_m=250e3, earth_curvature=False, waveform=stroke,
-                            probe_ranges_m=(r,), record_time_series=True, convergence_db=0.0, max_duration_s=1.6e-3)
+    settings = eng.Settings(
+        frequencies_hz=(5e3, 30e3),
+        max_range_m=250e3,
+        earth_curvature=False,
+        waveform=stroke,
+        probe_ranges_m=(r,),
+        record_time_series=True,
+        convergence_db=0.0,
+        max_duration_s=1.6e-3,
+    )
     res = eng.run(eng.Medium.uniform(ceiling_m=h), settings)
     t = np.concatenate([[0.0], res.time_s])
     dt = float(t[1] - t[0])
@@ -201,9 +209,17 @@ def test_waveform_over_perfect_ground_matches_the_dipole_field():
 
     stroke = HeidlerStroke()
     d = 100e3
-    settings = eng.Settings(frequencies_hz=(5e3, 30e3), max_range_m=300e3, top_m=200e3, earth_curvature=False,
-                            waveform=stroke, probe_ranges_m=(d,), record_time_series=True, convergence_db=0.0,
-                            max_duration_s=1.5e-3)
+    settings = eng.Settings(
+        frequencies_hz=(5e3, 30e3),
+        max_range_m=300e3,
+        top_m=200e3,
+        earth_curvature=False,
+        waveform=stroke,
+        probe_ranges_m=(d,),
+        record_time_series=True,
+        convergence_db=0.0,
+        max_duration_s=1.5e-3,
+    )
     res = eng.run(eng.Medium.uniform(), settings)
     t = np.concatenate([[0.0], res.time_s])
     dt = float(t[1] - t[0])
@@ -282,25 +298,46 @@ def test_source_section_defaults_and_round_trip():
     s = load_scenario(PLATES)
     src = s.source
     assert (src.peak_current_a, src.rise_time_constant_s, src.decay_time_constant_s, src.heidler_exponent) == (
-        28e3, pytest.approx(1.8e-6), pytest.approx(95e-6), 2.0)  # docs/physics.md 6 first stroke
+        28e3,
+        pytest.approx(1.8e-6),
+        pytest.approx(95e-6),
+        2.0,
+    )  # docs/physics.md 6 first stroke
     assert src.channel_speed_fraction == 0.5 and src.channel_height_m == 7.5e3
     assert src.record_s == pytest.approx(6e-3) and src.band_hz == (500.0, 10e3)
     assert load_scenario(s.to_toml()) == s
     assert "[source]" in s.to_toml() and "decay_time_constant_us = 95.0" in s.to_toml()
-    carrier = load_scenario(PLATES.replace('kind = "lightning"\nrecord_ms = 6.0\nband_khz = [0.5, 10.0]', 'kind = "carrier"'))
+    carrier = load_scenario(
+        PLATES.replace('kind = "lightning"\nrecord_ms = 6.0\nband_khz = [0.5, 10.0]', 'kind = "carrier"')
+    )
     assert carrier.source is None and "[source]" not in carrier.to_toml()
 
 
-@pytest.mark.parametrize("line, message", [
-    ('kind = "lightnin"', "source.kind = \"lightnin\" is not a source kind (choose from carrier, lightning); did you mean 'lightning'?"),
-    ("peak_current_ka = 0.0", "source.peak_current_ka = 0.0 is outside the allowed range 0.1 to 500 kA"),
-    ("channel_speed_fraction = 1.5", "source.channel_speed_fraction = 1.5 is outside the allowed range > 0 to 1 of the speed of light"),
-    ("decay_time_constant_us = 1.0", "source.decay_time_constant_us = 1.0 leaves the decay (1 us) no longer than the rise (1.8 us)"),
-    ("band_khz = [10.0, 1.0]", "source.band_khz = [10.0, 1.0] must give the low edge first"),
-    ("record_ms = 1.0", "source.record_ms = 1.0 ends before the sferic has passed 'Far' (200 km, arrival at 0.67 ms); allowed range 2.7 to 200 ms"),
-    ("heidler_exponent = \"two\"", "source.heidler_exponent = \"two\" must be a number (allowed range 1 to 20)"),
-    ("channel_hight_km = 5.0", "source.channel_hight_km: unknown key; did you mean 'channel_height_km'?"),
-])
+@pytest.mark.parametrize(
+    "line, message",
+    [
+        (
+            'kind = "lightnin"',
+            "source.kind = \"lightnin\" is not a source kind (choose from carrier, lightning); did you mean 'lightning'?",
+        ),
+        ("peak_current_ka = 0.0", "source.peak_current_ka = 0.0 is outside the allowed range 0.1 to 500 kA"),
+        (
+            "channel_speed_fraction = 1.5",
+            "source.channel_speed_fraction = 1.5 is outside the allowed range > 0 to 1 of the speed of light",
+        ),
+        (
+            "decay_time_constant_us = 1.0",
+            "source.decay_time_constant_us = 1.0 leaves the decay (1 us) no longer than the rise (1.8 us)",
+        ),
+        ("band_khz = [10.0, 1.0]", "source.band_khz = [10.0, 1.0] must give the low edge first"),
+        (
+            "record_ms = 1.0",
+            "source.record_ms = 1.0 ends before the sferic has passed 'Far' (200 km, arrival at 0.67 ms); allowed range 2.7 to 200 ms",
+        ),
+        ('heidler_exponent = "two"', 'source.heidler_exponent = "two" must be a number (allowed range 1 to 20)'),
+        ("channel_hight_km = 5.0", "source.channel_hight_km: unknown key; did you mean 'channel_height_km'?"),
+    ],
+)
 def test_source_section_errors_are_one_line(line, message):
     from cavity import load_scenario
 
@@ -324,8 +361,9 @@ def plate_run(tmp_path_factory):
     result, figure = folder / "plates.nc", folder / "plates.png"
     runner = CliRunner()
     ran = runner.invoke(main, ["sferic", "run", str(scenario), "-o", str(result), "-q"])
-    plotted = runner.invoke(main, ["sferic", "plot", str(result), str(result), "--label", "one", "--label", "two",
-                                   "-o", str(figure)])
+    plotted = runner.invoke(
+        main, ["sferic", "plot", str(result), str(result), "--label", "one", "--label", "two", "-o", str(figure)]
+    )
     return result, figure, ran, plotted
 
 
@@ -341,8 +379,12 @@ def test_sferic_result_file(plate_run):
     assert ds.lag.values[-1] == pytest.approx(6e-3)
     assert ds.spectrum_frequency.attrs["units"] == "kHz"
     assert ds.spectrum_frequency.values[0] == 0.5 and ds.spectrum_frequency.values[-1] == pytest.approx(10.0)
-    for name, unit in (("receiver_ez_time_series", "V m-1"), ("receiver_b_time_series", "T"),
-                       ("source_current", "A"), ("source_current_moment", "A m")):
+    for name, unit in (
+        ("receiver_ez_time_series", "V m-1"),
+        ("receiver_b_time_series", "T"),
+        ("source_current", "A"),
+        ("source_current_moment", "A m"),
+    ):
         assert ds[name].attrs["units"] == unit
     assert "dB re 1 uV/m/Hz" in ds.receiver_ez_spectrum.attrs["long_name"]
     assert "dB re 1 fT/Hz" in ds.receiver_b_spectrum.attrs["long_name"]
@@ -382,8 +424,12 @@ def test_sferic_result_passes_the_cf_checker(plate_run, tmp_path):
     if not checker:
         pytest.fail("compliance-checker is not installed (pip install '.[test]')")
     report = tmp_path / "cf.json"
-    subprocess.run([checker, "--test", "cf:1.10", "-f", "json", "-o", str(report), str(result)],
-                   capture_output=True, text=True, timeout=300)
+    subprocess.run(
+        [checker, "--test", "cf:1.10", "-f", "json", "-o", str(report), str(result)],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     outcome = json.loads(report.read_text())["cf:1.10"]
     failed = [(p["name"], p["msgs"]) for p in outcome["all_priorities"] if p["value"][0] < p["value"][1]]
     assert outcome["high_count"] == 0, failed
@@ -403,7 +449,9 @@ def test_sferic_figure_and_plot_command(plate_run, tmp_path):
     runner = CliRunner()
     again = runner.invoke(main, ["sferic", "plot", str(result), "-o", str(figure)])
     assert again.exit_code == 1 and "exists; use --overwrite" in again.output
-    bad = runner.invoke(main, ["sferic", "plot", str(result), "--label", "a", "--label", "b", "-o", str(tmp_path / "x.png")])
+    bad = runner.invoke(
+        main, ["sferic", "plot", str(result), "--label", "a", "--label", "b", "-o", str(tmp_path / "x.png")]
+    )
     assert bad.exit_code == 2 and "2 labels for 1 result files" in bad.output
 
 
@@ -414,8 +462,10 @@ def test_carrier_scenarios_and_files_are_refused(tmp_path):
     from cavity.reports.sferic import plot_sferic
     from cavity.solve import simulate_sferic
 
-    carrier = load_scenario(PLATES.replace('kind = "lightning"\nrecord_ms = 6.0\nband_khz = [0.5, 10.0]', 'kind = "carrier"'))
-    with pytest.raises(ScenarioError, match="no \\[source\\] with kind = \"lightning\""):
+    carrier = load_scenario(
+        PLATES.replace('kind = "lightning"\nrecord_ms = 6.0\nband_khz = [0.5, 10.0]', 'kind = "carrier"')
+    )
+    with pytest.raises(ScenarioError, match='no \\[source\\] with kind = "lightning"'):
         simulate_sferic(carrier)
     with pytest.raises(ResultFileError, match="holds no sferic waveforms"):
         plot_sferic(xr.Dataset(attrs={"title": "carrier"}), tmp_path / "x.png")
@@ -433,10 +483,15 @@ def test_plate_guide_cutoff_from_an_impulsive_run():
     from cavity import load_scenario
     from cavity.solve import simulate_sferic
 
-    text = PLATES.replace("cell_m = 1000.0\n", "").replace("record_ms = 6.0", "record_ms = 22.0").replace(
-        "band_khz = [0.5, 10.0]", "band_khz = [0.5, 30.0]")
-    text = text.replace('name = "Near"\nrange_km = 100.0\n[[receiver]]\nname = "Far"\nrange_km = 200.0',
-                        'name = "Plate 500"\nrange_km = 500.0')
+    text = (
+        PLATES.replace("cell_m = 1000.0\n", "")
+        .replace("record_ms = 6.0", "record_ms = 22.0")
+        .replace("band_khz = [0.5, 10.0]", "band_khz = [0.5, 30.0]")
+    )
+    text = text.replace(
+        'name = "Near"\nrange_km = 100.0\n[[receiver]]\nname = "Far"\nrange_km = 200.0',
+        'name = "Plate 500"\nrange_km = 500.0',
+    )
     ds = simulate_sferic(load_scenario(text))
     fc = C0 / (2 * 85e3)
     measured = float(ds.receiver_cutoff_frequency.values[0]) * 1e3

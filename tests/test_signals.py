@@ -71,8 +71,15 @@ class Running:
         env.pop("CAVITY_TRACEBACK", None)
         # a process started in the background by a non-interactive shell (as CI may start the suite)
         # inherits SIGINT as ignored; a user's terminal delivers it: restore the default in the child
-        self.proc = subprocess.Popen(argv, cwd=cwd, env=env, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                                     text=True, preexec_fn=_default_sigint)
+        self.proc = subprocess.Popen(
+            argv,
+            cwd=cwd,
+            env=env,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+            preexec_fn=_default_sigint,
+        )
         self.lines: list[str] = []
         self.ended = False
         self._queue: queue.Queue = queue.Queue()
@@ -132,8 +139,9 @@ def test_sigint_and_sigterm_while_stepping(tmp_path):
     # SIGINT: an earlier result of the same name exists and --overwrite is given
     (folders["sigint"] / "result.nc").write_bytes(b"an earlier result, must survive")
     runs = {
-        "sigint": Running([sys.executable, "-m", "cavity", "run", "run.toml", "-o", "result.nc", "--overwrite"],
-                          folders["sigint"]),
+        "sigint": Running(
+            [sys.executable, "-m", "cavity", "run", "run.toml", "-o", "result.nc", "--overwrite"], folders["sigint"]
+        ),
         "sigterm": Running([*_console_script(), "run", "run.toml", "-o", "result.nc"], folders["sigterm"]),
     }
     signals = {"sigint": signal.SIGINT, "sigterm": signal.SIGTERM}
@@ -174,13 +182,33 @@ def test_signal_during_a_sweep(sig, code, tmp_path):
     (finished points may stay in the parts folder beside it, by design, so that a rerun resumes)."""
     if "sweep" not in COMMANDS:
         pytest.skip("cavity sweep is not registered yet")
-    text = SCENARIO.replace('name = "Greyhaven Mast"', 'name = "Greyhaven Mast"\nlatitude_deg = 50.0\nlongitude_deg = 0.0')
+    text = SCENARIO.replace(
+        'name = "Greyhaven Mast"', 'name = "Greyhaven Mast"\nlatitude_deg = 50.0\nlongitude_deg = 0.0'
+    )
     text = text.replace("hprime_km = 74.0\nbeta_per_km = 0.3", "utc = 2026-06-21T12:00:00Z")
-    text = text.replace('[[receiver]]\nname = "Marker 80"\nrange_km = 80.0',
-                        '[[receiver]]\nname = "Kestrel"\nlatitude_deg = 50.7\nlongitude_deg = 0.0')  # 78 km
+    text = text.replace(
+        '[[receiver]]\nname = "Marker 80"\nrange_km = 80.0',
+        '[[receiver]]\nname = "Kestrel"\nlatitude_deg = 50.7\nlongitude_deg = 0.0',
+    )  # 78 km
     (tmp_path / "sweep.toml").write_text(text)
-    run = Running([sys.executable, "-m", "cavity", "sweep", "sweep.toml", "--start", "2026-06-21T00:00:00Z",
-                   "--stop", "2026-06-21T06:00:00Z", "--step", "60min", "-o", "day.nc"], tmp_path)
+    run = Running(
+        [
+            sys.executable,
+            "-m",
+            "cavity",
+            "sweep",
+            "sweep.toml",
+            "--start",
+            "2026-06-21T00:00:00Z",
+            "--stop",
+            "2026-06-21T06:00:00Z",
+            "--step",
+            "60min",
+            "-o",
+            "day.nc",
+        ],
+        tmp_path,
+    )
     try:
         # signal once the first point is back (the progress label appears then): the driver waits on
         # its workers, no longer compiling (a signal landing in numba's compile callbacks is lost)

@@ -94,8 +94,14 @@ def _local_cluster():
     """Two single-threaded process workers, no dashboard, the HTTP service on a free loopback port."""
     from distributed import LocalCluster
 
-    return LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
-                        scheduler_kwargs={"dashboard_address": "127.0.0.1:0"}, env={"NUMBA_NUM_THREADS": "1"})
+    return LocalCluster(
+        n_workers=2,
+        threads_per_worker=1,
+        processes=True,
+        dashboard_address=None,
+        scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+        env={"NUMBA_NUM_THREADS": "1"},
+    )
 
 
 @pytest.fixture(scope="module")
@@ -169,8 +175,13 @@ def test_parse_step():
     assert parse_step("15min") == timedelta(minutes=15)
     assert parse_step("1h30min") == timedelta(minutes=90)
     assert parse_step("90s") == timedelta(seconds=90)
-    for bad, why in [("15", "has no unit"), ("soon", "is not a duration"), ("0s", "at least 1 s"),
-                     ("1.5s", "whole number of seconds"), ("-5min", "at least 1 s")]:
+    for bad, why in [
+        ("15", "has no unit"),
+        ("soon", "is not a duration"),
+        ("0s", "at least 1 s"),
+        ("1.5s", "whole number of seconds"),
+        ("-5min", "at least 1 s"),
+    ]:
         with pytest.raises(ScenarioError, match=why):
             parse_step(bad)
 
@@ -256,10 +267,20 @@ def test_sweep_equals_points_solved_one_by_one(tiny, swept):
         for fi, f in enumerate(FREQS_KHZ):
             one = simulate(point_scenario(tiny, SweepPoint(ti, fi, parse_utc(when), f * 1e3)))
             at = {"time": ti, "frequency": fi}
-            for name in ("receiver_ez_amplitude", "receiver_ez_phase", "receiver_b_amplitude", "ez_amplitude", "ez_phase"):
-                np.testing.assert_array_equal(ds[name].isel(at).values, one[name].isel(frequency=0).values, err_msg=name)
+            for name in (
+                "receiver_ez_amplitude",
+                "receiver_ez_phase",
+                "receiver_b_amplitude",
+                "ez_amplitude",
+                "ez_phase",
+            ):
+                np.testing.assert_array_equal(
+                    ds[name].isel(at).values, one[name].isel(frequency=0).values, err_msg=name
+                )
             for name in ("electron_density", "solar_zenith_angle", "hprime"):
-                np.testing.assert_array_equal(ds[name].isel(time=ti).transpose(*one[name].dims).values, one[name].values)
+                np.testing.assert_array_equal(
+                    ds[name].isel(time=ti).transpose(*one[name].dims).values, one[name].values
+                )
             assert ds["point_solver_time_steps"].isel(at).item() == one.attrs["solver_time_steps"]
     # the instants differ in ionosphere: before sunrise the paths are in night, later partly in day
     h = ds["hprime"].max(["path", "range"]).values
@@ -276,8 +297,13 @@ def test_instants_with_the_same_ionosphere_share_one_solve_per_path(tiny, cluste
     _, _, points = sweep_points(tiny, times, [10.0])
     jobs, needs, failures = plan_jobs(points, {p: point_scenario(tiny, p) for p in points})
     assert len(jobs) == 4 and not failures
-    ds = sweep(tiny, times, [10.0], scheduler=cluster.scheduler_address,
-               solve=functools.partial(counting_solve, marker_dir=str(markers)))
+    ds = sweep(
+        tiny,
+        times,
+        [10.0],
+        scheduler=cluster.scheduler_address,
+        solve=functools.partial(counting_solve, marker_dir=str(markers)),
+    )
     assert len(list(markers.iterdir())) == 4
     zenith = ds["solar_zenith_angle"]
     assert float(zenith.isel(time=[0, 1]).min()) > 99.0 and float(zenith.isel(time=2).max()) < 90.0
@@ -290,7 +316,9 @@ def test_instants_with_the_same_ionosphere_share_one_solve_per_path(tiny, cluste
     assert ds["point_solver_wall_time"].isel(time=1).item() == 0.0
     assert ds["point_solver_wall_time"].isel(time=0).item() > 0.0
     # midday has its own medium, hence its own solve and field
-    assert not np.array_equal(ds["receiver_ez_amplitude"].isel(time=2).values, ds["receiver_ez_amplitude"].isel(time=1).values)
+    assert not np.array_equal(
+        ds["receiver_ez_amplitude"].isel(time=2).values, ds["receiver_ez_amplitude"].isel(time=1).values
+    )
 
 
 def test_combined_file_follows_the_contract_with_a_cf_time(swept, tmp_path):
@@ -304,7 +332,9 @@ def test_combined_file_follows_the_contract_with_a_cf_time(swept, tmp_path):
         assert t.calendar == TIME_CALENDAR == "standard"
         assert t.standard_name == "time" and t.axis == "T"
         # 2026-03-20T04:00Z = 1773979200 s after 1970-01-01 (date arithmetic, Python datetime)
-        expected = (datetime(2026, 3, 20, 4, tzinfo=timezone.utc) - datetime(1970, 1, 1, tzinfo=timezone.utc)).total_seconds()
+        expected = (
+            datetime(2026, 3, 20, 4, tzinfo=timezone.utc) - datetime(1970, 1, 1, tzinfo=timezone.utc)
+        ).total_seconds()
         assert list(t[:]) == [expected, expected + 80 * 60]
         assert nc["receiver_ez_amplitude"].dimensions == ("receiver", "frequency", "time")
     back = open_result(path)
@@ -319,8 +349,12 @@ def test_combined_file_follows_the_contract_with_a_cf_time(swept, tmp_path):
     checker = str(beside) if beside.exists() else shutil.which("compliance-checker")
     assert checker, "compliance-checker is not installed (pip install '.[test]')"
     report = tmp_path / "report.json"
-    done = subprocess.run([checker, "--test", "cf:1.10", "-f", "json", "-o", str(report), str(path)],
-                          capture_output=True, text=True, timeout=300)
+    done = subprocess.run(
+        [checker, "--test", "cf:1.10", "-f", "json", "-o", str(report), str(path)],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     result = json.loads(report.read_text())["cf:1.10"]
     failed = [(p["name"], p["msgs"]) for p in result["all_priorities"] if p["value"][0] < p["value"][1]]
     assert result["high_count"] == 0, failed
@@ -342,8 +376,15 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
             raise _Stop()
 
     with pytest.raises(_Stop):
-        sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts,
-              progress=stop_after_two_points, solve=solve)
+        sweep(
+            tiny,
+            TIMES,
+            FREQS_KHZ,
+            scheduler=cluster.scheduler_address,
+            parts_dir=parts,
+            progress=stop_after_two_points,
+            solve=solve,
+        )
     kept = {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in parts.glob("*.nc")}
     assert len(kept) == 2
     time.sleep(1.5)  # let cancelled in-flight solves finish leaving their markers
@@ -356,8 +397,15 @@ def test_interrupted_sweep_resumes_with_only_the_missing_points(tiny, swept, clu
     assert 4 <= solves_kept < 8
 
     calls = []
-    ds = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts,
-               progress=lambda f, text: calls.append(text), solve=solve)
+    ds = sweep(
+        tiny,
+        TIMES,
+        FREQS_KHZ,
+        scheduler=cluster.scheduler_address,
+        parts_dir=parts,
+        progress=lambda f, text: calls.append(text),
+        solve=solve,
+    )
     assert len(calls) == 8 - solves_kept  # the driver collected only the path solves not kept ...
     assert len(list(markers.iterdir())) - before == 8 - solves_kept  # ... and the workers solved only those
     assert {p.name: (p.stat().st_ino, p.stat().st_mtime_ns) for p in parts.glob("*.nc") if p.name in kept} == kept
@@ -389,10 +437,18 @@ def test_kept_path_solves_are_reused_when_points_are_missing(tiny, swept, cluste
 def test_parts_of_another_scenario_are_solved_again(tiny, cluster, tmp_path):
     parts = tmp_path / "parts"
     one = sweep(tiny, TIMES[:1], [10.0], scheduler=cluster.scheduler_address, parts_dir=parts)
-    louder = tiny.replace(transmitter=dataclasses.replace(tiny.transmitter, radiated_power_w=4 * tiny.transmitter.radiated_power_w))
+    louder = tiny.replace(
+        transmitter=dataclasses.replace(tiny.transmitter, radiated_power_w=4 * tiny.transmitter.radiated_power_w)
+    )
     calls = []
-    two = sweep(louder, TIMES[:1], [10.0], scheduler=cluster.scheduler_address, parts_dir=parts,
-                progress=lambda f, t: calls.append(t))
+    two = sweep(
+        louder,
+        TIMES[:1],
+        [10.0],
+        scheduler=cluster.scheduler_address,
+        parts_dir=parts,
+        progress=lambda f, t: calls.append(t),
+    )
     assert len(calls) == 2  # the part on disk was made for 100 kW, so both paths were solved again
     # four times the power: +6.02 dB (10 log10 4) at every receiver
     np.testing.assert_allclose(two["receiver_ez_amplitude"] - one["receiver_ez_amplitude"], 10 * np.log10(4), atol=1e-9)
@@ -417,8 +473,9 @@ def test_failed_point_is_retried_reported_by_name_and_the_rest_complete(tiny, cl
     assert attempts.count("10000") == 4
 
     # with allow_missing the combined dataset has NaN where the points failed, and says which
-    ds = sweep(tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve,
-               allow_missing=True)
+    ds = sweep(
+        tiny, TIMES, FREQS_KHZ, scheduler=cluster.scheduler_address, parts_dir=parts, solve=solve, allow_missing=True
+    )
     assert np.isnan(ds["receiver_ez_amplitude"].sel(frequency=12.0)).all()
     assert np.isfinite(ds["receiver_ez_amplitude"].sel(frequency=10.0)).all()
     assert ds.attrs["sweep_missing_points"] == "2026-03-20T04:00:00Z 12 kHz; 2026-03-20T05:20:00Z 12 kHz"
@@ -432,15 +489,18 @@ def test_frequency_only_sweep_of_a_fixed_ionosphere(write_scenario, cluster):
     assert "time" not in ds.dims and list(ds["frequency"].values) == FREQS_KHZ
     assert ds["receiver_ez_amplitude"].dims == ("receiver", "frequency")
     one = simulate(point_scenario(sc, SweepPoint(0, 1, None, 12e3)))
-    np.testing.assert_array_equal(ds["receiver_ez_amplitude"].isel(frequency=1).values,
-                                  one["receiver_ez_amplitude"].isel(frequency=0).values)
+    np.testing.assert_array_equal(
+        ds["receiver_ez_amplitude"].isel(frequency=1).values, one["receiver_ez_amplitude"].isel(frequency=0).values
+    )
 
 
 def test_frequencies_on_different_grids_share_the_coarsest_range_axis(write_scenario, cluster):
     # cell_m left to the tool: 20 cells per wavelength, so 10 and 12 kHz are solved on different
     # range grids (1.5 km and 1.25 km cells)
     text = TINY.replace("cell_m = 2500\n", "").replace("utc = 2026-03-20T06:00:00Z", 'preset = "day"')
-    text = text.replace("longitude_deg = 11.3", "longitude_deg = 10.6").replace("latitude_deg = 45.9", "latitude_deg = 45.4")
+    text = text.replace("longitude_deg = 11.3", "longitude_deg = 10.6").replace(
+        "latitude_deg = 45.9", "latitude_deg = 45.4"
+    )
     sc = cavity.load_scenario(write_scenario(text))
     ds = sweep(sc, frequencies_khz=FREQS_KHZ, scheduler=cluster)
     assert "coarsest" in ds.attrs["sweep_range_note"]
@@ -448,13 +508,19 @@ def test_frequencies_on_different_grids_share_the_coarsest_range_axis(write_scen
     twelve = simulate(point_scenario(sc, SweepPoint(0, 1, None, 12e3)))
     assert np.median(np.diff(twelve["range"].values)) < np.median(np.diff(ten["range"].values))
     np.testing.assert_array_equal(ds["range"].values, ten["range"].values)
-    np.testing.assert_array_equal(ds["ez_amplitude"].isel(frequency=0).values, ten["ez_amplitude"].isel(frequency=0).values)
+    np.testing.assert_array_equal(
+        ds["ez_amplitude"].isel(frequency=0).values, ten["ez_amplitude"].isel(frequency=0).values
+    )
     for name in ("receiver_ez_amplitude", "receiver_ez_phase"):  # receivers: from each solve's own grid
         np.testing.assert_array_equal(ds[name].isel(frequency=1).values, twelve[name].isel(frequency=0).values)
     # fields along range at 12 kHz: linear in dB between the 12 kHz grid's points (numpy.interp)
     for p in range(ds.sizes["path"]):
-        expected = np.interp(ds["range"].values, twelve["range"].values,
-                             twelve["ez_amplitude"].isel(path=p, frequency=0).values, right=np.nan)
+        expected = np.interp(
+            ds["range"].values,
+            twelve["range"].values,
+            twelve["ez_amplitude"].isel(path=p, frequency=0).values,
+            right=np.nan,
+        )
         np.testing.assert_allclose(ds["ez_amplitude"].isel(path=p, frequency=1).values, expected, rtol=1e-12)
 
 
@@ -473,7 +539,10 @@ def test_a_sweep_whose_combined_arrays_cannot_fit_is_refused_before_solving(tiny
     paths = build_paths(variant)
     grid = max((plan_path(variant, p).grid for p in paths), key=lambda g: g.nr)
     one = combined_memory_bytes(1, 2, len(paths), grid.nr - grid.pml_r_cells - 1)
-    for available, advice in ((one * 1.5 / 0.8, r"sweep at most 1 instant per file"), (one / 2, r"not even one instant fits")):
+    for available, advice in (
+        (one * 1.5 / 0.8, r"sweep at most 1 instant per file"),
+        (one / 2, r"not even one instant fits"),
+    ):
         monkeypatch.setattr("cavity.fdtd.grid.available_memory_bytes", lambda a=available: int(a))
         with pytest.raises(SweepError, match=r"would need about .* GB of memory \(2 instants x .*; " + advice):
             sweep(tiny, TIMES, FREQS_KHZ, scheduler="tcp://127.0.0.1:1", parts_dir=tmp_path / "parts")
@@ -518,8 +587,9 @@ def test_worker_killed_mid_sweep_does_not_lose_the_sweep(tiny, swept, cluster, t
         assert killed and killed[0] not in client.run(os.getpid).values()
     assert len(list((tmp_path / "parts").glob("*.nc"))) == 6
     assert np.isfinite(ds["receiver_ez_amplitude"].values).all()
-    np.testing.assert_array_equal(ds["receiver_ez_amplitude"].sel(time=swept[0]["time"]).values,
-                                  swept[0]["receiver_ez_amplitude"].values)
+    np.testing.assert_array_equal(
+        ds["receiver_ez_amplitude"].sel(time=swept[0]["time"]).values, swept[0]["receiver_ez_amplitude"].values
+    )
 
 
 # --------------------------------------------------------------------------------------------------
@@ -532,8 +602,22 @@ def test_cli_sweep_local_cluster_then_resume(tmp_path):
     scenario.write_text(TINY, encoding="utf-8")
     out = tmp_path / "day.nc"
     runner = CliRunner()
-    args = ["sweep", str(scenario), "--start", TIMES[0], "--stop", TIMES[1], "--step", "80min",
-            "--frequency", "10", "--workers", "1", "-o", str(out)]
+    args = [
+        "sweep",
+        str(scenario),
+        "--start",
+        TIMES[0],
+        "--stop",
+        TIMES[1],
+        "--step",
+        "80min",
+        "--frequency",
+        "10",
+        "--workers",
+        "1",
+        "-o",
+        str(out),
+    ]
     result = runner.invoke(main, args)
     assert result.exit_code == 0, result.output
     assert f"wrote {out}" in result.output
@@ -558,8 +642,16 @@ def test_cli_usage_errors(tmp_path, write_scenario):
     runner = CliRunner()
     cases = [
         ([str(tiny), "--start", TIMES[0], "-o", out], 2, "--start and --stop go together"),
-        ([str(fixed), "--start", TIMES[0], "--stop", TIMES[1], "-o", out], 1, "form 'preset' does not change with time"),
-        ([str(tiny), "--start", TIMES[0], "--stop", TIMES[1], "--step", "fast", "-o", out], 1, "step = 'fast' is not a duration"),
+        (
+            [str(fixed), "--start", TIMES[0], "--stop", TIMES[1], "-o", out],
+            1,
+            "form 'preset' does not change with time",
+        ),
+        (
+            [str(tiny), "--start", TIMES[0], "--stop", TIMES[1], "--step", "fast", "-o", out],
+            1,
+            "step = 'fast' is not a duration",
+        ),
         ([str(tiny), "--start", "2026-03-20T06:00", "--stop", TIMES[1], "-o", out], 1, "has no time zone"),
         ([str(tiny), "--frequency", "ten", "-o", out], 2, "'ten' is not a number of kHz"),
         ([str(tiny), "--frequency", "99", "-o", out], 1, "frequency_khz"),
@@ -581,12 +673,30 @@ def test_cli_killed_sweep_resumes(tmp_path):
     scenario = tmp_path / "tiny.toml"
     scenario.write_text(TINY, encoding="utf-8")
     out = tmp_path / "day.nc"
-    command = [sys.executable, "-c", "import sys; from cavity.cli import main; sys.exit(main())", "sweep",
-               str(scenario), "--start", "2026-03-20T03:00Z", "--stop", "2026-03-20T07:00Z", "--step", "20min",
-               "--workers", "2", "-o", str(out)]
+    command = [
+        sys.executable,
+        "-c",
+        "import sys; from cavity.cli import main; sys.exit(main())",
+        "sweep",
+        str(scenario),
+        "--start",
+        "2026-03-20T03:00Z",
+        "--stop",
+        "2026-03-20T07:00Z",
+        "--step",
+        "20min",
+        "--workers",
+        "2",
+        "-o",
+        str(out),
+    ]
     # SIGINT as a terminal sends it (a shell may have left it ignored for background jobs)
-    proc = subprocess.Popen([*command, "-q"], stderr=subprocess.PIPE, text=True,
-                            preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
+    proc = subprocess.Popen(
+        [*command, "-q"],
+        stderr=subprocess.PIPE,
+        text=True,
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL),
+    )
     parts = default_parts_dir(out)
     deadline = time.time() + 300
     while time.time() < deadline and len(list(parts.glob("*.nc"))) < 3:

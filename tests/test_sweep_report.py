@@ -26,18 +26,28 @@ from cavity.reports.sweep import (
 UTC = timezone.utc
 
 
-def synthetic_sweep(tx=(0.0, 0.0), receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0)),
-                    start=datetime(2026, 3, 20, tzinfo=UTC), hours=24, step_min=30, freqs=(16.0, 27.6)):
+def synthetic_sweep(
+    tx=(0.0, 0.0),
+    receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0)),
+    start=datetime(2026, 3, 20, tzinfo=UTC),
+    hours=24,
+    step_min=30,
+    freqs=(16.0, 27.6),
+):
     """A sweep-shaped dataset: receiver amplitudes (receiver, frequency, time), as a sweep file holds."""
     n = hours * 60 // step_min + 1
-    times = np.array([np.datetime64((start + timedelta(minutes=step_min * k)).replace(tzinfo=None), "ns") for k in range(n)])
+    times = np.array(
+        [np.datetime64((start + timedelta(minutes=step_min * k)).replace(tzinfo=None), "ns") for k in range(n)]
+    )
     hours_since = np.arange(n) * step_min / 60.0
     amp = np.empty((len(receivers), len(freqs), n))
     for i in range(len(receivers)):
         for k, f in enumerate(freqs):
             amp[i, k] = 60.0 + 10 * i + f / 10 + 5.0 * np.cos(2 * np.pi * hours_since / 24.0)
     tx_lines = "" if tx is None else f"latitude_deg = {tx[0]}\nlongitude_deg = {tx[1]}\n"
-    scenario = f'title = "Invented synthetic sweep"\n[transmitter]\nname = "Tor Beacon"\n{tx_lines}frequency_khz = 16.0\n'
+    scenario = (
+        f'title = "Invented synthetic sweep"\n[transmitter]\nname = "Tor Beacon"\n{tx_lines}frequency_khz = 16.0\n'
+    )
     return xr.Dataset(
         {
             "receiver_name": (("receiver",), np.array([r[0] for r in receivers], dtype=object)),
@@ -92,8 +102,10 @@ def test_polar_night_has_no_crossing():
 
 
 def test_path_midpoints_are_halfway_along_the_wgs84_geodesic():
-    ds = synthetic_sweep(tx=(0.0, 0.0), receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0),
-                                                   ("Range only", math.nan, math.nan)))
+    ds = synthetic_sweep(
+        tx=(0.0, 0.0),
+        receivers=(("Quarry Hill", 0.0, 20.0), ("Saltmarsh", 30.0, 5.0), ("Range only", math.nan, math.nan)),
+    )
     mids = path_midpoints(ds)
     assert mids[0] == pytest.approx((0.0, 10.0), abs=1e-9)  # along the equator, by symmetry
     assert mids[2] is None

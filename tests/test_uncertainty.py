@@ -63,12 +63,17 @@ def _solve(name):
 
     kind, f, a, b, (r0, r1), _ = GUIDES[name]
     if kind == "plates":
+
         def run(**kw):
-            return eng.run(eng.Medium.uniform(ceiling_m=a), eng.Settings(frequencies_hz=(f,), max_range_m=r1,
-                                                                          earth_curvature=False, **kw))
+            return eng.run(
+                eng.Medium.uniform(ceiling_m=a),
+                eng.Settings(frequencies_hz=(f,), max_range_m=r1, earth_curvature=False, **kw),
+            )
     else:
+
         def run(**kw):
             return ionosphere_run(f, a, b, 5.0, 70.0, r1 + 30e3, **kw)
+
     fine = run()
     k = unc.COMPANION_CELL_RATIO
     coarse = run(dr_m=k * fine.plan.dr_m, dz_m=k * fine.plan.dz_m)
@@ -98,6 +103,8 @@ def test_uncertainty_brackets_the_true_error(name):
     r, ez, ref, u, keep = _solve(name)
     err = np.abs(_db(ez / ref))
     covered = float(np.mean(err[keep] <= u[keep]))
-    print(f"{name}: coverage {100 * covered:.1f} %, median uncertainty {np.median(u[keep]):.2f} dB, "
-          f"median error {np.median(err[keep]):.2f} dB")
+    print(
+        f"{name}: coverage {100 * covered:.1f} %, median uncertainty {np.median(u[keep]):.2f} dB, "
+        f"median error {np.median(err[keep]):.2f} dB"
+    )
     assert covered >= 0.90

@@ -49,8 +49,9 @@ def _at(range_m, values, at_m):
 
 def _free_space_run(f_hz, max_range_m, top_m, cell_m, conductivity=math.inf, permittivity=1.0):
     medium = eng.Medium.uniform(conductivity, permittivity)
-    settings = eng.Settings(frequencies_hz=(f_hz,), max_range_m=max_range_m, top_m=top_m,
-                            dr_m=cell_m, dz_m=cell_m, earth_curvature=False)
+    settings = eng.Settings(
+        frequencies_hz=(f_hz,), max_range_m=max_range_m, top_m=top_m, dr_m=cell_m, dz_m=cell_m, earth_curvature=False
+    )
     return eng.run(medium, settings)
 
 
@@ -87,13 +88,18 @@ def check_calibration() -> CheckResult:
     err_far = _db(e / (0.3 * 1e3 / far))
     near = np.array([5e3, 10e3, 20e3, 40e3])
     e_near = _at(res.range_m, res.ez[0], near) * m
-    err_near = _db(e_near / ground_level_field(res.range_m[[int(np.argmin(abs(res.range_m - r))) for r in near]],
-                                                F_CHECK, m))
+    err_near = _db(
+        e_near / ground_level_field(res.range_m[[int(np.argmin(abs(res.range_m - r))) for r in near]], F_CHECK, m)
+    )
     worst = float(np.max(np.abs(np.r_[err_far, err_near])))
     return CheckResult(
-        "calibration 1 kW", "ITU-R P.368 (300 V cymomotive force); near field docs/physics.md 6",
+        "calibration 1 kW",
+        "ITU-R P.368 (300 V cymomotive force); near field docs/physics.md 6",
         "300 mV/m x 1 km/d (75-150 km); exact dipole 5-40 km",
-        f"worst {worst:.3f} dB", "0.2 dB", worst <= 0.2, time.perf_counter() - t0,
+        f"worst {worst:.3f} dB",
+        "0.2 dB",
+        worst <= 0.2,
+        time.perf_counter() - t0,
         detail=f"far {np.round(err_far, 3).tolist()} dB, near {np.round(err_near, 3).tolist()} dB",
     )
 
@@ -101,9 +107,10 @@ def check_calibration() -> CheckResult:
 def _plates_check(max_range_m, f_hz=10e3, h=70e3, cell=500.0, min_range_m=50e3):
     from cavity.reference.plates import parallel_plate_field
 
-    res = eng.run(eng.Medium.uniform(ceiling_m=h),
-                  eng.Settings(frequencies_hz=(f_hz,), max_range_m=max_range_m, dr_m=cell, dz_m=cell,
-                               earth_curvature=False))
+    res = eng.run(
+        eng.Medium.uniform(ceiling_m=h),
+        eng.Settings(frequencies_hz=(f_hz,), max_range_m=max_range_m, dr_m=cell, dz_m=cell, earth_curvature=False),
+    )
     r = res.range_m
     ref = parallel_plate_field(r, f_hz, h, 1.0)
     sel = (r >= min_range_m) & (r <= max_range_m) & _deep_null_mask(r, ref)
@@ -116,9 +123,13 @@ def check_plates(max_range_m=600e3) -> CheckResult:
     t0 = time.perf_counter()
     worst, _ = _plates_check(max_range_m)
     return CheckResult(
-        f"PEC plates to {max_range_m / 1e3:.0f} km", "Wait 1960, J. Res. NBS 64D(2) 153 (mode sum)",
-        "mode sum, 50 km on (deep nulls +-30 km excluded)", f"worst {worst:.2f} dB", "0.5 dB",
-        worst <= 0.5, time.perf_counter() - t0,
+        f"PEC plates to {max_range_m / 1e3:.0f} km",
+        "Wait 1960, J. Res. NBS 64D(2) 153 (mode sum)",
+        "mode sum, 50 km on (deep nulls +-30 km excluded)",
+        f"worst {worst:.2f} dB",
+        "0.5 dB",
+        worst <= 0.5,
+        time.perf_counter() - t0,
     )
 
 
@@ -130,8 +141,11 @@ def check_plate_guide(f_hz, h_m, max_range_m, tolerance_db) -> CheckResult:
     return CheckResult(
         f"plates h={h_m / 1e3:g} km {f_hz / 1e3:g} kHz to {max_range_m / 1e3:.0f} km",
         "Wait 1960, J. Res. NBS 64D(2) 153 (mode sum)",
-        f"mode sum ({n_modes} propagating modes), 100 km on, default grid", f"worst {worst:.2f} dB",
-        f"{tolerance_db} dB", worst <= tolerance_db, time.perf_counter() - t0,
+        f"mode sum ({n_modes} propagating modes), 100 km on, default grid",
+        f"worst {worst:.2f} dB",
+        f"{tolerance_db} dB",
+        worst <= tolerance_db,
+        time.perf_counter() - t0,
     )
 
 
@@ -141,9 +155,10 @@ def check_two_mode_beat() -> CheckResult:
 
     t0 = time.perf_counter()
     h, f = 70e3, 3e3
-    res = eng.run(eng.Medium.uniform(ceiling_m=h),
-                  eng.Settings(frequencies_hz=(f,), max_range_m=1500e3, dr_m=1000.0, dz_m=1000.0,
-                               earth_curvature=False))
+    res = eng.run(
+        eng.Medium.uniform(ceiling_m=h),
+        eng.Settings(frequencies_hz=(f,), max_range_m=1500e3, dr_m=1000.0, dz_m=1000.0, earth_curvature=False),
+    )
     r = res.range_m
     amp = np.abs(res.ez[0]) * np.sqrt(r)  # remove cylindrical spreading
     sel = r > 150e3
@@ -159,8 +174,13 @@ def check_two_mode_beat() -> CheckResult:
     want = two_mode_beat_distance_m(f, h)
     err = abs(spacing / want - 1)
     return CheckResult(
-        "two-mode beat", "Wait 1960 mode sum; docs/physics.md 9.5", f"{want / 1e3:.1f} km",
-        f"{spacing / 1e3:.1f} km ({len(pos)} nulls)", "2 %", err <= 0.02, time.perf_counter() - t0,
+        "two-mode beat",
+        "Wait 1960 mode sum; docs/physics.md 9.5",
+        f"{want / 1e3:.1f} km",
+        f"{spacing / 1e3:.1f} km ({len(pos)} nulls)",
+        "2 %",
+        err <= 0.02,
+        time.perf_counter() - t0,
     )
 
 
@@ -182,8 +202,13 @@ def check_absorbers() -> CheckResult:
     top = float(np.max(_db((small.ez[0] - big.ez[0])[sel] / big.ez[0][sel])))
     worst = max(far, top)
     return CheckResult(
-        "absorbers (CPML)", "Roden and Gedney 2000; docs/physics.md 9.6", "below -40 dB",
-        f"far end {far:.1f} dB, top {top:.1f} dB", "-40 dB", worst <= -40.0, time.perf_counter() - t0,
+        "absorbers (CPML)",
+        "Roden and Gedney 2000; docs/physics.md 9.6",
+        "below -40 dB",
+        f"far end {far:.1f} dB, top {top:.1f} dB",
+        "-40 dB",
+        worst <= -40.0,
+        time.perf_counter() - t0,
     )
 
 
@@ -194,8 +219,17 @@ def check_plasma_stability(steps: int = 100_000) -> CheckResult:
     ne = np.array([0.0, 0.0, 1e12, 1e12])  # omega_p ~ 5.6e7 rad/s
     nu = np.full(4, 1e4)
     medium = eng.Medium.uniform(math.inf, 1.0, z, ne, nu)
-    settings = eng.Settings(frequencies_hz=(50e3,), max_range_m=20e3, top_m=20e3, dr_m=500.0, dz_m=500.0,
-                            earth_curvature=False, pml_cells=8, max_duration_s=1.0, convergence_db=0.0)
+    settings = eng.Settings(
+        frequencies_hz=(50e3,),
+        max_range_m=20e3,
+        top_m=20e3,
+        dr_m=500.0,
+        dz_m=500.0,
+        earth_curvature=False,
+        pml_cells=8,
+        max_duration_s=1.0,
+        convergence_db=0.0,
+    )
     sim = eng.Simulation(medium, settings)
     wp_dt = math.sqrt(sim.wp2_max) * sim.plan.dt_s
     # step directly: the guard inside run() raises on growth; also track the peak afterwards
@@ -204,9 +238,13 @@ def check_plasma_stability(steps: int = 100_000) -> CheckResult:
     peak_end = float(np.max(np.abs(sim.ez)))
     ok = res.steps >= steps and math.isfinite(peak_end)
     return CheckResult(
-        "plasma stability", "Yu and Simpson 2010, IEEE TAP 58(2) 469; docs/physics.md 9.7",
-        f"bounded for {steps} steps at omega_p dt = {wp_dt:.0f}", f"{res.steps} steps, max |Ez| {peak_end:.2g}",
-        "finite, no growth", ok, time.perf_counter() - t0,
+        "plasma stability",
+        "Yu and Simpson 2010, IEEE TAP 58(2) 469; docs/physics.md 9.7",
+        f"bounded for {steps} steps at omega_p dt = {wp_dt:.0f}",
+        f"{res.steps} steps, max |Ez| {peak_end:.2g}",
+        "finite, no growth",
+        ok,
+        time.perf_counter() - t0,
     )
 
 
@@ -233,9 +271,13 @@ def check_ground_wave(ranges_m=(100e3, 300e3)) -> CheckResult:
     err = _db(ratio) - _db(want)
     worst = float(np.max(np.abs(err)))
     return CheckResult(
-        f"ground wave to {rmax / 1e3:.0f} km", "exact Sommerfeld integral; Norton function via scipy.special.wofz",
-        ", ".join(f"{x:.2f}" for x in _db(want)) + " dB", ", ".join(f"{x:.2f}" for x in _db(ratio)) + " dB",
-        "0.3 dB", worst <= 0.3, time.perf_counter() - t0,
+        f"ground wave to {rmax / 1e3:.0f} km",
+        "exact Sommerfeld integral; Norton function via scipy.special.wofz",
+        ", ".join(f"{x:.2f}" for x in _db(want)) + " dB",
+        ", ".join(f"{x:.2f}" for x in _db(ratio)) + " dB",
+        "0.3 dB",
+        worst <= 0.3,
+        time.perf_counter() - t0,
     )
 
 
@@ -258,20 +300,25 @@ def _cached_ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittiv
     return ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m)
 
 
-def ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m, magnetic_field_t=None,
-                   **kw):
+def ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m, magnetic_field_t=None, **kw):
     """Engine run of a uniform Wait-Spies guide (flattened earth), fields per unit moment."""
     import profiles
 
     z = np.arange(0.0, 200e3, 250.0)
-    medium = eng.Medium.uniform(conductivity, permittivity, z,
-                                profiles.electron_density(z, hprime_km, beta_per_km), profiles.collision_frequency(z),
-                                magnetic_field_t=magnetic_field_t)
+    medium = eng.Medium.uniform(
+        conductivity,
+        permittivity,
+        z,
+        profiles.electron_density(z, hprime_km, beta_per_km),
+        profiles.collision_frequency(z),
+        magnetic_field_t=magnetic_field_t,
+    )
     return eng.run(medium, eng.Settings(frequencies_hz=(f_hz,), max_range_m=max_range_m, **kw))
 
 
-def magnetised_reference(f_hz, hprime_km, beta_per_km, conductivity, permittivity, b_path_frame_t,
-                         max_attenuation_db_per_mm=100.0):
+def magnetised_reference(
+    f_hz, hprime_km, beta_per_km, conductivity, permittivity, b_path_frame_t, max_attenuation_db_per_mm=100.0
+):
     """Modes of the same uniform guide with a magnetised ionosphere (cavity.reference.magnetised).
 
     100 m layers above 40 km, top at 120 km (in the dense collisional plasma); modes to 100 dB/Mm,
@@ -281,20 +328,47 @@ def magnetised_reference(f_hz, hprime_km, beta_per_km, conductivity, permittivit
     from cavity.reference import magnetised as mg
 
     z = np.concatenate([np.arange(0.0, 40e3, 500.0), np.arange(40e3, 120e3 + 1.0, 100.0)])
-    return mg.magnetised_modes(z, profiles.electron_density(z, hprime_km, beta_per_km), profiles.collision_frequency(z),
-                               b_path_frame_t, f_hz, ground=(conductivity, permittivity),
-                               max_attenuation_db_per_mm=max_attenuation_db_per_mm)
+    return mg.magnetised_modes(
+        z,
+        profiles.electron_density(z, hprime_km, beta_per_km),
+        profiles.collision_frequency(z),
+        b_path_frame_t,
+        f_hz,
+        ground=(conductivity, permittivity),
+        max_attenuation_db_per_mm=max_attenuation_db_per_mm,
+    )
 
 
-def check_magnetised(label, f_hz, hprime_km, beta_per_km, conductivity, permittivity, dip_deg, azimuth_deg,
-                     max_range_m, tolerance_db, strength_t=50e-6, cells_per_wavelength=24.0) -> CheckResult:
+def check_magnetised(
+    label,
+    f_hz,
+    hprime_km,
+    beta_per_km,
+    conductivity,
+    permittivity,
+    dip_deg,
+    azimuth_deg,
+    max_range_m,
+    tolerance_db,
+    strength_t=50e-6,
+    cells_per_wavelength=24.0,
+) -> CheckResult:
     """The engine with a uniform geomagnetic field against the magnetised mode reference, 300 km on."""
     from cavity.reference import magnetised as mg
 
     t0 = time.perf_counter()
     b = mg.field_from_dip_azimuth(strength_t, dip_deg, azimuth_deg)
-    res = ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m + 30e3,
-                         magnetic_field_t=b, stencil_order=2, cells_per_wavelength=cells_per_wavelength)
+    res = ionosphere_run(
+        f_hz,
+        hprime_km,
+        beta_per_km,
+        conductivity,
+        permittivity,
+        max_range_m + 30e3,
+        magnetic_field_t=b,
+        stencil_order=2,
+        cells_per_wavelength=cells_per_wavelength,
+    )
     modes = magnetised_reference(f_hz, hprime_km, beta_per_km, conductivity, permittivity, b)
     r = res.range_m
     ref = mg.ground_field(modes, r, spherical_spreading=False).ez
@@ -308,13 +382,15 @@ def check_magnetised(label, f_hz, hprime_km, beta_per_km, conductivity, permitti
         f"dip {dip_deg:g}, azimuth {azimuth_deg:g}",
         f"worst {worst:.2f} dB (median {float(np.median(np.abs(err))):.2f}); {modes.n_modes} modes, "
         f"{modes.counted_modes} counted",
-        f"{tolerance_db} dB", worst <= tolerance_db and modes.counted_modes == modes.found_in_count_region,
+        f"{tolerance_db} dB",
+        worst <= tolerance_db and modes.counted_modes == modes.found_in_count_region,
         time.perf_counter() - t0,
     )
 
 
-def check_ionosphere(label, f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m,
-                     tolerance_db) -> CheckResult:
+def check_ionosphere(
+    label, f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m, tolerance_db
+) -> CheckResult:
     """FDTD against the normal-mode reference for a uniform day or night guide, 300 km on."""
     t0 = time.perf_counter()
     res = _cached_ionosphere_run(f_hz, hprime_km, beta_per_km, conductivity, permittivity, max_range_m + 30e3)
@@ -328,8 +404,10 @@ def check_ionosphere(label, f_hz, hprime_km, beta_per_km, conductivity, permitti
         f"{label} {f_hz / 1e3:g} kHz to {max_range_m / 1e3:.0f} km",
         "independent normal-mode solution (cavity.reference.modes)",
         f"h'={hprime_km} km, beta={beta_per_km}/km, sigma={conductivity:g} S/m",
-        f"worst {worst:.2f} dB (rms {float(np.sqrt(np.mean(err ** 2))):.2f}); phase at end {phase:.0f} deg",
-        f"{tolerance_db} dB", worst <= tolerance_db, time.perf_counter() - t0,
+        f"worst {worst:.2f} dB (rms {float(np.sqrt(np.mean(err**2))):.2f}); phase at end {phase:.0f} deg",
+        f"{tolerance_db} dB",
+        worst <= tolerance_db,
+        time.perf_counter() - t0,
     )
 
 
@@ -345,9 +423,13 @@ def check_day_below_night(f_hz=20e3, conductivity=5.0, permittivity=70.0, max_ra
     d, n = float(np.mean(_db(day.ez[0][sel]))), float(np.mean(_db(night.ez[0][sel])))
     share = float(np.mean(_db(day.ez[0][sel]) < _db(night.ez[0][sel])))
     return CheckResult(
-        f"day below night {f_hz / 1e3:g} kHz", "common practice (docs/physics.md 9.10, from memory)",
-        "night mean level above day, 1500 km on", f"day {d:.1f} dB, night {n:.1f} dB; day lower at "
-        f"{100 * share:.0f} % of ranges", "night > day", n > d, time.perf_counter() - t0,
+        f"day below night {f_hz / 1e3:g} kHz",
+        "common practice (docs/physics.md 9.10, from memory)",
+        "night mean level above day, 1500 km on",
+        f"day {d:.1f} dB, night {n:.1f} dB; day lower at {100 * share:.0f} % of ranges",
+        "night > day",
+        n > d,
+        time.perf_counter() - t0,
     )
 
 
@@ -370,12 +452,18 @@ FULL: list[tuple[str, Callable[[], CheckResult]]] = [
     ("day_land_12", lambda: check_ionosphere("day over land", 12e3, 71.8, 0.335, 1e-3, 15.0, 3000e3, 1.0)),
     ("night_land_12", lambda: check_ionosphere("night over land", 12e3, 85.1, 0.63, 1e-3, 15.0, 3000e3, 1.5)),
     # several low-loss modes: a gentle night profile, and a conducting ceiling (issue 15)
-    ("night_many_modes_21", lambda: check_ionosphere("night, several modes, over sea", 21.1e3, 86.0, 0.5, 5.0, 70.0,
-                                                     3000e3, 1.0)),
+    (
+        "night_many_modes_21",
+        lambda: check_ionosphere("night, several modes, over sea", 21.1e3, 86.0, 0.5, 5.0, 70.0, 3000e3, 1.0),
+    ),
     ("plates_80_12", lambda: check_plate_guide(12.2e3, 80e3, 2000e3, 0.5)),
     # the geomagnetic field: night, sea, low dip, westward (the lossier, more coupled direction)
-    ("magnetised_night_west_20", lambda: check_magnetised("night, field west, dip 20, over sea", 20e3, 85.1, 0.63,
-                                                          5.0, 70.0, 20.0, 270.0, 3000e3, 1.5)),
+    (
+        "magnetised_night_west_20",
+        lambda: check_magnetised(
+            "night, field west, dip 20, over sea", 20e3, 85.1, 0.63, 5.0, 70.0, 20.0, 270.0, 3000e3, 1.5
+        ),
+    ),
 ]
 
 
@@ -406,10 +494,18 @@ def format_table(results: list[CheckResult]) -> str:
     sources = list(dict.fromkeys(r.source for r in results))
     header = ["Check [source]", "Expected", "Obtained", "Tolerance", "Result", "Time (s)"]
     widths = [22, 22, 22, 10, 6, 8]
-    rows = [[f"{r.name} [{sources.index(r.source) + 1}]", r.expected, r.obtained, r.tolerance,
-             "pass" if r.passed else "FAIL", f"{r.seconds:.0f}"] for r in results]
-    lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip(),
-             "  ".join("-" * w for w in widths)]
+    rows = [
+        [
+            f"{r.name} [{sources.index(r.source) + 1}]",
+            r.expected,
+            r.obtained,
+            r.tolerance,
+            "pass" if r.passed else "FAIL",
+            f"{r.seconds:.0f}",
+        ]
+        for r in results
+    ]
+    lines = ["  ".join(h.ljust(w) for h, w in zip(header, widths)).rstrip(), "  ".join("-" * w for w in widths)]
     for row in rows:
         cells = [textwrap.wrap(str(c), w) or [""] for c, w in zip(row, widths)]
         for k in range(max(len(c) for c in cells)):
@@ -418,8 +514,9 @@ def format_table(results: list[CheckResult]) -> str:
     lines.append("")
     lines.append("Sources:")
     for n, source in enumerate(sources, 1):
-        lines += textwrap.wrap(source, TABLE_WIDTH - 6, initial_indent=f"[{n}]".ljust(5) + " ",
-                               subsequent_indent=" " * 6)
+        lines += textwrap.wrap(
+            source, TABLE_WIDTH - 6, initial_indent=f"[{n}]".ljust(5) + " ", subsequent_indent=" " * 6
+        )
     return "\n".join(lines)
 
 

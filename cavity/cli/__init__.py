@@ -27,7 +27,10 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "plot": ("plot", "Plot amplitude and phase against range from a result file (PNG or PDF)."),
     "demo": ("demo", "Run the bundled invented demo by day and night; write results, tables, figures, map."),
     "sweep": ("sweep", "Solve a scenario over UTC instants and frequencies on dask workers."),
-    "coverage": ("coverage", "Map the field over an area: paths at many bearings on dask workers, a figure, a summary."),
+    "coverage": (
+        "coverage",
+        "Map the field over an area: paths at many bearings on dask workers, a figure, a summary.",
+    ),
     "sferic": ("sferic", "Lightning sferics: run a return-stroke scenario, plot waveforms and spectra."),
 }
 

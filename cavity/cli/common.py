@@ -227,8 +227,10 @@ def progress_callback(quiet: bool, label: str):
                         return
                     inner = contextlib.ExitStack()  # closed when the work is done, or on the way out
                     state["bar"] = inner.enter_context(
-                        click.progressbar(length=1000, label=label, file=sys.stderr, show_eta=False,
-                                          item_show_func=lambda item: item))
+                        click.progressbar(
+                            length=1000, label=label, file=sys.stderr, show_eta=False, item_show_func=lambda item: item
+                        )
+                    )
                     state["inner"] = inner
                     stack.callback(inner.close)
                     stack.callback(close)

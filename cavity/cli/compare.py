@@ -14,15 +14,39 @@ _SUFFIXES = (".png", ".pdf")
 @click.command("compare")
 @click.argument("result_a", metavar="A", type=click.Path(dir_okay=False, path_type=Path))
 @click.argument("result_b", metavar="B", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), metavar="FIGURE",
-              default=Path("comparison.png"), show_default=True, help="Figure to write: .png or .pdf.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FIGURE",
+    default=Path("comparison.png"),
+    show_default=True,
+    help="Figure to write: .png or .pdf.",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing figure (and table file).")
-@click.option("--fit-range", "fit_range", type=(float, float), metavar="START_KM STOP_KM", default=None,
-              help="Range window of the attenuation fit, km  [default: 1000 3000, clipped to the computed span]")
-@click.option("-t", "--table", "table_output", type=click.Path(dir_okay=False, path_type=Path), metavar="FILE",
-              help="Also write the text (Markdown, or CSV for a .csv name) to FILE.")
-@click.option("--dpi", type=click.IntRange(50, 600), default=150, show_default=True,
-              help="Resolution of a PNG figure, dots per inch.")
+@click.option(
+    "--fit-range",
+    "fit_range",
+    type=(float, float),
+    metavar="START_KM STOP_KM",
+    default=None,
+    help="Range window of the attenuation fit, km  [default: 1000 3000, clipped to the computed span]",
+)
+@click.option(
+    "-t",
+    "--table",
+    "table_output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FILE",
+    help="Also write the text (Markdown, or CSV for a .csv name) to FILE.",
+)
+@click.option(
+    "--dpi",
+    type=click.IntRange(50, 600),
+    default=150,
+    show_default=True,
+    help="Resolution of a PNG figure, dots per inch.",
+)
 @friendly_errors
 def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi):
     """Compare two result files A and B (day and night, two grounds, two powers...).
@@ -42,14 +66,11 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
       cavity compare day.nc night.nc --fit-range 800 2500 -t comparison.md
     """
     from cavity.cli.table import file_labels, open_results
-    from cavity.reports.tables import (
-        common_frequencies,
-        comparison_report,
-        is_sweep,
-        plot_comparison,
-        run_labels,
-        write_text,
-    )
+    from cavity.files import write_text
+    from cavity.reports.compare import common_frequencies, comparison_report
+    from cavity.reports.plots import plot_comparison
+    from cavity.reports.reading import is_sweep
+    from cavity.reports.tables import run_labels
 
     if output.suffix.lower() not in _SUFFIXES:
         raise click.BadParameter(
@@ -74,7 +95,9 @@ def command(result_a, result_b, output, overwrite, fit_range, table_output, dpi)
     label_a, label_b = run_labels([ds_a, ds_b], fallback=names)  # day/night, UTC or title in the output
     for ds, path in ((ds_a, result_a), (ds_b, result_b)):
         if is_sweep(ds):
-            raise click.ClickException(f"{path} is a sweep file (it has a time dimension); compare takes two single runs")
+            raise click.ClickException(
+                f"{path} is a sweep file (it has a time dimension); compare takes two single runs"
+            )
     fmt = "csv" if table_output is not None and table_output.suffix.lower() == ".csv" else "markdown"
     text = comparison_report(ds_a, ds_b, label_a, label_b, start_km=start_km, stop_km=stop_km)
     written = [plot_comparison(ds_a, ds_b, output, label_a, label_b, start_km=start_km, stop_km=stop_km, dpi=dpi)]

@@ -13,8 +13,15 @@ DEMO_SCENARIOS: dict[str, str] = {"day": "demo_day.toml", "night": "demo_night.t
 
 #: Every file the demo writes, in the order written.
 DEMO_FILES: tuple[str, ...] = (
-    "day.nc", "night.nc", "receivers.md", "receivers.csv", "comparison.png", "comparison.md",
-    "plot_day.png", "plot_night.png", "map.png",
+    "day.nc",
+    "night.nc",
+    "receivers.md",
+    "receivers.csv",
+    "comparison.png",
+    "comparison.md",
+    "plot_day.png",
+    "plot_night.png",
+    "map.png",
 )
 
 
@@ -40,9 +47,16 @@ def _simulate(scenario, quiet: bool, label: str):
 
 
 @click.command("demo")
-@click.option("-o", "--output", "folder", type=click.Path(path_type=Path),
-              default=Path("demo-output"), show_default=True, metavar="FOLDER",
-              help="Folder to write into (made if missing).")
+@click.option(
+    "-o",
+    "--output",
+    "folder",
+    type=click.Path(path_type=Path),
+    default=Path("demo-output"),
+    show_default=True,
+    metavar="FOLDER",
+    help="Folder to write into (made if missing).",
+)
 @click.option("--overwrite", is_flag=True, help="Replace the demo's files if the folder already has them.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bars or grid summaries.")
 @friendly_errors
@@ -69,17 +83,13 @@ def command(folder, overwrite, quiet):
     Example:
       cavity demo -o demo-output
     """
+    from cavity.files import write_text
     from cavity.paths import build_paths
+    from cavity.reports.attenuation import attenuation_rows
+    from cavity.reports.compare import comparison_report
     from cavity.reports.maps import draw_map
-    from cavity.reports.tables import (
-        attenuation_rows,
-        common_amplitude_limits,
-        comparison_report,
-        plot_comparison,
-        plot_result,
-        receiver_table,
-        write_text,
-    )
+    from cavity.reports.plots import common_amplitude_limits, plot_comparison, plot_result
+    from cavity.reports.tables import receiver_table
     from cavity.results import write_result
 
     if folder.exists() and not folder.is_dir():
@@ -116,7 +126,10 @@ def command(folder, overwrite, quiet):
         click.echo(f"note: {note}", err=True)
     if not quiet:
         for row in attenuation_rows([day, night], labels):
-            click.echo(f"{row['run']}: {row['rate_db_per_1000km']:.2f} dB per 1000 km over "
-                       f"{row['start_km']:.0f}-{row['stop_km']:.0f} km ({row['frequency_khz']:g} kHz)", err=True)
+            click.echo(
+                f"{row['run']}: {row['rate_db_per_1000km']:.2f} dB per 1000 km over "
+                f"{row['start_km']:.0f}-{row['stop_km']:.0f} km ({row['frequency_khz']:g} kHz)",
+                err=True,
+            )
     for path in written:
         click.echo(f"wrote {path}")

@@ -38,28 +38,10 @@ def _runs(labels, range_m) -> str:
 
 
 def _ionosphere_lines(ion) -> list[str]:
-    """Description of the ionosphere form and its parameters."""
-    from profiles.daynight import PRESETS
+    """Description of the ionosphere form and its parameters (the form describes itself)."""
+    from cavity.ionosphere_forms import form_of
 
-    if ion.form == "exponential":
-        return [f"exponential (Wait-Spies): h' = {ion.hprime_km:g} km, beta = {ion.beta_per_km:g} per km"]
-    if ion.form == "preset":
-        p = PRESETS[ion.preset]
-        return [f"preset {ion.preset!r}: h' = {p.hprime_km:g} km, beta = {p.beta_per_km:g} per km ({p.label})",
-                f"reference: {p.reference}"]
-    if ion.form == "utc":
-        day, night = PRESETS[ion.day_preset], PRESETS[ion.night_preset]
-        return [
-            f"sun along each path at {ion.utc:%Y-%m-%d %H:%M:%S} UTC",
-            f"day   {ion.day_preset!r}: h' = {day.hprime_km:g} km, beta = {day.beta_per_km:g} per km",
-            f"night {ion.night_preset!r}: h' = {night.hprime_km:g} km, beta = {night.beta_per_km:g} per km",
-            "day for solar zenith <= 90 deg, night for >= 99 deg, linear between (common practice)",
-        ]
-    if ion.form == "ceiling":
-        return [f"perfectly conducting ceiling at {ion.ceiling_m / 1e3:g} km (verification)"]
-    if ion.form == "file":
-        return [f"profile file {ion.profile_path}"]
-    return ["none: free space above the ground (verification)"]
+    return form_of(ion).describe(ion)
 
 
 def _ground_line(ground) -> str:
@@ -70,8 +52,10 @@ def _ground_line(ground) -> str:
     else:
         text = f"{ground.kind}: conductivity {ground.conductivity_s_per_m:g} S/m, relative permittivity {ground.relative_permittivity:g}"
     for seg in ground.segments:
-        text += (f"; {seg.from_m / 1e3:g}-{seg.to_m / 1e3:g} km {seg.kind} "
-                 f"({seg.conductivity_s_per_m:g} S/m, eps_r {seg.relative_permittivity:g})")
+        text += (
+            f"; {seg.from_m / 1e3:g}-{seg.to_m / 1e3:g} km {seg.kind} "
+            f"({seg.conductivity_s_per_m:g} S/m, eps_r {seg.relative_permittivity:g})"
+        )
     return text
 
 
@@ -80,11 +64,15 @@ def _geomagnetic_line(s) -> str:
     if gm.model == "none":
         return "none: isotropic ionosphere (Er, Ez, Hphi only)"
     if gm.model == "uniform":
-        return (f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), azimuth of travel "
-                f"{gm.azimuth_deg:g} deg from magnetic north; six field components")
+        return (
+            f"uniform: {gm.strength_nt:g} nT, dip {gm.dip_deg:g} deg (positive downward), azimuth of travel "
+            f"{gm.azimuth_deg:g} deg from magnetic north; six field components"
+        )
     source = "the default epoch" if gm.epoch_source == "default" else f"from {gm.epoch_source}"
-    return (f"IGRF-14 at {gm.altitude_km:g} km, epoch {gm.epoch.isoformat()} ({source}); "
-            "six field components, the field along each path")
+    return (
+        f"IGRF-14 at {gm.altitude_km:g} km, epoch {gm.epoch.isoformat()} ({source}); "
+        "six field components, the field along each path"
+    )
 
 
 def _span(values, fmt: str) -> str:
@@ -95,9 +83,11 @@ def _span(values, fmt: str) -> str:
 def _field_text(field) -> str:
     """Strength, dip and azimuth of travel from magnetic north along a path (start, end; range)."""
     strength, dip, az = field.strength_nt, field.dip_deg, field.azimuth_deg
-    return (f"{strength[0]:.0f} nT, dip {dip[0]:.1f} deg, azimuth {az[0]:.0f} deg at the transmitter; "
-            f"{strength[-1]:.0f} nT, dip {dip[-1]:.1f} deg, azimuth {az[-1]:.0f} deg at the far end "
-            f"(dip {_span(dip, '.1f')} deg along the path)")
+    return (
+        f"{strength[0]:.0f} nT, dip {dip[0]:.1f} deg, azimuth {az[0]:.0f} deg at the transmitter; "
+        f"{strength[-1]:.0f} nT, dip {dip[-1]:.1f} deg, azimuth {az[-1]:.0f} deg at the far end "
+        f"(dip {_span(dip, '.1f')} deg along the path)"
+    )
 
 
 def _seconds(s: float) -> str:
@@ -148,7 +138,9 @@ def describe(scenario) -> list[str]:
             lines.append(f"    field: {_field_text(path.geomagnetic)}")
 
     sv = s.solver
-    ceiling = s.ionosphere.form == "ceiling"
+    from cavity.ionosphere_forms import form_of
+
+    ceiling = form_of(s.ionosphere).ceiling_m(s.ionosphere) is not None
     top_m = s.planned_top_m()
     rows, plans, windows = [], [], []
     for path in paths:
@@ -156,28 +148,47 @@ def describe(scenario) -> list[str]:
         plan = run_plan.grid
         plans.append(plan)
         windows.append((run_plan.t_min_s, run_plan.t_max_s))
-        rows.append([
-            path.label, f"{path.max_range_m / 1e3:.0f}", f"{plan.dr_m:.0f}", f"{plan.dz_m:.0f}",
-            f"{plan.dt_s * 1e6:.3f}", f"{plan.nr} x {plan.nz}", f"{plan.cells / 1e6:.2f}",
-            f"{plan.n_steps:,}", f"{plan.memory_bytes / 1e9:.2f}",
-        ])
-    top_text = f"{top_m / 1e3:g} km, perfectly conducting ceiling" if ceiling else (
-        f"{top_m / 1e3:g} km, then a {sv.pml_cells}-cell absorber")
+        rows.append(
+            [
+                path.label,
+                f"{path.max_range_m / 1e3:.0f}",
+                f"{plan.dr_m:.0f}",
+                f"{plan.dz_m:.0f}",
+                f"{plan.dt_s * 1e6:.3f}",
+                f"{plan.nr} x {plan.nz}",
+                f"{plan.cells / 1e6:.2f}",
+                f"{plan.n_steps:,}",
+                f"{plan.memory_bytes / 1e9:.2f}",
+            ]
+        )
+    top_text = (
+        f"{top_m / 1e3:g} km, perfectly conducting ceiling"
+        if ceiling
+        else (f"{top_m / 1e3:g} km, then a {sv.pml_cells}-cell absorber")
+    )
     lines.append("Grid         axisymmetric (r, z) Yee cells, one solve per path")
-    lines.append(f"  top {top_text}; far-end absorber {sv.pml_cells} cells; "
-                 f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}")
-    lines += _table(["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows)
+    lines.append(
+        f"  top {top_text}; far-end absorber {sv.pml_cells} cells; "
+        f"earth curvature {'on' if sv.earth_curvature else 'off (flat earth)'}"
+    )
+    lines += _table(
+        ["path", "max_range_km", "dr_m", "dz_m", "dt_us", "nr x nz", "cells_M", "time_steps", "memory_GB"], rows
+    )
     updates = sum(p.expected_cell_updates for p in plans)
     t_min = max(w[0] for w in windows)
     t_max = max(w[1] for w in windows)
-    lines.append(f"  total {updates:.3g} cell updates (columns the wave has not reached are skipped); each solve simulates at least {t_min * 1e3:.1f} ms "
-                 f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged")
+    lines.append(
+        f"  total {updates:.3g} cell updates (columns the wave has not reached are skipped); each solve simulates at least {t_min * 1e3:.1f} ms "
+        f"(source, travel to the far end, settling), at most {t_max * 1e3:.1f} ms if not yet converged"
+    )
     from cavity.checks.bench import REFERENCE_ENGINE_RATES, REFERENCE_MACHINE, estimate_seconds
 
     fast, slow = estimate_seconds(plans)
-    lines.append(f"  run time: about {_seconds(fast)} to {_seconds(slow)} of solving (estimate for {REFERENCE_MACHINE}, "
-                 f"{REFERENCE_ENGINE_RATES[0] / 1e9:g}-{REFERENCE_ENGINE_RATES[1] / 1e9:g} G cell updates/s; "
-                 "cavity bench measures this machine)")
+    lines.append(
+        f"  run time: about {_seconds(fast)} to {_seconds(slow)} of solving (estimate for {REFERENCE_MACHINE}, "
+        f"{REFERENCE_ENGINE_RATES[0] / 1e9:g}-{REFERENCE_ENGINE_RATES[1] / 1e9:g} G cell updates/s; "
+        "cavity bench measures this machine)"
+    )
     biggest = max(plans, key=lambda p: p.memory_bytes)
     try:
         check_memory(biggest)
@@ -204,4 +215,3 @@ def command(scenario: str) -> None:
     loaded = load_scenario(scenario)
     for line in describe(loaded):
         click.echo(line)
-

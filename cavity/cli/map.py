@@ -13,14 +13,32 @@ _SUFFIXES = (".png", ".pdf")
 
 @click.command("map")
 @click.argument("scenario_file", metavar="SCENARIO", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), metavar="PATH",
-              default=Path("map.png"), show_default=True, help="Map file to write: .png or .pdf.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="PATH",
+    default=Path("map.png"),
+    show_default=True,
+    help="Map file to write: .png or .pdf.",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-@click.option("--dpi", type=click.IntRange(50, 600), default=150, show_default=True,
-              help="Resolution of a PNG map, dots per inch.")
-@click.option("--bearing-tolerance", "bearing_tolerance_deg", type=click.FloatRange(0.0, 180.0), default=1.0,
-              show_default=True, metavar="DEG",
-              help="Receivers whose bearings agree within this angle share one path.")
+@click.option(
+    "--dpi",
+    type=click.IntRange(50, 600),
+    default=150,
+    show_default=True,
+    help="Resolution of a PNG map, dots per inch.",
+)
+@click.option(
+    "--bearing-tolerance",
+    "bearing_tolerance_deg",
+    type=click.FloatRange(0.0, 180.0),
+    default=1.0,
+    show_default=True,
+    metavar="DEG",
+    help="Receivers whose bearings agree within this angle share one path.",
+)
 @friendly_errors
 def command(scenario_file, output, overwrite, dpi, bearing_tolerance_deg):
     """Draw the transmitter, receivers and solved paths of a scenario on a map.

@@ -25,22 +25,61 @@ def diurnal_plot(ds, output) -> None:
 
 @click.command("plot")
 @click.argument("result", type=click.Path(dir_okay=False, path_type=Path))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), metavar="FIGURE",
-              default=Path("plot.png"), show_default=True, help="Figure to write: .png or .pdf.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FIGURE",
+    default=Path("plot.png"),
+    show_default=True,
+    help="Figure to write: .png or .pdf.",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing figure.")
-@click.option("--phase", type=click.Choice(["relative", "unwrapped"]), default="relative", show_default=True,
-              help="relative: phase + 360 f d/c (speed-of-light delay removed) wrapped to (-180, 180], "
-                   "as cavity table prints it; unwrapped: as in the file.")
-@click.option("--dpi", type=click.IntRange(50, 600), default=150, show_default=True,
-              help="Resolution of a PNG figure, dots per inch.")
-@click.option("--required", "required_db", type=float, metavar="DB",
-              help="Coverage files: draw and label the contour of this field, dB re 1 uV/m.")
-@click.option("--noise", "noise_db", type=float, metavar="DB",
-              help="Coverage files: noise density, dB re 1 uV/m per sqrt(Hz); with --bandwidth draws the SNR contour.")
-@click.option("--bandwidth", "bandwidth_hz", type=click.FloatRange(min=0.0, min_open=True), metavar="HZ",
-              help="Coverage files: receiver bandwidth, Hz (with --noise).")
-@click.option("--snr", "snr_db", type=float, default=0.0, show_default=True, metavar="DB",
-              help="Coverage files: the SNR contour drawn with --noise/--bandwidth, dB.")
+@click.option(
+    "--phase",
+    type=click.Choice(["relative", "unwrapped"]),
+    default="relative",
+    show_default=True,
+    help="relative: phase + 360 f d/c (speed-of-light delay removed) wrapped to (-180, 180], "
+    "as cavity table prints it; unwrapped: as in the file.",
+)
+@click.option(
+    "--dpi",
+    type=click.IntRange(50, 600),
+    default=150,
+    show_default=True,
+    help="Resolution of a PNG figure, dots per inch.",
+)
+@click.option(
+    "--required",
+    "required_db",
+    type=float,
+    metavar="DB",
+    help="Coverage files: draw and label the contour of this field, dB re 1 uV/m.",
+)
+@click.option(
+    "--noise",
+    "noise_db",
+    type=float,
+    metavar="DB",
+    help="Coverage files: noise density, dB re 1 uV/m per sqrt(Hz); with --bandwidth draws the SNR contour.",
+)
+@click.option(
+    "--bandwidth",
+    "bandwidth_hz",
+    type=click.FloatRange(min=0.0, min_open=True),
+    metavar="HZ",
+    help="Coverage files: receiver bandwidth, Hz (with --noise).",
+)
+@click.option(
+    "--snr",
+    "snr_db",
+    type=float,
+    default=0.0,
+    show_default=True,
+    metavar="DB",
+    help="Coverage files: the SNR contour drawn with --noise/--bandwidth, dB.",
+)
 @friendly_errors
 def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwidth_hz, snr_db):
     """Plot the field against range from a RESULT file: amplitude and phase, receivers marked.
@@ -59,7 +98,8 @@ def command(result, output, overwrite, phase, dpi, required_db, noise_db, bandwi
       cavity plot day.nc -o day.png
       cavity plot night.nc -o night.pdf --phase unwrapped
     """
-    from cavity.reports.tables import is_sweep, plot_result
+    from cavity.reports.plots import plot_result
+    from cavity.reports.reading import is_sweep
     from cavity.results import open_result
 
     if output.suffix.lower() not in _SUFFIXES:

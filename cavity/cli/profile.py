@@ -31,7 +31,9 @@ def _choose_profile(hprime_km, beta_per_km, preset_name, file_path):
     ]
     if len(forms) != 1:
         problem = "no profile given" if not forms else f"{' and '.join(forms)} given together"
-        raise click.UsageError(f"{problem}: give exactly one of --hprime KM --beta PER_KM, --preset NAME or --file PATH")
+        raise click.UsageError(
+            f"{problem}: give exactly one of --hprime KM --beta PER_KM, --preset NAME or --file PATH"
+        )
     if forms[0] == "--hprime/--beta":
         if hprime_km is None or beta_per_km is None:
             missing = "--beta" if beta_per_km is None else "--hprime"
@@ -106,22 +108,60 @@ def _plot(dataset, path: Path, title: str, reflections: list[tuple[float, float]
 
 
 @click.command("profile")
-@click.option("--hprime", "hprime_km", type=click.FloatRange(*_HPRIME_KM), metavar="KM",
-              help="Reference height h' of an exponential profile, km (with --beta).")
-@click.option("--beta", "beta_per_km", type=click.FloatRange(*_BETA_PER_KM), metavar="PER_KM",
-              help="Sharpness beta of an exponential profile, 1/km (with --hprime).")
-@click.option("--preset", "preset_name", metavar="NAME",
-              help="Published parameters: day, day-2017, night, textbook-day, textbook-night.")
-@click.option("--file", "file_path", type=click.Path(path_type=Path), metavar="PATH",
-              help="Profile file: CSV (altitude_km, electron_density_m3, collision_frequency_s) or netCDF.")
-@click.option("--frequency", "frequencies_khz", type=click.FloatRange(0.0, min_open=True), multiple=True,
-              default=(20.0,), show_default=True, metavar="KHZ",
-              help="Print the reflection height (omega_r = 2 pi f) at this frequency; repeatable.")
-@click.option("--at", "heights_km", type=click.FloatRange(*_ALTITUDE_KM), multiple=True,
-              default=(60.0, 70.0, 80.0, 90.0), show_default=True, metavar="KM",
-              help="Print electron density, collision frequency and omega_r at this altitude; repeatable.")
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), metavar="PATH",
-              help="Save a plot (.png, .pdf) or the profile itself (.nc netCDF, .csv).")
+@click.option(
+    "--hprime",
+    "hprime_km",
+    type=click.FloatRange(*_HPRIME_KM),
+    metavar="KM",
+    help="Reference height h' of an exponential profile, km (with --beta).",
+)
+@click.option(
+    "--beta",
+    "beta_per_km",
+    type=click.FloatRange(*_BETA_PER_KM),
+    metavar="PER_KM",
+    help="Sharpness beta of an exponential profile, 1/km (with --hprime).",
+)
+@click.option(
+    "--preset",
+    "preset_name",
+    metavar="NAME",
+    help="Published parameters: day, day-2017, night, textbook-day, textbook-night.",
+)
+@click.option(
+    "--file",
+    "file_path",
+    type=click.Path(path_type=Path),
+    metavar="PATH",
+    help="Profile file: CSV (altitude_km, electron_density_m3, collision_frequency_s) or netCDF.",
+)
+@click.option(
+    "--frequency",
+    "frequencies_khz",
+    type=click.FloatRange(0.0, min_open=True),
+    multiple=True,
+    default=(20.0,),
+    show_default=True,
+    metavar="KHZ",
+    help="Print the reflection height (omega_r = 2 pi f) at this frequency; repeatable.",
+)
+@click.option(
+    "--at",
+    "heights_km",
+    type=click.FloatRange(*_ALTITUDE_KM),
+    multiple=True,
+    default=(60.0, 70.0, 80.0, 90.0),
+    show_default=True,
+    metavar="KM",
+    help="Print electron density, collision frequency and omega_r at this altitude; repeatable.",
+)
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="PATH",
+    help="Save a plot (.png, .pdf) or the profile itself (.nc netCDF, .csv).",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
 @friendly_errors
 def command(hprime_km, beta_per_km, preset_name, file_path, frequencies_khz, heights_km, output, overwrite):

@@ -9,13 +9,17 @@ from cavity.cli.common import check_output_file, friendly_errors, progress_callb
 
 @click.command("run")
 @click.argument("scenario", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), required=True,
-              help="Result file to write (netCDF).")
+@click.option(
+    "-o", "--output", "output", type=click.Path(dir_okay=False), required=True, help="Result file to write (netCDF)."
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing result file (otherwise refused).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar or grid summary.")
-@click.option("--uncertainty/--no-uncertainty", default=None,
-              help="Compute receiver_ez_uncertainty with a companion solve on a coarser grid (about 30 % more "
-                   "time); default: the scenario's solver.uncertainty (true unless set).")
+@click.option(
+    "--uncertainty/--no-uncertainty",
+    default=None,
+    help="Compute receiver_ez_uncertainty with a companion solve on a coarser grid (about 30 % more "
+    "time); default: the scenario's solver.uncertainty (true unless set).",
+)
 @friendly_errors
 def command(scenario, output, overwrite, quiet, uncertainty):
     """Solve SCENARIO with the time-domain waveguide solver and write a netCDF result.

@@ -25,8 +25,13 @@ def command():
 
 @command.command("run")
 @click.argument("scenario", type=click.Path(dir_okay=False))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), required=True,
-              help="Result file to write (netCDF).")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    required=True,
+    help="Result file to write (netCDF).",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing result file (otherwise refused).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar or grid summary.")
 @friendly_errors
@@ -60,11 +65,23 @@ def run_command(scenario, output, overwrite, quiet):
 
 @command.command("plot")
 @click.argument("results", nargs=-1, required=True, type=click.Path(dir_okay=False))
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), required=True,
-              help="Figure to write: .png, .pdf or .svg.")
-@click.option("--label", "labels", multiple=True, help="Legend label of each result file, in order (default: its ionosphere).")
-@click.option("--component", type=click.Choice(["ez", "b"]), default="ez", show_default=True,
-              help="Vertical electric field or horizontal magnetic flux density.")
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    required=True,
+    help="Figure to write: .png, .pdf or .svg.",
+)
+@click.option(
+    "--label", "labels", multiple=True, help="Legend label of each result file, in order (default: its ionosphere)."
+)
+@click.option(
+    "--component",
+    type=click.Choice(["ez", "b"]),
+    default="ez",
+    show_default=True,
+    help="Vertical electric field or horizontal magnetic flux density.",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing figure.")
 @friendly_errors
 def plot_command(results, output, labels, component, overwrite):
@@ -84,8 +101,9 @@ def plot_command(results, output, labels, component, overwrite):
     if output.exists() and not overwrite:
         raise click.ClickException(f"{output} exists; use --overwrite to replace it")
     if labels and len(labels) != len(results):
-        raise click.BadParameter(f"{len(labels)} labels for {len(results)} result files; give one per file",
-                                 param_hint="'--label'")
+        raise click.BadParameter(
+            f"{len(labels)} labels for {len(results)} result files; give one per file", param_hint="'--label'"
+        )
     runs = [cavity.open_result(r) for r in results]
     path = plot_sferic(runs, output, labels=list(labels) or None, component=component)
     click.echo(f"wrote {path}")

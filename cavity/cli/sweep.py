@@ -30,26 +30,55 @@ def _frequencies(values) -> list[float] | None:
 
 @click.command("sweep")
 @click.argument("scenario", type=click.Path(dir_okay=False))
-@click.option("--start", metavar="UTC", help="First UTC instant, e.g. 2026-03-20T00:00Z (a date alone means 00:00 UTC).")
+@click.option(
+    "--start", metavar="UTC", help="First UTC instant, e.g. 2026-03-20T00:00Z (a date alone means 00:00 UTC)."
+)
 @click.option("--stop", metavar="UTC", help="Last UTC instant (included when it falls on a step).")
-@click.option("--step", default="15min", show_default=True, metavar="DURATION", help="Time between instants: 15min, 1h, 90s ...")
-@click.option("--frequency", "frequency", multiple=True, metavar="KHZ",
-              help="Frequency in kHz, repeatable or comma-separated (default: the scenario's).")
-@click.option("--scheduler", metavar="ADDRESS",
-              help="Use an existing dask scheduler, e.g. tcp://scheduler-host:8786 (default: local workers).")
-@click.option("--workers", type=click.IntRange(min=1), metavar="N",
-              help="Local worker processes (default: as many as cores and memory allow).")
-@click.option("-o", "--output", "output", type=click.Path(dir_okay=False), required=True,
-              help="Combined sweep file to write (netCDF).")
-@click.option("--parts", "parts", type=click.Path(file_okay=False), metavar="DIR",
-              help="Folder keeping one file per finished point [default: OUTPUT.parts beside the output].")
-@click.option("--allow-missing", is_flag=True,
-              help="Write the combined file even if some points failed (NaN there, listed in the file).")
+@click.option(
+    "--step", default="15min", show_default=True, metavar="DURATION", help="Time between instants: 15min, 1h, 90s ..."
+)
+@click.option(
+    "--frequency",
+    "frequency",
+    multiple=True,
+    metavar="KHZ",
+    help="Frequency in kHz, repeatable or comma-separated (default: the scenario's).",
+)
+@click.option(
+    "--scheduler",
+    metavar="ADDRESS",
+    help="Use an existing dask scheduler, e.g. tcp://scheduler-host:8786 (default: local workers).",
+)
+@click.option(
+    "--workers",
+    type=click.IntRange(min=1),
+    metavar="N",
+    help="Local worker processes (default: as many as cores and memory allow).",
+)
+@click.option(
+    "-o",
+    "--output",
+    "output",
+    type=click.Path(dir_okay=False),
+    required=True,
+    help="Combined sweep file to write (netCDF).",
+)
+@click.option(
+    "--parts",
+    "parts",
+    type=click.Path(file_okay=False),
+    metavar="DIR",
+    help="Folder keeping one file per finished point [default: OUTPUT.parts beside the output].",
+)
+@click.option(
+    "--allow-missing",
+    is_flag=True,
+    help="Write the combined file even if some points failed (NaN there, listed in the file).",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing combined file (otherwise refused).")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar or messages, only errors.")
 @friendly_errors
-def command(scenario, start, stop, step, frequency, scheduler, workers, output, parts, allow_missing,
-            overwrite, quiet):
+def command(scenario, start, stop, step, frequency, scheduler, workers, output, parts, allow_missing, overwrite, quiet):
     """Solve SCENARIO at every UTC instant from --start to --stop and every --frequency.
 
     Each (instant, frequency) point is the scenario with ionosphere utc and the transmitter
@@ -68,6 +97,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     from pathlib import Path
 
     import cavity
+    from cavity.ionosphere_forms import form_of
     from cavity.sweeps import SweepError, default_parts_dir, sweep, sweep_times, write_sweep
 
     if (start is None) != (stop is None):
@@ -77,7 +107,7 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     target = check_output_file(output, overwrite, what="sweep file")
     sc = cavity.load_scenario(scenario)
     times = sweep_times(start, stop, step) if start is not None else None
-    if times is None and sc.ionosphere.form == "utc" and not quiet:
+    if times is None and form_of(sc.ionosphere).instant(sc.ionosphere) is not None and not quiet:
         click.echo("note: no --start/--stop, so only the scenario's own instant is solved", err=True)
     parts_dir = Path(parts) if parts else default_parts_dir(target)
 
@@ -91,15 +121,26 @@ def command(scenario, start, stop, step, frequency, scheduler, workers, output, 
     t0 = time.perf_counter()
     try:
         with progress_callback(quiet, "solving points") as update:
-            ds = sweep(sc, times=times, frequencies_khz=_frequencies(frequency), scheduler=scheduler,
-                       workers=workers, parts_dir=parts_dir, progress=update, allow_missing=allow_missing)
+            ds = sweep(
+                sc,
+                times=times,
+                frequencies_khz=_frequencies(frequency),
+                scheduler=scheduler,
+                workers=workers,
+                parts_dir=parts_dir,
+                progress=update,
+                allow_missing=allow_missing,
+            )
     except SweepError as exc:
         for name, message in exc.failures:
             click.echo(f"failed: {name}: {message}", err=True)
         raise click.ClickException(one_line(exc)) from None
     except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM through cavity.cli.common (exit 143)
-        click.echo(f"Error: interrupted; finished points are kept in {parts_dir}; run the same command "
-                   "again to solve only the rest", err=True)
+        click.echo(
+            f"Error: interrupted; finished points are kept in {parts_dir}; run the same command "
+            "again to solve only the rest",
+            err=True,
+        )
         sys.exit(128 + getattr(exc, "signum", 2))
     finally:
         if handler is not None:

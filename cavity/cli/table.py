@@ -56,23 +56,68 @@ def diurnal_table(ds, fmt: str) -> str:
 
 
 @click.command("table")
-@click.argument("results", metavar="RESULT...", nargs=-1, required=True,
-                type=click.Path(dir_okay=False, path_type=Path))
-@click.option("-f", "--format", "fmt", type=click.Choice(["markdown", "csv"]), default="markdown",
-              show_default=True, help="Table format.")
-@click.option("-o", "--output", type=click.Path(dir_okay=False, path_type=Path), metavar="FILE",
-              help="Write the table to FILE instead of standard output.")
+@click.argument(
+    "results", metavar="RESULT...", nargs=-1, required=True, type=click.Path(dir_okay=False, path_type=Path)
+)
+@click.option(
+    "-f",
+    "--format",
+    "fmt",
+    type=click.Choice(["markdown", "csv"]),
+    default="markdown",
+    show_default=True,
+    help="Table format.",
+)
+@click.option(
+    "-o",
+    "--output",
+    type=click.Path(dir_okay=False, path_type=Path),
+    metavar="FILE",
+    help="Write the table to FILE instead of standard output.",
+)
 @click.option("--overwrite", is_flag=True, help="Replace an existing output file.")
-@click.option("--required", "required_db", type=float, callback=_finite, metavar="DB",
-              help="Required field, dB re 1 uV/m: adds a margin column (field - required).")
-@click.option("--noise", "noise_db", type=float, callback=_finite, metavar="DB",
-              help="Noise as a spectral density, dB re 1 uV/m per sqrt(Hz); give with --bandwidth.")
-@click.option("--bandwidth", "bandwidth_hz", type=click.FloatRange(min=0.0, min_open=True), metavar="HZ",
-              help="Receiver bandwidth, Hz; with --noise adds an SNR column.")
-@click.option("--snr", "snr_db", type=float, default=0.0, show_default=True, callback=_finite, metavar="DB",
-              help="Coverage files: the required signal-to-noise ratio with --noise/--bandwidth, dB.")
-@click.option("--sector-deg", "sector_deg", type=float, default=45.0, show_default=True, metavar="DEG",
-              help="Coverage files: width of the bearing sectors, degrees.")
+@click.option(
+    "--required",
+    "required_db",
+    type=float,
+    callback=_finite,
+    metavar="DB",
+    help="Required field, dB re 1 uV/m: adds a margin column (field - required).",
+)
+@click.option(
+    "--noise",
+    "noise_db",
+    type=float,
+    callback=_finite,
+    metavar="DB",
+    help="Noise as a spectral density, dB re 1 uV/m per sqrt(Hz); give with --bandwidth.",
+)
+@click.option(
+    "--bandwidth",
+    "bandwidth_hz",
+    type=click.FloatRange(min=0.0, min_open=True),
+    metavar="HZ",
+    help="Receiver bandwidth, Hz; with --noise adds an SNR column.",
+)
+@click.option(
+    "--snr",
+    "snr_db",
+    type=float,
+    default=0.0,
+    show_default=True,
+    callback=_finite,
+    metavar="DB",
+    help="Coverage files: the required signal-to-noise ratio with --noise/--bandwidth, dB.",
+)
+@click.option(
+    "--sector-deg",
+    "sector_deg",
+    type=float,
+    default=45.0,
+    show_default=True,
+    metavar="DEG",
+    help="Coverage files: width of the bearing sectors, degrees.",
+)
 @friendly_errors
 def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz, snr_db, sector_deg):
     """Print a table of the field at every receiver and frequency of RESULT file(s).
@@ -107,7 +152,9 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
       cavity table day.nc night.nc --required 40 --noise 10 --bandwidth 100 -o receivers.md
       cavity table day.nc --format csv -o receivers.csv
     """
-    from cavity.reports.tables import is_sweep, receiver_table, run_labels, write_text
+    from cavity.files import write_text
+    from cavity.reports.reading import is_sweep
+    from cavity.reports.tables import receiver_table, run_labels
 
     if (noise_db is None) != (bandwidth_hz is None):
         raise click.UsageError("--noise and --bandwidth go together: give both, or neither")
@@ -134,14 +181,13 @@ def command(results, fmt, output, overwrite, required_db, noise_db, bandwidth_hz
         text = coverage_summary(datasets, level, fmt, runs=labels, sector_deg=sector_deg)
     elif sweeps:
         if len(datasets) > 1 or required_db is not None or noise_db is not None:
-            raise click.UsageError(
-                "a sweep file (time dimension) is tabulated on its own, without --required/--noise"
-            )
+            raise click.UsageError("a sweep file (time dimension) is tabulated on its own, without --required/--noise")
         text = diurnal_table(sweeps[0], fmt)
     else:
         labels = run_labels(datasets, fallback=file_labels(results)) if len(results) > 1 else None
-        text = receiver_table(datasets, fmt, runs=labels, required_db=required_db, noise_db=noise_db,
-                              bandwidth_hz=bandwidth_hz)
+        text = receiver_table(
+            datasets, fmt, runs=labels, required_db=required_db, noise_db=noise_db, bandwidth_hz=bandwidth_hz
+        )
     if output is None:
         click.echo(text, nl=False)
     else:

@@ -9,8 +9,9 @@ from cavity.cli.common import friendly_errors, progress_callback
 
 @click.command("verify")
 @click.option("--full", is_flag=True, help="Add the long-range comparisons (tens of minutes).")
-@click.option("--only", multiple=True, metavar="NAME",
-              help="Run only the named checks (repeatable), e.g. --only calibration.")
+@click.option(
+    "--only", multiple=True, metavar="NAME", help="Run only the named checks (repeatable), e.g. --only calibration."
+)
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar.")
 @friendly_errors
 def command(full, only, quiet):
@@ -30,8 +31,9 @@ def command(full, only, quiet):
     if unknown:
         raise click.UsageError(f"unknown check {unknown[0]!r}; known: {', '.join(names)}")
     with progress_callback(quiet, "verifying") as update:
-        results = verify.run_checks(full=full or any(n in dict(verify.FULL) for n in only),
-                                    only=list(only) or None, progress=update)
+        results = verify.run_checks(
+            full=full or any(n in dict(verify.FULL) for n in only), only=list(only) or None, progress=update
+        )
     click.echo(verify.format_table(results))
     failed = [r.name for r in results if not r.passed]
     if failed:

@@ -15,6 +15,7 @@ import math
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -89,7 +90,7 @@ class Settings:
     pml_sigma_scale: float = 1.0
     pml_kappa_max: float = 1.0
     courant_safety: float = gridmod.COURANT_SAFETY
-    waveform: Callable | None = None  # default: ToneBursts(frequencies) or a pulse for many
+    waveform: Any = None  # a callable of t (s) with end_s; default: ToneBursts(frequencies) or a pulse for many
     probe_ranges_m: tuple[float, ...] = ()
     record_time_series: bool = False
     time_series_rate_hz: float | None = None
@@ -131,11 +132,15 @@ def _distinct_rows(table: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return np.ascontiguousarray(rows), np.ascontiguousarray(index.reshape(-1), dtype=np.int32)
 
 
-def _kernel_cpml(coefficients) -> list[np.ndarray]:
+#: One CPML layer's (b, c, 1/kappa - 1) as the kernels take them (:class:`cavity.fdtd.kernels.Absorber`).
+CpmlTables = tuple[np.ndarray, np.ndarray, np.ndarray]
+
+
+def _kernel_cpml(coefficients) -> CpmlTables:
     """CPML (b, c, kappa) as the kernels take them: b and c in float32, and 1/kappa - 1 in float64
     from the float32 kappa, so that the kernels need no division per absorber cell."""
     b, c, kappa = (np.asarray(a).astype(np.float32) for a in coefficients)
-    return [b, c, 1.0 / kappa.astype(np.float64) - 1.0]
+    return b, c, 1.0 / kappa.astype(np.float64) - 1.0
 
 
 def radial_dispersion_factor(frequencies_hz, dr: float, dt: float) -> float:
@@ -156,7 +161,7 @@ def radial_dispersion_factor(frequencies_hz, dr: float, dt: float) -> float:
     return float((dr / (C0 * dt)) * math.sin(w * dt / 2) / math.sin(k * dr / 2))
 
 
-def default_waveform(frequencies_hz) -> Callable:
+def default_waveform(frequencies_hz) -> GaussianPulse | ToneBursts:
     """Narrow tone bursts for a few carriers, one broadband pulse for a dense set."""
     f = sorted(frequencies_hz)
     if len(f) > 4:
@@ -207,7 +212,7 @@ def _ground_on_columns(medium: Medium, r_cols):
 
 def _max_log_slope(medium: Medium) -> float | None:
     """Largest d(ln omega_r)/dz (beta for an exponential profile) where the plasma matters."""
-    if medium.electron_density is None:
+    if medium.electron_density is None or medium.altitude_m is None or medium.collision_frequency is None:
         return None
     z = medium.altitude_m
     ne = np.maximum(medium.electron_density, 1e-30)
@@ -224,7 +229,7 @@ class RunPlan:
     """Everything fixed before allocation: grid, waveform and the simulated-time window."""
 
     grid: gridmod.GridPlan
-    waveform: Callable
+    waveform: Any  # a callable of t (s) with end_s (and axis_currents for a lightning channel)
     frequencies_hz: np.ndarray
     t_min_s: float  # shortest run: source, travel to the far end, settling
     t_max_s: float  # cap when the DFTs have not converged by then
@@ -242,7 +247,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
     t_min = end + 1.1 * travel + 3.0 / f.min()
     t_max = max(s.max_duration_s or (end + 3.0 * travel + 40.0 / f.min()), t_min)
     ceiling = medium.ceiling_m is not None
-    top = float(medium.ceiling_m) if ceiling else float(s.top_m)
+    top = float(medium.ceiling_m) if medium.ceiling_m is not None else float(s.top_m)
     grid = gridmod.plan_grid(
         s.max_range_m, float(f.max()), top,
         duration_s=t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=_max_log_slope(medium), ceiling=ceiling,
@@ -282,7 +287,7 @@ class Simulation:
         """A contiguous float32 (nr, n) coefficient table (contiguous rows let the kernels vectorise)."""
         return np.ascontiguousarray(np.broadcast_to(np.asarray(values, dtype=np.float32), (nr, n)))
 
-    def _build(self):
+    def _build(self) -> None:
         p, s, m = self.plan, self.settings, self.medium
         nr, nz = p.nr, p.nz
         dr, dz, dt = p.dr_m, p.dz_m, p.dt_s
@@ -386,10 +391,10 @@ class Simulation:
         ze = media.cpml_coefficients(nzp, dz, dt, offset=0.0, **kw)
         rh = media.cpml_coefficients(nrp, dr, dt, offset=0.5, **kw)
         re = media.cpml_coefficients(nrp, dr, dt, offset=0.0, **kw)
-        self.pz_h = _kernel_cpml(zh)
-        self.pz_e = _kernel_cpml(ze)
-        self.pr_h = _kernel_cpml(rh)
-        self.pr_e = _kernel_cpml(re)
+        self.pz_h: CpmlTables = _kernel_cpml(zh)
+        self.pz_e: CpmlTables = _kernel_cpml(ze)
+        self.pr_h: CpmlTables = _kernel_cpml(rh)
+        self.pr_e: CpmlTables = _kernel_cpml(re)
         self.psi_zh = np.zeros((nr, nzp), f32)
         self.psi_ze = np.zeros((nr, nzp), f32)
         self.psi_rh = np.zeros((nrp, nz), f32)
@@ -552,7 +557,7 @@ class Simulation:
             n_line = int(min(self.jz0, max(1, math.ceil(height / self.plan.dz_m))))
         # point source: the whole current record at once (zero after the waveform's end)
         n_src = min(n_max, int(math.ceil(float(wave.end_s) / dt)) + 1)
-        src = None if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
+        src = np.zeros(0) if line_source else np.asarray(wave((np.arange(n_src) + 0.5) * dt), float) * np.ones(n_src)
         src_kick = np.zeros(max(1, n_line), np.float32)  # this step's source term per axis cell (kernels.step_e)
         # DFT kernels exp(-j w t) at the H and E instants, advanced by one rotation per step
         rot_h = np.exp(-0.5j * w * dt)
@@ -581,9 +586,7 @@ class Simulation:
             if self.track_front and step % gridmod.FRONT_SEARCH_STEPS == 0:
                 # columns beyond the last active one are still empty (kernels.last_active_column):
                 # step only as far as the wave can reach before the next search
-                last_col = K.last_active_column(n_cols - 1, self.ez, self.er, self.hp, self.jz, self.jr,
-                                                self.psi_zh, self.psi_ze, self.sib_psi, self.ir0,
-                                                self.psi_rh, self.psi_re)
+                last_col = K.last_active_column(n_cols - 1, fields, ground, top_h, far_h, top_e, far_e)
                 if self.magnetised:
                     last_col = max(last_col, K.last_active_column_te(
                         n_cols - 1, self.ephi, self.hr, self.hz, self.jphi, self.psi_hr, self.psi_pz,

@@ -17,7 +17,7 @@ surface-impedance ground (Maloney and Smith 1992).
 from __future__ import annotations
 
 import os
-from typing import NamedTuple
+from typing import Any, NamedTuple
 
 # Idle OpenMP threads sleep instead of spinning: two barriers per time step cost microseconds, while
 # spinning threads steal the cores from working ones whenever the machine is shared (measured 2-4x
@@ -28,7 +28,7 @@ import numba as nb  # noqa: E402
 import numpy as np
 from numba import prange  # noqa: E402
 
-_OPTS = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
+_OPTS: dict[str, Any] = dict(cache=True, nogil=True, fastmath=False, error_model="numpy")
 #: Field values below this are set to zero. Waves decay exponentially into the dense plasma and the
 #: absorbers; without a floor they reach float32 subnormals (< 1.2e-38), which the CPU handles
 #: hundreds of times more slowly. Fields per unit source current stay above 1e-20 where they matter.
@@ -54,13 +54,13 @@ class HCurl(NamedTuple):
     """Faraday's-law coefficients: second-order inverse cells (ground row, absorbers), the stencil
     tables (:mod:`cavity.fdtd.stencil`), dt/mu0 and the ground row's (ha, hb) per column."""
 
-    inv_dr: float
-    inv_dz: float
+    inv_dr: np.float32
+    inv_dz: np.float32
     ar1: np.ndarray  # (nr,) dEz/dr = ar1 (Ez[i+1] - Ez[i]) + ar2 (Ez[i+2] - Ez[i-1])
     ar2: np.ndarray  # (nr,)
     kz1: np.ndarray  # (nz,) dEr/dz = kz1 (Er[j+1] - Er[j]) + kz2 (Er[j+2] - Er[j-1])
     kz2: np.ndarray  # (nz,)
-    ch: float
+    ch: np.float32
     ha: np.ndarray  # (nr,)
     hb: np.ndarray  # (nr,)
 
@@ -150,9 +150,14 @@ def _any_nonzero(row):
 
 
 @nb.njit(**_OPTS)
-def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, psi_rh, psi_re):
+def last_active_column(start, fields, ground, top_h, far_h, top_e, far_e):
     """Last column, searching down from ``start``, that holds any nonzero field, plasma current or
     absorber/ground memory; -1 if none.
+
+    Takes the argument groups of :func:`step_h` and :func:`step_e` (:class:`Fields`,
+    :class:`GroundMemory`, the top and far :class:`Absorber` of each half-step) and searches every
+    array among them that a column carries: Ez, Er, H_phi, jz, jr, the ground memory and the four
+    absorber memories (the far layers' rows start at ``far_h.start``).
 
     Ahead of the wave front every one of them is exactly zero, and a time step (H then E) carries
     nonzero values at most ``reach`` columns further out: one for the Yee stencil (H at column i
@@ -161,6 +166,9 @@ def last_active_column(start, ez, er, hp, jz, jr, psi_zh, psi_ze, sib_psi, ir0, 
     active one plus ``reach`` times the steps until the next search is therefore exact, and skips
     the still-empty far part of a long path during the first passage of the wave.
     """
+    ez, er, hp, jz, jr = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
+    psi_zh, psi_ze, sib_psi = top_h.psi, top_e.psi, ground.psi
+    ir0, psi_rh, psi_re = far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
         if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
                 or _any_nonzero(jr[i]) or _any_nonzero(psi_zh[i]) or _any_nonzero(psi_ze[i])

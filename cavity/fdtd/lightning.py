@@ -155,8 +155,12 @@ class HeidlerStroke:
         t, i = self._fine
         k = int(np.argmax(i))
         lo, hi = t[max(k - 1, 0)], t[min(k + 1, t.size - 1)]
-        res = minimize_scalar(lambda x: -float(self(x)), bounds=(lo, hi), method="bounded",
-                              options={"xatol": 1e-6 * self.rise_time_constant_s})
+        res = minimize_scalar(
+            lambda x: -float(self(x)),
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-6 * self.rise_time_constant_s},
+        )
         return float(res.x), float(self(res.x))
 
     @property
@@ -211,8 +215,8 @@ class HeidlerStroke:
         w[0] = w[-1] = 0.5 * (t[1] - t[0])
         out = np.empty(f.size, complex)
         for k0 in range(0, f.size, 64):
-            fk = f[k0:k0 + 64]
-            out[k0:k0 + 64] = np.exp(-2j * np.pi * np.outer(fk, t)) @ (w * i)
+            fk = f[k0 : k0 + 64]
+            out[k0 : k0 + 64] = np.exp(-2j * np.pi * np.outer(fk, t)) @ (w * i)
         # tail t > T: (i(T)) exp(-(t-T)/tau2) -> i(T) exp(-j w T) / (1/tau2 + j w)
         T = t[-1]
         out += i[-1] * np.exp(-2j * np.pi * f * T) / (1.0 / self.decay_time_constant_s + 2j * np.pi * f)
@@ -224,8 +228,9 @@ class HeidlerStroke:
         w = 2 * np.pi * f
         v, tau = self.channel_speed_m_per_s, self.transit_time_s
         with np.errstate(invalid="ignore", divide="ignore"):
-            factor = np.where(w > 0, v * (1.0 - np.exp(-1j * w * tau)) / (1j * np.where(w > 0, w, 1.0)),
-                              self.channel_height_m)
+            factor = np.where(
+                w > 0, v * (1.0 - np.exp(-1j * w * tau)) / (1j * np.where(w > 0, w, 1.0)), self.channel_height_m
+            )
         return self.current_spectrum(f) * factor
 
     def radiation_spectrum(self, frequency_hz) -> np.ndarray:
@@ -241,8 +246,12 @@ class HeidlerStroke:
         a = np.abs(self.radiation_spectrum(f))
         k = int(np.argmax(a))
         lo, hi = f[max(k - 1, 0)], f[min(k + 1, f.size - 1)]
-        res = minimize_scalar(lambda x: -float(np.abs(self.radiation_spectrum(x))[0]), bounds=(lo, hi),
-                              method="bounded", options={"xatol": 1e-3})
+        res = minimize_scalar(
+            lambda x: -float(np.abs(self.radiation_spectrum(x))[0]),
+            bounds=(lo, hi),
+            method="bounded",
+            options={"xatol": 1e-3},
+        )
         return float(res.x)
 
     def describe(self) -> str:

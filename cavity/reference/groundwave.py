@@ -113,7 +113,9 @@ def _cquad(func, a, b, points=None) -> complex:
     return complex(val)
 
 
-def impedance_plane_field(range_m, frequency_hz: float, moment_am: complex, surface_impedance_ohm: complex) -> np.ndarray:
+def impedance_plane_field(
+    range_m, frequency_hz: float, moment_am: complex, surface_impedance_ohm: complex
+) -> np.ndarray:
     """Exact ground-level Ez (V/m) of a vertical monopole on a flat Leontovich ground (no ionosphere).
 
     From the Hankel transform of the source and the impedance condition U'(0) = j k Delta U(0)

@@ -789,7 +789,8 @@ def magnetised_modes(
     if np.linalg.norm(b) > 0.0:
         drop = 4.0 * max(window, max_att)
         followed = _continue(guide_at, roots, attenuation, drop)
-        kept_roots, kept_names = [], []
+        kept_roots: list[complex] = []
+        kept_names: list[str] = []
         for (c, state, where), name in zip(followed, names):
             status[name] = (state, where)
             if c is None:

@@ -113,7 +113,11 @@ def ionosphere_permittivity(
     z = np.asarray(altitude_m, dtype=float)
     ne = np.broadcast_to(np.asarray(electron_density, dtype=float), z.shape)
     nu = np.broadcast_to(np.asarray(collision_frequency, dtype=float), z.shape)
-    for name, arr, unit in (("altitude_m", z, "m"), ("electron_density", ne, "m^-3"), ("collision_frequency", nu, "1/s")):
+    for name, arr, unit in (
+        ("altitude_m", z, "m"),
+        ("electron_density", ne, "m^-3"),
+        ("collision_frequency", nu, "1/s"),
+    ):
         bad = ~(np.isfinite(arr) & (arr >= 0.0))
         if np.any(bad):
             raise ScenarioError(f"{name} = {arr[bad].flat[0]} {unit} is out of range; allowed: >= 0 and finite")
@@ -219,7 +223,7 @@ def _ql_tridiagonal(d, e, z, tol, max_iterations, breakdown):
     return 0
 
 
-_COMPILED = {}
+_COMPILED: dict = {}
 
 
 def _compiled_ql():
@@ -506,13 +510,13 @@ def solve_modes(
     lam, excitation = lam[order], excitation[order]
 
     n_keep = int(min(max(n_functions, 0), lam.size))
-    functions = {}
+    functions: dict[int, np.ndarray] = {}
     norm_t = max(np.abs(t_diag).max(), np.abs(t_off).max())
     if refine:
         lam0 = lam.copy()
         gaps = _neighbour_gaps(lam0)
         limit = 30.0 / float(_positive("refine_beyond_m", refine_beyond_m, "m"))
-        for m in np.flatnonzero(-_outgoing(lam0).imag < limit):
+        for m in np.flatnonzero(-_outgoing(lam0).imag < limit).tolist():
             u = _inverse_iteration(t_diag, t_off, lam0[m], norm_t) * scale
             new = _rayleigh_refine(pencil4, lam0[m], u, norm_t)
             if new is None or abs(new[0] - lam0[m]) > 0.2 * gaps[m]:
@@ -528,14 +532,14 @@ def solve_modes(
     k = _outgoing(lam)
     order = _attenuation_order(k, k0)
     k, excitation = k[order], excitation[order]
-    kept = {}
+    kept: dict[int, np.ndarray] = {}
     for m in range(n_keep):
         old = order[m]
         vec = functions.get(old)
         if vec is None:
             vec = _normalised(_inverse_iteration(t_diag, t_off, lam[old], norm_t) * scale, b_diag)
         kept[m] = vec
-    table = np.array([kept[m] for m in range(n_keep)], dtype=complex).reshape(n_keep, z.size)
+    table = np.array([kept[m] for m in range(n_keep)], dtype=np.complex128).reshape(n_keep, z.size)
     return ModeSet(
         frequency_hz=f,
         altitude_m=z,
@@ -570,7 +574,7 @@ def _mode_norm(u, b_diag, eps, steps, stretch, omega, zs):
     deps0 = (eps[1] - eps[0]) / steps[0]
     g0 = 2.0j * omega * EPS0 * zs * u[0] ** 2 - u[0] ** 2 * deps0 / eps[0] ** 2
     depst = (eps[-1] - eps[-2]) / (steps[-1] * stretch[-1])
-    gt = -u[-1] ** 2 * depst / eps[-1] ** 2
+    gt = -(u[-1] ** 2) * depst / eps[-1] ** 2
     return trapezoid - (steps[-1] ** 2 * stretch[-1] ** 2 * gt - steps[0] ** 2 * g0) / 12.0
 
 
@@ -613,7 +617,9 @@ def _rayleigh_refine(pencil4, lam, u, norm_t, sweeps: int = 3):
         lam = np.dot(u, _tri_matvec(a_diag, a_off, u)) / ubu
         shift = lam + 1e-13 * norm_t * (1.0 + 1j) * abs(b_diag[1])
         try:
-            y = scipy.linalg.solve_banded((1, 1), _band(a_diag - shift * b_diag, a_off - shift * b_off), bu, check_finite=False)
+            y = scipy.linalg.solve_banded(
+                (1, 1), _band(a_diag - shift * b_diag, a_off - shift * b_off), bu, check_finite=False
+            )
         except (np.linalg.LinAlgError, ValueError):
             return None
         if not np.all(np.isfinite(y)):

@@ -297,7 +297,7 @@ def summary_notes(datasets, level, sector_deg: float) -> list[str]:
         f"interpolated {ds.attrs.get('coverage_interpolation', '')}; the summary reads it every "
         f"{SUMMARY_BEARING_STEP_DEG:g} deg or finer.",
     ]
-    from cavity.reports.tables import _text
+    from cavity.reports.reading import attr_text as _text
 
     cautions = list(dict.fromkeys(_text(d.attrs.get("cautions", "")).strip() for d in datasets))
     cautions = [c for c in cautions if c]
@@ -455,7 +455,7 @@ def coverage_figure(ds: xr.Dataset, *, level: Level | None = None, frequency_khz
         bar.set_label("Ez, dB re 1 uV/m (RMS)\n" + textwrap.fill(COVERAGE_CAUTION, 110), fontsize=8)
         when = ""
         if "utc" in str(ds.attrs.get("scenario", "")):
-            from cavity.reports.tables import scenario_document
+            from cavity.reports.reading import scenario_document
 
             utc = scenario_document(ds).get("ionosphere", {}).get("utc")
             when = f", {utc:%Y-%m-%d %H:%M} UTC" if hasattr(utc, "strftime") else ""

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import os
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -41,8 +42,8 @@ COAST_COLOUR = "#4a4a4a"
 BACKGROUND_SAMPLES = 700
 #: Shading of the sun zones: twilight (sun below the horizon, D region not yet in night) hatched and
 #: light; night dark. Different in grey print too.
-TWILIGHT_SHADE = dict(facecolor="#9a9ab8", alpha=0.30, hatch="////", edgecolor="#6a6a90", linewidth=0.0)
-NIGHT_SHADE = dict(facecolor="#1c1c40", alpha=0.55, edgecolor="none", linewidth=0.0)
+TWILIGHT_SHADE: dict[str, Any] = dict(facecolor="#9a9ab8", alpha=0.30, hatch="////", edgecolor="#6a6a90", linewidth=0.0)
+NIGHT_SHADE: dict[str, Any] = dict(facecolor="#1c1c40", alpha=0.55, edgecolor="none", linewidth=0.0)
 
 #: Edges of the day/night transition in solar zenith angle, degrees (docs/physics.md, common
 #: practice): the ground is in sunlight for chi < 90; the D region is in night from chi >= 99.
@@ -76,8 +77,9 @@ def land_grid(proj, extent, samples: int = BACKGROUND_SAMPLES):
     return X, Y, land.reshape(X.shape)
 
 
-def draw_coastline(ax, proj, extent, *, colour: str = COAST_COLOUR, zorder: int = 1,
-                   samples: int = BACKGROUND_SAMPLES, land=None) -> None:
+def draw_coastline(
+    ax, proj, extent, *, colour: str = COAST_COLOUR, zorder: int = 1, samples: int = BACKGROUND_SAMPLES, land=None
+) -> None:
     """The coastline, the 0.5 contour of the land/sea mask (no download: the mask is installed)."""
     X, Y, mask = land if land is not None else land_grid(proj, extent, samples)
     ax.contour(X, Y, mask, levels=[0.5], colors=colour, linewidths=0.6, transform=proj, zorder=zorder)
@@ -88,8 +90,17 @@ def land_sea_background(ax, proj, extent, samples: int = BACKGROUND_SAMPLES) -> 
     from matplotlib.colors import ListedColormap
 
     X, Y, land = land_grid(proj, extent, samples)
-    ax.imshow(land, origin="lower", extent=extent, transform=proj, cmap=ListedColormap([SEA_COLOUR, LAND_COLOUR]),
-              vmin=0, vmax=1, interpolation="nearest", zorder=0)
+    ax.imshow(
+        land,
+        origin="lower",
+        extent=extent,
+        transform=proj,
+        cmap=ListedColormap([SEA_COLOUR, LAND_COLOUR]),
+        vmin=0,
+        vmax=1,
+        interpolation="nearest",
+        zorder=0,
+    )
     draw_coastline(ax, proj, extent, land=(X, Y, land))
 
 
@@ -202,27 +213,48 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
     theta = np.linspace(0.0, 2.0 * np.pi, 361)
     for radius_km in np.arange(step, min(reach_km, limit / 1e3) + 1e-6, step):
         r_m = radius_km * 1e3
-        ax.plot(r_m * np.sin(theta), r_m * np.cos(theta), transform=proj, color="#7a5c9e", linewidth=0.8,
-                linestyle=(0, (6, 3)), zorder=3)
+        ax.plot(
+            r_m * np.sin(theta),
+            r_m * np.cos(theta),
+            transform=proj,
+            color="#7a5c9e",
+            linewidth=0.8,
+            linestyle=(0, (6, 3)),
+            zorder=3,
+        )
         for bearing in (45.0, 225.0):  # a label where the ring crosses two diagonals (one stays in frame)
             bx, by = r_m * np.sin(np.radians(bearing)), r_m * np.cos(np.radians(bearing))
             if extent[0] < bx < extent[1] and extent[2] < by < extent[3]:
-                ax.text(bx, by, f"{radius_km:,.0f} km", transform=proj, fontsize=7, color="#5a3c7e", zorder=3,
-                        ha="center", va="center", bbox=dict(boxstyle="round,pad=0.1", facecolor="white",
-                                                            alpha=0.75, linewidth=0))
+                ax.text(
+                    bx,
+                    by,
+                    f"{radius_km:,.0f} km",
+                    transform=proj,
+                    fontsize=7,
+                    color="#5a3c7e",
+                    zorder=3,
+                    ha="center",
+                    va="center",
+                    bbox=dict(boxstyle="round,pad=0.1", facecolor="white", alpha=0.75, linewidth=0),
+                )
 
-    legend = []
-    ion = scenario.ionosphere
-    if ion.form == "utc" and ion.utc is not None:
+    legend: list[Any] = []  # legend handles: patches and lines
+    from cavity.ionosphere_forms import form_of
+
+    instant = form_of(scenario.ionosphere).instant(scenario.ionosphere)
+    if instant is not None:
         from datetime import timezone
 
-        when = ion.utc.astimezone(timezone.utc)
+        when = instant.astimezone(timezone.utc)
         # Nightshade's "refraction" is the sun's elevation (deg) at the shading edge: 0 gives chi > 90,
         # -9 gives chi > 99 (the D region in darkness under the day/night rule).
         ax.add_feature(Nightshade(when, refraction=90.0 - DAY_LIMIT_DEG, delta=0.5, **TWILIGHT_SHADE), zorder=2)
         ax.add_feature(Nightshade(when, refraction=90.0 - NIGHT_LIMIT_DEG, delta=0.5, **NIGHT_SHADE), zorder=2)
         legend += [
-            Patch(**TWILIGHT_SHADE, label=f"twilight: sun below the horizon (chi {DAY_LIMIT_DEG:g}-{NIGHT_LIMIT_DEG:g} deg)"),
+            Patch(
+                **TWILIGHT_SHADE,
+                label=f"twilight: sun below the horizon (chi {DAY_LIMIT_DEG:g}-{NIGHT_LIMIT_DEG:g} deg)",
+            ),
             Patch(**NIGHT_SHADE, label=f"D-region night (chi > {NIGHT_LIMIT_DEG:g} deg)"),
         ]
         time_text = f"{when:%Y-%m-%d %H:%M} UTC"
@@ -238,10 +270,24 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
         if p.latitude_deg is not None:
             for a, b, kind in _runs(p.ground_kind):
                 colour = GROUND_COLOURS.get(str(kind), "#000000")
-                ax.plot(p.longitude_deg[a:b], p.latitude_deg[a:b], transform=geodetic, color="white",
-                        linewidth=4.0, solid_capstyle="butt", zorder=4)
-                ax.plot(p.longitude_deg[a:b], p.latitude_deg[a:b], transform=geodetic, color=colour,
-                        linewidth=2.4, solid_capstyle="butt", zorder=5)
+                ax.plot(
+                    p.longitude_deg[a:b],
+                    p.latitude_deg[a:b],
+                    transform=geodetic,
+                    color="white",
+                    linewidth=4.0,
+                    solid_capstyle="butt",
+                    zorder=4,
+                )
+                ax.plot(
+                    p.longitude_deg[a:b],
+                    p.latitude_deg[a:b],
+                    transform=geodetic,
+                    color=colour,
+                    linewidth=2.4,
+                    solid_capstyle="butt",
+                    zorder=5,
+                )
                 kinds_drawn.add(str(kind))
         else:
             uniform_kind = len(set(p.ground_kind.tolist())) == 1
@@ -252,43 +298,105 @@ def draw_map(scenario, paths, output_path, *, dpi: int = 150, title: str | None 
                 rx = scenario.receivers[i]
                 if rx.latitude_deg is None:
                     continue
-                ax.plot([tx.longitude_deg, rx.longitude_deg], [tx.latitude_deg, rx.latitude_deg],
-                        transform=geodetic, color="white", linewidth=4.0, zorder=4)
-                ax.plot([tx.longitude_deg, rx.longitude_deg], [tx.latitude_deg, rx.latitude_deg],
-                        transform=geodetic, color=colour, linewidth=2.4, zorder=5)
+                ax.plot(
+                    [tx.longitude_deg, rx.longitude_deg],
+                    [tx.latitude_deg, rx.latitude_deg],
+                    transform=geodetic,
+                    color="white",
+                    linewidth=4.0,
+                    zorder=4,
+                )
+                ax.plot(
+                    [tx.longitude_deg, rx.longitude_deg],
+                    [tx.latitude_deg, rx.latitude_deg],
+                    transform=geodetic,
+                    color=colour,
+                    linewidth=2.4,
+                    zorder=5,
+                )
                 drawn = True
             if drawn:
                 kinds_drawn.add(kind)
     for kind in sorted(kinds_drawn):
-        legend.append(Line2D([], [], color=GROUND_COLOURS.get(kind, "#000000"), linewidth=2.4,
-                             label=f"path over {kind.replace('_', ' ')}"))
+        legend.append(
+            Line2D(
+                [],
+                [],
+                color=GROUND_COLOURS.get(kind, "#000000"),
+                linewidth=2.4,
+                label=f"path over {kind.replace('_', ' ')}",
+            )
+        )
 
-    text_style = dict(fontsize=9, zorder=7, transform=plate,
-                      bbox=dict(boxstyle="round,pad=0.2", facecolor="white", alpha=0.8, linewidth=0))
-    ax.plot(tx.longitude_deg, tx.latitude_deg, marker="*", markersize=16, color="#d62728",
-            markeredgecolor="k", transform=plate, zorder=6)
+    text_style = dict(
+        fontsize=9,
+        zorder=7,
+        transform=plate,
+        bbox=dict(boxstyle="round,pad=0.2", facecolor="white", alpha=0.8, linewidth=0),
+    )
+    ax.plot(
+        tx.longitude_deg,
+        tx.latitude_deg,
+        marker="*",
+        markersize=16,
+        color="#d62728",
+        markeredgecolor="k",
+        transform=plate,
+        zorder=6,
+    )
     ax.text(tx.longitude_deg, tx.latitude_deg, f"  {tx.name}", ha="left", va="bottom", **text_style)
     for i in placed:
         rx = scenario.receivers[i]
-        ax.plot(rx.longitude_deg, rx.latitude_deg, marker="o", markersize=7, color="#ffdd00",
-                markeredgecolor="k", transform=plate, zorder=6)
+        ax.plot(
+            rx.longitude_deg,
+            rx.latitude_deg,
+            marker="o",
+            markersize=7,
+            color="#ffdd00",
+            markeredgecolor="k",
+            transform=plate,
+            zorder=6,
+        )
         ax.text(rx.longitude_deg, rx.latitude_deg, f"  {rx.name}", ha="left", va="top", **text_style)
     unplaced = [rx.name for rx in scenario.receivers if rx.latitude_deg is None]
     if unplaced:
         notes.append(f"not drawn (given by range only): {', '.join(unplaced)}")
     legend += [
-        Line2D([], [], marker="*", color="#d62728", markeredgecolor="k", markersize=12, linestyle="none",
-               label=f"transmitter {tx.name}"),
-        Line2D([], [], marker="o", color="#ffdd00", markeredgecolor="k", markersize=7, linestyle="none",
-               label="receiver"),
+        Line2D(
+            [],
+            [],
+            marker="*",
+            color="#d62728",
+            markeredgecolor="k",
+            markersize=12,
+            linestyle="none",
+            label=f"transmitter {tx.name}",
+        ),
+        Line2D(
+            [], [], marker="o", color="#ffdd00", markeredgecolor="k", markersize=7, linestyle="none", label="receiver"
+        ),
     ]
-    legend.append(Line2D([], [], color="#7a5c9e", linewidth=0.8, linestyle=(0, (6, 3)),
-                         label=f"range from the transmitter, every {step:,.0f} km"))
+    legend.append(
+        Line2D(
+            [],
+            [],
+            color="#7a5c9e",
+            linewidth=0.8,
+            linestyle=(0, (6, 3)),
+            label=f"range from the transmitter, every {step:,.0f} km",
+        )
+    )
     ax.legend(handles=legend, loc="lower left", fontsize=8, framealpha=0.85)
     freqs = ", ".join(f"{f / 1e3:g}" for f in np.atleast_1d(tx.frequencies_hz)) if hasattr(tx, "frequencies_hz") else ""
-    heading = title if title is not None else f"{tx.name}{f', {freqs} kHz' if freqs else ''}: transmitter, receivers and paths"
-    ax.set_title(f"{heading}\n{time_text}; azimuthal equidistant about the transmitter; "
-                 "coastline from the 1 km land/sea mask", fontsize=10)
+    heading = (
+        title
+        if title is not None
+        else f"{tx.name}{f', {freqs} kHz' if freqs else ''}: transmitter, receivers and paths"
+    )
+    ax.set_title(
+        f"{heading}\n{time_text}; azimuthal equidistant about the transmitter; coastline from the 1 km land/sea mask",
+        fontsize=10,
+    )
 
     from cavity.files import save_figure  # the one atomic figure writer
 

@@ -14,7 +14,7 @@ import math
 import tomllib
 import warnings
 from datetime import datetime, timedelta, timezone
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
@@ -151,14 +151,17 @@ def path_levels(ds: xr.Dataset) -> tuple[xr.DataArray, list[str]] | None:
                 warnings.simplefilter("ignore", RuntimeWarning)
                 levels[p] = np.nanmedian(amp[p][:, band, :], axis=1)
         labels.append(f"to {names[far]}, {lo:.0f}-{hi:.0f} km")
-    da = xr.DataArray(levels, dims=("path", "frequency", "time"),
-                      coords={"time": ds["time"].values, "frequency": ds["frequency"].values},
-                      attrs={"units": "dB re 1 uV/m", "long_name": "median Ez over the far half of the path"})
+    da = xr.DataArray(
+        levels,
+        dims=("path", "frequency", "time"),
+        coords={"time": ds["time"].values, "frequency": ds["frequency"].values},
+        attrs={"units": "dB re 1 uV/m", "long_name": "median Ez over the far half of the path"},
+    )
     return da, labels
 
 
 def daylight_at_receivers(ds: xr.Dataset) -> np.ndarray | None:
-    """"day", "night" or "transition" per (receiver, time): the state of the path up to the receiver.
+    """ "day", "night" or "transition" per (receiver, time): the state of the path up to the receiver.
 
     A receiver is in day (night) at an instant when every sample of its path from the transmitter to
     it is in day (night) by the tool's rule (solar zenith angle <= 90 deg, >= 99 deg:
@@ -180,7 +183,9 @@ def daylight_at_receivers(ds: xr.Dataset) -> np.ndarray | None:
         if upto.size == 0 or not np.isfinite(upto).all():
             continue
         state = daylight_class(upto)
-        out[i] = np.where((state == "day").all(axis=0), "day", np.where((state == "night").all(axis=0), "night", "transition"))
+        out[i] = np.where(
+            (state == "day").all(axis=0), "day", np.where((state == "night").all(axis=0), "night", "transition")
+        )
     return out
 
 
@@ -235,8 +240,13 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
 
     def mark_sun(ax, i):
         for when, kind in crossings[i]:
-            ax.axvline(np.datetime64(when.replace(tzinfo=None), "ns"), color=colours[i],
-                       linestyle=":" if kind == "sunrise" else "--", linewidth=1.0, alpha=0.8)
+            ax.axvline(
+                np.datetime64(when.replace(tzinfo=None), "ns"),
+                color=colours[i],
+                linestyle=":" if kind == "sunrise" else "--",
+                linewidth=1.0,
+                alpha=0.8,
+            )
 
     for k, (ax, f) in enumerate(zip(axes, freqs)):
         for i, rx in enumerate(names):
@@ -259,8 +269,11 @@ def plot_diurnal(ds: xr.Dataset, output_path, *, quantity: str = "ez") -> list[s
                 far = max(on, key=lambda i: ranges[i])
                 lax.plot(times, curve, marker=".", color=colours[far], label=f"path {text}")
                 mark_sun(lax, far)
-            lax.set_title(f"{f:g} kHz: median along the far half of each path (less sensitive to where "
-                          "the modal minima fall)", loc="left", fontsize="medium")
+            lax.set_title(
+                f"{f:g} kHz: median along the far half of each path (less sensitive to where the modal minima fall)",
+                loc="left",
+                fontsize="medium",
+            )
             lax.set_ylabel(f"{label}, {unit}")
             lax.grid(True, alpha=0.3)
             lax.legend(fontsize="small", loc="best")
@@ -305,11 +318,18 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
         for k, f in enumerate(np.atleast_1d(ds["frequency"].values)):
             a = amp[i, k]
             ok = np.isfinite(a)
-            row = {"receiver": rx, "range_km": float(ranges[i]), "frequency_khz": float(f), "instants": int(ok.sum())}
+            row: dict[str, Any] = {
+                "receiver": rx,
+                "range_km": float(ranges[i]),
+                "frequency_khz": float(f),
+                "instants": int(ok.sum()),
+            }
             if ok.any():
                 lo, hi = int(np.nanargmin(a)), int(np.nanargmax(a))
                 row.update(
-                    ez_min_db=float(a[lo]), ez_median_db=float(np.median(a[ok])), ez_max_db=float(a[hi]),
+                    ez_min_db=float(a[lo]),
+                    ez_median_db=float(np.median(a[ok])),
+                    ez_max_db=float(a[hi]),
                     utc_of_min=_utc(times[lo]).strftime("%Y-%m-%dT%H:%M:%SZ"),
                     utc_of_max=_utc(times[hi]).strftime("%Y-%m-%dT%H:%M:%SZ"),
                 )
@@ -322,8 +342,17 @@ def table_diurnal(ds: xr.Dataset) -> pd.DataFrame:
                     row[f"ez_{kind}_median_db"] = float(np.median(a[pick])) if pick.any() else math.nan
                 row["night_minus_day_db"] = row["ez_night_median_db"] - row["ez_day_median_db"]
             rows.append(row)
-    columns = ["receiver", "range_km", "frequency_khz", "instants", "ez_min_db", "ez_median_db", "ez_max_db",
-               "utc_of_min", "utc_of_max"]
+    columns = [
+        "receiver",
+        "range_km",
+        "frequency_khz",
+        "instants",
+        "ez_min_db",
+        "ez_median_db",
+        "ez_max_db",
+        "utc_of_min",
+        "utc_of_max",
+    ]
     if state is not None:
         columns += ["day_instants", "ez_day_median_db", "night_instants", "ez_night_median_db", "night_minus_day_db"]
     return pd.DataFrame(rows, columns=columns)

@@ -45,6 +45,7 @@ import numpy as np
 
 from cavity.constants import EARTH_RADIUS_M
 from cavity.errors import CavityError, ResourceError, ScenarioError
+from cavity.ionosphere_forms import form_of
 from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -550,10 +551,10 @@ def combine(scenario: Scenario, settings: CoverageSettings, points, results: dic
     for name in media_names:
         if name in profiles:
             data[f"bearing_{name}"] = (("bearing", "range"), profiles[name])
-    ion = scenario.ionosphere
-    if ion.form == "utc" and ion.utc is not None:
+    instant = form_of(scenario.ionosphere).instant(scenario.ionosphere)
+    if instant is not None:
         lat2, lon2 = np.meshgrid(lat, ((lon + 180.0) % 360.0) - 180.0, indexing="ij")
-        data["map_solar_zenith_angle"] = (("latitude", "longitude"), np.asarray(solar_zenith_deg(ion.utc, lat2, lon2)))
+        data["map_solar_zenith_angle"] = (("latitude", "longitude"), np.asarray(solar_zenith_deg(instant, lat2, lon2)))
 
     # receivers with a position: the map's value there, by the same interpolation
     placed = [rx for rx in scenario.receivers if rx.latitude_deg is not None]

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from cavity.errors import CavityError, ScenarioError
+from cavity.ionosphere_forms import form_of
 
 if TYPE_CHECKING:  # pragma: no cover
     from cavity.scenario import Scenario
@@ -170,21 +171,19 @@ def sweep_points(
             "[source]: a sweep solves the continuous transmitter; a lightning source is not swept "
             "(remove [source], or run each instant on its own)"
         )
-    form = scenario.ionosphere.form
+    form = form_of(scenario.ionosphere)
+    own_instant = form.instant(scenario.ionosphere)
     if times is not None:
         times = [parse_utc(t, "time") for t in times]
         if not times:
             raise ScenarioError("times: the sweep needs at least one instant")
-        if form != "utc":
-            raise ScenarioError(
-                f"ionosphere: form {form!r} does not change with time, so it cannot be swept over UTC; "
-                "use utc = ... in the scenario, or sweep over frequency only"
-            )
+        if own_instant is None:
+            form.at_instant(scenario.ionosphere, times[0])  # a form without an instant raises: no time axis
         if len(set(times)) != len(times):
             raise ScenarioError("times: an instant appears twice")
         times = sorted(times)
-    elif form == "utc":
-        times = [scenario.ionosphere.utc]
+    elif own_instant is not None:
+        times = [own_instant]
     if frequencies_khz is None:
         freqs = sorted(scenario.transmitter.frequencies_hz)
     else:
@@ -218,5 +217,5 @@ def point_scenario(scenario: Scenario, point: SweepPoint) -> Scenario:
         "solver": dataclasses.replace(scenario.solver, receiver_time_series=False),
     }
     if point.utc is not None:
-        changes["ionosphere"] = dataclasses.replace(scenario.ionosphere, utc=point.utc)
+        changes["ionosphere"] = form_of(scenario.ionosphere).at_instant(scenario.ionosphere, point.utc)
     return scenario.replace(**changes)
