@@ -35,9 +35,9 @@ B_REFERENCE_T = 1e-15
 #: What every result file says about the trust to place in it (docs/physics.md 10).
 CAUTIONS = (
     "Predictions are planning estimates: h' and beta vary with season, latitude, solar cycle, flares "
-    "and particle precipitation; ground maps are coarse; the geomagnetic field is left out unless the "
-    "scenario asks for it (then the IGRF at one height), and the axisymmetric model takes the medium "
-    "along each path's bearing for the whole ring around the transmitter. Near modal minima errors "
+    "and particle precipitation; ground maps are coarse; the geomagnetic field is the IGRF at one "
+    'height (left out for receivers given by range only or with model "none"), and the axisymmetric '
+    "model takes the medium along each path's bearing for the whole ring around the transmitter. Near modal minima errors "
     "reach many dB. Decisions on coverage, interference or "
     "safety-of-life navigation and timing rest on measurements, ITU-R methods and licensed engineers. "
     "Near transmitters, RF exposure limits apply (ICNIRP 2010, Health Physics 99, 818: general public "

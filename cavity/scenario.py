@@ -481,18 +481,16 @@ def _ground_constants(t: _Table, kind: str, what: str) -> tuple[float | None, fl
 
 
 def _parse_geomagnetic(t: _Table | None, transmitter: Transmitter, receivers, ionosphere: Ionosphere) -> Geomagnetic:
-    """The [geomagnetic] section: without one, "none" (isotropic); a section without ``model`` means
-    "igrf" when every position is given, else "none".
-
-    The magnetised engine is opt-in until it meets its speed target: a step with the field costs several
-    times an isotropic one (README, "The geomagnetic field")."""
+    """The [geomagnetic] section. Without ``model`` (or without the section): "igrf" when every
+    position is given (the field along each path needs directions), else "none" (isotropic: a
+    receiver given by range has no direction)."""
     from cavity.geomag import DEFAULT_EPOCH, EPOCH_RANGE, REFERENCE_ALTITUDE_KM
 
     positioned = transmitter.latitude_deg is not None and all(rx.range_m is None for rx in receivers)
     given = t is not None
     t = t or _Table({}, "geomagnetic")
     t.finish(_GEOMAGNETIC_KEYS)
-    model = t.string("model", default="igrf" if given and positioned else "none")
+    model = t.string("model", default="igrf" if positioned else "none")
     if model not in GEOMAGNETIC_MODELS:
         raise t.fail("model", model, f"is not a field model (choose from {', '.join(GEOMAGNETIC_MODELS)})")
     uniform_keys = ("strength_nt", "dip_deg", "azimuth_deg")

@@ -117,12 +117,14 @@ def _load(text):
 def test_default_model_follows_the_geometry():
     from cavity.geomag import DEFAULT_EPOCH
 
-    # the field is opt-in (README, "The geomagnetic field"): without a section, isotropic everywhere
-    assert _load(_POSITIONED).geomagnetic.model == "none"
-    s = _load(_POSITIONED + "\n[geomagnetic]\n")  # a section without a model: the IGRF, as positions allow
-    assert s.geomagnetic.model == "igrf" and s.geomagnetic.epoch == DEFAULT_EPOCH
-    assert s.geomagnetic.epoch_source == "default" and s.geomagnetic.altitude_km == 80.0
+    # README, "[geomagnetic]": with positions the IGRF (section or not), by range only isotropic
+    for text in (_POSITIONED, _POSITIONED + "\n[geomagnetic]\n"):
+        s = _load(text)
+        assert s.geomagnetic.model == "igrf" and s.geomagnetic.epoch == DEFAULT_EPOCH
+        assert s.geomagnetic.epoch_source == "default" and s.geomagnetic.altitude_km == 80.0
+        assert s.geomagnetic.given == text.endswith("[geomagnetic]\n")
     assert _load(_BY_RANGE).geomagnetic.model == "none"
+    assert _load(_BY_RANGE + "\n[geomagnetic]\n").geomagnetic.model == "none"
 
 
 def test_epoch_from_utc_then_date():

@@ -179,21 +179,32 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
     nr = fields["ez"].shape[0]
     e_keys = ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "psi_pz", "ir0", "b_re", "c_re", "kd_re", "psi_re",
               "psi_pr", "src", "acc_re", "acc_im", "cos_e", "sin_e")
+    f_, h_, e_ = fk, hk, ek  # the kernels' argument groups hold these arrays (updated in place)
+    no_coef = np.zeros((0, 0), F32)
+    te = K.FieldsTE(f_["ephi"], f_["hr"], f_["hz"], f_["up"])
+    six = K.Fields(f_["ez"], f_["er"], f_["hp"], f_["uz"], f_["ur"])
+    curl_te = K.HCurlTE(h_["inv_dz"], h_["ch"], h_["qp"], h_["qm"], h_["ha"], h_["hb"])
+    ground = K.GroundMemory(h_["sib_q"], h_["sib_w"], h_["sib_psi"])
+    top_h = K.Absorber(h_["jz0"], h_["b_zh"], h_["c_zh"], h_["kd_zh"], h_["psi_hr"], no_coef)
+    far_h = K.Absorber(h_["ir0"], h_["b_rh"], h_["c_rh"], h_["kd_rh"], h_["psi_hz"], no_coef)
+    dft_h = K.Dft(h_["acc_re"], h_["acc_im"], h_["cos_h"], h_["sin_h"])
+    curl_e = K.ECurlMag(e_["rp"], e_["rm"], e_["inv_dr"], e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"])
+    top_r = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], no_coef)
+    top_p = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_pz"], no_coef)
+    far_z = K.Absorber(e_["ir0"], e_["b_re"], e_["c_re"], e_["kd_re"], e_["psi_re"], no_coef)
+    far_p = K.Absorber(e_["ir0"], e_["b_re"], e_["c_re"], e_["kd_re"], e_["psi_pr"], no_coef)
+    dft_e = K.Dft(e_["acc_re"], e_["acc_im"], e_["cos_e"], e_["sin_e"])
     for step in range(steps):
         shift = 1 if step % 2 == 0 else -1
-        K.step_h_te(fk["hr"], fk["hz"], fk["ephi"], **hk, n_cols=nr)
+        K.step_h_te(te, curl_te, ground, top_h, far_h, dft_h, nr)
         np_step_h_te(fn["hr"], fn["hz"], fn["ephi"], **hn)
-        for f_, e_, fn_ in ((fk, ek, K.step_e_mag), (fn, en, np_step_e_mag)):
-            args = [f_["ez"], f_["er"], f_["ephi"], f_["hp"], f_["hr"], f_["hz"], e_["rp"], e_["rm"], e_["inv_dr"],
-                    e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"], e_["coef"], e_["tab"], shift, e_["wsq"],
-                    f_["uz"], f_["ur"], f_["up"], *[e_[k] for k in e_keys]]
-            if fn_ is K.step_e_mag:
-                fn_(*args, nr, np.zeros((3, nr, f_["ez"].shape[1]), F32))
-                if shift < 0:
-                    K.step_er_alone(f_["er"], f_["hp"], e_["inv_dz"], e_["cer"], e_["jp0"], e_["coef"], 0, e_["wsq"],
-                                    f_["ur"], e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], nr - 1)
-            else:
-                fn_(*args)
+        plasma = K.Magnetoplasma(e_["coef"], e_["tab"], shift, e_["wsq"])
+        K.step_e_mag(six, te, curl_e, plasma, top_r, top_p, far_z, far_p, e_["src"], dft_e, nr)
+        if shift < 0:
+            K.step_er_alone(six, curl_e, plasma, 0, top_r, nr - 1)
+        np_step_e_mag(fn["ez"], fn["er"], fn["ephi"], fn["hp"], fn["hr"], fn["hz"], en["rp"], en["rm"], en["inv_dr"],
+                      en["inv_dz"], en["cez"], en["cer"], en["jp0"], en["coef"], en["tab"], shift, en["wsq"],
+                      fn["uz"], fn["ur"], fn["up"], *[en[k] for k in e_keys])
     for name in ("ez", "er", "ephi", "hr", "hz", "uz", "ur", "up"):
         np.testing.assert_allclose(fk[name], fn[name], rtol=2e-4, atol=2e-6, err_msg=name)
     for name in ("sib_psi", "psi_hr", "psi_hz", "acc_re", "acc_im"):
@@ -210,8 +221,12 @@ def test_last_active_column_te_sees_every_array():
 
     def last():
         a = arrays
-        return K.last_active_column_te(nr - 1, a["ephi"], a["hr"], a["hz"], a["jphi"], a["psi_hr"], a["psi_pz"],
-                                       a["sib"], ir0, a["psi_hz"], a["psi_pr"])
+        none = np.zeros(0, F32)
+        layer = lambda start, psi: K.Absorber(start, none, none, none.astype(float), psi, np.zeros((0, 0), F32))  # noqa: E731
+        return K.last_active_column_te(nr - 1, K.FieldsTE(a["ephi"], a["hr"], a["hz"], a["jphi"]),
+                                       K.GroundMemory(np.zeros(3), np.zeros((nr, 3)), a["sib"]),
+                                       layer(nz - nzp, a["psi_hr"]), layer(ir0, a["psi_hz"]),
+                                       layer(nz - nzp, a["psi_pz"]), layer(ir0, a["psi_pr"]))
 
     assert last() == -1
     for name, col in (("hr", 1), ("ephi", 2), ("jphi", 3), ("psi_pz", 4), ("sib", 5), ("hz", 6), ("psi_hz", 9),

@@ -61,9 +61,11 @@ def command(whole, range_km, frequency_khz, cell_m, field):
         click.echo(f"field on/off, night grid {rates['nr']} x {rates['nz']}: isotropic "
                    + ", ".join(f"{x / 1e9:.3f}" for x in iso) + " G cell-updates/s; magnetised "
                    + ", ".join(f"{x / 1e9:.3f}" for x in mag)
-                   + f" (interleaved); time ratio {np.mean(iso) / np.mean(mag):.2f}")
+                   + f" (interleaved); time ratio {np.mean(iso) / np.mean(mag):.2f}; processor-time ratio "
+                   + f"{np.mean(rates['isotropic_cpu']) / np.mean(rates['magnetised_cpu']):.2f}")
         if whole:
             for name, w in bench.night_runs_interleaved():
-                click.echo(f"  3000 km night path, 20 kHz, {name}: {w['wall_s']:.1f} s wall ({w['stepping_s']:.1f} s "
-                           f"stepping, {w['steps']} steps), peak memory {w['peak_memory_bytes'] / 1e9:.2f} GB, "
-                           f"Ez at 3000 km {w['ez_db_at_end']:.2f} dB re 1 V/m per A m")
+                click.echo(f"  3000 km night path, 20 kHz, {name}: {w['wall_s']:.1f} s wall, {w['cpu_s']:.1f} s "
+                           f"processor ({w['stepping_s']:.1f} s stepping, {w['steps']} steps"
+                           f"{'' if w['converged'] else ', time cap'}), peak memory "
+                           f"{w['peak_memory_bytes'] / 1e9:.2f} GB, Ez at 3000 km {w['ez_db_at_end']:.2f} dB re 1 V/m per A m")

@@ -431,7 +431,6 @@ class Simulation:
         self.ephi = np.zeros((nr, nz + 1), f32)
         self.hr = np.zeros((nr, nz), f32)
         self.hz = np.zeros((nr, nz + 1), f32)
-        self.scratch = np.zeros((3, nr, nz), f32)  # curls of step_e_mag
         n_pl = nz - self.jp0
         self.jphi = np.zeros((nr, n_pl), f32)
         # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
@@ -577,6 +576,21 @@ class Simulation:
         plasma_z, plasma_r = K.Plasma(*self.plasma_z), K.Plasma(*self.plasma_r)
         top_e = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, self.ce_top)
         far_e = K.Absorber(self.ir0, *self.pr_e, self.psi_re, self.ce_far)
+        if self.magnetised:
+            # the six-component kernels' groups (kernels.FieldsTE ...); the triples' pairing alternates
+            no_coef = np.zeros((0, 0), np.float32)
+            te = K.FieldsTE(self.ephi, self.hr, self.hz, self.jphi)
+            curl_te = K.HCurlTE(self.inv_dz, self.ch, self.qp, self.qm, self.ha, self.hb)
+            ground_te = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi_r)
+            top_hr = K.Absorber(self.jz0, *self.pz_h, self.psi_hr, no_coef)
+            far_hz = K.Absorber(self.ir0, *self.pr_h, self.psi_hz, no_coef)
+            curl_mag = K.ECurlMag(self.rp, self.rm, self.inv_dr, self.inv_dz, self.cez, self.cer, self.jp0)
+            pairing = {1: K.Magnetoplasma(self.mag_coef, self.tab_p, 1, self.wsq),
+                       -1: K.Magnetoplasma(self.mag_coef, self.tab_m, -1, self.wsq)}
+            top_er = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, no_coef)
+            top_ep = K.Absorber(self.jz0, *self.pz_e, self.psi_pz, no_coef)
+            far_ez = K.Absorber(self.ir0, *self.pr_e, self.psi_re, no_coef)
+            far_ep = K.Absorber(self.ir0, *self.pr_e, self.psi_pr, no_coef)
         n_cols = nr
         # progress in units of the cost model (columns stepped), so that elapsed time / fraction done
         # predicts the time left: steps get dearer as the wave reaches more columns
@@ -589,8 +603,7 @@ class Simulation:
                 last_col = K.last_active_column(n_cols - 1, fields, ground, top_h, far_h, top_e, far_e)
                 if self.magnetised:
                     last_col = max(last_col, K.last_active_column_te(
-                        n_cols - 1, self.ephi, self.hr, self.hz, self.jphi, self.psi_hr, self.psi_pz,
-                        self.sib_psi_r, self.ir0, self.psi_hz, self.psi_pr))
+                        n_cols - 1, te, ground_te, top_hr, far_hz, top_ep, far_ep))
                 n_cols = min(nr, last_col + reach)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
@@ -599,9 +612,7 @@ class Simulation:
             rot_e = rot_h * rot_half
             K.step_h(fields, curl_h, ground, top_h, far_h, K.Dft(acc_h[0], acc_h[1], rot_h.real, -rot_h.imag), n_cols)
             if self.magnetised:
-                K.step_h_te(self.hr, self.hz, self.ephi, self.inv_dz, self.ch, self.qp, self.qm, self.ha, self.hb,
-                            self.sib_q, self.sib_w, self.sib_psi_r, self.jz0, *self.pz_h, self.psi_hr,
-                            self.ir0, *self.pr_h, self.psi_hz, acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag,
+                K.step_h_te(te, curl_te, ground_te, top_hr, far_hz, K.Dft(acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag),
                             n_cols)
             # every source enters the kernel the same way: current elements in the axis cells from
             # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
@@ -619,15 +630,10 @@ class Simulation:
             if self.magnetised:
                 # triples alternate between the Er node after and before each Ez node (kernels.step_e_mag)
                 shift = 1 if step % 2 == 0 else -1
-                K.step_e_mag(self.ez, self.er, self.ephi, self.hp, self.hr, self.hz, self.rp, self.rm,
-                             self.inv_dr, self.inv_dz, self.cez, self.cer, self.jp0, self.mag_coef,
-                             self.tab_p if shift > 0 else self.tab_m, shift, self.wsq, self.jz, self.jr, self.jphi,
-                             self.jz0, *self.pz_e, self.psi_ze, self.psi_pz, self.ir0, *self.pr_e,
-                             self.psi_re, self.psi_pr, src_kick, acc_e[0], acc_e[1], rot_e.real,
-                             -rot_e.imag, n_cols, self.scratch)
+                K.step_e_mag(fields, te, curl_mag, pairing[shift], top_er, top_ep, far_ez, far_ep, src_kick,
+                             K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
                 if shift < 0 and n_cols >= nr:
-                    K.step_er_alone(self.er, self.hp, self.inv_dz, self.cer, self.jp0, self.mag_coef,
-                                    self.t_left, self.wsq, self.jr, self.jz0, *self.pz_e, self.psi_ze, nr - 1)
+                    K.step_er_alone(fields, curl_mag, pairing[shift], self.t_left, top_er, nr - 1)
             else:
                 K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
                          K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)

@@ -35,9 +35,9 @@ COURANT_SAFETY = 0.95
 DEFAULT_PML_CELLS = 20
 #: Bytes per grid cell of the engine (float32 fields, coefficients and auxiliary arrays).
 BYTES_PER_CELL = 4 * 16
-#: The same with the geomagnetic field: Ephi, Hr, Hz, the azimuthal current and the curl scratch
-#: of the six-component kernels add ten float32 per cell.
-BYTES_PER_CELL_MAGNETISED = 4 * 26
+#: The same with the geomagnetic field: Ephi, Hr, Hz and the azimuthal current of the six-component
+#: kernels add seven float32 per cell (with the absorbers' memories and the coefficient tables).
+BYTES_PER_CELL_MAGNETISED = 4 * 23
 #: Steps between the engine's searches for the wave front; in between it steps that many columns
 #: beyond the last active one (:func:`cavity.fdtd.kernels.last_active_column`).
 FRONT_SEARCH_STEPS = 64
