@@ -376,3 +376,93 @@ def test_ground_field_bad_input():
         mg.magnetised_modes(z, ne, nu, [0.0, 0.0, 0.0], -1.0)
     with pytest.raises(ScenarioError, match="altitude_m"):
         mg.ionosphere_reflection(z + 1.0, np.ones((z.size, 3, 3)), 17.3e3, 0.3)
+
+
+# ---------------------------------------------------------------------------------------------
+# The mode search: continuation and the mode count
+# ---------------------------------------------------------------------------------------------
+
+
+class _Roots:
+    """A stand-in for a guide whose mode equation has known roots a_k(t): D(C) = prod (C - a_k(t))."""
+
+    def __init__(self, roots):
+        self.roots = roots
+
+    def det(self, c):
+        return complex(np.prod([c - a for a in self.roots]))
+
+
+def test_continuation_keeps_each_root_through_a_close_pass_and_a_fast_swing():
+    # Elementary algebra: the roots of prod (C - a_k(t)) are the a_k(t). Two roots pass within
+    # 1e-3 of each other at t = 0.5 while moving in opposite directions, a third swings by 0.05
+    # within a few percent of the field (where the gyrofrequency crosses the wave frequency, the
+    # real roots move fastest), a fourth runs off to high attenuation. Following each from t = 1e-3,
+    # each must end on its own a_k(1), and the fourth must be dropped, not reported.
+    k0 = 2 * math.pi * 20e3 / C0
+
+    def attenuation(c):
+        return -mg.DB_PER_NEPER * (k0 * np.sqrt(1 - c * c)).imag * 1e6
+
+    def roots_at(t):
+        pass_a = 0.30 + 0.02j + 0.1 * (t - 0.5) + 0.0005j
+        pass_b = 0.30 + 0.02j - 0.1 * (t - 0.5) - 0.0005j
+        swing = 0.15 + 0.015j + 0.025 * (1 + math.tanh((t - 0.014) / 0.003))
+        lossy = 0.45 + 0.01j + 0.6j * t
+        return [pass_a, pass_b, swing, lossy]
+
+    guide_at = lambda t: _Roots(roots_at(t))  # noqa: E731
+    out = mg._continue(guide_at, roots_at(0.0), attenuation, drop_db=400.0)
+    end = roots_at(1.0)
+    for k in range(3):
+        root, state, reached = out[k]
+        assert state == "ok" and reached == 1.0
+        assert abs(root - end[k]) < 1e-9
+    root, state, reached = out[3]
+    assert root is None and state == "dropped" and reached < 1.0
+    assert attenuation(roots_at(reached)[3]) > 400.0
+
+
+def test_argument_principle_counts_zeros_under_a_fast_phase():
+    # Argument principle (Cauchy): the turns of arg f along a closed contour count the zeros inside.
+    # f = (C - c1)(C - c2)(C - c3) exp(-j 100 C) on an S rectangle: c1, c2 inside, c3 outside; the
+    # exponential (no zeros) turns the phase by about 100 rad per unit C, as the ionosphere's phase
+    # path does, which a sparse sampling would alias.
+    rate = 100.0
+    region = (0.7, 1.02, -0.02, -1e-6)
+    inside = [mg._cos_of_sine(complex(0.95, -0.005)), mg._cos_of_sine(complex(0.8, -0.015))]
+    outside = mg._cos_of_sine(complex(0.9, -0.03))
+    assert all(mg._in_region(c, region) for c in inside) and not mg._in_region(outside, region)
+
+    def fun(s):
+        c = mg._cos_of_sine(s)
+        return (c - inside[0]) * (c - inside[1]) * (c - outside) * np.exp(-1j * rate * c)
+
+    assert mg._winding(fun, region, 2 * rate) == 2
+    assert mg._winding(fun, (0.7, 0.9, -0.02, -1e-6), 2 * rate) == 1
+
+
+@pytest.mark.slow
+def test_mirrored_dip_gives_the_same_modes(night_east_west):
+    # Reciprocity (Budden 1961; the reflection-matrix test above): R(B_r, B_phi, -B_z) =
+    # P R(B_r, B_phi, B_z)^T P, so det(I - Rg R) is unchanged when the vertical component of B0 is
+    # reversed (Rg diagonal): eastward at dip +20 deg (northern hemisphere) has the same modes as
+    # eastward at dip -20 deg (southern). Every mode found at +20 deg must be a root at -20 deg, and
+    # the argument principle must count as many roots there; westward differs.
+    f = 17.3e3
+    z = grid()
+    ne, nu = wait_spies(z, *NIGHT)
+    ms = night_east_west[20.0, "east"]
+    assert ms.counted_modes == ms.found_in_count_region > 3
+    mirrored = mg.field_from_dip_azimuth(FIELD_T, -20.0, 90.0)
+    assert np.allclose(mirrored, ms.b_path_frame_t * [1, 1, -1], atol=1e-18)
+    eps = mg.magnetoionic_permittivity(z, ne, nu, mirrored, f)
+    guide = mg._Guide(mg._profile(z, eps, f), f, SEA, "leontovich")
+    for c in ms.cos_incidence:
+        h = 1e-6 * abs(c)
+        slope = abs(guide.det(c + h) - guide.det(c - h)) / (2 * h)
+        assert abs(guide.det(c)) < 1e-7 * slope * abs(c)  # a root to 1e-7 of C
+    k0 = 2 * math.pi * f / C0
+    assert mg.count_modes(guide, mg._count_region(k0, 20.0)) == ms.found_in_count_region
+    west = night_east_west[20.0, "west"]
+    assert np.abs(np.sort(west.attenuation_db_per_mm)[:3] - np.sort(ms.attenuation_db_per_mm)[:3]).max() > 0.1

@@ -44,7 +44,12 @@ isotropic reference's ground; Zs from :func:`cavity.reference.dipole.surface_imp
 Delta = Zs / eta0): Rg = diag((C - Delta) / (C + Delta), (C Delta - 1) / (C Delta + 1)); or the
 exact Fresnel coefficients of the homogeneous ground.
 
-Modes. det(I - Rg R) = 0 (Budden 1962). Field of a vertical element on the ground, derived from the
+Modes. det(I - Rg R) = 0 (Budden 1962), followed from B0 = 0 as the field is turned on (a
+predictor-corrector continuation with trust radii, the mode-following idea of Morfitt and Shellman
+1976) and completed and checked by the argument principle: the zeros of the analytic form
+det(u - Rg d) inside a region of the S plane are counted from the turns of its phase along the
+region's edge (Delves and Lyness 1967), and any root the continuation missed is found by bisecting the region
+(:func:`magnetised_modes`). Field of a vertical element on the ground, derived from the
 Sommerfeld representation of the source, the plane-wave recursion u = (I - Rg R)^-1 (I + Rg) s,
 d = R u, s = (1, 0), and the residues in the lower half of the horizontal-wavenumber plane:
 
@@ -72,6 +77,11 @@ Clemmow, P. C., and Heading, J. (1954), Coupled forms of the differential equati
 radio propagation in the ionosphere, Proc. Camb. Phil. Soc. 50, 319-333.
 Pitteway, M. L. V. (1965), The numerical calculation of wave-fields, reflexion coefficients and
 polarizations for long radio waves in the lower ionosphere, Phil. Trans. R. Soc. A 257, 219-241.
+Delves, L. M., and Lyness, J. N. (1967), A numerical method for locating the zeros of an analytic
+function, Math. Comp. 21, 543-560 (zeros counted by the argument principle; regions subdivided).
+Morfitt, D. G., and Shellman, C. H. (1976), Naval Electronics Laboratory Center Interim Report 77T
+(from memory; mode constants followed as a parameter of the guide changes: only the published
+method is used).
 Richter, J. H. (1966), Radio Science 1(12) (earth flattening).
 Wait, J. R. (1960), J. Res. NBS 64D(2), 153-204 (mode sum between plates).
 """
@@ -106,6 +116,7 @@ __all__ = [
     "ionosphere_reflection",
     "layer_matrix",
     "magnetised_modes",
+    "count_modes",
     "magnetoionic_permittivity",
     "modal_determinant",
 ]
@@ -409,6 +420,20 @@ def _upgoing_start(a_top):
     return np.ascontiguousarray(q)
 
 
+def _projector_start(a_top):
+    """P E: the spectral projector of the top medium onto its two upward-decaying waves applied to
+    the (Ex, Ey) unit columns; analytic in S and independent of the eigenvalues' order."""
+    lam, vec = np.linalg.eig(a_top)
+    up = lam.real < 0.0
+    if int(up.sum()) != 2:
+        raise SolverError(
+            "magnetised reference: the medium above the top level does not have two upward-decaying "
+            "waves; put the top in a collisional plasma"
+        )
+    p = vec[:, up] @ np.linalg.inv(vec)[up, :]
+    return np.ascontiguousarray(p[:, :2].astype(complex))
+
+
 def _split_at_ground(f, c):
     """Up- and downgoing free-space amplitudes (parallel H~y, perpendicular Ey) of the 4 x 2 span at z = 0."""
     ex, ey, hx, hy = f
@@ -514,11 +539,19 @@ class MagnetisedModes:
         |u_t|^2) with u = adj(I - Rg R)(I + Rg) s: 1 for a TM mode at B0 = 0, 0 for a TE mode.
     origin : tuple of str
         Where each mode was started at B0 = 0: "TM<n>" or "TE<n>" (n counts from 1 in order of
-        attenuation at B0 = 0 within each kind), or "F<n>" for a mode found only at the full field.
+        attenuation at B0 = 0 within each kind), or "F<n>" for a mode found only at the full field
+        by the lattice search, "A<n>" by the search that the mode count starts.
     earth_flattening : bool
     earth_radius_m : float
     seconds : float
         Wall time of the mode search.
+    counted_modes, found_in_count_region : int
+        Zeros of the mode equation counted by the argument principle in the counting region (see
+        :func:`magnetised_modes`, stage 4) and the modes found there; -1 when not counted. Equal
+        when the set is complete.
+    continuation : dict
+        For each mode started at B0 = 0: (state, field fraction reached), state "ok", "dropped"
+        (too lossy or evanescent), "lost" or "merged" (see :func:`_continue`).
     """
 
     frequency_hz: float
@@ -534,6 +567,9 @@ class MagnetisedModes:
     earth_flattening: bool = True
     earth_radius_m: float = EARTH_RADIUS_M
     seconds: float = field(default=0.0)
+    counted_modes: int = -1
+    found_in_count_region: int = -1
+    continuation: dict = field(default_factory=dict)
 
     @property
     def n_modes(self) -> int:
@@ -570,6 +606,21 @@ class _Guide:
     def det(self, c):
         r, rg = self.matrices(c)
         return modal_determinant(r, rg)
+
+    def det_analytic(self, c):
+        """det(u - Rg d) = det(u) D(C): the mode equation without the poles of R, analytic in C.
+
+        u and d are the up- and downgoing amplitudes at the ground of the upward-decaying solutions
+        started as P E, P the spectral projector of the top medium onto its two upward-decaying
+        waves and E the (Ex, Ey) unit columns (see :func:`count_modes`).
+        """
+        self.evaluations += 1
+        s = _sine(c)
+        f = _projector_start(layer_matrix(self.profile.top_eps, s))
+        f = _compiled_integrator()(np.ascontiguousarray(layer_matrix(self.profile.layer_eps, s)), self.profile.thickness, f)
+        up, down = _split_at_ground(f, c)
+        rg = ground_reflection(c, self.frequency_hz, *self.ground, model=self.ground_model)
+        return complex(np.linalg.det(up - rg @ down))
 
     def scalar(self, c, kind):
         """One factor of D at B0 = 0 (R diagonal): 1 - Rg_pp R_pp (TM) or 1 - Rg_tt R_tt (TE)."""
@@ -641,21 +692,36 @@ def magnetised_modes(
     n_tm: int | None = None,
     n_te: int | None = None,
     ground_model: str = "leontovich",
+    check_count: bool | None = None,
 ) -> MagnetisedModes:
     """Modes of a flat (earth-flattened) guide with a magnetised ionosphere, followed from B0 = 0.
 
-    At B0 = 0 the TM modes start from the isotropic reference (:func:`cavity.reference.modes.solve_modes`),
-    refined by Newton's method on the TM factor of D(C); the TE modes are the roots of the TE factor
-    reached by secant iterations from a lattice of starting values (0 < Re C < 0.65). Every mode
-    below ``start_attenuation_db_per_mm`` at B0 = 0 is then followed on D(C) = det(I - Rg R) while
-    the field is turned on (:func:`_continue`: geometric steps of the field from 1e-3 of it,
-    predictor and secant corrector, steps halved when a root would jump toward another). Modes
-    attenuated by more than ``max_attenuation_db_per_mm`` at the end are dropped. The field can
-    lower a mode's attenuation a lot (a TE mode of 20 dB/Mm at B0 = 0 can end below 5), so the
-    starting window is wider than the final one. Some modes have no low-loss ancestor: they come in
-    from high attenuation as the field grows (at night westward at 17.3 kHz, one reaches 4.3 dB/Mm
-    from above 30 dB/Mm at 15 % of the field); a search from a lattice of starting values at the
-    full field adds them (origin "F<n>"). A root that two modes reach is an error (a lost mode).
+    Four stages, each a published or elementary method:
+
+    1. Starts at B0 = 0: the TM modes from the isotropic reference
+       (:func:`cavity.reference.modes.solve_modes`), refined by Newton's method on the TM factor of
+       D(C); the TE modes are the roots of the TE factor reached by secant iterations from a lattice
+       of starting values (0 < Re C < 0.65). Every mode below ``start_attenuation_db_per_mm`` at
+       B0 = 0 is followed.
+    2. Continuation in the field strength (the idea of following each mode from a known solution as
+       a parameter changes, as in Morfitt and Shellman 1976; :func:`_continue`): the field fraction t
+       grows geometrically from 1e-3, a linear predictor in log t and a secant corrector; a step is
+       accepted only when every corrector lands within a trust radius of its prediction (half the
+       predicted move, at most a third of the distance to the nearest other prediction), and is
+       halved otherwise. A mode whose attenuation passes four times the window, or that turns
+       evanescent, is dropped; one that still fails at the smallest step is given up while the
+       others go on (stages 3 and 4 find it again if it matters).
+    3. A search from a lattice of starting values at the full field adds modes with no low-loss
+       ancestor at B0 = 0 (they come in from high attenuation as the field grows; origin "F<n>").
+    4. Completeness (unless ``n_tm``/``n_te`` limit the set, or ``check_count`` is False): the
+       argument principle counts the zeros of the analytic form of the mode equation inside the
+       region of the S = sin(theta) plane where 0.15 <= Re S <= 1.05 and the attenuation lies
+       between 0.005 dB/Mm and the window (:func:`count_modes`). If the count exceeds the modes found
+       there, the region is bisected (counting again in each part) until every missing root is
+       isolated and found by Newton's method (origin "A<n>"). The count and the number found are
+       returned (``counted_modes``, ``found_in_count_region``): equal when the set is complete.
+
+    A root that two modes reach after stage 2's retry is an error only if stage 4 cannot restore it.
 
     Parameters
     ----------
@@ -677,6 +743,8 @@ def magnetised_modes(
         Follow at most this many TM and TE modes (least attenuated at B0 = 0) instead.
     ground_model : {"leontovich", "fresnel"}
         See :func:`ground_reflection`.
+    check_count : bool, optional
+        Run stage 4 (default: when neither ``n_tm`` nor ``n_te`` is given).
     """
     import time
 
@@ -688,7 +756,10 @@ def magnetised_modes(
     nu = np.broadcast_to(np.asarray(collision_frequency_s, dtype=float), z.shape)
     ground = (float(ground[0]), float(ground[1]))
     k0 = 2.0 * math.pi * f / C0
-    window = 2.0 * float(max_attenuation_db_per_mm) if start_attenuation_db_per_mm is None else float(start_attenuation_db_per_mm)
+    max_att = float(max_attenuation_db_per_mm)
+    window = 2.0 * max_att if start_attenuation_db_per_mm is None else float(start_attenuation_db_per_mm)
+    if check_count is None:
+        check_count = n_tm is None and n_te is None
     n_tm = 30 if n_tm is None else int(n_tm)
     n_te = 30 if n_te is None else int(n_te)
 
@@ -714,28 +785,55 @@ def magnetised_modes(
 
     roots = [c for c, _ in starts]
     names = [name for _, name in starts]
+    status = {}
     if np.linalg.norm(b) > 0.0:
-        roots = _continue(guide_at, roots)
+        drop = 4.0 * max(window, max_att)
+        followed = _continue(guide_at, roots, attenuation, drop)
+        kept_roots: list[complex] = []
+        kept_names: list[str] = []
+        for (c, state, where), name in zip(followed, names):
+            status[name] = (state, where)
+            if c is None:
+                continue
+            if any(_same_root(c, other) for other in kept_roots):
+                status[name] = ("merged", 1.0)
+                continue
+            kept_roots.append(_canonical(c))
+            kept_names.append(name)
+        roots, names = kept_roots, kept_names
     final = guide_at(1.0)
     if np.linalg.norm(b) > 0.0:
         # Modes with no low-loss ancestor at B0 = 0 (they come in from high attenuation as the field
         # grows) are found by a search from a lattice of starting values at the full field.
         extra = 0
-        for c in _lattice_roots(final.det, attenuation, float(max_attenuation_db_per_mm)):
-            if all(abs(c - other) > 1e-6 * max(abs(c), 1e-2) for other in roots):
+        for c in _lattice_roots(final.det, attenuation, max_att):
+            if not any(_same_root(c, other) for other in roots):
                 roots.append(c)
                 extra += 1
                 names.append(f"F{extra}")
+    counted = found_in_region = -1
+    if check_count:
+        region = _count_region(k0, max_att)
+        counted, new = _complete(final, region, roots)
+        for n, c in enumerate(new):
+            roots.append(c)
+            names.append(f"A{n + 1}")
+        found_in_region = sum(1 for c in roots if _in_region(c, region))
+        if found_in_region != counted:
+            log.warning(
+                "magnetised reference: %d modes counted in the region, %d found", counted, found_in_region
+            )
     for i in range(len(roots)):
         for j in range(i):
-            if abs(roots[i] - roots[j]) < 1e-7 * max(abs(roots[i]), 1e-3):
+            if _same_root(roots[i], roots[j], 1e-7):
                 raise SolverError(
                     f"magnetised reference: modes {names[j]} and {names[i]} converged to one root "
                     f"C = {roots[i]:.6g}; a mode was lost"
                 )
     out = [_mode_quantities(final, c, k0) for c in roots]
-    kept = [i for i, q in enumerate(out) if -DB_PER_NEPER * q[0].imag * 1e6 <= max_attenuation_db_per_mm]
+    kept = [i for i, q in enumerate(out) if -DB_PER_NEPER * q[0].imag * 1e6 <= max_att]
     order = sorted(kept, key=lambda i: -out[i][0].imag)
+
     def arr(j, dtype=complex):
         return np.array([out[i][j] for i in order], dtype=dtype)
 
@@ -753,7 +851,16 @@ def magnetised_modes(
         earth_flattening=bool(earth_flattening),
         earth_radius_m=float(earth_radius_m),
         seconds=time.perf_counter() - t0,
+        counted_modes=int(counted),
+        found_in_count_region=int(found_in_region),
+        continuation=dict(status),
     )
+
+
+def _same_root(a, b, rel=1e-6):
+    """Whether two values of C are one root (the sign of C is immaterial)."""
+    a, b = _canonical(complex(a)), _canonical(complex(b))
+    return abs(a - b) < rel * max(abs(a), 1e-2)
 
 
 def _secant(fun, c, tol=1e-11, max_iter=20, max_move=0.5):
@@ -780,6 +887,8 @@ def _secant(fun, c, tol=1e-11, max_iter=20, max_move=0.5):
 #: Field fraction of the first continuation step, and the largest step in log(fraction).
 _FIRST_FRACTION = 1e-3
 _LOG_STEP = math.log(2.0)
+#: Smallest continuation step in log(fraction) before a mode counts as lost.
+_MIN_LOG_STEP = _LOG_STEP / 2.0**14
 
 
 def _lattice_roots(fun, attenuation, max_attenuation):
@@ -801,62 +910,220 @@ def _lattice_roots(fun, attenuation, max_attenuation):
     return found
 
 
-def _continue(guide_at, roots):
-    """Follow every root of D(C) from B0 = 0 to the full field (see :func:`magnetised_modes`).
+def _continue(guide_at, roots, attenuation, drop_db, max_step=_LOG_STEP):
+    """Follow every root of D(C) = det(I - Rg R) from B0 = 0 to the full field, all on one ladder of t.
 
-    The field fraction t grows geometrically from 1e-3 (where the roots are those of B0 = 0 to a few
-    parts in 1e3) to 1: the gyrofrequency passes the wave frequency at a few percent of the
-    geomagnetic field, where the roots move fastest. Predictor: linear in log t from the last two
-    steps; corrector: secant iteration on D. A step is accepted when every root converged within a
-    third of its distance to the nearest other root (from the prediction) and the roots stay
-    distinct; otherwise it is halved (down to 1/64 of a doubling).
+    Returns one (root or None, state, field fraction reached) per start, state "ok", "dropped"
+    (attenuation above ``drop_db``, or evanescent: Re S < 0.05) or "lost" (no acceptable step above
+    :data:`_MIN_LOG_STEP`; the others go on without it). The field fraction t grows geometrically
+    from 1e-3 (where the roots are those of B0 = 0 to a few parts in 1e3) to 1: the gyrofrequency
+    passes the wave frequency at a few percent of the geomagnetic field, where the roots move
+    fastest. Predictor: linear in log t from the last two accepted points; corrector: secant
+    iteration on D. A step is accepted when every root's corrector converges within a trust radius
+    of its prediction: half the predicted move (at least 2e-4), and at most a third of the distance
+    from its prediction to the nearest other root's prediction. The predictor's error falls as the
+    square of the step on a smooth path, so halving the step ends in acceptance unless a root is
+    lost; a corrector that jumps to a neighbouring root lands outside the radius. A root still
+    failing at the smallest step is given up (and searched for at the full field by the callers).
     """
-    roots = [complex(c) for c in roots]
-    history = [(math.log(_FIRST_FRACTION), list(roots))]
+    n = len(roots)
+    result = [(None, "lost", _FIRST_FRACTION)] * n
+    log_t = math.log(_FIRST_FRACTION)
     guide = guide_at(_FIRST_FRACTION)
-    first = []
-    for c in roots:
-        root, ok = _secant(guide.det, c)
-        if not ok:
-            raise SolverError(f"magnetised reference: no root near C = {c:.6g} at the first field step")
-        first.append(root)
-    roots = first
-    history = [(math.log(_FIRST_FRACTION), roots)]
-    log_t, step = math.log(_FIRST_FRACTION), _LOG_STEP
-    while log_t < -1e-12:
+    current = {}
+    for i, c in enumerate(roots):
+        try:
+            root, ok = _secant(guide.det, complex(c), max_move=0.02)
+        except SolverError:
+            ok = False
+        if ok:
+            current[i] = root
+    history = [(log_t, dict(current))]
+    step = max_step
+    while log_t < -1e-12 and current:
         new_log_t = min(log_t + step, 0.0)
         if len(history) >= 2:
             (la, ra), (lb, rb) = history[-2], history[-1]
             w = (new_log_t - lb) / (lb - la)
-            predicted = [b + w * (b - a) for a, b in zip(ra, rb)]
+            predicted = {i: rb[i] + w * (rb[i] - ra[i]) if i in ra else rb[i] for i in current}
         else:
-            predicted = list(roots)
+            predicted = dict(current)
         guide = guide_at(math.exp(new_log_t))
-        gaps = [min([abs(a - b) for j, b in enumerate(roots) if j != i] or [1.0]) for i, a in enumerate(roots)]
-        new, fine = [], True
-        for p, gap in zip(predicted, gaps):
-            root, ok = _secant(guide.det, p, max_move=gap / 3.0)
-            if not ok:
-                fine = False
-                break
-            new.append(root)
-        if fine:
-            for i in range(len(new)):
-                for j in range(i):
-                    if abs(new[i] - new[j]) < 1e-6 * max(abs(new[i]), 1e-3):
-                        fine = False
-        log.debug("continuation: t = %.5f, step %.4f, %s", math.exp(new_log_t), step, "ok" if fine else "halved")
-        if fine:
-            roots, log_t = new, new_log_t
-            history.append((log_t, roots))
-            step = min(1.5 * step, _LOG_STEP)
+        new, failed = {}, []
+        for i, p in predicted.items():
+            radius = max(0.5 * abs(p - current[i]), 2e-4)
+            others = [abs(p - q) for j, q in predicted.items() if j != i]
+            if others:
+                radius = min(radius, min(others) / 3.0)
+            try:
+                root, ok = _secant(guide.det, p, max_move=3.0 * radius)
+            except SolverError:
+                ok = False
+            if ok and abs(root - p) <= radius:
+                new[i] = root
+            else:
+                failed.append(i)
+        if not failed:
+            log_t = new_log_t
+            current = new
+            for i, c in list(current.items()):
+                if attenuation(c) > drop_db or _sine(c).real < 0.05:
+                    log.debug("continuation: C = %.6g dropped at t = %.4f", c, math.exp(log_t))
+                    result[i] = (None, "dropped", math.exp(log_t))
+                    del current[i]
+            history.append((log_t, dict(current)))
+            step = min(1.5 * step, max_step)
+            continue
+        step /= 2.0
+        if step < _MIN_LOG_STEP:
+            for i in failed:
+                log.info("continuation: root near C = %.6g lost at t = %.4f", current[i], math.exp(log_t))
+                result[i] = (None, "lost", math.exp(log_t))
+                del current[i]
+            history = [(lt, {i: c for i, c in r.items() if i in current}) for lt, r in history]
+            step = 64.0 * _MIN_LOG_STEP
+    for i, c in current.items():
+        result[i] = (c, "ok", 1.0)
+    return result
+
+
+# --------------------------------------------------------------------------------------------------
+# Completeness: the argument principle in the S plane
+# --------------------------------------------------------------------------------------------------
+
+
+#: Edges of the counting region: Re S from 0.15 to 1.05 (phase velocities 0.95-6.7 c: up to near cutoff) and attenuation
+#: from this value (dB/Mm) to the window.
+_COUNT_RE_S = (0.15, 1.05)
+_COUNT_MIN_DB_PER_MM = 0.005
+
+
+def _count_region(k0, max_attenuation_db_per_mm):
+    """(Re S min, Re S max, Im S min, Im S max) of the counting region."""
+    to_im = lambda db: -db / (DB_PER_NEPER * k0 * 1e6)  # noqa: E731
+    return (_COUNT_RE_S[0], _COUNT_RE_S[1], to_im(max_attenuation_db_per_mm), to_im(_COUNT_MIN_DB_PER_MM))
+
+
+def _cos_of_sine(s):
+    """C = sqrt(1 - S^2), principal branch: for Re S > 0 > Im S it lies in the first quadrant."""
+    return np.sqrt(1.0 - complex(s) * complex(s))
+
+
+def _in_region(c, region):
+    s = _sine(_canonical(c))
+    return region[0] <= s.real <= region[1] and region[2] <= s.imag <= region[3]
+
+
+def _edge_turn(fun, a, b, fa, fb, depth=0, max_depth=12):
+    """Change of arg fun along the segment a -> b, bisected until each piece turns by < pi/4."""
+    turn = float(np.angle(fb / fa))
+    if abs(turn) <= math.pi / 4.0:
+        return turn
+    if depth >= max_depth:
+        raise SolverError(
+            f"magnetised reference: the mode count cannot resolve the phase near S = {a:.6g} "
+            "(a root on the counting contour)"
+        )
+    m = 0.5 * (a + b)
+    fm = fun(m)
+    return _edge_turn(fun, a, m, fa, fm, depth + 1, max_depth) + _edge_turn(fun, m, b, fm, fb, depth + 1, max_depth)
+
+
+def _winding(fun, region, phase_rate, points_per_edge=8):
+    """Number of zeros of ``fun`` (analytic in S) inside the S rectangle ``region``, by the argument principle.
+
+    ``phase_rate`` bounds |d arg fun / dC| away from the zeros (about 2 k0 times the height of the
+    top level: the phase path of a wave up to it and back). Each edge is sampled so that C moves by
+    at most pi / 8 of phase between samples, then bisected where the phase still turns by more
+    than pi / 4, so that no whole turn hides between two samples.
+    """
+    x0, x1, y0, y1 = region
+    corners = [complex(x0, y0), complex(x1, y0), complex(x1, y1), complex(x0, y1), complex(x0, y0)]
+    total = 0.0
+    for a, b in zip(corners[:-1], corners[1:]):
+        coarse = a + (b - a) * np.linspace(0.0, 1.0, 8 * points_per_edge + 1)
+        cs = np.array([_cos_of_sine(p) for p in coarse])
+        pieces = np.maximum(1, np.ceil(np.abs(np.diff(cs)) * phase_rate / (math.pi / 8.0)).astype(int))
+        pts = np.concatenate(
+            [coarse[k] + (coarse[k + 1] - coarse[k]) * np.arange(n) / n for k, n in enumerate(pieces)] + [[b]]
+        )
+        vals = [fun(p) for p in pts]
+        for k in range(pts.size - 1):
+            total += _edge_turn(fun, pts[k], pts[k + 1], vals[k], vals[k + 1])
+    n = total / (2.0 * math.pi)
+    if abs(n - round(n)) > 0.05:
+        raise SolverError(f"magnetised reference: the mode count {n:.3f} is not an integer")
+    return int(round(n))
+
+
+def _phase_rate(guide: _Guide) -> float:
+    """2 k0 h_top: the phase path (rad per unit C) of a wave from the ground to the top level and back."""
+    return 2.0 * float(np.sum(guide.profile.thickness))
+
+
+def count_modes(guide: _Guide, region) -> int:
+    """Zeros of the mode equation inside an S rectangle (Re S min, Re S max, Im S min, Im S max).
+
+    The argument principle: the zeros of an analytic function inside a closed contour number the
+    turns of its phase along the contour divided by 2 pi. D(C) = det(I - Rg R) has poles where the
+    ionosphere's upgoing-amplitude matrix is singular, so the count uses
+    det(u - Rg d) = det(u) D, u and d the up- and downgoing amplitudes of the upward-decaying
+    solutions started from the spectral projector of the top medium (analytic in S, whatever the
+    ordering of its eigenvalues); the re-orthonormalisations on the way down multiply this
+    determinant by positive numbers only, so they do not turn its phase. S rectangles with
+    Im S < 0 < Re S map into the first quadrant of C away from C = 0, where C = sqrt(1 - S^2) is
+    analytic.
+    """
+    fun = lambda s: guide.det_analytic(_cos_of_sine(s))  # noqa: E731
+    return _winding(fun, region, _phase_rate(guide))
+
+
+def _complete(guide: _Guide, region, roots, max_depth=10):
+    """Count the zeros in ``region``; find those missing from ``roots`` by bisection of the region.
+
+    Returns (count, new roots). A part whose count exceeds the known roots inside it is searched by
+    Newton's method from its centre (the root must land inside the part) and, failing that, halved
+    across its longer side (Im S weighted by 10, the shape of the mode pattern) and searched again.
+    """
+    fun = lambda s: guide.det_analytic(_cos_of_sine(s))  # noqa: E731
+    rate = _phase_rate(guide)
+    total = _winding(fun, region, rate)
+    known = [c for c in roots]
+    new = []
+
+    def inside(c, part):
+        return _in_region(c, part)
+
+    def search(part, count, depth):
+        have = sum(1 for c in known if inside(c, part))
+        if count <= have:
+            return
+        x0, x1, y0, y1 = part
+        centre = _cos_of_sine(complex(0.5 * (x0 + x1), 0.5 * (y0 + y1)))
+        size = abs(_cos_of_sine(complex(x1, y1)) - _cos_of_sine(complex(x0, y0)))
+        if count - have == 1 or depth >= max_depth:
+            root, ok = _newton(guide.det, centre, max_step=0.5 * size)
+            if ok:
+                root = _canonical(root)
+                if inside(root, part) and not any(_same_root(root, c) for c in known):
+                    known.append(root)
+                    new.append(root)
+                    if count - have == 1:
+                        return
+        if depth >= max_depth:
+            return
+        if (x1 - x0) >= 10.0 * (y1 - y0):
+            xm = 0.5 * (x0 + x1)
+            halves = [(x0, xm, y0, y1), (xm, x1, y0, y1)]
         else:
-            step /= 2.0
-            if step < _LOG_STEP / 64.0:
-                raise SolverError(
-                    f"magnetised reference: mode continuation failed at {math.exp(new_log_t):.4f} of the field"
-                )
-    return roots
+            ym = 0.5 * (y0 + y1)
+            halves = [(x0, x1, y0, ym), (x0, x1, ym, y1)]
+        first = _winding(fun, halves[0], rate, points_per_edge=2)
+        search(halves[0], first, depth + 1)
+        search(halves[1], count - first, depth + 1)
+
+    search(tuple(region), total, 0)
+    return total, new
 
 
 def _mode_quantities(guide: _Guide, c, k0):
