@@ -77,10 +77,12 @@ def igrf_enu(lat_deg, lon_deg, altitude_km, epoch) -> tuple[np.ndarray, np.ndarr
     when = epoch if isinstance(epoch, datetime) else datetime(epoch.year, epoch.month, epoch.day)
     if when.tzinfo is not None:
         when = when.astimezone(timezone.utc).replace(tzinfo=None)
-    be, bn, bu = ppigrf.igrf(np.broadcast_to(lon, shape), np.broadcast_to(lat, shape),
-                             np.broadcast_to(h, shape), when)
-    return (np.asarray(be, float).reshape(shape), np.asarray(bn, float).reshape(shape),
-            np.asarray(bu, float).reshape(shape))
+    be, bn, bu = ppigrf.igrf(np.broadcast_to(lon, shape), np.broadcast_to(lat, shape), np.broadcast_to(h, shape), when)
+    return (
+        np.asarray(be, float).reshape(shape),
+        np.asarray(bn, float).reshape(shape),
+        np.asarray(bu, float).reshape(shape),
+    )
 
 
 def to_path_frame(be, bn, bu, heading_deg):

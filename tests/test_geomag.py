@@ -105,7 +105,7 @@ preset = "night"
 [ground]
 kind = "sea"
 """
-_BY_RANGE = _POSITIONED.replace('latitude_deg = 30.0\nlongitude_deg = -10.0', 'range_km = 900.0')
+_BY_RANGE = _POSITIONED.replace("latitude_deg = 30.0\nlongitude_deg = -10.0", "range_km = 900.0")
 
 
 def _load(text):
@@ -138,7 +138,9 @@ def test_epoch_from_utc_then_date():
 
 
 def test_uniform_round_trip_and_frame():
-    s = _load(_BY_RANGE + '[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = 90.0\n')
+    s = _load(
+        _BY_RANGE + '[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = 90.0\n'
+    )
     assert _load(s.to_toml()) == s
     from cavity.paths import build_paths
 
@@ -148,19 +150,29 @@ def test_uniform_round_trip_and_frame():
     assert f.b_z_nt[0] == pytest.approx(-40000 * math.sin(math.radians(20)))
 
 
-@pytest.mark.parametrize("section, message", [
-    ('[geomagnetic]\nmodel = "dipole"\n', 'geomagnetic.model = "dipole" is not a field model'),
-    ('[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 95.0\nazimuth_deg = 0.0\n',
-     "geomagnetic.dip_deg = 95.0 is outside the allowed range -90 to 90"),
-    ('[geomagnetic]\nmodel = "uniform"\ndip_deg = 10.0\nazimuth_deg = 0.0\n', "geomagnetic.strength_nt is missing"),
-    ('[geomagnetic]\nmodel = "uniform"\nstrength_nt = 1.0\ndip_deg = 10.0\nazimuth_deg = 360.0\n',
-     "geomagnetic.azimuth_deg = 360.0 is outside"),
-    ('[geomagnetic]\nstrength_nt = 40000.0\n', 'is only used with model = "uniform"'),
-    ('[geomagnetic]\ndate = 2031-01-01\n', "geomagnetic.date = 2031-01-01 is outside the allowed range"),
-    ('[geomagnetic]\ndate = "2026-01-01"\n', "geomagnetic.date = \"2026-01-01\" must be a date"),
-    ('[geomagnetic]\naltitude_km = 20.0\n', "geomagnetic.altitude_km = 20.0 is outside the allowed range 50 to 150 km"),
-    ('[geomagnetic]\nmodle = "igrf"\n', "geomagnetic.modle: unknown key; did you mean 'model'?"),
-])
+@pytest.mark.parametrize(
+    "section, message",
+    [
+        ('[geomagnetic]\nmodel = "dipole"\n', 'geomagnetic.model = "dipole" is not a field model'),
+        (
+            '[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 95.0\nazimuth_deg = 0.0\n',
+            "geomagnetic.dip_deg = 95.0 is outside the allowed range -90 to 90",
+        ),
+        ('[geomagnetic]\nmodel = "uniform"\ndip_deg = 10.0\nazimuth_deg = 0.0\n', "geomagnetic.strength_nt is missing"),
+        (
+            '[geomagnetic]\nmodel = "uniform"\nstrength_nt = 1.0\ndip_deg = 10.0\nazimuth_deg = 360.0\n',
+            "geomagnetic.azimuth_deg = 360.0 is outside",
+        ),
+        ("[geomagnetic]\nstrength_nt = 40000.0\n", 'is only used with model = "uniform"'),
+        ("[geomagnetic]\ndate = 2031-01-01\n", "geomagnetic.date = 2031-01-01 is outside the allowed range"),
+        ('[geomagnetic]\ndate = "2026-01-01"\n', 'geomagnetic.date = "2026-01-01" must be a date'),
+        (
+            "[geomagnetic]\naltitude_km = 20.0\n",
+            "geomagnetic.altitude_km = 20.0 is outside the allowed range 50 to 150 km",
+        ),
+        ('[geomagnetic]\nmodle = "igrf"\n', "geomagnetic.modle: unknown key; did you mean 'model'?"),
+    ],
+)
 def test_bad_sections_give_one_line(section, message):
     from cavity.errors import ScenarioError
 
@@ -172,7 +184,9 @@ def test_bad_sections_give_one_line(section, message):
 def test_igrf_needs_directions():
     from cavity.errors import ScenarioError
 
-    with pytest.raises(ScenarioError, match=r'receiver\[1\].range_km = 900.0 gives no direction, but geomagnetic model = "igrf"'):
+    with pytest.raises(
+        ScenarioError, match=r'receiver\[1\].range_km = 900.0 gives no direction, but geomagnetic model = "igrf"'
+    ):
         _load(_BY_RANGE + '[geomagnetic]\nmodel = "igrf"\n')
 
 
@@ -182,7 +196,9 @@ def test_solve_key_changes_with_the_field():
 
     keys = set()
     for az in (90.0, 270.0):
-        s = _load(_BY_RANGE + f'[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = {az}\n')
+        s = _load(
+            _BY_RANGE + f'[geomagnetic]\nmodel = "uniform"\nstrength_nt = 40000.0\ndip_deg = 20.0\nazimuth_deg = {az}\n'
+        )
         keys.add(solve_key(s, build_paths(s)[0]))
     s = _load(_BY_RANGE)
     keys.add(solve_key(s, build_paths(s)[0]))

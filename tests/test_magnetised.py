@@ -23,8 +23,34 @@ F32 = np.float32
 # ---------------------------------------------------------------------------------------------
 
 
-def np_step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi,
-                 jz0, b_zh, c_zh, kd_zh, psi_hr, ir0, b_rh, c_rh, kd_rh, psi_hz, acc_re, acc_im, cos_h, sin_h):
+def np_step_h_te(
+    hr,
+    hz,
+    ephi,
+    inv_dz,
+    ch,
+    qp,
+    qm,
+    ha,
+    hb,
+    sib_q,
+    sib_w,
+    sib_psi,
+    jz0,
+    b_zh,
+    c_zh,
+    kd_zh,
+    psi_hr,
+    ir0,
+    b_rh,
+    c_rh,
+    kd_rh,
+    psi_hz,
+    acc_re,
+    acc_im,
+    cos_h,
+    sin_h,
+):
     """mu0 dHr/dt = dEphi/dz (ground row: Ephi(0) = Zs Hr), mu0 dHz/dt = -(1/r) d(r Ephi)/dr."""
     nr, nz = hr.shape
     dz_e = (ephi[:, 1:] - ephi[:, :-1]) * inv_dz  # at the Hr rows
@@ -45,9 +71,45 @@ def np_step_h_te(hr, hz, ephi, inv_dz, ch, qp, qm, ha, hb, sib_q, sib_w, sib_psi
     acc_im -= hr[:, 0][None, :] * sin_h[:, None]
 
 
-def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp0, coef, tab, shift, wsq,
-                  uz, ur, up, jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz, ir0, b_re, c_re, kd_re, psi_re, psi_pr,
-                  src, acc_re, acc_im, cos_e, sin_e):
+def np_step_e_mag(
+    ez,
+    er,
+    ephi,
+    hp,
+    hr,
+    hz,
+    rp,
+    rm,
+    inv_dr,
+    inv_dz,
+    cez,
+    cer,
+    jp0,
+    coef,
+    tab,
+    shift,
+    wsq,
+    uz,
+    ur,
+    up,
+    jz0,
+    b_ze,
+    c_ze,
+    kd_ze,
+    psi_ze,
+    psi_pz,
+    ir0,
+    b_re,
+    c_re,
+    kd_re,
+    psi_re,
+    psi_pr,
+    src,
+    acc_re,
+    acc_im,
+    cos_e,
+    sin_e,
+):
     """Curls of H, stretched in the absorbers, then one local trapezoidal update per triple
     (Ez at (i, j+1/2), Ephi at (i, j), Er at (i + shift/2, j)) in the plasma rows."""
     nr, nz = ez.shape
@@ -116,7 +178,7 @@ def np_step_e_mag(ez, er, ephi, hp, hr, hz, rp, rm, inv_dr, inv_dz, cez, cer, jp
         u_new["r"][nr - 1] = u
     ez[:, jp0:], er[:, jp0:nz], ephi[:, jp0:nz] = e_new["z"][:, jp0:], e_new["r"][:, jp0:nz], e_new["p"][:, jp0:nz]
     uz[:], ur[:], up[:] = u_new["z"], u_new["r"], u_new["p"]
-    ez[0, :src.size] -= src
+    ez[0, : src.size] -= src
     acc_re += ez[:, 0][None, :] * cos_e[:, None]
     acc_im -= ez[:, 0][None, :] * sin_e[:, None]
 
@@ -126,8 +188,17 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
     pos = lambda *shape: RNG.uniform(0.2, 0.9, shape).astype(F32)  # noqa: E731
     kd = lambda n: 1.0 / (1 + pos(n)).astype(np.float64) - 1.0  # noqa: E731
     n_pl, n_top, n_far = nz - jp0, nz - jz0, nr - ir0
-    f = dict(ez=r(nr, nz), er=r(nr, nz + 1), ephi=r(nr, nz + 1), hp=r(nr, nz), hr=r(nr, nz), hz=r(nr, nz + 1),
-             uz=r(nr, n_pl), ur=r(nr, n_pl), up=r(nr, n_pl))
+    f = dict(
+        ez=r(nr, nz),
+        er=r(nr, nz + 1),
+        ephi=r(nr, nz + 1),
+        hp=r(nr, nz),
+        hr=r(nr, nz),
+        hz=r(nr, nz + 1),
+        uz=r(nr, n_pl),
+        ur=r(nr, n_pl),
+        up=r(nr, n_pl),
+    )
     for name in ("er", "ephi", "hz"):
         f[name][:, 0] = f[name][:, -1] = 0
     f["ephi"][0] = 0
@@ -141,27 +212,69 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
     present = np.ones((ntab, n_pl, 3), bool)
     present[1, :, 1] = False  # an axis-like triple without Ephi
     present[0, :, 1:] = False  # the lone Er column (shift -1)
-    coef = np.ascontiguousarray(media.magnetised_coefficients(eps, wp2, nu, gyro, present, 0.5).transpose(0, 2, 1).astype(F32))
+    coef = np.ascontiguousarray(
+        media.magnetised_coefficients(eps, wp2, nu, gyro, present, 0.5).transpose(0, 2, 1).astype(F32)
+    )
     tab = RNG.integers(2, ntab, nr).astype(np.int32)
     tab[0] = 1
     wsq = RNG.uniform(0.5, 2.0, (3, nr)).astype(F32)
-    h = dict(inv_dz=F32(1.7), ch=F32(0.3), qp=pos(nr), qm=pos(nr), ha=pos(nr), hb=pos(nr) * F32(0.3),
-             sib_q=RNG.uniform(0.1, 0.99, nk), sib_w=RNG.standard_normal((nr, nk)) * 0.1,
-             sib_psi=RNG.standard_normal((nr, nk)) * 0.01,
-             jz0=jz0, b_zh=pos(n_top), c_zh=-pos(n_top) * F32(0.1), kd_zh=kd(n_top), psi_hr=r(nr, n_top),
-             ir0=ir0, b_rh=pos(n_far), c_rh=-pos(n_far) * F32(0.1), kd_rh=kd(n_far), psi_hz=r(n_far, nz + 1),
-             acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
-             cos_h=RNG.standard_normal(nf), sin_h=RNG.standard_normal(nf))
+    h = dict(
+        inv_dz=F32(1.7),
+        ch=F32(0.3),
+        qp=pos(nr),
+        qm=pos(nr),
+        ha=pos(nr),
+        hb=pos(nr) * F32(0.3),
+        sib_q=RNG.uniform(0.1, 0.99, nk),
+        sib_w=RNG.standard_normal((nr, nk)) * 0.1,
+        sib_psi=RNG.standard_normal((nr, nk)) * 0.01,
+        jz0=jz0,
+        b_zh=pos(n_top),
+        c_zh=-pos(n_top) * F32(0.1),
+        kd_zh=kd(n_top),
+        psi_hr=r(nr, n_top),
+        ir0=ir0,
+        b_rh=pos(n_far),
+        c_rh=-pos(n_far) * F32(0.1),
+        kd_rh=kd(n_far),
+        psi_hz=r(n_far, nz + 1),
+        acc_re=np.zeros((nf, nr)),
+        acc_im=np.zeros((nf, nr)),
+        cos_h=RNG.standard_normal(nf),
+        sin_h=RNG.standard_normal(nf),
+    )
     h["psi_hz"][:, 0] = h["psi_hz"][:, -1] = 0
     rp, rm = pos(nr), pos(nr)
     rm[0] = 0
-    e = dict(rp=rp, rm=rm, inv_dr=F32(1.3), inv_dz=F32(1.7), cez=pos(nz) * F32(0.3), cer=pos(nz + 1) * F32(0.3),
-             jp0=jp0, coef=coef, tab=tab, wsq=wsq,
-             jz0=jz0, b_ze=pos(n_top), c_ze=-pos(n_top) * F32(0.1), kd_ze=kd(n_top), psi_ze=r(nr, n_top),
-             psi_pz=r(nr, n_top), ir0=ir0, b_re=pos(n_far), c_re=-pos(n_far) * F32(0.1), kd_re=kd(n_far),
-             psi_re=r(n_far, nz), psi_pr=r(n_far, nz + 1), src=np.array([0.05, -0.02], F32),
-             acc_re=np.zeros((nf, nr)), acc_im=np.zeros((nf, nr)),
-             cos_e=RNG.standard_normal(nf), sin_e=RNG.standard_normal(nf))
+    e = dict(
+        rp=rp,
+        rm=rm,
+        inv_dr=F32(1.3),
+        inv_dz=F32(1.7),
+        cez=pos(nz) * F32(0.3),
+        cer=pos(nz + 1) * F32(0.3),
+        jp0=jp0,
+        coef=coef,
+        tab=tab,
+        wsq=wsq,
+        jz0=jz0,
+        b_ze=pos(n_top),
+        c_ze=-pos(n_top) * F32(0.1),
+        kd_ze=kd(n_top),
+        psi_ze=r(nr, n_top),
+        psi_pz=r(nr, n_top),
+        ir0=ir0,
+        b_re=pos(n_far),
+        c_re=-pos(n_far) * F32(0.1),
+        kd_re=kd(n_far),
+        psi_re=r(n_far, nz),
+        psi_pr=r(n_far, nz + 1),
+        src=np.array([0.05, -0.02], F32),
+        acc_re=np.zeros((nf, nr)),
+        acc_im=np.zeros((nf, nr)),
+        cos_e=RNG.standard_normal(nf),
+        sin_e=RNG.standard_normal(nf),
+    )
     e["psi_pz"][0] = 0
     e["psi_pr"][:, 0] = e["psi_pr"][:, -1] = 0
     return f, h, e
@@ -177,8 +290,25 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
     fk, hk, ek = _copy(fields), _copy(h), _copy(e)
     fn, hn, en = _copy(fields), _copy(h), _copy(e)
     nr = fields["ez"].shape[0]
-    e_keys = ("jz0", "b_ze", "c_ze", "kd_ze", "psi_ze", "psi_pz", "ir0", "b_re", "c_re", "kd_re", "psi_re",
-              "psi_pr", "src", "acc_re", "acc_im", "cos_e", "sin_e")
+    e_keys = (
+        "jz0",
+        "b_ze",
+        "c_ze",
+        "kd_ze",
+        "psi_ze",
+        "psi_pz",
+        "ir0",
+        "b_re",
+        "c_re",
+        "kd_re",
+        "psi_re",
+        "psi_pr",
+        "src",
+        "acc_re",
+        "acc_im",
+        "cos_e",
+        "sin_e",
+    )
     f_, h_, e_ = fk, hk, ek  # the kernels' argument groups hold these arrays (updated in place)
     no_coef = np.zeros((0, 0), F32)
     te = K.FieldsTE(f_["ephi"], f_["hr"], f_["hz"], f_["up"])
@@ -202,9 +332,29 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
         K.step_e_mag(six, te, curl_e, plasma, top_r, top_p, far_z, far_p, e_["src"], dft_e, nr)
         if shift < 0:
             K.step_er_alone(six, curl_e, plasma, 0, top_r, nr - 1)
-        np_step_e_mag(fn["ez"], fn["er"], fn["ephi"], fn["hp"], fn["hr"], fn["hz"], en["rp"], en["rm"], en["inv_dr"],
-                      en["inv_dz"], en["cez"], en["cer"], en["jp0"], en["coef"], en["tab"], shift, en["wsq"],
-                      fn["uz"], fn["ur"], fn["up"], *[en[k] for k in e_keys])
+        np_step_e_mag(
+            fn["ez"],
+            fn["er"],
+            fn["ephi"],
+            fn["hp"],
+            fn["hr"],
+            fn["hz"],
+            en["rp"],
+            en["rm"],
+            en["inv_dr"],
+            en["inv_dz"],
+            en["cez"],
+            en["cer"],
+            en["jp0"],
+            en["coef"],
+            en["tab"],
+            shift,
+            en["wsq"],
+            fn["uz"],
+            fn["ur"],
+            fn["up"],
+            *[en[k] for k in e_keys],
+        )
     for name in ("ez", "er", "ephi", "hr", "hz", "uz", "ur", "up"):
         np.testing.assert_allclose(fk[name], fn[name], rtol=2e-4, atol=2e-6, err_msg=name)
     for name in ("sib_psi", "psi_hr", "psi_hz", "acc_re", "acc_im"):
@@ -215,22 +365,43 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
 
 def test_last_active_column_te_sees_every_array():
     nr, nz, nzp, nrp, ir0 = 12, 8, 3, 4, 8
-    arrays = dict(ephi=np.zeros((nr, nz + 1), F32), hr=np.zeros((nr, nz), F32), hz=np.zeros((nr, nz + 1), F32),
-                  jphi=np.zeros((nr, 4), F32), psi_hr=np.zeros((nr, nzp), F32), psi_pz=np.zeros((nr, nzp), F32),
-                  sib=np.zeros((nr, 3)), psi_hz=np.zeros((nrp, nz + 1), F32), psi_pr=np.zeros((nrp, nz + 1), F32))
+    arrays = dict(
+        ephi=np.zeros((nr, nz + 1), F32),
+        hr=np.zeros((nr, nz), F32),
+        hz=np.zeros((nr, nz + 1), F32),
+        jphi=np.zeros((nr, 4), F32),
+        psi_hr=np.zeros((nr, nzp), F32),
+        psi_pz=np.zeros((nr, nzp), F32),
+        sib=np.zeros((nr, 3)),
+        psi_hz=np.zeros((nrp, nz + 1), F32),
+        psi_pr=np.zeros((nrp, nz + 1), F32),
+    )
 
     def last():
         a = arrays
         none = np.zeros(0, F32)
         layer = lambda start, psi: K.Absorber(start, none, none, none.astype(float), psi, np.zeros((0, 0), F32))  # noqa: E731
-        return K.last_active_column_te(nr - 1, K.FieldsTE(a["ephi"], a["hr"], a["hz"], a["jphi"]),
-                                       K.GroundMemory(np.zeros(3), np.zeros((nr, 3)), a["sib"]),
-                                       layer(nz - nzp, a["psi_hr"]), layer(ir0, a["psi_hz"]),
-                                       layer(nz - nzp, a["psi_pz"]), layer(ir0, a["psi_pr"]))
+        return K.last_active_column_te(
+            nr - 1,
+            K.FieldsTE(a["ephi"], a["hr"], a["hz"], a["jphi"]),
+            K.GroundMemory(np.zeros(3), np.zeros((nr, 3)), a["sib"]),
+            layer(nz - nzp, a["psi_hr"]),
+            layer(ir0, a["psi_hz"]),
+            layer(nz - nzp, a["psi_pz"]),
+            layer(ir0, a["psi_pr"]),
+        )
 
     assert last() == -1
-    for name, col in (("hr", 1), ("ephi", 2), ("jphi", 3), ("psi_pz", 4), ("sib", 5), ("hz", 6), ("psi_hz", 9),
-                      ("psi_pr", 10)):
+    for name, col in (
+        ("hr", 1),
+        ("ephi", 2),
+        ("jphi", 3),
+        ("psi_pz", 4),
+        ("sib", 5),
+        ("hz", 6),
+        ("psi_hz", 9),
+        ("psi_pr", 10),
+    ):
         row = col - ir0 if name in ("psi_hz", "psi_pr") else col
         arrays[name][row, -1] = 1e-38
         assert last() == col, name
@@ -245,8 +416,9 @@ def test_coefficients_without_field_are_the_isotropic_update():
     # B0 = 0: the vector equation is three copies of dJ/dt = eps wp^2 E - nu J (physics), so the
     # update must be the isotropic trapezoidal one of media.plasma_coefficients per component.
     eps, wp2, nu, dt = 1.1e-11, 3e12, 2e6, 5e-7
-    q = media.magnetised_coefficients(np.full(3, eps), np.full(3, wp2), np.full(3, nu), np.zeros(3),
-                                      np.ones(3, bool), dt)
+    q = media.magnetised_coefficients(
+        np.full(3, eps), np.full(3, wp2), np.full(3, nu), np.zeros(3), np.ones(3, bool), dt
+    )
     pa, pb, pc, qa, qb = media.plasma_coefficients(eps, wp2, nu, dt)
     t, w, g = q[:9].reshape(3, 3), q[9:18].reshape(3, 3), q[18:]
     assert np.allclose(t - np.diag(np.diag(t)), 0) and np.allclose(w - np.diag(np.diag(w)), 0)
@@ -267,9 +439,14 @@ def test_coefficients_give_a_contraction_for_any_density_collision_and_field():
     # the reason the update is stable for any omega_p dt, nu dt, omega_b dt.
     rng = np.random.default_rng(4)
     n = 400
-    q = media.magnetised_coefficients(rng.uniform(1e-11, 2e-11, (n, 3)), 10 ** rng.uniform(0, 16, (n, 3)),
-                                      10 ** rng.uniform(2, 8, (n, 3)), rng.normal(0, 1e7, (n, 3)),
-                                      np.ones((n, 3), bool), 1e-6)
+    q = media.magnetised_coefficients(
+        rng.uniform(1e-11, 2e-11, (n, 3)),
+        10 ** rng.uniform(0, 16, (n, 3)),
+        10 ** rng.uniform(2, 8, (n, 3)),
+        rng.normal(0, 1e7, (n, 3)),
+        np.ones((n, 3), bool),
+        1e-6,
+    )
     norms = np.linalg.norm(q[:, :9].reshape(n, 3, 3), ord=2, axis=(1, 2))
     assert norms.max() <= 1.0 + 1e-9
 
@@ -313,8 +490,14 @@ def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, pe
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
-    medium = eng.Medium.uniform(conductivity, permittivity, z, profiles.electron_density(z, 85.1, 0.63),
-                                profiles.collision_frequency(z), magnetic_field_t=field_t)
+    medium = eng.Medium.uniform(
+        conductivity,
+        permittivity,
+        z,
+        profiles.electron_density(z, 85.1, 0.63),
+        profiles.collision_frequency(z),
+        magnetic_field_t=field_t,
+    )
     # the six-component kernels are second-order Yee: compare with the isotropic engine at that order
     settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=range_m, dr_m=cell, dz_m=cell, stencil_order=2)
     return medium, settings
@@ -350,8 +533,22 @@ def test_skipping_unreached_columns_is_exact_with_the_field():
     assert a.steps == b.steps
     np.testing.assert_array_equal(a.ez, b.ez)
     np.testing.assert_array_equal(a.hr, b.hr)
-    for name in ("ez", "er", "hp", "ephi", "hr", "hz", "jz", "jr", "jphi", "psi_hr", "psi_pz", "psi_hz", "psi_pr",
-                 "sib_psi_r"):
+    for name in (
+        "ez",
+        "er",
+        "hp",
+        "ephi",
+        "hr",
+        "hz",
+        "jz",
+        "jr",
+        "jphi",
+        "psi_hr",
+        "psi_pz",
+        "psi_hz",
+        "psi_pr",
+        "sib_psi_r",
+    ):
         np.testing.assert_array_equal(getattr(tracked, name), getattr(whole, name), err_msg=name)
 
 
@@ -361,8 +558,16 @@ def _dense_slab_run(field_t, steps):
     z = np.arange(0.0, 60e3, 250.0)
     ne = np.where(z >= 10e3, 1e11, 0.0)  # omega_p dt = 19 at dt = 1.07 us
     nu = np.full(z.size, 1e5)
-    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=10e3, top_m=20e3, dr_m=500.0, dz_m=500.0,
-                            earth_curvature=False, convergence_db=0.0, max_duration_s=steps * 1.0662e-6)
+    settings = eng.Settings(
+        frequencies_hz=(20e3,),
+        max_range_m=10e3,
+        top_m=20e3,
+        dr_m=500.0,
+        dz_m=500.0,
+        earth_curvature=False,
+        convergence_db=0.0,
+        max_duration_s=steps * 1.0662e-6,
+    )
     sim = eng.Simulation(eng.Medium.uniform(1e-3, 10.0, z, ne, nu, magnetic_field_t=field_t), settings)
     dt = sim.plan.dt_s
     assert math.sqrt(sim.wp2_max) * dt > 15
@@ -400,7 +605,7 @@ radiated_power_kw = 100.0
 name = "R"
 range_km = {range_km}
 [ionosphere]
-preset = "{'night' if night else 'day'}"
+preset = "{"night" if night else "day"}"
 [ground]
 kind = "{ground}"
 [geomagnetic]

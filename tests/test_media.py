@@ -102,7 +102,7 @@ def _cpml_1d_reflection(freqs, n_pml=20, cell=500.0, steps=6000):
             dh = (h[1:] - h[:-1]) / cell
             e[1:-1] -= dt / EPS0 * dh
             if with_pml:
-                dd = dh[n - 1:]
+                dd = dh[n - 1 :]
                 psi_e[:] = b_e * psi_e + c_e * dd
                 e[n:-1] -= dt / EPS0 * ((1 / k_e - 1) * dd + psi_e)
             e[src] += math.exp(-0.5 * ((t - 5 * tau) / tau) ** 2) * math.sin(2 * math.pi * 12e3 * (t - 5 * tau))

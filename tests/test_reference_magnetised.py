@@ -231,7 +231,9 @@ def test_zero_field_equals_isotropic_reference(profile, ground, f_hz):
     ne, nu = wait_spies(z, *profile)
     eps = modes.ionosphere_permittivity(z, ne, nu, f_hz)
     iso = modes.solve_modes(z, eps, f_hz, dipole.surface_impedance(f_hz, *ground), n_functions=0)
-    mag = mg.magnetised_modes(z, ne, nu, [0.0, 0.0, 0.0], f_hz, ground=ground, n_tm=4, n_te=0, max_attenuation_db_per_mm=1e3)
+    mag = mg.magnetised_modes(
+        z, ne, nu, [0.0, 0.0, 0.0], f_hz, ground=ground, n_tm=4, n_te=0, max_attenuation_db_per_mm=1e3
+    )
     assert mag.origin == ("TM1", "TM2", "TM3", "TM4")
     # Modes below 50 dB/Mm (the ones that matter beyond a few hundred km): the tolerances;
     # the steep fourth mode of the day guide (about 95 dB/Mm at 13.7 kHz) to 1e-4 relative (both
@@ -245,8 +247,13 @@ def test_zero_field_equals_isotropic_reference(profile, ground, f_hz):
     r = np.linspace(300e3, 3000e3, 28)
     keep = iso.attenuation_db_per_mm[:4].max() + 1e-9
     iso4 = modes.ModeSet(
-        iso.frequency_hz, iso.altitude_m, iso.wavenumber[iso.attenuation_db_per_mm <= keep],
-        iso.excitation[iso.attenuation_db_per_mm <= keep], iso.functions, iso.permittivity, iso.surface_impedance_ohm,
+        iso.frequency_hz,
+        iso.altitude_m,
+        iso.wavenumber[iso.attenuation_db_per_mm <= keep],
+        iso.excitation[iso.attenuation_db_per_mm <= keep],
+        iso.functions,
+        iso.permittivity,
+        iso.surface_impedance_ohm,
     )
     ez = mg.ground_field(mag, r, spherical_spreading=False)
     want = modes.ground_field(iso4, r)

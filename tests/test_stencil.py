@@ -33,7 +33,7 @@ def test_fourth_order_symbol_matches_its_taylor_series():
         s = stencil.spatial_symbol(x, 1.0, 4)
         assert s / (x / 2) - 1 == pytest.approx(-3 * x**4 / 640, rel=0.02)
         yee = stencil.spatial_symbol(x, 1.0, 2)
-        assert yee / (x / 2) - 1 == pytest.approx(-x**2 / 24, rel=0.02)
+        assert yee / (x / 2) - 1 == pytest.approx(-(x**2) / 24, rel=0.02)
 
 
 def test_tables_act_on_a_plane_wave_as_the_derived_symbol():
@@ -51,13 +51,17 @@ def test_tables_act_on_a_plane_wave_as_the_derived_symbol():
         r = np.arange(nr)[:, None] * dr
         z = (np.arange(nz)[None, :] + 0.5) * dz
         ez = np.exp(-1j * (kr * r + kz * z))
-        h_from_ez = stencil.curl_e(st, ez.real, np.zeros((nr, nz + 1))) + 1j * stencil.curl_e(st, ez.imag, np.zeros((nr, nz + 1)))
+        h_from_ez = stencil.curl_e(st, ez.real, np.zeros((nr, nz + 1))) + 1j * stencil.curl_e(
+            st, ez.imag, np.zeros((nr, nz + 1))
+        )
         i, j = 30, 30
         ratio = h_from_ez[i, j] / np.exp(-1j * (kr * (i + 0.5) * dr + kz * (j + 0.5) * dz))
         assert ratio == pytest.approx(-2j * stencil.spatial_symbol(kr, dr, 4), rel=1e-6)  # float32 tables
         ze = np.arange(nz + 1)[None, :] * dz
         er = np.exp(-1j * (kr * (r + dr / 2) + kz * ze))
-        h_from_er = stencil.curl_e(st, np.zeros((nr, nz)), er.real) + 1j * stencil.curl_e(st, np.zeros((nr, nz)), er.imag)
+        h_from_er = stencil.curl_e(st, np.zeros((nr, nz)), er.real) + 1j * stencil.curl_e(
+            st, np.zeros((nr, nz)), er.imag
+        )
         ratio = -h_from_er[i, j] / np.exp(-1j * (kr * (i + 0.5) * dr + kz * (j + 0.5) * dz))
         assert ratio == pytest.approx(-2j * stencil.spatial_symbol(kz, dz, 4), rel=1e-6)  # float32 tables
 
@@ -73,7 +77,11 @@ def _yee_grazing_error(angle_deg, dr, dz):
     a = math.radians(angle_deg)
 
     def relation(kk):
-        return g**2 * stencil.spatial_symbol(kk * math.cos(a), dr, 2) ** 2 + stencil.spatial_symbol(kk * math.sin(a), dz, 2) ** 2 - lhs
+        return (
+            g**2 * stencil.spatial_symbol(kk * math.cos(a), dr, 2) ** 2
+            + stencil.spatial_symbol(kk * math.sin(a), dz, 2) ** 2
+            - lhs
+        )
 
     return k / brentq(relation, 0.9 * k, 1.1 * k) - 1
 
@@ -119,8 +127,9 @@ def test_measured_mode_speeds_in_a_plate_guide(angle_deg):
     second-order rows at ground and ceiling weigh most)."""
     n = max(1, round(2 * 30e3 * math.sin(math.radians(angle_deg)) / LAMBDA))
     h = n * LAMBDA / (2 * math.sin(math.radians(angle_deg)))
-    res = eng.run(eng.Medium.uniform(ceiling_m=h),
-                  eng.Settings(frequencies_hz=(F_HZ,), max_range_m=650e3, earth_curvature=False))
+    res = eng.run(
+        eng.Medium.uniform(ceiling_m=h), eng.Settings(frequencies_hz=(F_HZ,), max_range_m=650e3, earth_curvature=False)
+    )
     r = res.range_m
     sel = (r > 150e3) & (r < 600e3)
     k = 2 * math.pi * F_HZ / C0
@@ -134,8 +143,11 @@ def test_measured_mode_speeds_in_a_plate_guide(angle_deg):
     assert np.all(np.abs(err) < 1e-4), err
     # the grazing mode agrees with the derived relation at the run's own grid
     p = res.plan
-    predicted = float(stencil.phase_velocity_error(F_HZ, 0.0, p.dr_m, p.dz_m, p.dt_s, 4,
-                                                   stencil.dispersion_factor([F_HZ], p.dr_m, p.dz_m, p.dt_s, 4)))
+    predicted = float(
+        stencil.phase_velocity_error(
+            F_HZ, 0.0, p.dr_m, p.dz_m, p.dt_s, 4, stencil.dispersion_factor([F_HZ], p.dr_m, p.dz_m, p.dt_s, 4)
+        )
+    )
     assert abs(err[0] - predicted) < 2e-5
 
 
@@ -191,7 +203,7 @@ def test_edge_factor_gives_the_far_end_the_interior_grazing_wavenumber():
     # the tables carry it from the cell before the absorber on, the interior keeps gamma
     nr, nz, ir0 = 60, 40, 40
     st = stencil.build(nr, nz, dr, dz, order=4, gamma=g, ir0=ir0, jz0=30, edge_gamma=ge)
-    assert st.ar1[ir0 - 1:] == pytest.approx(np.float32(ge / dr), rel=1e-6)
+    assert st.ar1[ir0 - 1 :] == pytest.approx(np.float32(ge / dr), rel=1e-6)
     assert st.ar1[ir0 - 3] == pytest.approx(np.float32(stencil.C1 * g / dr), rel=1e-6)
 
 

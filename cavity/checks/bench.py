@@ -50,8 +50,9 @@ def _day_simulation(max_range_m: float, frequency_hz: float):
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
-    medium = eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335),
-                                profiles.collision_frequency(z))
+    medium = eng.Medium.uniform(
+        5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335), profiles.collision_frequency(z)
+    )
     return eng.Simulation(medium, eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m))
 
 
@@ -122,8 +123,13 @@ def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]
     return updates / max(rates), updates / min(rates)
 
 
-def predict_wall_time_s(rate_cells_per_s: float, max_range_km: float, frequency_khz: float,
-                        cell_m: float | None = None, top_km: float = 120.0) -> tuple[float, object]:
+def predict_wall_time_s(
+    rate_cells_per_s: float,
+    max_range_km: float,
+    frequency_khz: float,
+    cell_m: float | None = None,
+    top_km: float = 120.0,
+) -> tuple[float, object]:
     """Predicted stepping time of a run from a measured engine rate (and its grid plan).
 
     The run's cell updates are those the engine is expected to make
@@ -135,10 +141,19 @@ def predict_wall_time_s(rate_cells_per_s: float, max_range_km: float, frequency_
     z = np.arange(0.0, 200e3, 250.0)
     import profiles
 
-    medium = eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335),
-                                profiles.collision_frequency(z))
-    plan = eng.make_plan(medium, eng.Settings(frequencies_hz=(frequency_khz * 1e3,), max_range_m=max_range_km * 1e3,
-                                              top_m=top_km * 1e3, dr_m=cell_m, dz_m=cell_m))
+    medium = eng.Medium.uniform(
+        5.0, 70.0, z, profiles.electron_density(z, 71.8, 0.335), profiles.collision_frequency(z)
+    )
+    plan = eng.make_plan(
+        medium,
+        eng.Settings(
+            frequencies_hz=(frequency_khz * 1e3,),
+            max_range_m=max_range_km * 1e3,
+            top_m=top_km * 1e3,
+            dr_m=cell_m,
+            dz_m=cell_m,
+        ),
+    )
     return plan.grid.expected_cell_updates / rate_cells_per_s, plan.grid
 
 
@@ -195,8 +210,14 @@ def _night_medium(magnetised: bool):
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
-    return eng.Medium.uniform(5.0, 70.0, z, profiles.electron_density(z, 85.1, 0.63), profiles.collision_frequency(z),
-                              magnetic_field_t=BENCH_FIELD_T if magnetised else None)
+    return eng.Medium.uniform(
+        5.0,
+        70.0,
+        z,
+        profiles.electron_density(z, 85.1, 0.63),
+        profiles.collision_frequency(z),
+        magnetic_field_t=BENCH_FIELD_T if magnetised else None,
+    )
 
 
 def field_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps: int = 200, repeats: int = 2):
@@ -213,8 +234,9 @@ def field_rates(max_range_m: float = 3000e3, frequency_hz: float = 20e3, steps: 
     out: dict[str, list[float]] = {"isotropic": [], "magnetised": []}
     sims = {}
     for key in out:
-        sim = eng.Simulation(_night_medium(key == "magnetised"), eng.Settings(frequencies_hz=(frequency_hz,),
-                                                                               max_range_m=max_range_m))
+        sim = eng.Simulation(
+            _night_medium(key == "magnetised"), eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m)
+        )
         sim.t_min = sim.t_max = 20 * sim.plan.dt_s
         sim.run()  # compile / load from cache
         rng = np.random.default_rng(0)
@@ -251,13 +273,22 @@ def night_run(magnetised: bool, max_range_m: float = 3000e3, frequency_hz: float
 
     t = time.perf_counter()
     c = time.process_time()
-    res = eng.run(_night_medium(magnetised), eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m + 30e3))
+    res = eng.run(
+        _night_medium(magnetised), eng.Settings(frequencies_hz=(frequency_hz,), max_range_m=max_range_m + 30e3)
+    )
     wall = time.perf_counter() - t
     c = time.process_time() - c
     i = int(np.argmin(np.abs(res.range_m - max_range_m)))
-    return {"wall_s": wall, "cpu_s": c, "stepping_s": res.wall_time_s, "steps": res.steps, "cells": res.plan.cells,
-            "converged": res.converged,
-            "peak_memory_bytes": peak_memory_bytes(), "ez_db_at_end": float(20 * np.log10(abs(res.ez[0, i])))}
+    return {
+        "wall_s": wall,
+        "cpu_s": c,
+        "stepping_s": res.wall_time_s,
+        "steps": res.steps,
+        "cells": res.plan.cells,
+        "converged": res.converged,
+        "peak_memory_bytes": peak_memory_bytes(),
+        "ez_db_at_end": float(20 * np.log10(abs(res.ez[0, i]))),
+    }
 
 
 def night_runs_interleaved(repeats: int = 1) -> list[tuple[str, dict]]:

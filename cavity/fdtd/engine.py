@@ -57,8 +57,16 @@ class Medium:
     magnetic_field_t: np.ndarray | None = None
 
     @classmethod
-    def uniform(cls, conductivity=math.inf, permittivity=1.0, altitude_m=None, electron_density=None,
-                collision_frequency=None, ceiling_m=None, magnetic_field_t=None):
+    def uniform(
+        cls,
+        conductivity=math.inf,
+        permittivity=1.0,
+        altitude_m=None,
+        electron_density=None,
+        collision_frequency=None,
+        ceiling_m=None,
+        magnetic_field_t=None,
+    ):
         """A range-independent medium from one profile (1-D arrays) and one ground."""
         ne = None if electron_density is None else np.asarray(electron_density, float)[None, :]
         nu = None if collision_frequency is None else np.asarray(collision_frequency, float)[None, :]
@@ -249,9 +257,17 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
     ceiling = medium.ceiling_m is not None
     top = float(medium.ceiling_m) if medium.ceiling_m is not None else float(s.top_m)
     grid = gridmod.plan_grid(
-        s.max_range_m, float(f.max()), top,
-        duration_s=t_min, dr_m=s.dr_m, dz_m=s.dz_m, beta_max_per_m=_max_log_slope(medium), ceiling=ceiling,
-        pml_cells=s.pml_cells, cells_per_wavelength=s.cells_per_wavelength, courant_safety=s.courant_safety,
+        s.max_range_m,
+        float(f.max()),
+        top,
+        duration_s=t_min,
+        dr_m=s.dr_m,
+        dz_m=s.dz_m,
+        beta_max_per_m=_max_log_slope(medium),
+        ceiling=ceiling,
+        pml_cells=s.pml_cells,
+        cells_per_wavelength=s.cells_per_wavelength,
+        courant_safety=s.courant_safety,
         stencil_order=s.stencil_order,
     )
     if medium.magnetic_field_t is not None:
@@ -320,8 +336,18 @@ class Simulation:
         edge = None
         if order == 4 and s.dispersion_correction:
             edge = stencil.edge_factor(self.frequencies_hz, dr, dz, dt, self.gamma)
-        self.stencil = stencil.build(nr, nz, dr, dz, order=order, gamma=self.gamma, ir0=nr - p.pml_r_cells,
-                                     jz0=nz - p.pml_z_cells, radial_gamma_only=(order == 2), edge_gamma=edge)
+        self.stencil = stencil.build(
+            nr,
+            nz,
+            dr,
+            dz,
+            order=order,
+            gamma=self.gamma,
+            ir0=nr - p.pml_r_cells,
+            jz0=nz - p.pml_z_cells,
+            radial_gamma_only=(order == 2),
+            edge_gamma=edge,
+        )
         st = self.stencil
         # second-order factors of the ground row and the absorbers (equal to the tables there)
         self.inv_dr, self.inv_dz = f32(st.ar1[-1]), f32(st.kz1[-1])
@@ -347,10 +373,16 @@ class Simulation:
                 raise SolverError("collision frequency must not vary along range (one nu(z) per path)")
             cz = media.plasma_coefficients(eps_ez[None, sl], wp2_z[:, sl], nu_z[:, sl], dt)
             cr = media.plasma_coefficients(eps_er[None, sl], wp2_r[:, sl], nu_r[:, sl], dt)
-            self.plasma_z = [(eps_ez[sl] / dt).astype(f32), np.asarray(cz[3], f32)[0].copy(),
-                             *_distinct_rows(self._coefficient(cz[4], nr, n_pl))]
-            self.plasma_r = [(eps_er[sl] / dt).astype(f32), np.asarray(cr[3], f32)[0].copy(),
-                             *_distinct_rows(self._coefficient(cr[4], nr, n_pl))]
+            self.plasma_z = [
+                (eps_ez[sl] / dt).astype(f32),
+                np.asarray(cz[3], f32)[0].copy(),
+                *_distinct_rows(self._coefficient(cz[4], nr, n_pl)),
+            ]
+            self.plasma_r = [
+                (eps_er[sl] / dt).astype(f32),
+                np.asarray(cr[3], f32)[0].copy(),
+                *_distinct_rows(self._coefficient(cr[4], nr, n_pl)),
+            ]
             self.pb_z = self._coefficient(cz[1], nr, n_pl)  # curl coefficients, for the absorber cells
             self.pb_r = self._coefficient(cr[1], nr, n_pl)
         else:
@@ -400,18 +432,18 @@ class Simulation:
         self.psi_rh = np.zeros((nrp, nz), f32)
         self.psi_re = np.zeros((nrp, nz), f32)
         # curl coefficient of each absorber cell (vacuum dt/eps, or the plasma pb)
-        ce_top = np.broadcast_to(self.cer[self.jz0:nz][None, :], (nr, nzp)).copy()
+        ce_top = np.broadcast_to(self.cer[self.jz0 : nz][None, :], (nr, nzp)).copy()
         ce_far = np.broadcast_to(self.cez[None, :], (nrp, nz)).copy()
         if n_pl > 0:
             for k, j in enumerate(range(self.jz0, nz)):
                 if j >= self.jp0:
                     ce_top[:, k] = self.pb_r[:, j - self.jp0]
-            ce_far[:, self.jp0:] = self.pb_z[self.ir0:, :]
+            ce_far[:, self.jp0 :] = self.pb_z[self.ir0 :, :]
         self.ce_top = ce_top.astype(f32)
         self.ce_far = ce_far.astype(f32)
         self.pb_z = self.pb_r = None  # only needed for the absorber cells above
         ch_far = np.full((nrp, nz), self.ch, f32)
-        ch_far[:, 0] = self.hb[self.ir0:]
+        ch_far[:, 0] = self.hb[self.ir0 :]
         self.ch_far = ch_far
 
         # source: current element I in the axis cell of radius dr/2 and height dz (moment I dz)
@@ -464,7 +496,7 @@ class Simulation:
         b = np.asarray(m.magnetic_field_t, float).reshape(-1, 3)
         w = np.stack([np.interp(self.r_ez, rs, b[:, c]) for c in range(3)], axis=1) * (ELECTRON_CHARGE / ELECTRON_MASS)
         if self.field_off_in_absorbers:
-            w[self.ir0:] = 0.0
+            w[self.ir0 :] = 0.0
         self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
         if n_pl == 0:
             self.mag_coef = np.zeros((1, 21, 0), f32)
@@ -487,7 +519,7 @@ class Simulation:
         keys, index = np.unique(np.vstack([keys_p, keys_m, left]).astype(np.int64), axis=0, return_inverse=True)
         index = index.reshape(-1)
         self.tab_p = np.ascontiguousarray(index[:nr], dtype=np.int32)
-        self.tab_m = np.ascontiguousarray(index[nr:2 * nr], dtype=np.int32)
+        self.tab_m = np.ascontiguousarray(index[nr : 2 * nr], dtype=np.int32)
         self.t_left = int(index[-1])
         # representative columns of each key
         first = {}
@@ -515,10 +547,11 @@ class Simulation:
         present = np.broadcast_to(keys[:, None, 4:7].astype(bool), (nk, n_pl, 3))
         gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
         if self.field_off_in_absorbers:
-            gyro[:, max(self.jz0 - self.jp0, 0):, :] = 0.0
+            gyro[:, max(self.jz0 - self.jp0, 0) :, :] = 0.0
         # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
         self.mag_coef = np.ascontiguousarray(
-            media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32))
+            media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32)
+        )
 
     # ------------------------------------------------------------------ stepping
     def run(self, progress: Callable[[float, str], None] | None = None) -> EngineResult:
@@ -585,8 +618,10 @@ class Simulation:
             top_hr = K.Absorber(self.jz0, *self.pz_h, self.psi_hr, no_coef)
             far_hz = K.Absorber(self.ir0, *self.pr_h, self.psi_hz, no_coef)
             curl_mag = K.ECurlMag(self.rp, self.rm, self.inv_dr, self.inv_dz, self.cez, self.cer, self.jp0)
-            pairing = {1: K.Magnetoplasma(self.mag_coef, self.tab_p, 1, self.wsq),
-                       -1: K.Magnetoplasma(self.mag_coef, self.tab_m, -1, self.wsq)}
+            pairing = {
+                1: K.Magnetoplasma(self.mag_coef, self.tab_p, 1, self.wsq),
+                -1: K.Magnetoplasma(self.mag_coef, self.tab_m, -1, self.wsq),
+            }
             top_er = K.Absorber(self.jz0, *self.pz_e, self.psi_ze, no_coef)
             top_ep = K.Absorber(self.jz0, *self.pz_e, self.psi_pz, no_coef)
             far_ez = K.Absorber(self.ir0, *self.pr_e, self.psi_re, no_coef)
@@ -602,8 +637,9 @@ class Simulation:
                 # step only as far as the wave can reach before the next search
                 last_col = K.last_active_column(n_cols - 1, fields, ground, top_h, far_h, top_e, far_e)
                 if self.magnetised:
-                    last_col = max(last_col, K.last_active_column_te(
-                        n_cols - 1, te, ground_te, top_hr, far_hz, top_ep, far_ep))
+                    last_col = max(
+                        last_col, K.last_active_column_te(n_cols - 1, te, ground_te, top_hr, far_hz, top_ep, far_ep)
+                    )
                 n_cols = min(nr, last_col + reach)
             t_h = (step + 0.5) * dt
             t_e = (step + 1) * dt
@@ -612,8 +648,9 @@ class Simulation:
             rot_e = rot_h * rot_half
             K.step_h(fields, curl_h, ground, top_h, far_h, K.Dft(acc_h[0], acc_h[1], rot_h.real, -rot_h.imag), n_cols)
             if self.magnetised:
-                K.step_h_te(te, curl_te, ground_te, top_hr, far_hz, K.Dft(acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag),
-                            n_cols)
+                K.step_h_te(
+                    te, curl_te, ground_te, top_hr, far_hz, K.Dft(acc_hr[0], acc_hr[1], rot_h.real, -rot_h.imag), n_cols
+                )
             # every source enters the kernel the same way: current elements in the axis cells from
             # the ground up (one cell for a point source, the channel's cells for a lightning stroke)
             if line_source:
@@ -630,13 +667,33 @@ class Simulation:
             if self.magnetised:
                 # triples alternate between the Er node after and before each Ez node (kernels.step_e_mag)
                 shift = 1 if step % 2 == 0 else -1
-                K.step_e_mag(fields, te, curl_mag, pairing[shift], top_er, top_ep, far_ez, far_ep, src_kick,
-                             K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
+                K.step_e_mag(
+                    fields,
+                    te,
+                    curl_mag,
+                    pairing[shift],
+                    top_er,
+                    top_ep,
+                    far_ez,
+                    far_ep,
+                    src_kick,
+                    K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag),
+                    n_cols,
+                )
                 if shift < 0 and n_cols >= nr:
                     K.step_er_alone(fields, curl_mag, pairing[shift], self.t_left, top_er, nr - 1)
             else:
-                K.step_e(fields, curl_e, plasma_z, plasma_r, top_e, far_e, src_kick,
-                         K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag), n_cols)
+                K.step_e(
+                    fields,
+                    curl_e,
+                    plasma_z,
+                    plasma_r,
+                    top_e,
+                    far_e,
+                    src_kick,
+                    K.Dft(acc_e[0], acc_e[1], rot_e.real, -rot_e.imag),
+                    n_cols,
+                )
             if current != 0.0:
                 acc_i += current * rot_h
             rot_h = rot_h * rot_step
@@ -671,7 +728,7 @@ class Simulation:
         moment = acc_i * self.plan.dz_m  # DFT of the current moment I dz
         ez = (acc_e[0] + 1j * acc_e[1])[:, 1:n_out] / moment[:, None]
         h_c = (acc_h[0] + 1j * acc_h[1]) / moment[:, None]
-        hphi = 0.5 * (h_c[:, 0:n_out - 1] + h_c[:, 1:n_out])  # H at r_i from r_(i-1/2), r_(i+1/2)
+        hphi = 0.5 * (h_c[:, 0 : n_out - 1] + h_c[:, 1:n_out])  # H at r_i from r_(i-1/2), r_(i+1/2)
         hr = ephi = None
         if self.magnetised:
             hr = ((acc_hr[0] + 1j * acc_hr[1]) / moment[:, None])[:, 1:n_out]  # Hr sits at the Ez columns
@@ -680,12 +737,22 @@ class Simulation:
             ephi = zs * hr  # Leontovich: Ephi = +Zs Hr at the ground
         notes = []
         if not converged:
-            notes.append(f"DFTs still changing by more than {s.convergence_db} dB at the time cap "
-                         f"({self.t_max * 1e3:.1f} ms)")
+            notes.append(
+                f"DFTs still changing by more than {s.convergence_db} dB at the time cap ({self.t_max * 1e3:.1f} ms)"
+            )
         res = EngineResult(
-            range_m=self.r_ez[1:n_out].copy(), frequencies_hz=self.frequencies_hz.copy(), ez=ez, hphi=hphi,
-            plan=self.plan, steps=step, wall_time_s=wall, converged=converged, notes=notes,
-            probe_ranges_m=self.r_ez[probe_cols] if probe_cols.size else np.zeros(0), hr=hr, ephi=ephi,
+            range_m=self.r_ez[1:n_out].copy(),
+            frequencies_hz=self.frequencies_hz.copy(),
+            ez=ez,
+            hphi=hphi,
+            plan=self.plan,
+            steps=step,
+            wall_time_s=wall,
+            converged=converged,
+            notes=notes,
+            probe_ranges_m=self.r_ez[probe_cols] if probe_cols.size else np.zeros(0),
+            hr=hr,
+            ephi=ephi,
         )
         if t_series:
             res.time_s = np.asarray(t_series)

@@ -229,9 +229,16 @@ def last_active_column(start, fields, ground, top_h, far_h, top_e, far_e):
     psi_zh, psi_ze, sib_psi = top_h.psi, top_e.psi, ground.psi
     ir0, psi_rh, psi_re = far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
-        if (_any_nonzero(ez[i]) or _any_nonzero(er[i]) or _any_nonzero(hp[i]) or _any_nonzero(jz[i])
-                or _any_nonzero(jr[i]) or _any_nonzero(psi_zh[i]) or _any_nonzero(psi_ze[i])
-                or _any_nonzero(sib_psi[i])):
+        if (
+            _any_nonzero(ez[i])
+            or _any_nonzero(er[i])
+            or _any_nonzero(hp[i])
+            or _any_nonzero(jz[i])
+            or _any_nonzero(jr[i])
+            or _any_nonzero(psi_zh[i])
+            or _any_nonzero(psi_ze[i])
+            or _any_nonzero(sib_psi[i])
+        ):
             return i
         if i >= ir0 and (_any_nonzero(psi_rh[i - ir0]) or _any_nonzero(psi_re[i - ir0])):
             return i
@@ -325,8 +332,10 @@ def step_h(fields, curl, ground, top, far, dft, n_cols):
             e_n2 = ez[ip2]
             e_m = ez[im1]
             for j in range(1, nz - 1):
-                v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j]))
-                                 - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1])))
+                v = h[j] + ch * (
+                    (a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j]))
+                    - (kz1[j] * (e_r[j + 1] - e_r[j]) + kz2[j] * (e_r[j + 2] - e_r[j - 1]))
+                )
                 h[j] = v if abs(v) > TINY else np.float32(0.0)
             j = nz - 1
             v = h[j] + ch * ((a1 * (e_n[j] - e_z[j]) + a2 * (e_n2[j] - e_m[j])) - kz1[j] * (e_r[j + 1] - e_r[j]))
@@ -478,9 +487,9 @@ def step_e(fields, curl, plasma_z, plasma_r, top, far, src, dft, n_cols):
             qaw = qa_r[k_lo:]
             edw = ed_r[k_lo:]
             h1 = hp[i, j0:]
-            hlo = hp[i, j0 - 1:]
-            hup = hp[i, j0 + 1:]
-            hlo2 = hp[i, j0 - 2:]
+            hlo = hp[i, j0 - 1 :]
+            hup = hp[i, j0 + 1 :]
+            hlo2 = hp[i, j0 - 2 :]
             e1 = ke1[j0:]
             e2 = ke2[j0:]
             for m in range(m_n):
@@ -536,8 +545,15 @@ def last_active_column_te(start, te, ground, top_h, far_h, top_e, far_e):
     ephi, hr, hz, jphi = te.ephi, te.hr, te.hz, te.jphi
     sib_psi, psi_hr, psi_pz, ir0, psi_hz, psi_pr = ground.psi, top_h.psi, top_e.psi, far_h.start, far_h.psi, far_e.psi
     for i in range(start, -1, -1):
-        if (_any_nonzero(ephi[i]) or _any_nonzero(hr[i]) or _any_nonzero(hz[i]) or _any_nonzero(jphi[i])
-                or _any_nonzero(psi_hr[i]) or _any_nonzero(psi_pz[i]) or _any_nonzero(sib_psi[i])):
+        if (
+            _any_nonzero(ephi[i])
+            or _any_nonzero(hr[i])
+            or _any_nonzero(hz[i])
+            or _any_nonzero(jphi[i])
+            or _any_nonzero(psi_hr[i])
+            or _any_nonzero(psi_pz[i])
+            or _any_nonzero(sib_psi[i])
+        ):
             return i
         if i >= ir0 and (_any_nonzero(psi_hz[i - ir0]) or _any_nonzero(psi_pr[i - ir0])):
             return i
@@ -790,9 +806,15 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                     yr = sr * (e_ro + half * dr_)
                     yp = sp * (e_po + half * dp_)
                     yz = sz * (e_zo + half * dz_)
-                    nr_ = (q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz) * ir_
-                    np_ = (q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz) * ip
-                    nz_ = (q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz) * iz
+                    nr_ = (
+                        q[0, k] * vr + q[1, k] * vp + q[2, k] * vz + q[9, k] * yr + q[10, k] * yp + q[11, k] * yz
+                    ) * ir_
+                    np_ = (
+                        q[3, k] * vr + q[4, k] * vp + q[5, k] * vz + q[12, k] * yr + q[13, k] * yp + q[14, k] * yz
+                    ) * ip
+                    nz_ = (
+                        q[6, k] * vr + q[7, k] * vp + q[8, k] * vz + q[15, k] * yr + q[16, k] * yp + q[17, k] * yz
+                    ) * iz
                     v1 = e_ro + dr_ - q[18, k] * (nr_ + u_r)
                     v2 = e_po + dp_ - q[19, k] * (np_ + u_p)
                     v3 = e_zo + dz_ - q[20, k] * (nz_ + u_z)
@@ -816,8 +838,25 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                         sr = wsq[1, ie]
                     sp = wsq[2, i] if i > 0 else one
                     ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
-                        coef, t, k, ez[i, j], er_old, ephi[i, j], cz[j], cr[j], cp[j], uz[i, k], ur_old, up[i, k],
-                        cez[j], cer[j], cer[j], wsq[0, i], sr, sp)
+                        coef,
+                        t,
+                        k,
+                        ez[i, j],
+                        er_old,
+                        ephi[i, j],
+                        cz[j],
+                        cr[j],
+                        cp[j],
+                        uz[i, k],
+                        ur_old,
+                        up[i, k],
+                        cez[j],
+                        cer[j],
+                        cer[j],
+                        wsq[0, i],
+                        sr,
+                        sp,
+                    )
                     ez[i, j] = _flush(ez_new)
                     uz[i, k] = _flush(uz_new)
                     if i > 0:
@@ -858,8 +897,25 @@ def step_er_alone(fields, curl, plasma, t, top_r, col):
             er[col, j] += cer[j] * c
         else:
             k = j - jp0
-            _, er_new, _, _, ur_new, _ = _triple(coef, t, k, zero, er[col, j], zero, zero, c, zero,
-                                                 zero, ur[col, k], zero, cer[j], cer[j], cer[j],
-                                                 np.float32(1.0), wsq[1, col], np.float32(1.0))
+            _, er_new, _, _, ur_new, _ = _triple(
+                coef,
+                t,
+                k,
+                zero,
+                er[col, j],
+                zero,
+                zero,
+                c,
+                zero,
+                zero,
+                ur[col, k],
+                zero,
+                cer[j],
+                cer[j],
+                cer[j],
+                np.float32(1.0),
+                wsq[1, col],
+                np.float32(1.0),
+            )
             er[col, j] = _flush(er_new)
             ur[col, k] = _flush(ur_new)

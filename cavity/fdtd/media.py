@@ -174,8 +174,7 @@ def gyro_matrix(omega_b):
     w = np.asarray(omega_b, dtype=float)
     wr, wp, wz = w[..., 0], w[..., 1], w[..., 2]
     zero = np.zeros_like(wr)
-    return np.stack([np.stack([zero, -wz, wp], -1), np.stack([wz, zero, -wr], -1),
-                     np.stack([-wp, wr, zero], -1)], -2)
+    return np.stack([np.stack([zero, -wz, wp], -1), np.stack([wz, zero, -wr], -1), np.stack([-wp, wr, zero], -1)], -2)
 
 
 def _inverse3(a):

@@ -75,8 +75,9 @@ def spatial_symbol(k: np.ndarray | float, d: float, order: int) -> np.ndarray:
     return (C1 * np.sin(k * d / 2) - C2 * np.sin(3 * k * d / 2)) / d
 
 
-def numerical_wavenumber(f_hz: float, angle_deg, dr: float, dz: float, dt: float, order: int,
-                         gamma: float = 1.0, c: float = 299_792_458.0) -> np.ndarray:
+def numerical_wavenumber(
+    f_hz: float, angle_deg, dr: float, dz: float, dt: float, order: int, gamma: float = 1.0, c: float = 299_792_458.0
+) -> np.ndarray:
     """Wavenumber k of a plane wave at ``angle_deg`` from grazing that the interior scheme propagates.
 
     Discrete dispersion relation of leapfrog in time with the spatial symbols S (Taflove and Hagness
@@ -91,7 +92,10 @@ def numerical_wavenumber(f_hz: float, angle_deg, dr: float, dz: float, dt: float
     for _ in range(30):
         g = gamma**2 * (spatial_symbol(k * ca, dr, order) ** 2 + spatial_symbol(k * sa, dz, order) ** 2) - lhs
         h = 1e-7 * k
-        gp = gamma**2 * (spatial_symbol((k + h) * ca, dr, order) ** 2 + spatial_symbol((k + h) * sa, dz, order) ** 2) - lhs
+        gp = (
+            gamma**2 * (spatial_symbol((k + h) * ca, dr, order) ** 2 + spatial_symbol((k + h) * sa, dz, order) ** 2)
+            - lhs
+        )
         k = k - g * h / (gp - g)
     return k
 
@@ -101,8 +105,9 @@ def phase_velocity_error(f_hz, angle_deg, dr, dz, dt, order, gamma=1.0, c=299_79
     return (2 * math.pi * f_hz / c) / numerical_wavenumber(f_hz, angle_deg, dr, dz, dt, order, gamma, c) - 1.0
 
 
-def dispersion_factor(frequencies_hz, dr: float, dz: float, dt: float, order: int,
-                      c: float = 299_792_458.0, angles_deg=DESIGN_ANGLES_DEG) -> float:
+def dispersion_factor(
+    frequencies_hz, dr: float, dz: float, dt: float, order: int, c: float = 299_792_458.0, angles_deg=DESIGN_ANGLES_DEG
+) -> float:
     """Factor gamma on every spatial difference that balances the phase error over a band of angles.
 
     With gamma = 1 a wave at the design frequency (the RMS of the requested frequencies) and angle a
@@ -123,8 +128,7 @@ def dispersion_factor(frequencies_hz, dr: float, dz: float, dt: float, order: in
     return float(math.sqrt(np.mean(lhs / rhs)))
 
 
-def edge_factor(frequencies_hz, dr: float, dz: float, dt: float, gamma: float,
-                c: float = 299_792_458.0) -> float:
+def edge_factor(frequencies_hz, dr: float, dz: float, dt: float, gamma: float, c: float = 299_792_458.0) -> float:
     """Factor on the second-order radial differences of the far end that matches the interior.
 
     Where the fourth-order rows fall back to second order (the cell before the far absorber and the
@@ -144,8 +148,19 @@ def edge_factor(frequencies_hz, dr: float, dz: float, dt: float, gamma: float,
     return float(math.sqrt(lhs) / spatial_symbol(k4, dr, 2))
 
 
-def build(nr: int, nz: int, dr: float, dz: float, *, order: int, gamma: float, ir0: int, jz0: int,
-          radial_gamma_only: bool = False, edge_gamma: float | None = None) -> Stencil:
+def build(
+    nr: int,
+    nz: int,
+    dr: float,
+    dz: float,
+    *,
+    order: int,
+    gamma: float,
+    ir0: int,
+    jz0: int,
+    radial_gamma_only: bool = False,
+    edge_gamma: float | None = None,
+) -> Stencil:
     """Coefficient tables of one grid: ``nr`` Ez columns (axis first), ``nz`` H rows, the far-end
     absorber from column ``ir0`` and the top absorber (or a conducting ceiling, ``jz0 = nz``) from
     row ``jz0``.
@@ -209,8 +224,18 @@ def build(nr: int, nz: int, dr: float, dz: float, *, order: int, gamma: float, i
         j = np.arange(2, min(jz0, nz - 1))
         ke1[j], ke2[j] = C1 * gz / dz, -C2 * gz / dz
     f32 = np.float32
-    return Stencil(order, float(gamma), ar1.astype(f32), ar2.astype(f32), np.ascontiguousarray(ec, dtype=f32),
-                   kz1.astype(f32), kz2.astype(f32), ke1.astype(f32), ke2.astype(f32), axis_area)
+    return Stencil(
+        order,
+        float(gamma),
+        ar1.astype(f32),
+        ar2.astype(f32),
+        np.ascontiguousarray(ec, dtype=f32),
+        kz1.astype(f32),
+        kz2.astype(f32),
+        ke1.astype(f32),
+        ke2.astype(f32),
+        axis_area,
+    )
 
 
 # --------------------------------------------------------------------------- plain-numpy operators
@@ -219,14 +244,16 @@ def curl_e(st: Stencil, ez: np.ndarray, er: np.ndarray) -> np.ndarray:
     conducting plane (Er row 0 read as stored)."""
     nr, nz = ez.shape
     pad = np.zeros((nr + 3, nz))
-    pad[1:nr + 1] = ez
+    pad[1 : nr + 1] = ez
     pad[0] = ez[1] if nr > 1 else 0.0  # Ez_(-1) = Ez_1
-    e_m1, e_0, e_p1, e_p2 = pad[0:nr], pad[1:nr + 1], pad[2:nr + 2], pad[3:nr + 3]
+    e_m1, e_0, e_p1, e_p2 = pad[0:nr], pad[1 : nr + 1], pad[2 : nr + 2], pad[3 : nr + 3]
     dez = st.ar1[:, None] * (e_p1 - e_0) + st.ar2[:, None] * (e_p2 - e_m1)
     erp = np.zeros((nr, nz + 3))
-    erp[:, 1:nz + 2] = er
+    erp[:, 1 : nz + 2] = er
     # Er_(-1) never enters (kz2 = 0 in the rows next to the ground); Er_(nz+1) neither
-    d_er = st.kz1[None, :] * (erp[:, 2:nz + 2] - erp[:, 1:nz + 1]) + st.kz2[None, :] * (erp[:, 3:nz + 3] - erp[:, 0:nz])
+    d_er = st.kz1[None, :] * (erp[:, 2 : nz + 2] - erp[:, 1 : nz + 1]) + st.kz2[None, :] * (
+        erp[:, 3 : nz + 3] - erp[:, 0:nz]
+    )
     return dez - d_er
 
 
@@ -234,13 +261,15 @@ def curl_h(st: Stencil, hp: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """((1/r) d(r H)/dr at the Ez points (nr, nz), -dH/dz at the Er points (nr, nz + 1), rows 0 and nz zero)."""
     nr, nz = hp.shape
     pad = np.zeros((nr + 3, nz))
-    pad[2:nr + 2] = hp  # pad[k + 2] = H_k; H_(-1), H_(-2) enter with zero coefficients
+    pad[2 : nr + 2] = hp  # pad[k + 2] = H_k; H_(-1), H_(-2) enter with zero coefficients
     c = st.er_coef
-    cz = (c[:, 0:1] * pad[3:nr + 3] + c[:, 1:2] * pad[2:nr + 2] + c[:, 2:3] * pad[1:nr + 1]
-          + c[:, 3:4] * pad[0:nr])
+    cz = c[:, 0:1] * pad[3 : nr + 3] + c[:, 1:2] * pad[2 : nr + 2] + c[:, 2:3] * pad[1 : nr + 1] + c[:, 3:4] * pad[0:nr]
     hz = np.zeros((nr, nz + 2))
-    hz[:, 1:nz + 1] = hp  # hz[:, j + 1] = H_j
+    hz[:, 1 : nz + 1] = hp  # hz[:, j + 1] = H_j
     j = np.arange(1, nz)
     cr = np.zeros((nr, nz + 1))
-    cr[:, j] = -(st.ke1[j] * (hz[:, j + 1] - hz[:, j]) + st.ke2[j] * (hz[:, np.minimum(j + 2, nz + 1)] - hz[:, np.maximum(j - 1, 0)]))
+    cr[:, j] = -(
+        st.ke1[j] * (hz[:, j + 1] - hz[:, j])
+        + st.ke2[j] * (hz[:, np.minimum(j + 2, nz + 1)] - hz[:, np.maximum(j - 1, 0)])
+    )
     return cz, cr

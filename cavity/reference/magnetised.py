@@ -180,7 +180,9 @@ def enu_to_path_frame(b_east, b_north, b_up, bearing_deg) -> np.ndarray:
 def _check_field(b_path_frame_t) -> np.ndarray:
     b = np.asarray(b_path_frame_t, dtype=float)
     if b.shape != (3,) or not np.all(np.isfinite(b)):
-        raise ScenarioError(f"b_path_frame_t = {b_path_frame_t!r}; allowed: three finite components (B_r, B_phi, B_z) in T")
+        raise ScenarioError(
+            f"b_path_frame_t = {b_path_frame_t!r}; allowed: three finite components (B_r, B_phi, B_z) in T"
+        )
     if np.linalg.norm(b) > MAX_FIELD_T:
         raise ScenarioError(f"b_path_frame_t has |B| = {np.linalg.norm(b):.3g} T; allowed: 0 to {MAX_FIELD_T} T")
     return b
@@ -485,7 +487,9 @@ def ionosphere_reflection(altitude_m, eps_tensor, frequency_hz: float, cos_incid
     return out
 
 
-def ground_reflection(cos_incidence, frequency_hz: float, conductivity, relative_permittivity, model: str = "leontovich"):
+def ground_reflection(
+    cos_incidence, frequency_hz: float, conductivity, relative_permittivity, model: str = "leontovich"
+):
     """2 x 2 reflection matrix Rg of a homogeneous ground (downgoing -> upgoing amplitudes at z = 0).
 
     ``model = "leontovich"`` (the surface impedance of the engine and the isotropic reference):
@@ -617,7 +621,9 @@ class _Guide:
         self.evaluations += 1
         s = _sine(c)
         f = _projector_start(layer_matrix(self.profile.top_eps, s))
-        f = _compiled_integrator()(np.ascontiguousarray(layer_matrix(self.profile.layer_eps, s)), self.profile.thickness, f)
+        f = _compiled_integrator()(
+            np.ascontiguousarray(layer_matrix(self.profile.layer_eps, s)), self.profile.thickness, f
+        )
         up, down = _split_at_ground(f, c)
         rg = ground_reflection(c, self.frequency_hz, *self.ground, model=self.ground_model)
         return complex(np.linalg.det(up - rg @ down))
@@ -820,9 +826,7 @@ def magnetised_modes(
             names.append(f"A{n + 1}")
         found_in_region = sum(1 for c in roots if _in_region(c, region))
         if found_in_region != counted:
-            log.warning(
-                "magnetised reference: %d modes counted in the region, %d found", counted, found_in_region
-            )
+            log.warning("magnetised reference: %d modes counted in the region, %d found", counted, found_in_region)
     for i in range(len(roots)):
         for j in range(i):
             if _same_root(roots[i], roots[j], 1e-7):
@@ -1198,4 +1202,6 @@ def ground_field(modes: MagnetisedModes, range_m, moment_am: complex = 1.0, sphe
     if spread:
         g = spherical_spreading_correction(r, modes.earth_radius_m)
         ez, ephi, hphi, hr = ez * g, ephi * g, hphi * g, hr * g
-    return GroundFields(r.reshape(shape), ez.reshape(shape), ephi.reshape(shape), hphi.reshape(shape), hr.reshape(shape))
+    return GroundFields(
+        r.reshape(shape), ez.reshape(shape), ephi.reshape(shape), hphi.reshape(shape), hr.reshape(shape)
+    )
