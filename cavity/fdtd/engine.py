@@ -283,8 +283,6 @@ class Simulation:
     #: Step only the columns the wave has reached (exact; see kernels.last_active_column). Tests
     #: switch it off to compare with stepping the whole grid.
     track_front: bool = True
-    #: Isotropic plasma inside the absorbing layers (experiment).
-    field_off_in_absorbers: bool = False
 
     def __init__(self, medium: Medium, settings: Settings):
         self.medium = medium
@@ -495,8 +493,6 @@ class Simulation:
         rs = np.asarray(m.range_m, float)
         b = np.asarray(m.magnetic_field_t, float).reshape(-1, 3)
         w = np.stack([np.interp(self.r_ez, rs, b[:, c]) for c in range(3)], axis=1) * (ELECTRON_CHARGE / ELECTRON_MASS)
-        if self.field_off_in_absorbers:
-            w[self.ir0 :] = 0.0
         self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
         if n_pl == 0:
             self.mag_coef = np.zeros((1, 21, 0), f32)
@@ -546,8 +542,6 @@ class Simulation:
         nu[:, :, 2] = nu_z[rep[:, 0], sl]
         present = np.broadcast_to(keys[:, None, 4:7].astype(bool), (nk, n_pl, 3))
         gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
-        if self.field_off_in_absorbers:
-            gyro[:, max(self.jz0 - self.jp0, 0) :, :] = 0.0
         # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
         self.mag_coef = np.ascontiguousarray(
             media.magnetised_coefficients(eps, wp2, nu, gyro, present, dt).transpose(0, 2, 1).astype(f32)
