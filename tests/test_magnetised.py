@@ -640,3 +640,71 @@ def test_eastward_beats_westward_at_night_with_a_low_dip():
     far = (r >= 600.0) & (r <= 1500.0)
     diff = east["ez_amplitude"].values[0, 0, far] - west["ez_amplitude"].values[0, 0, far]
     assert np.median(diff) > 0.3
+
+
+# ---------------------------------------------------------------------------------------------
+# Vertical cell and the whistler-mode wave
+# ---------------------------------------------------------------------------------------------
+
+
+def appleton_hartree_whistler_index(x, y, cos_theta):
+    """Whistler-mode index from the full Appleton-Hartree formula without collisions (Budden 1961,
+    Radio Waves in the Ionosphere, ch. 4): n^2 = 1 - X / (1 - YT^2 / (2 (1 - X)) - s sqrt(YT^4 /
+    (4 (1 - X)^2) + YL^2)), the branch with n^2 > 1 in a dense plasma (X >> 1)."""
+    yl = y * cos_theta
+    yt = y * math.sqrt(1.0 - cos_theta**2)
+    root = math.sqrt(yt**4 / (4.0 * (1.0 - x) ** 2) + yl**2)
+    both = [1.0 - x / (1.0 - yt**2 / (2.0 * (1.0 - x)) + s * root) for s in (1.0, -1.0)]
+    return math.sqrt(max(both))
+
+
+@pytest.mark.parametrize("dip_deg", [20.0, 60.0, 90.0])
+def test_whistler_index_is_the_appleton_hartree_one_in_a_dense_plasma(dip_deg):
+    # The night D region held at its 100 km density (Wait-Spies h' 85.1 km, beta 0.63 /km: 5.5e10 m^-3),
+    # 50,000 nT, 20 kHz, a wave travelling vertically: the quasi-longitudinal form used for the grid
+    # rule against the full Appleton-Hartree formula (Budden 1961), within 1 %.
+    from cavity.constants import ELECTRON_CHARGE, ELECTRON_MASS, EPS0
+
+    f = 20e3
+    omega = 2.0 * math.pi * f
+    wp2 = 5.5e10 * ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
+    i = math.radians(dip_deg)
+    b = np.array([0.0, 50e-6 * math.cos(i), -50e-6 * math.sin(i)])
+    n = media.whistler_vertical_index(wp2, b, f)
+    y = ELECTRON_CHARGE * 50e-6 / (ELECTRON_MASS * omega)
+    expected = appleton_hartree_whistler_index(wp2 / omega**2, y, math.sin(i))
+    assert n == pytest.approx(expected, rel=0.01)
+    assert n > 10.0  # a wavelength of under 1.5 km: more than the isotropic 500 m cells can carry
+
+
+def _night_medium(b):
+    import profiles
+
+    from cavity.fdtd import engine as eng
+
+    z = np.arange(0.0, 200e3, 250.0)
+    return eng.Medium.uniform(
+        1e-3, 15.0, z, profiles.electron_density(z, 85.1, 0.63), profiles.collision_frequency(z), magnetic_field_t=b
+    )
+
+
+def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_their_grid():
+    # With the field the vertical cell is at most lambda0 / (4 n), n the whistler index of the
+    # densest plasma (Appleton-Hartree, Budden 1961); without it (or with the rule switched off)
+    # the grid is the isotropic one (dz = 1/(3 beta) capped at 500 m, docs/physics.md 2).
+    from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0
+    from cavity.fdtd import engine as eng
+
+    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=600e3, stencil_order=2, cells_per_wavelength=24.0)
+    b = np.array([0.0, 50e-6 * math.cos(math.radians(60.0)), -50e-6 * math.sin(math.radians(60.0))])
+    plain = eng.make_plan(_night_medium(None), settings).grid
+    off = eng.make_plan(_night_medium(b), eng.Settings(**{**settings.__dict__, "whistler_cells": 0.0})).grid
+    field = eng.make_plan(_night_medium(b), settings).grid
+    assert plain.dz_m == off.dz_m == 500.0
+    omega = 2.0 * math.pi * 20e3
+    wp2 = 5.5e10 * ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
+    n = appleton_hartree_whistler_index(
+        wp2 / omega**2, ELECTRON_CHARGE * 50e-6 / (ELECTRON_MASS * omega), math.sin(math.radians(60.0))
+    )
+    assert field.dz_m <= C0 / 20e3 / (4.0 * n) * 1.01
+    assert field.dz_m >= 0.9 * C0 / 20e3 / (4.0 * n)  # not finer than needed (the cost grows as 1/dz^2)

@@ -19,7 +19,7 @@ from typing import Any
 
 import numpy as np
 
-from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
+from cavity.constants import C0, EARTH_RADIUS_M, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
 from cavity.errors import SolverError
 from cavity.fdtd import grid as gridmod
 from cavity.fdtd import media, stencil
@@ -106,6 +106,9 @@ class Settings:
     max_duration_s: float | None = None
     dispersion_correction: bool = True
     stencil_order: int = 4  # 4: (2,4) scheme in the interior; 2: Yee with the grazing correction
+    # with the geomagnetic field: cells per vertical wavelength of the whistler-mode wave in the densest
+    # plasma (see _whistler_dz_m); 0 leaves the vertical cell to the isotropic rules
+    whistler_cells: float = 4.0
 
 
 @dataclass
@@ -243,6 +246,32 @@ class RunPlan:
     t_max_s: float  # cap when the DFTs have not converged by then
 
 
+def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, top_m: float) -> float | None:
+    """Largest vertical cell that carries the whistler-mode wave leaking up through the magnetised
+    plasma: ``settings.whistler_cells`` cells per vertical wavelength lambda0 / n in the densest plasma
+    below the top absorber's far side (:func:`cavity.fdtd.media.whistler_vertical_index`).
+
+    At night the wave that leaks through the D region is the whistler mode; above 95 km its vertical
+    index reaches 13-22 at 20 kHz (50,000 nT, dip 20-90 deg, density held above 100 km), a wavelength
+    of 0.7-1.2 km. With fewer than about two cells per wavelength the grid cannot carry it (beyond
+    the Yee scheme's cut-off), so it is reflected back into the guide instead of leaving it, and
+    the field along the ground is off by several dB (README, "The magnetised reference").
+    None without a field, without plasma, or with ``whistler_cells`` = 0.
+    """
+    if medium.magnetic_field_t is None or medium.electron_density is None or not settings.whistler_cells > 0:
+        return None
+    z = np.asarray(medium.altitude_m, float)
+    reach = top_m + settings.pml_cells * gridmod.MAX_DZ_M
+    ne = np.asarray(medium.electron_density, float)[..., z <= reach]
+    if ne.size == 0 or not np.max(ne) > 0:
+        return None
+    flattening = (1.0 + reach / EARTH_RADIUS_M) ** 2 if settings.earth_curvature else 1.0
+    n = media.whistler_vertical_index(
+        WP2_PER_NE * float(np.max(ne)), medium.magnetic_field_t, frequency_max_hz, flattening
+    )
+    return C0 / frequency_max_hz / (settings.whistler_cells * n)
+
+
 def make_plan(medium: Medium, settings: Settings) -> RunPlan:
     """Size one solve without allocating it (what ``cavity inspect`` reports)."""
     s = settings
@@ -269,6 +298,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         cells_per_wavelength=s.cells_per_wavelength,
         courant_safety=s.courant_safety,
         stencil_order=s.stencil_order,
+        dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
     )
     if medium.magnetic_field_t is not None:
         import dataclasses

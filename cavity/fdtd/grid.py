@@ -29,6 +29,8 @@ from cavity.errors import ResourceError, SolverError
 DEFAULT_CELLS_PER_WAVELENGTH = 16.0
 #: Largest vertical cell: resolves the profile scale 1/beta (docs/physics.md 2).
 MAX_DZ_M = 500.0
+#: Smallest vertical cell any automatic rule chooses (a user's ``dz_m`` may go below it).
+MIN_DZ_M = 100.0
 #: Fraction of the stability limit used for the time step.
 COURANT_SAFETY = 0.95
 #: Default absorbing-layer thickness in cells (docs/physics.md 4: 20 cells, m = 3).
@@ -167,6 +169,7 @@ def plan_grid(
     cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
     courant_safety: float = COURANT_SAFETY,
     stencil_order: int = 4,
+    dz_max_m: float | None = None,
 ) -> GridPlan:
     """Size the grid and the time step for one solve.
 
@@ -178,9 +181,13 @@ def plan_grid(
         bottom of the top absorber.
     duration_s : simulated time the run needs.
     dr_m, dz_m : user override of the cells; default from :func:`default_cells`.
+    dz_max_m : a further cap on the default vertical cell (not below :data:`MIN_DZ_M`); with the
+        geomagnetic field, the whistler-mode rule of :func:`cavity.fdtd.engine.make_plan`.
     """
     dr_auto, dz_auto = default_cells(frequency_max_hz, beta_max_per_m, cells_per_wavelength)
     dr = float(dr_m) if dr_m else dr_auto
+    if dz_max_m:
+        dz_auto = min(dz_auto, max(float(dz_max_m), MIN_DZ_M))
     dz = float(dz_m) if dz_m else (min(dz_auto, dr) if not dr_m else min(dr, dz_auto))
     margin = 10  # cells between the farthest output and the absorber
     nr = int(math.ceil(max_range_m / dr)) + margin + pml_cells + 1

@@ -12,7 +12,7 @@ import math
 import numpy as np
 from scipy.optimize import nnls
 
-from cavity.constants import EARTH_RADIUS_M, EPS0, ETA0, MU0
+from cavity.constants import EARTH_RADIUS_M, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, ETA0, MU0
 
 
 def flattening_factor(altitude_m, earth_curvature: bool = True, earth_radius_m: float = EARTH_RADIUS_M):
@@ -250,3 +250,40 @@ def magnetised_coefficients(eps_eff, omega_p2, nu, omega_b, present, dt):
     g = np.where(pres, 0.5 * (dt / eps) * d, 0.0)
     shape = wp2.shape[:-1]
     return np.concatenate([t.reshape(shape + (9,)), w.reshape(shape + (9,)), g], axis=-1)
+
+
+#: Smallest |cos| of the angle between the vertical and B0 used by :func:`whistler_vertical_index`
+#: (a dip of about 6 deg): for a nearly horizontal field the quasi-longitudinal form no longer holds.
+MIN_VERTICAL_FIELD_SHARE = 0.1
+
+
+def whistler_vertical_index(omega_p2_max: float, b_t, frequency_hz: float, flattening: float = 1.0) -> float:
+    """Refractive index of the whistler-mode wave travelling vertically in the densest plasma.
+
+    With the geomagnetic field, the wave that leaks up through the night D region is the whistler
+    mode, whose index grows with the electron density. For a wave along the vertical at angle theta
+    to B0, the quasi-longitudinal form of the Appleton-Hartree formula (Budden 1961, Radio Waves in
+    the Ionosphere; Ratcliffe 1959, The Magneto-Ionic Theory) without collisions gives
+
+        n^2 = 1 + X / (Y |cos theta| - 1),   X = omega_p^2 / omega^2,  Y = e |B0| / (m_e omega)
+
+    for Y |cos theta| > 1, always the case at VLF (Y is about 70 at 20 kHz for 50,000 nT).
+    |cos theta| = |B_z| / |B0| is held at least :data:`MIN_VERTICAL_FIELD_SHARE`. Returns the largest
+    index over the given fields (T, shape (3,) or (n, 3) in (r, phi, z)), times sqrt(``flattening``)
+    (the earth-flattening factor of the permittivity at the top); 1 without a field or plasma.
+    """
+    b = np.asarray(b_t, dtype=float).reshape(-1, 3)
+    omega = 2.0 * math.pi * float(frequency_hz)
+    x = max(float(omega_p2_max), 0.0) / omega**2
+    best = 1.0
+    for row in b:
+        strength = float(np.linalg.norm(row))
+        if strength == 0.0 or x == 0.0:
+            continue
+        y_l = (
+            ELECTRON_CHARGE * strength / (ELECTRON_MASS * omega) * max(abs(row[2]) / strength, MIN_VERTICAL_FIELD_SHARE)
+        )
+        if y_l <= 1.0:
+            continue
+        best = max(best, math.sqrt((1.0 + x / (y_l - 1.0)) * flattening))
+    return best
