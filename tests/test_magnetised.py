@@ -679,7 +679,6 @@ def test_whistler_index_is_the_appleton_hartree_one_in_a_dense_plasma(dip_deg):
 
 def _night_medium(b):
     import profiles
-
     from cavity.fdtd import engine as eng
 
     z = np.arange(0.0, 200e3, 250.0)
