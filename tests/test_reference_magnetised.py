@@ -473,3 +473,72 @@ def test_mirrored_dip_gives_the_same_modes(night_east_west):
     assert mg.count_modes(guide, mg._count_region(k0, 20.0)) == ms.found_in_count_region
     west = night_east_west[20.0, "west"]
     assert np.abs(np.sort(west.attenuation_db_per_mm)[:3] - np.sort(ms.attenuation_db_per_mm)[:3]).max() > 0.1
+
+
+def test_ground_reflection_is_fresnel_for_both_polarisations():
+    # Fresnel's coefficients written out from Jackson, Classical Electrodynamics (3rd ed.), sec. 7.3,
+    # for a wave from vacuum onto a half-space of index n (n^2 = eps_r - j sigma / (omega eps0),
+    # exp(+j omega t)), cos of the refracted angle times n = sqrt(n^2 - S^2):
+    # E perpendicular to the plane of incidence (TE, the reference's Ey amplitude)
+    #   r_s = (C - sqrt(n^2 - S^2)) / (C + sqrt(n^2 - S^2)),
+    # E in the plane (TM; for the tangential H, the reference's H~y amplitude)
+    #   r_p = (n^2 C - sqrt(n^2 - S^2)) / (n^2 C + sqrt(n^2 - S^2)).
+    # The Leontovich pair is their limit with sqrt(n^2 - S^2) -> n: r_s -> (C/n - 1) / (C/n + 1).
+    f = 20e3
+    for sigma, eps_r in (SEA, LAND):
+        n2 = eps_r - 1j * sigma / (2.0 * math.pi * f * EPS0)
+        n = np.sqrt(n2)
+        for c in (0.05 + 0.0j, 0.3 - 0.02j, 0.9 + 0.0j):
+            s2 = 1.0 - c * c
+            g = np.sqrt(n2 - s2)
+            fr = mg.ground_reflection(c, f, sigma, eps_r, model="fresnel")
+            assert fr[1, 1] == pytest.approx((c - g) / (c + g), rel=1e-9)
+            assert fr[0, 0] == pytest.approx((n2 * c - g) / (n2 * c + g), rel=1e-9)
+            assert fr[0, 1] == 0 and fr[1, 0] == 0
+            lo = mg.ground_reflection(c, f, sigma, eps_r)
+            assert lo[1, 1] == pytest.approx((c / n - 1.0) / (c / n + 1.0), rel=1e-6)
+
+
+def test_normal_incidence_under_a_vertical_field_matches_the_two_circular_waves():
+    # With B0 vertical and a vertical wave the characteristic waves are circular, E+- = Ex +- j Ey,
+    # each obeying d2E/dz2 + k0^2 n+-^2 E = 0 with n+-^2 = 1 - X / (U -+ Y) (magneto-ionic theory,
+    # Budden 1961; Y = e B0z / (m_e omega)). Integrated here with scipy from the top (the wave that
+    # decays upward) to the ground and split into up- and downgoing waves, independently of the
+    # reference's 4 x 4 system; R = diag(-1, 1) T^-1 diag(rho+, rho-) T in the reference's (H~y, Ey)
+    # amplitudes (at normal incidence the parallel wave's Ex is +a up and -a down).
+    from scipy.integrate import solve_ivp
+
+    f = 20e3
+    omega = 2.0 * math.pi * f
+    k0 = omega / C0
+    z = grid()
+    ne, nu = wait_spies(z, *NIGHT)
+    a_earth = 6371e3  # the reference's default earth radius for the flattening (cavity.constants)
+    for bz in (-FIELD_T, FIELD_T):
+        r_ref = mg.ionosphere_reflection(z, mg.magnetoionic_permittivity(z, ne, nu, (0.0, 0.0, bz), f), f, 1.0)
+
+        def n2(zz, sense, bz=bz):
+            x = np.interp(zz, z, ne) * ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS) / omega**2
+            u = 1.0 - 1j * np.exp(np.interp(zz, z, np.log(nu))) / omega
+            y = ELECTRON_CHARGE * bz / (ELECTRON_MASS * omega)
+            return (1.0 - x / (u - sense * y)) * (1.0 + zz / a_earth) ** 2
+
+        rho = {}
+        for sense in (1.0, -1.0):
+            n_top = np.sqrt(n2(z[-1], sense))
+            n_top = -n_top if n_top.imag > 0 else n_top  # exp(-j k0 n z) decays upward
+            sol = solve_ivp(
+                lambda zz, y, sense=sense: [y[1], -(k0**2) * n2(zz, sense) * y[0]],
+                (z[-1], 0.0),
+                np.array([1.0 + 0j, -1j * k0 * n_top]),
+                method="DOP853",
+                rtol=1e-10,
+                atol=1e-14,
+            )
+            e, de = sol.y[0, -1], sol.y[1, -1]
+            up, down = 0.5 * (e - de / (1j * k0)), 0.5 * (e + de / (1j * k0))
+            rho[sense] = down / up
+        t = np.array([[1.0, 1j], [1.0, -1j]])
+        r_ind = np.diag([-1.0, 1.0]) @ np.linalg.inv(t) @ np.diag([rho[1.0], rho[-1.0]]) @ t
+        assert np.abs(r_ref - r_ind).max() < 2e-3  # the reference's layers hold each 100 m layer's mean
+        assert abs(r_ref[0, 1]) > 0.3  # the field couples the polarisations strongly at night
