@@ -677,7 +677,7 @@ def test_whistler_index_is_the_appleton_hartree_one_in_a_dense_plasma(dip_deg):
     assert n > 10.0  # a wavelength of under 1.5 km: more than the isotropic 500 m cells can carry
 
 
-def _night_medium(b):
+def _night_guide(b):
     import profiles
     from cavity.fdtd import engine as eng
 
@@ -696,9 +696,9 @@ def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_thei
 
     settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=600e3, stencil_order=2, cells_per_wavelength=24.0)
     b = np.array([0.0, 50e-6 * math.cos(math.radians(60.0)), -50e-6 * math.sin(math.radians(60.0))])
-    plain = eng.make_plan(_night_medium(None), settings).grid
-    off = eng.make_plan(_night_medium(b), eng.Settings(**{**settings.__dict__, "whistler_cells": 0.0})).grid
-    field = eng.make_plan(_night_medium(b), settings).grid
+    plain = eng.make_plan(_night_guide(None), settings).grid
+    off = eng.make_plan(_night_guide(b), eng.Settings(**{**settings.__dict__, "whistler_cells": 0.0})).grid
+    field = eng.make_plan(_night_guide(b), settings).grid
     assert plain.dz_m == off.dz_m == 500.0
     omega = 2.0 * math.pi * 20e3
     wp2 = 5.5e10 * ELECTRON_CHARGE**2 / (EPS0 * ELECTRON_MASS)
