@@ -304,3 +304,15 @@ def night_runs_interleaved(repeats: int = 1) -> list[tuple[str, dict]]:
             done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
             out.append(("magnetised" if magnetised else "isotropic", json.loads(done.stdout.strip().splitlines()[-1])))
     return out
+
+
+def field_time_ratios(runs: list[tuple[str, dict]]) -> dict[str, float]:
+    """Magnetised over isotropic means of wall time, processor time and steps of :func:`night_runs_interleaved`."""
+
+    def mean(name: str, key: str) -> float:
+        return float(np.mean([w[key] for n, w in runs if n == name]))
+
+    return {
+        key: mean("magnetised", field) / mean("isotropic", field)
+        for key, field in (("wall", "wall_s"), ("cpu", "cpu_s"), ("steps", "steps"))
+    }
