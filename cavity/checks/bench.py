@@ -112,9 +112,9 @@ REFERENCE_MACHINE = "a 2-core machine like the development one, idle"
 
 
 #: Cost of a run with the geomagnetic field in isotropic cell updates: on the 3,000 km night path at
-#: 20 kHz a step costs 1.5-1.75 times an isotropic one and the DFTs take 1.56 times the steps to
-#: settle (17,682 against 11,367); the whole run 2.7 times the processor time (measured interleaved).
-MAGNETISED_COST_FACTOR = 2.7
+#: 20 kHz a step costs 1.71 times an isotropic one (processor time) and the DFTs take 1.22 times the steps
+#: to settle (13,893 against 11,367); the whole run 2.09 times the processor time (measured interleaved).
+MAGNETISED_COST_FACTOR = 2.1
 
 
 def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]:
