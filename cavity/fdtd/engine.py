@@ -768,9 +768,9 @@ class Simulation:
         """Whether every output changed by less than ``tol`` of its settling level since the last check.
 
         The level is :func:`settling_level`: the field on the scale of the modal interference. Judged
-        against the field's own value, a deep modal null (20 dB down) would hold the run for a change
-        that is a hundredth of the field around it; with the geomagnetic field such nulls carry a weak,
-        slowly decaying ringing. Without ``dr_m`` the level is the former local envelope (+-25 columns).
+        against the field's own envelope (+-25 columns), a deep modal null holds the run for changes
+        several times smaller, against the field around it, than anywhere else; with the geomagnetic
+        field the guide carries a weak, slowly decaying ringing that such nulls magnify. Without ``dr_m`` the level is the former local envelope (+-25 columns).
         """
         level = settling_level(now, dr_m)
         ok = level > 1e-12 * np.max(level)
