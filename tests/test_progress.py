@@ -83,3 +83,15 @@ def test_closing_summary_stands_on_its_own_line(monkeypatch):
     bar_lines = [line for line in lines if "night run" in line]
     assert bar_lines and all("all paths solved" not in line for line in bar_lines)
     assert "left" in terminal.getvalue()
+
+
+def test_a_log_file_gets_a_line_at_each_tenth(monkeypatch):
+    # stderr redirected to a file (nohup, CI): click draws no bar there, so progress comes as lines
+    log_file = io.StringIO()
+    monkeypatch.setattr(sys, "stderr", log_file)
+    with progress_callback(False, "solving points") as update:
+        for k in range(1, 41):
+            update(k / 40)
+    lines = [line for line in log_file.getvalue().split("\n") if "% done" in line]
+    assert [line.split(":")[1].split("%")[0].strip() for line in lines] == [str(10 * k) for k in range(1, 10)]
+    assert all("left" in line for line in lines)

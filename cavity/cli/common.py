@@ -197,11 +197,18 @@ def _left_text(seconds: float | None) -> str:
     return f"about {seconds / 60:.0f} min left"
 
 
+def _on_terminal(bar) -> bool:
+    """Whether a click progress bar redraws itself (its stream is a terminal)."""
+    tty = getattr(bar, "_is_atty", None)  # click 8.1+
+    return bool(not getattr(bar, "is_hidden", True) if tty is None else tty)
+
+
 def progress_callback(quiet: bool, label: str):
     """A context manager yielding ``update(fraction, text)`` that drives a click progress bar on stderr.
 
     The bar shows the time left from the cost model and the rate measured so far
-    (:func:`time_left_s`), and ends its line when the work is done, so that the closing summary
+    (:func:`time_left_s`); where stderr is not a terminal (a log file) a plain line is written at each
+    tenth of the work instead. The bar ends its line when the work is done, so that the closing summary
     ("all paths solved in N s") stands on a line of its own. The bar is created on the first update,
     so a command that fails before any progress (a bad profile, a grid too large) prints its
     one-line error and nothing else.
@@ -242,6 +249,13 @@ def progress_callback(quiet: bool, label: str):
                 if target > state["done"]:
                     state["bar"].update(target - state["done"], "done" if target >= 1000 else _left_text(left))
                     state["done"] = target
+                    # a log file or pipe gets no redrawn bar (click prints only its label there): a plain
+                    # line at each tenth of the work instead, so that a long run under nohup shows progress
+                    if not _on_terminal(state["bar"]) and target // 100 > state.get("tenths", 0):
+                        state["tenths"] = target // 100
+                        if target < 1000:
+                            sys.stderr.write(f"{label}: {target // 10} % done, {_left_text(left)}\n")
+                            sys.stderr.flush()
                 if target >= 1000:  # finished: end the bar's line now, before any closing message
                     state["bar"] = None
                     state["inner"].close()
@@ -257,10 +271,7 @@ class _LineAfterBar(logging.StreamHandler):
 
     def emit(self, record):
         bar = _OPEN_BAR.get("bar")
-        tty = getattr(bar, "_is_atty", None)
-        if tty is None:
-            tty = not getattr(bar, "is_hidden", True)
-        if bar is not None and tty and not getattr(bar, "hidden", False):
+        if bar is not None and _on_terminal(bar) and not getattr(bar, "hidden", False):
             self.stream.write("\n")
             bar._last_line = None  # the bar redraws itself in full on the next line
         super().emit(record)
