@@ -119,3 +119,45 @@ def test_public_simulate_survives_importing_the_orchestration_module(tmp_path):
     import cavity.solve  # noqa: F401
 
     assert callable(cavity.simulate) and cavity.simulate.__module__ == "cavity"
+
+
+def _two_mode_field(dr_m, n=3200):
+    """Two interfering modes with cylindrical spreading: deep nulls every 2 pi / (k1 - k2) (mode beat,
+    Wait 1960); amplitudes 1 and 0.9 make the nulls 25.6 dB deep (20 log10(0.1 / 1.9))."""
+    r = (np.arange(n) + 1) * dr_m
+    k1, k2 = 2 * math.pi / 15.0e3, 2 * math.pi / 15.0e3 - 2 * math.pi / 850e3  # nulls every 850 km
+    return r, (np.exp(-1j * k1 * r) + 0.9 * np.exp(-1j * k2 * r)) / np.sqrt(r)
+
+
+def test_settling_test_judges_changes_against_the_regional_level_not_a_null():
+    dr = 937.0
+    tol = 10 ** (0.002 / 20) - 1
+    r, f = _two_mode_field(dr)
+    null = int(np.argmin(np.abs(f[300:900]))) + 300  # the null near 540 km
+    level = eng.settling_level(f, dr)
+    # the regional level is the modes' sum (1.9 / sqrt(r) within the window), within spreading over +-400 km
+    assert level[null] == pytest.approx(1.9 / math.sqrt(r[null]), rel=0.6)
+    assert abs(f[null]) / level[null] < 10 ** (-20 / 20)
+    # a ringing at the null: 0.3 % of the field there, 1.6e-4 of the level around it, 1.5e-3 of the
+    # +-25-column envelope
+    ring = f.copy()
+    ring[null - 3 : null + 4] += 0.003 * abs(f[null])
+    assert not eng.Simulation._converged(ring, f, tol)  # the former +-25-column envelope holds the run
+    assert eng.Simulation._converged(ring, f, tol, dr)
+    # a change of 3 tol of the field away from the nulls holds it still
+    peak = int(np.argmax(np.abs(f[300:900]) * np.sqrt(r[300:900]))) + 300
+    moved = f.copy()
+    moved[peak] *= 1 + 3 * tol
+    assert not eng.Simulation._converged(moved, f, tol, dr)
+
+
+def test_settling_level_is_not_set_by_the_field_near_the_transmitter():
+    dr = 937.0
+    tol = 10 ** (0.002 / 20) - 1
+    r, f = _two_mode_field(dr)
+    f[:5] *= 1e6  # a strong near field in the first columns
+    i = 60  # 56 km out: its windows stay beyond half its range
+    assert eng.settling_level(f, dr)[i] < 10 * abs(f[i])
+    moved = f.copy()
+    moved[i] *= 1 + 3 * tol
+    assert not eng.Simulation._converged(moved, f, tol, dr)

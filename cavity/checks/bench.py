@@ -112,9 +112,9 @@ REFERENCE_MACHINE = "a 2-core machine like the development one, idle"
 
 
 #: Cost of a run with the geomagnetic field in isotropic cell updates: on the 3,000 km night path at
-#: 20 kHz a step costs 1.5-1.75 times an isotropic one and the DFTs take 1.56 times the steps to
-#: settle (17,682 against 11,367); the whole run 2.7 times the processor time (measured interleaved).
-MAGNETISED_COST_FACTOR = 2.7
+#: 20 kHz a step costs 1.71 times an isotropic one (processor time) and the DFTs take 1.22 times the steps
+#: to settle (13,893 against 11,367); the whole run 2.09 times the processor time (measured interleaved).
+MAGNETISED_COST_FACTOR = 2.1
 
 
 def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]:
@@ -304,3 +304,15 @@ def night_runs_interleaved(repeats: int = 1) -> list[tuple[str, dict]]:
             done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
             out.append(("magnetised" if magnetised else "isotropic", json.loads(done.stdout.strip().splitlines()[-1])))
     return out
+
+
+def field_time_ratios(runs: list[tuple[str, dict]]) -> dict[str, float]:
+    """Magnetised over isotropic means of wall time, processor time and steps of :func:`night_runs_interleaved`."""
+
+    def mean(name: str, key: str) -> float:
+        return float(np.mean([w[key] for n, w in runs if n == name]))
+
+    return {
+        key: mean("magnetised", field) / mean("isotropic", field)
+        for key, field in (("wall", "wall_s"), ("cpu", "cpu_s"), ("steps", "steps"))
+    }

@@ -94,10 +94,16 @@ def command(whole, range_km, frequency_khz, cell_m, field):
             + f"{np.mean(rates['isotropic_cpu']) / np.mean(rates['magnetised_cpu']):.2f}"
         )
         if whole:
-            for name, w in bench.night_runs_interleaved():
+            runs = bench.night_runs_interleaved(repeats=2)
+            for name, w in runs:
                 click.echo(
                     f"  3000 km night path, 20 kHz, {name}: {w['wall_s']:.1f} s wall, {w['cpu_s']:.1f} s "
                     f"processor ({w['stepping_s']:.1f} s stepping, {w['steps']} steps"
                     f"{'' if w['converged'] else ', time cap'}), peak memory "
                     f"{w['peak_memory_bytes'] / 1e9:.2f} GB, Ez at 3000 km {w['ez_db_at_end']:.2f} dB re 1 V/m per A m"
                 )
+            ratio = bench.field_time_ratios(runs)
+            click.echo(
+                f"  field on / off (means of the interleaved runs): wall time {ratio['wall']:.2f}, processor time "
+                f"{ratio['cpu']:.2f}, steps {ratio['steps']:.2f} (target: wall time at most 2)"
+            )
