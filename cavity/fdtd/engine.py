@@ -260,8 +260,9 @@ def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, 
 
     At night the wave that leaks through the D region is the whistler mode; above 95 km its vertical
     index reaches 13-22 at 20 kHz (50,000 nT, dip 20-90 deg, density held above 100 km), a wavelength
-    of 0.7-1.2 km. With fewer than about two cells per wavelength the grid cannot carry it (beyond
-    the Yee scheme's cut-off), so it is reflected back into the guide instead of leaving it, and
+    of 0.7-1.2 km. With fewer than pi cells per wavelength the Yee grid has no propagating wave of
+    that index (its numerical dispersion relation, sin(k dz/2) = pi n dz/lambda0 for a small time
+    step: Taflove and Hagness 2005, ch. 4), so it is reflected back into the guide instead of leaving it, and
     the field along the ground is off by several dB (README, "The magnetised reference").
     None without a field, without plasma, or with ``whistler_cells`` = 0.
     """
