@@ -707,3 +707,35 @@ def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_thei
     )
     assert field.dz_m <= C0 / 20e3 / (4.0 * n) * 1.01
     assert field.dz_m >= 0.9 * C0 / 20e3 / (4.0 * n)  # not finer than needed (the cost grows as 1/dz^2)
+
+
+def test_columns_under_the_same_medium_share_one_coefficient_table():
+    """Columns between equal range samples get one plasma table, and a field given per range sample
+    one magnetised table per sample (not one per column): the tables are read every step, so a
+    table per column (an IGRF path) doubled the step time of the demo's night path."""
+    import dataclasses
+
+    from cavity.fdtd import engine as eng
+
+    medium, settings = _night_medium([1e-5, 3e-5, -4e-5], cell=1000.0, range_m=200e3)
+    ranges = np.arange(0.0, 260e3, 10e3)
+    n = ranges.size
+    gyro_t = np.array([1e-5, 3e-5, -4e-5]) * (1.0 + 0.01 * np.arange(n))[:, None]  # differs at every sample
+    path = dataclasses.replace(
+        medium,
+        range_m=ranges,
+        ground_conductivity=np.full(n, 5.0),
+        ground_permittivity=np.full(n, 70.0),
+        electron_density=np.repeat(medium.electron_density, n, axis=0),
+        collision_frequency=np.repeat(medium.collision_frequency, n, axis=0),
+        magnetic_field_t=gyro_t,
+    )
+    iso = eng.Simulation(dataclasses.replace(path, magnetic_field_t=None), settings)
+    assert len(iso.plasma_z[2]) == 1 and len(iso.plasma_r[2]) == 1
+    six = eng.Simulation(path, settings)
+    assert six.plan.nr > 200  # 1 km columns
+    # per sample: the triple with its Er to the right and to the left, plus the axis and the far end
+    assert six.mag_coef.shape[0] <= 2 * n + 2
+    # each column takes the nearest sample's field
+    near = six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 52e3)]]
+    assert np.array_equal(near, six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 48e3)]])

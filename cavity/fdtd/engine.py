@@ -215,10 +215,21 @@ def _on_grid(medium: Medium, r_nodes, z_nodes):
         w = np.clip((r_nodes - rs[idx]) / (rs[idx + 1] - rs[idx]), 0.0, 1.0)[:, None]
         lne = np.log(np.maximum(ne_cols, 1e-30))
         lnu = np.log(np.maximum(nu_cols, 1e-30))
-        ne = np.exp((1 - w) * lne[idx] + w * lne[idx + 1])
-        nu = np.exp((1 - w) * lnu[idx] + w * lnu[idx + 1])
+        # written as a + w (b - a) so that columns between equal samples get exactly equal values
+        # (and share one coefficient table in the kernels)
+        ne = np.exp(lne[idx] + w * (lne[idx + 1] - lne[idx]))
+        nu = np.exp(lnu[idx] + w * (lnu[idx + 1] - lnu[idx]))
         ne[ne < 1e-20] = 0.0
     return WP2_PER_NE * ne, nu
+
+
+def _nearest_sample(medium: Medium, r_cols) -> np.ndarray:
+    """Index of the range sample nearest to each column."""
+    rs = np.asarray(medium.range_m, float)
+    if rs.size == 1:
+        return np.zeros(len(r_cols), int)
+    idx = np.clip(np.searchsorted(rs, r_cols), 1, rs.size - 1)
+    return np.where(np.abs(r_cols - rs[idx - 1]) <= np.abs(rs[idx] - r_cols), idx - 1, idx)
 
 
 def _ground_on_columns(medium: Medium, r_cols):
@@ -527,10 +538,12 @@ class Simulation:
         self.psi_pr = np.zeros((nrp, nz + 1), f32)
         # ground impedance per output column, for Ephi = Zs Hr at the ground
         self.ground_te = _ground_on_columns(m, self.r_ez)
-        # gyro vector e B0 / m_e per Ez column, interpolated along range
-        rs = np.asarray(m.range_m, float)
+        # gyro vector e B0 / m_e per Ez column: the nearest range sample's (10 km apart along a globe
+        # path), so that the columns between two samples share their coefficient tables; interpolated,
+        # every column had its own (9,429 tables, 248 MB on the demo's night path, read every step)
+        nearest = _nearest_sample(m, self.r_ez)
         b = np.asarray(m.magnetic_field_t, float).reshape(-1, 3)
-        w = np.stack([np.interp(self.r_ez, rs, b[:, c]) for c in range(3)], axis=1) * (ELECTRON_CHARGE / ELECTRON_MASS)
+        w = b[nearest] * (ELECTRON_CHARGE / ELECTRON_MASS)
         self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
         if n_pl == 0:
             self.mag_coef = np.zeros((1, 21, 0), f32)
