@@ -707,6 +707,13 @@ def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_thei
     )
     assert field.dz_m <= C0 / 20e3 / (4.0 * n) * 1.01
     assert field.dz_m >= 0.9 * C0 / 20e3 / (4.0 * n)  # not finer than needed (the cost grows as 1/dz^2)
+    # the uncertainty companion keeps such a vertical cell (cavity.uncertainty), and only such a one
+    assert eng.whistler_sets_vertical_cell(_night_guide(b), settings)
+    assert not eng.whistler_sets_vertical_cell(_night_guide(None), settings)
+    assert not eng.whistler_sets_vertical_cell(
+        _night_guide(b), eng.Settings(**{**settings.__dict__, "whistler_cells": 0.0})
+    )
+    assert not eng.whistler_sets_vertical_cell(_night_guide(b), eng.Settings(**{**settings.__dict__, "dz_m": 200.0}))
 
 
 def test_columns_under_the_same_medium_share_one_coefficient_table():

@@ -10,6 +10,7 @@ current at the same instants: the transfer function of the waveguide at each req
 
 from __future__ import annotations
 
+import dataclasses
 import logging
 import math
 import time
@@ -291,6 +292,17 @@ def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, 
     return C0 / frequency_max_hz / (settings.whistler_cells * n)
 
 
+def whistler_sets_vertical_cell(medium: Medium, settings: Settings) -> bool:
+    """Whether the whistler rule (:func:`_whistler_dz_m`), not the isotropic rules, sets the solve's
+    vertical cell: then a grid 1.5 times coarser in height no longer carries the whistler-mode wave
+    (it falls below the Yee scheme's cut-off of pi cells per wavelength), and an uncertainty companion
+    keeps the vertical cell (:func:`cavity.solve.solve_path`)."""
+    if medium.magnetic_field_t is None or not settings.whistler_cells > 0 or settings.dz_m:
+        return False
+    plain = make_plan(medium, dataclasses.replace(settings, whistler_cells=0.0)).grid.dz_m
+    return make_plan(medium, settings).grid.dz_m < plain
+
+
 def make_plan(medium: Medium, settings: Settings) -> RunPlan:
     """Size one solve without allocating it (what ``cavity inspect`` reports)."""
     s = settings
@@ -320,8 +332,6 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
     )
     if medium.magnetic_field_t is not None:
-        import dataclasses
-
         grid = dataclasses.replace(grid, magnetised=True)
     return RunPlan(grid, waveform, f, t_min, t_max)
 
