@@ -137,7 +137,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         r = unc.COMPANION_CELL_RATIO
         # a vertical cell set by the whistler rule is kept: 1.5 times coarser, the companion would
         # reflect the whistler-mode wave (cavity.uncertainty)
-        r_z = 1.0 if eng.whistler_sets_vertical_cell(medium, settings) else r
+        r_z = 1.0 if eng.whistler_sets_vertical_cell(medium, settings, sim.plan.dz_m) else r
         coarse = dataclasses.replace(
             settings, dr_m=r * sim.plan.dr_m, dz_m=r_z * sim.plan.dz_m, probe_ranges_m=(), record_time_series=False
         )

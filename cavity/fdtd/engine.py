@@ -20,7 +20,7 @@ from typing import Any
 
 import numpy as np
 
-from cavity.constants import C0, EARTH_RADIUS_M, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
+from cavity.constants import C0, ELECTRON_CHARGE, ELECTRON_MASS, EPS0, MU0
 from cavity.errors import SolverError
 from cavity.fdtd import grid as gridmod
 from cavity.fdtd import media, stencil
@@ -285,22 +285,24 @@ def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, 
     ne = np.asarray(medium.electron_density, float)[..., z <= reach]
     if ne.size == 0 or not np.max(ne) > 0:
         return None
-    flattening = (1.0 + reach / EARTH_RADIUS_M) ** 2 if settings.earth_curvature else 1.0
+    flattening = float(media.flattening_factor(reach, settings.earth_curvature))
     n = media.whistler_vertical_index(
         WP2_PER_NE * float(np.max(ne)), medium.magnetic_field_t, frequency_max_hz, flattening
     )
     return C0 / frequency_max_hz / (settings.whistler_cells * n)
 
 
-def whistler_sets_vertical_cell(medium: Medium, settings: Settings) -> bool:
+def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float | None = None) -> bool:
     """Whether the whistler rule (:func:`_whistler_dz_m`), not the isotropic rules, sets the solve's
-    vertical cell: then a grid 1.5 times coarser in height no longer carries the whistler-mode wave
-    (it falls below the Yee scheme's cut-off of pi cells per wavelength), and an uncertainty companion
-    keeps the vertical cell (:func:`cavity.solve.solve_path`)."""
+    vertical cell (``dz_m``, the solve's plan's; planned here when not given): then a grid 1.5 times
+    coarser in height no longer carries the whistler-mode wave (it falls below the Yee scheme's
+    cut-off of pi cells per wavelength), and an uncertainty companion keeps the vertical cell
+    (:func:`cavity.solve.solve_path`)."""
     if medium.magnetic_field_t is None or not settings.whistler_cells > 0 or settings.dz_m:
         return False
-    plain = make_plan(medium, dataclasses.replace(settings, whistler_cells=0.0)).grid.dz_m
-    return make_plan(medium, settings).grid.dz_m < plain
+    if dz_m is None:
+        dz_m = make_plan(medium, settings).grid.dz_m
+    return dz_m < make_plan(medium, dataclasses.replace(settings, whistler_cells=0.0)).grid.dz_m
 
 
 def make_plan(medium: Medium, settings: Settings) -> RunPlan:
