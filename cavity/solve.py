@@ -57,6 +57,7 @@ class PathSolution:
     ephi: np.ndarray | None = None  # (nf, nrange) complex V/m RMS
     receiver_b_radial: np.ndarray | None = None
     receiver_ephi: np.ndarray | None = None
+    extrapolated: bool = False  # the field is Richardson-extrapolated from the solve and its companion
 
 
 @dataclass(frozen=True)
@@ -134,13 +135,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     coarse = None
     main_share = 1.0
     if want_uncertainty:
-        r = unc.COMPANION_CELL_RATIO
-        # a vertical cell set by the whistler rule is kept: 1.5 times coarser, the companion would
-        # reflect the whistler-mode wave (cavity.uncertainty)
-        r_z = 1.0 if eng.whistler_sets_vertical_cell(medium, settings, sim.plan.dz_m) else r
-        coarse = dataclasses.replace(
-            settings, dr_m=r * sim.plan.dr_m, dz_m=r_z * sim.plan.dz_m, probe_ranges_m=(), record_time_series=False
-        )
+        coarse = unc.companion_settings(medium, settings, sim.plan)
         # progress shares from the engine's cost model, so that the time left counts the companion
         main_cost = sim.plan.expected_cell_updates
         main_share = main_cost / (main_cost + eng.make_plan(medium, coarse).grid.expected_cell_updates)
@@ -177,6 +172,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         )
     res = sim.run(main_progress)
     fit_error = sim.impedance_fit_error
+    plan = sim.plan
     del sim  # the companion solve reuses the memory
     companion = None
     if coarse is not None:
@@ -202,16 +198,21 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
     scale = moment[:, None]
     if settings.earth_curvature:
         scale = scale * media.spherical_spreading_correction(res.range_m)[None, :]
-    ez = res.ez * scale
-    b = MU0 * res.hphi * scale
     rx_r = np.asarray(path.receiver_ranges_m, float)
-    rx_ez = np.stack([interpolate_phasor(res.range_m, ez[k], rx_r) for k in range(f.size)], axis=1)
-    rx_b = np.stack([interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
     ez_unc = rx_unc = None
+    extrapolated = False
     if companion is not None:
         # both transfer functions per unit moment, flat: the calibration cancels in the dB difference
         ez_unc = unc.grid_convergence_index_db(res.range_m, res.ez, companion.range_m, companion.ez)
         rx_unc = np.stack([np.interp(rx_r, res.range_m, ez_unc[k]) for k in range(f.size)], axis=1)
+        if coarse is not None and unc.extrapolation_applies(medium, plan, coarse):
+            # the second-order scheme's field, Richardson-extrapolated (cavity.uncertainty)
+            res = unc.extrapolated_result(res, companion)
+            extrapolated = True
+    ez = res.ez * scale
+    b = MU0 * res.hphi * scale
+    rx_ez = np.stack([interpolate_phasor(res.range_m, ez[k], rx_r) for k in range(f.size)], axis=1)
+    rx_b = np.stack([interpolate_phasor(res.range_m, b[k], rx_r) for k in range(f.size)], axis=1)
     ne_out = nu_out = None
     if medium.electron_density is not None:
         assert medium.altitude_m is not None and medium.collision_frequency is not None  # set together
@@ -219,6 +220,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
     sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw, ez_unc, rx_unc)
+    sol.extrapolated = extrapolated
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
         sol.ephi = res.ephi * scale
@@ -411,6 +413,7 @@ def to_dataset(scenario, solutions):
 
     Fields of shorter paths are NaN beyond their own range; media along them hold their last value.
     """
+    from cavity import uncertainty as unc
     from cavity.results import SolverRecord, assemble_dataset
 
     longest = max(solutions, key=lambda s: s.range_m[-1])
@@ -535,4 +538,11 @@ def to_dataset(scenario, solutions):
     if notes:
         ds.attrs["solver_notes"] = "; ".join(notes)
     ds.attrs["solver_impedance_fit_error"] = float(max(s.engine_fit_error for s in solutions))
+    extrapolated = [s.path.label for s in solutions if s.extrapolated]
+    ds.attrs["solver_extrapolation"] = (
+        f"Richardson (companion {unc.COMPANION_CELL_RATIO:g} x coarser in range, order {unc.ASSUMED_ORDER:g}) on paths: "
+        + ", ".join(extrapolated)
+        if extrapolated
+        else "none"
+    )
     return ds

@@ -716,6 +716,29 @@ def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_thei
     assert not eng.whistler_sets_vertical_cell(_night_guide(b), eng.Settings(**{**settings.__dict__, "dz_m": 200.0}))
 
 
+def test_field_is_extrapolated_only_where_the_scheme_is_second_order_and_the_companion_in_range_only():
+    # Richardson's extrapolation with p = 2 (cavity.uncertainty): the six-component (second-order)
+    # scheme with a companion coarser in range only, resolved enough along range; never the
+    # isotropic fourth-order scheme (extrapolating it with p = 2 would add error), a companion
+    # coarser in height (it would reflect the whistler-mode wave) or a too coarse companion.
+    from cavity import uncertainty as unc
+    from cavity.fdtd import engine as eng
+
+    b = np.array([0.0, 50e-6 * math.cos(math.radians(60.0)), -50e-6 * math.sin(math.radians(60.0))])
+    base = eng.Settings(frequencies_hz=(20e3,), max_range_m=600e3)
+
+    def applies(medium, **kw):
+        settings = eng.Settings(**{**base.__dict__, **kw})
+        plan = eng.make_plan(medium, settings).grid
+        return unc.extrapolation_applies(medium, plan, unc.companion_settings(medium, settings, plan))
+
+    assert applies(_night_guide(b))
+    assert not applies(_night_guide(None))
+    assert not applies(_night_guide(b), dz_m=200.0)  # the user's vertical cell: companion coarser in height
+    assert not applies(_night_guide(b), whistler_cells=0.0)
+    assert not applies(_night_guide(b), cells_per_wavelength=10.0)  # companion at 6.7 cells per wavelength
+
+
 def test_columns_under_the_same_medium_share_one_coefficient_table():
     """Columns between equal range samples get one plasma table, and a field given per range sample
     one magnetised table per sample (not one per column): the tables are read every step, so a

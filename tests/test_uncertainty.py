@@ -46,6 +46,48 @@ def test_gci_envelope_and_floor():
     assert got[100 + 6] == pytest.approx(unc.FLOOR_DB) and got[100 - 6] == pytest.approx(unc.FLOOR_DB)
 
 
+def _modes_with_phase_error(r, h, c_per_m2):
+    """Two decaying waveguide modes (exp(+j omega t): outgoing exp(-j kappa r)) whose numerical
+    wavenumbers are off by c h^2, the leading dispersion error of a second-order grid of cell h
+    (Taflove and Hagness 2005, ch. 4); c = 0 gives the exact field."""
+    k = 2 * math.pi * 20e3 / 299792458.0
+    kappas = (k * (1.002 - 3e-4j), k * (0.985 - 9e-4j))
+    amps = (1.0, 0.8 * np.exp(0.7j))
+    return sum(a * np.exp(-1j * kap * (1.0 + c_per_m2 * h * h) * r) for a, kap in zip(amps, kappas))
+
+
+def test_richardson_extrapolation_removes_a_second_order_phase_error():
+    """Manufactured two-mode field whose modes carry a phase error theta growing as h^2 r. The solve
+    on cells h and the companion on 1.5 h give, by Richardson's extrapolation with p = 2
+    (Richardson 1911; Roache 1998, ch. 5), a field whose error is second order in theta: for one
+    mode exp(j theta) + (exp(j theta) - exp(2.25 j theta)) / 1.25 = 1 + 1.125 theta^2 + O(theta^3),
+    against the fine field's theta. Checked on the fine ranges although the companion is sampled
+    on its own coarser ones."""
+    h = 937.0
+    k = 2 * math.pi * 20e3 / 299792458.0
+    r_fine = np.arange(1.0, 3201.0) * h
+    r_coarse = np.arange(1.0, 2134.0) * 1.5 * h
+    keep = (r_fine > 300e3) & (r_fine < 2990e3)  # the companion reaches 2,998 km
+    exact = _modes_with_phase_error(r_fine, h, 0.0)
+    worst = {}
+    for theta in (0.1, 0.05):  # phase error of the leading mode at 3,000 km on the fine grid, rad
+        c = theta / (k * 3000e3 * h * h)
+        fine = _modes_with_phase_error(r_fine, h, c)
+        coarse = _modes_with_phase_error(r_coarse, 1.5 * h, c)
+        got = unc.richardson_extrapolate(r_fine, fine[None], r_coarse, coarse[None], [20e3])[0]
+        err_fine = np.abs(fine - exact)[keep] / np.abs(exact[keep])
+        err_got = np.abs(got - exact)[keep] / np.abs(exact[keep])
+        assert err_fine.max() > 0.7 * theta  # the manufactured error is there
+        assert err_got.max() < 1.5 * theta**2
+        worst[theta] = err_got.max()
+    assert 0.2 < worst[0.05] / worst[0.1] < 0.3  # second order in theta
+    # ranges the companion does not reach keep the fine field
+    r_short = r_coarse[r_coarse < 2000e3]
+    got_short = unc.richardson_extrapolate(r_fine, fine[None], r_short, coarse[None, : r_short.size], [20e3])[0]
+    beyond = r_fine > r_short[-1]
+    np.testing.assert_array_equal(got_short[beyond], fine[beyond])
+
+
 # ----------------------------------------------------------------------------------- long checks
 #: The three kinds of guide of issue 15, each: (label, kind, f_hz, a, b, ranges): ionosphere
 #: (h' km, beta /km) over sea or a conducting ceiling (height m).

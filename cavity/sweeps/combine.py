@@ -245,6 +245,7 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
         "solver_wall_time_s": float(finite(record["wall_time"], np.sum, 0.0)),
         "solver_converged": "yes" if converged else "no",
         "solver_impedance_fit_error": fit,
+        "solver_extrapolation": _extrapolation_text([attrs[p].get("solver_extrapolation", "none") for p in done]),
         "sweep_description": (
             "each point is the scenario above with ionosphere utc = time (when there is a time axis) "
             "and transmitter frequency_khz = frequency, solved on its own; the solver_* attributes "
@@ -301,3 +302,12 @@ def write_sweep(ds: xr.Dataset, path, *, overwrite: bool = False) -> Path:
     from cavity.results import write_result
 
     return write_result(encode_time(ds), path, overwrite=overwrite)
+
+
+def _extrapolation_text(values) -> str:
+    """The points' ``solver_extrapolation`` attributes summarised for the sweep file."""
+    done = [v for v in values if v != "none"]
+    if not done:
+        return "none"
+    method = done[0].split(" on paths:")[0]
+    return f"{method} on some or all paths of {len(done)} of {len(values)} points"
