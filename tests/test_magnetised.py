@@ -618,6 +618,18 @@ cell_m = {cell_m}
 """)
 
 
+def test_result_file_names_the_extrapolated_paths():
+    # With the field and automatic cells the reported field is the Richardson extrapolation of the
+    # solve and its companion (cavity.uncertainty); the file says so, and says "none" otherwise.
+    from cavity.solve import simulate
+
+    with_field = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m='"auto"'))
+    assert with_field.attrs["solver_extrapolation"].startswith("Richardson")
+    assert np.isfinite(with_field["receiver_ez_amplitude"].values).all()
+    fixed_cells = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m=1000.0))  # companion coarser in height
+    assert fixed_cells.attrs["solver_extrapolation"] == "none"
+
+
 @pytest.mark.slow
 def test_vertical_field_gives_the_same_answer_in_every_direction():
     # With a vertical field there is no preferred horizontal direction (physics): the azimuth of
