@@ -205,7 +205,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         # both transfer functions per unit moment, flat: the calibration cancels in the dB difference
         ez_unc = unc.grid_convergence_index_db(res.range_m, res.ez, companion.range_m, companion.ez)
         rx_unc = np.stack([np.interp(rx_r, res.range_m, ez_unc[k]) for k in range(f.size)], axis=1)
-        if coarse is not None and unc.extrapolation_applies(medium, plan, coarse):
+        if unc.extrapolation_applies(medium, plan, coarse):
             # the second-order scheme's field, Richardson-extrapolated (cavity.uncertainty)
             res = unc.extrapolated_result(res, companion)
             extrapolated = True
@@ -219,8 +219,22 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         z_out = RESULT_ALTITUDE_KM * 1e3
         ne_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.electron_density])
         nu_out = np.stack([np.interp(z_out, medium.altitude_m, row) for row in medium.collision_frequency])
-    sol = PathSolution(path, res.range_m, ez, b, rx_ez, rx_b, res, fit_error, ne_out, nu_out, raw, ez_unc, rx_unc)
-    sol.extrapolated = extrapolated
+    sol = PathSolution(
+        path,
+        res.range_m,
+        ez,
+        b,
+        rx_ez,
+        rx_b,
+        res,
+        fit_error,
+        ne_out,
+        nu_out,
+        raw,
+        ez_unc,
+        rx_unc,
+        extrapolated=extrapolated,
+    )
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
         sol.ephi = res.ephi * scale
@@ -540,9 +554,6 @@ def to_dataset(scenario, solutions):
     ds.attrs["solver_impedance_fit_error"] = float(max(s.engine_fit_error for s in solutions))
     extrapolated = [s.path.label for s in solutions if s.extrapolated]
     ds.attrs["solver_extrapolation"] = (
-        f"Richardson (companion {unc.COMPANION_CELL_RATIO:g} x coarser in range, order {unc.ASSUMED_ORDER:g}) on paths: "
-        + ", ".join(extrapolated)
-        if extrapolated
-        else "none"
+        f"{unc.EXTRAPOLATION_METHOD} on paths: " + ", ".join(extrapolated) if extrapolated else "none"
     )
     return ds

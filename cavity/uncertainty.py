@@ -105,6 +105,9 @@ def grid_convergence_index_db(
     return np.maximum(safety * envelope, floor_db)
 
 
+#: How an extrapolated field was obtained, as the result files record it (``solver_extrapolation``).
+EXTRAPOLATION_METHOD = f"Richardson (companion {COMPANION_CELL_RATIO:g} x coarser in range, order {ASSUMED_ORDER:g})"
+
 #: Companion cells per wavelength below which the extrapolation is not trusted (the two solutions
 #: must be in the range where the error falls as h^p; the default 16-cell solve has a 10.7-cell
 #: companion).

@@ -306,8 +306,9 @@ def write_sweep(ds: xr.Dataset, path, *, overwrite: bool = False) -> Path:
 
 def _extrapolation_text(values) -> str:
     """The points' ``solver_extrapolation`` attributes summarised for the sweep file."""
+    from cavity.uncertainty import EXTRAPOLATION_METHOD
+
     done = [v for v in values if v != "none"]
     if not done:
         return "none"
-    method = done[0].split(" on paths:")[0]
-    return f"{method} on some or all paths of {len(done)} of {len(values)} points"
+    return f"{EXTRAPOLATION_METHOD} on some or all paths of {len(done)} of {len(values)} points"
