@@ -593,6 +593,31 @@ def test_dense_magnetised_slab_stays_stable_for_1e5_steps(strength_t):
     assert np.abs(sim.ez).max() < 1e-3 and np.isfinite(sim.ephi).all()
 
 
+def test_far_end_absorber_stays_stable_in_a_night_magnetised_guide():
+    # A stretched-coordinate absorber in a gyrotropic medium can amplify the waves that travel
+    # backward along its stretched axis (Becache, Fauqueux and Joly 2003, J. Comput. Phys. 188(2)
+    # 399). Before the far-end absorber's plasma was made isotropic, this 150 km night guide (dip 20,
+    # westward, 36 cells per wavelength) grew without bound in that absorber at about 4.5 ms.
+    from cavity.checks.verify import ionosphere_run
+    from cavity.reference import magnetised as mg
+
+    b = mg.field_from_dip_azimuth(5e-5, 20.0, 270.0)
+    res = ionosphere_run(
+        20e3,
+        85.1,
+        0.63,
+        5.0,
+        70.0,
+        150e3,
+        magnetic_field_t=b,
+        cells_per_wavelength=36.0,
+        convergence_db=0.0,
+        max_duration_s=7e-3,
+    )  # the engine's guard raises SolverError on growth or non-finite fields
+    assert res.steps * res.plan.dt_s >= 7e-3 - 2 * res.plan.dt_s
+    assert np.isfinite(res.ez).all() and np.abs(res.ez[0, 10]) > 0
+
+
 def _uniform_scenario(range_km, dip_deg, azimuth_deg, *, night=True, ground="sea", cell_m=1000.0, strength_nt=50000.0):
     from cavity.scenario import load_scenario
 
