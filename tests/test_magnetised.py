@@ -601,14 +601,11 @@ def test_far_end_absorber_stays_stable_in_a_night_magnetised_guide():
     from cavity.checks.verify import ionosphere_run
     from cavity.reference import magnetised as mg
 
-    b = mg.field_from_dip_azimuth(5e-5, 20.0, 270.0)
+    b = mg.field_from_dip_azimuth(5e-5, 20.0, 270.0)  # 50,000 nT, dip 20 deg, travelling west
+    night_sea = dict(f_hz=20e3, hprime_km=85.1, beta_per_km=0.63, conductivity=5.0, permittivity=70.0)
     res = ionosphere_run(
-        20e3,
-        85.1,
-        0.63,
-        5.0,
-        70.0,
-        150e3,
+        **night_sea,
+        max_range_m=150e3,
         magnetic_field_t=b,
         cells_per_wavelength=36.0,
         convergence_db=0.0,
