@@ -10,6 +10,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from cavity.sweeps.points import SweepError, utc_text
+from cavity.uncertainty import EXTRAPOLATION_METHOD
 from cavity.version import __version__
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -306,8 +307,6 @@ def write_sweep(ds: xr.Dataset, path, *, overwrite: bool = False) -> Path:
 
 def _extrapolation_text(values) -> str:
     """The points' ``solver_extrapolation`` attributes summarised for the sweep file."""
-    from cavity.uncertainty import EXTRAPOLATION_METHOD
-
     done = [v for v in values if v != "none"]
     if not done:
         return "none"
