@@ -449,6 +449,29 @@ def test_argument_principle_counts_zeros_under_a_fast_phase():
     assert mg._winding(fun, (0.7, 0.9, -0.02, -1e-6), 2 * rate) == 1
 
 
+def test_a_root_on_the_counting_contour_is_counted_on_a_nudged_region():
+    # Argument principle (Cauchy), as above: f has zeros at c1, c2 inside and one exactly on the
+    # region's lower edge (the attenuation window's bound), where arg f jumps by pi and cannot be
+    # followed. The count must move its edges outward and find all three.
+    from types import SimpleNamespace
+
+    from cavity.errors import SolverError
+
+    region = (0.7, 1.02, -0.02, -1e-6)
+    zeros = [mg._cos_of_sine(s) for s in (complex(0.95, -0.005), complex(0.8, -0.015), complex(0.9123, -0.02))]
+
+    def fun(c):
+        return (c - zeros[0]) * (c - zeros[1]) * (c - zeros[2]) * np.exp(-1j * 50.0 * c)
+
+    guide = SimpleNamespace(det=fun, det_analytic=fun, profile=SimpleNamespace(thickness=np.array([50.0])))
+    with pytest.raises(SolverError, match="counting contour"):
+        mg._complete(guide, region, [])
+    used, (count, found) = mg._complete_nudged(guide, region, [])
+    assert used[2] < region[2] and used[3] == region[3]
+    assert count == 3 and len(found) == 3
+    assert all(min(abs(mg._canonical(f) - mg._canonical(z)) for f in found) < 1e-8 for z in zeros)
+
+
 @pytest.mark.slow
 def test_mirrored_dip_gives_the_same_modes(night_east_west):
     # Reciprocity (Budden 1961; the reflection-matrix test above): R(B_r, B_phi, -B_z) =

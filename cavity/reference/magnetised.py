@@ -724,8 +724,10 @@ def magnetised_modes(
        region of the S = sin(theta) plane where 0.15 <= Re S <= 1.05 and the attenuation lies
        between 0.005 dB/Mm and the window (:func:`count_modes`). If the count exceeds the modes found
        there, the region is bisected (counting again in each part) until every missing root is
-       isolated and found by Newton's method (origin "A<n>"). The count and the number found are
-       returned (``counted_modes``, ``found_in_count_region``): equal when the set is complete.
+       isolated and found by Newton's method (origin "A<n>"). A root lying on the contour leaves the
+       count unresolved; the region's edges then move outward by a few percent and it counts again
+       (:func:`_complete_nudged`). The count and the number found are returned (``counted_modes``,
+       ``found_in_count_region``): equal when the set is complete.
 
     A root that two modes reach after stage 2's retry is an error only if stage 4 cannot restore it.
 
@@ -819,8 +821,7 @@ def magnetised_modes(
                 names.append(f"F{extra}")
     counted = found_in_region = -1
     if check_count:
-        region = _count_region(k0, max_att)
-        counted, new = _complete(final, region, roots)
+        region, (counted, new) = _complete_nudged(final, _count_region(k0, max_att), roots)
         for n, c in enumerate(new):
             roots.append(c)
             names.append(f"A{n + 1}")
@@ -1080,6 +1081,37 @@ def count_modes(guide: _Guide, region) -> int:
     """
     fun = lambda s: guide.det_analytic(_cos_of_sine(s))  # noqa: E731
     return _winding(fun, region, _phase_rate(guide))
+
+
+#: Outward moves of the counting region's edges, tried in turn when a root lies on its contour
+#: (relative to the edge's value: Re S min, Re S max, Im S min; the low-attenuation edge stays);
+#: uneven steps, so that the edges of successive tries do not fall on one lattice of roots.
+_NUDGES = (
+    (0.0, 0.0, 0.0),
+    (-0.013, 0.0117, 0.031),
+    (-0.029, 0.0231, 0.053),
+    (-0.047, 0.0343, 0.089),
+    (-0.061, 0.0457, 0.117),
+)
+
+
+def _complete_nudged(guide: _Guide, region, roots):
+    """:func:`_complete` on ``region``, or on a slightly larger one if a root lies on its contour.
+
+    A root on an edge (or on a line the bisection draws) leaves the phase of the mode equation
+    unresolved there. Moving the edges outward by a few percent takes the contour off the root; the
+    region used is returned with the count, so that the modes are compared with the region counted.
+    """
+    x0, x1, y0, y1 = region
+    for k, (dx0, dx1, dy0) in enumerate(_NUDGES):
+        part = (x0 * (1.0 + dx0), x1 * (1.0 + dx1), y0 * (1.0 + dy0), y1)
+        try:
+            return part, _complete(guide, part, roots)
+        except SolverError as exc:
+            if "counting contour" not in str(exc) or k == len(_NUDGES) - 1:
+                raise
+            log.info("magnetised reference: %s; counting again on a region nudged outward", exc)
+    raise AssertionError("unreachable")
 
 
 def _complete(guide: _Guide, region, roots, max_depth=10):
