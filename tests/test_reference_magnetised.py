@@ -455,8 +455,6 @@ def test_a_root_on_the_counting_contour_is_counted_on_a_nudged_region():
     # followed. The count must move its edges outward and find all three.
     from types import SimpleNamespace
 
-    from cavity.errors import SolverError
-
     region = (0.7, 1.02, -0.02, -1e-6)
     zeros = [mg._cos_of_sine(s) for s in (complex(0.95, -0.005), complex(0.8, -0.015), complex(0.9123, -0.02))]
 
@@ -464,7 +462,7 @@ def test_a_root_on_the_counting_contour_is_counted_on_a_nudged_region():
         return (c - zeros[0]) * (c - zeros[1]) * (c - zeros[2]) * np.exp(-1j * 50.0 * c)
 
     guide = SimpleNamespace(det=fun, det_analytic=fun, profile=SimpleNamespace(thickness=np.array([50.0])))
-    with pytest.raises(SolverError, match="counting contour"):
+    with pytest.raises(mg.RootOnContourError, match="counting contour"):
         mg._complete(guide, region, [])
     used, (count, found) = mg._complete_nudged(guide, region, [])
     assert used[2] < region[2] and used[3] == region[3]

@@ -1019,13 +1019,17 @@ def _in_region(c, region):
     return region[0] <= s.real <= region[1] and region[2] <= s.imag <= region[3]
 
 
+class RootOnContourError(SolverError):
+    """The argument-principle count met a root on (or within rounding of) its contour."""
+
+
 def _edge_turn(fun, a, b, fa, fb, depth=0, max_depth=12):
     """Change of arg fun along the segment a -> b, bisected until each piece turns by < pi/4."""
     turn = float(np.angle(fb / fa))
     if abs(turn) <= math.pi / 4.0:
         return turn
     if depth >= max_depth:
-        raise SolverError(
+        raise RootOnContourError(
             f"magnetised reference: the mode count cannot resolve the phase near S = {a:.6g} "
             "(a root on the counting contour)"
         )
@@ -1103,15 +1107,13 @@ def _complete_nudged(guide: _Guide, region, roots):
     region used is returned with the count, so that the modes are compared with the region counted.
     """
     x0, x1, y0, y1 = region
-    for k, (dx0, dx1, dy0) in enumerate(_NUDGES):
-        part = (x0 * (1.0 + dx0), x1 * (1.0 + dx1), y0 * (1.0 + dy0), y1)
+    parts = [(x0 * (1.0 + dx0), x1 * (1.0 + dx1), y0 * (1.0 + dy0), y1) for dx0, dx1, dy0 in _NUDGES]
+    for part in parts[:-1]:
         try:
             return part, _complete(guide, part, roots)
-        except SolverError as exc:
-            if "counting contour" not in str(exc) or k == len(_NUDGES) - 1:
-                raise
+        except RootOnContourError as exc:
             log.info("magnetised reference: %s; counting again on a region nudged outward", exc)
-    raise AssertionError("unreachable")
+    return parts[-1], _complete(guide, parts[-1], roots)
 
 
 def _complete(guide: _Guide, region, roots, max_depth=10):
