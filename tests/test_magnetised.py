@@ -615,6 +615,37 @@ def test_far_end_absorber_stays_stable_in_a_night_magnetised_guide():
     assert np.isfinite(res.ez).all() and np.abs(res.ez[0, 10]) > 0
 
 
+def _backward_share_db(res, window_m=150e3):
+    """Share of the ground Ez's power that travels back toward the source over the last ``window_m``
+    of output (dB): the spectrum along range of sqrt(r) Ez puts forward waves (exp(-i k r)) at
+    negative wavenumbers and backward ones at positive."""
+    r, ez = res.range_m, res.ez[0]
+    k0 = 2 * math.pi * res.frequencies_hz[0] / 299792458.0
+    s = r >= r[-1] - window_m
+    spec = np.abs(np.fft.fft(ez[s] * np.sqrt(r[s]) * np.hanning(s.sum()))) ** 2
+    k = 2 * math.pi * np.fft.fftfreq(s.sum(), r[1] - r[0])
+    return 10 * np.log10(spec[(k > 0.3 * k0) & (k < 3 * k0)].sum() / spec.sum())
+
+
+def test_far_end_of_a_magnetised_night_guide_sends_nothing_back():
+    # Radiation condition: a guide that runs on without end carries no wave back toward the source.
+    # The far-end absorber's plasma is isotropic (the test above); switching the field off there at
+    # one column reflected about -25 dB of the night guide's power, while fading it out over four
+    # wavelengths ahead of the absorber reflects below -50 dB (200 km, dip 20, westward).
+    from cavity.checks.verify import ionosphere_run
+    from cavity.reference import magnetised as mg
+
+    b = mg.field_from_dip_azimuth(5e-5, 20.0, 270.0)
+    night_sea = dict(f_hz=20e3, hprime_km=85.1, beta_per_km=0.63, conductivity=5.0, permittivity=70.0)
+    kw = dict(max_range_m=200e3, magnetic_field_t=b, cells_per_wavelength=16.0)
+    tapered = ionosphere_run(**night_sea, **kw)
+    abrupt = ionosphere_run(**night_sea, **kw, field_taper_wavelengths=0.0)
+    assert tapered.plan.taper_r_cells * tapered.plan.dr_m == pytest.approx(4 * 299792458.0 / 20e3, abs=1e3)
+    assert abrupt.plan.taper_r_cells == 0 and abrupt.range_m.size == tapered.range_m.size
+    assert _backward_share_db(abrupt) > -35.0  # the measure sees the abrupt change's reflection
+    assert _backward_share_db(tapered) < -45.0
+
+
 def _uniform_scenario(range_km, dip_deg, azimuth_deg, *, night=True, ground="sea", cell_m=1000.0, strength_nt=50000.0):
     from cavity.scenario import load_scenario
 
@@ -798,8 +829,10 @@ def test_columns_under_the_same_medium_share_one_coefficient_table():
     assert len(iso.plasma_z[2]) == 1 and len(iso.plasma_r[2]) == 1
     six = eng.Simulation(path, settings)
     assert six.plan.nr > 200  # 1 km columns
-    # per sample: the triple with its Er to the right and to the left, plus the axis and the far end
-    assert six.mag_coef.shape[0] <= 2 * n + 2
+    # per sample: the triple with its Er to the right and to the left, plus the axis and the far end;
+    # and one per column where the field fades out ahead of the far-end absorber
+    assert six.plan.taper_r_cells > 0
+    assert six.mag_coef.shape[0] <= 2 * n + 2 + 2 * six.plan.taper_r_cells
     # each column takes the nearest sample's field
     near = six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 52e3)]]
     assert np.array_equal(near, six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 48e3)]])

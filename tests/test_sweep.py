@@ -538,7 +538,7 @@ def test_a_sweep_whose_combined_arrays_cannot_fit_is_refused_before_solving(tiny
     variant = point_scenario(tiny, points[-1])
     paths = build_paths(variant)
     grid = max((plan_path(variant, p).grid for p in paths), key=lambda g: g.nr)
-    one = combined_memory_bytes(1, 2, len(paths), grid.nr - grid.pml_r_cells - 1)
+    one = combined_memory_bytes(1, 2, len(paths), grid.range_columns)
     for available, advice in (
         (one * 1.5 / 0.8, r"sweep at most 1 instant per file"),
         (one / 2, r"not even one instant fits"),

@@ -117,6 +117,10 @@ class Settings:
     # with the geomagnetic field: cells per vertical wavelength of the whistler-mode wave in the densest
     # plasma (see _whistler_dz_m); 0 leaves the vertical cell to the isotropic rules
     whistler_cells: float = 4.0
+    # with the geomagnetic field: wavelengths (at the lowest frequency) beyond the farthest output over
+    # which the field fades out before the isotropic far-end absorber (see Simulation); 0 switches to
+    # an abrupt change at the absorber
+    field_taper_wavelengths: float = 4.0
 
 
 @dataclass
@@ -313,6 +317,12 @@ def stencil_order(medium: Medium, settings: Settings) -> int:
     return 2 if medium.magnetic_field_t is not None else int(settings.stencil_order)
 
 
+def _has_field(medium: Medium) -> bool:
+    """Whether the medium holds a geomagnetic field that is not zero everywhere."""
+    b = medium.magnetic_field_t
+    return b is not None and bool(np.any(np.asarray(b, float) != 0.0))
+
+
 def make_plan(medium: Medium, settings: Settings) -> RunPlan:
     """Size one solve without allocating it (what ``cavity inspect`` reports)."""
     s = settings
@@ -340,6 +350,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         courant_safety=s.courant_safety,
         stencil_order=stencil_order(medium, s),
         dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
+        taper_m=s.field_taper_wavelengths * C0 / float(f.min()) if _has_field(medium) else 0.0,
     )
     if medium.magnetic_field_t is not None:
         grid = dataclasses.replace(grid, magnetised=True)
@@ -567,9 +578,14 @@ class Simulation:
         self.gyro_max = float(np.max(np.linalg.norm(w, axis=1))) if w.size else 0.0
         # the far-end absorber holds an isotropic plasma: a CPML is unstable in a gyrotropic medium
         # whose waves travel backward along the stretched axis (Becache, Fauqueux and Joly 2003,
-        # J. Comput. Phys. 188(2) 399); the guided modes' wavenumbers differ from the isotropic ones
-        # by a few parts in 1,000, so the interface reflects little
+        # J. Comput. Phys. 188(2) 399). An abrupt change to it reflected the night guide's modes at
+        # about -27 dB; the field fades out as sin^2 over the taper's columns instead, a change slow
+        # on the scale of a wavelength, which reflects below -50 dB (docs/physics.md, far end)
         w[self.ir0 :] = 0.0
+        nt = p.taper_r_cells
+        if nt:
+            x = (self.ir0 - np.arange(self.ir0 - nt, self.ir0)) / nt  # 1 at the taper's start -> 1/nt
+            w[self.ir0 - nt : self.ir0] *= (np.sin(0.5 * np.pi * x) ** 2)[:, None]
         if n_pl == 0:
             self.mag_coef = np.zeros((1, 21, 0), f32)
             self.tab_p = self.tab_m = np.zeros(nr, np.int32)
@@ -640,7 +656,7 @@ class Simulation:
         n_max = int(math.ceil(self.t_max / dt))
         check_every = max(50, int(round(max(0.5e-3, 2.0 / self.frequencies_hz.min()) / dt)))
         guard_every = 100
-        n_out = self.ir0  # physical columns
+        n_out = p.range_columns + 1  # output columns and the axis (no output in the field's taper)
         tol = 10 ** (s.convergence_db / 20) - 1
         probes = np.asarray(s.probe_ranges_m, float)
         probe_cols = np.clip(np.rint(probes / p.dr_m).astype(int), 1, n_out - 1) if probes.size else np.zeros(0, int)

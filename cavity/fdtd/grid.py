@@ -104,6 +104,13 @@ class GridPlan:
     top_m: float  # top of the physical domain (below the absorber)
     n_steps: int  # planned number of time steps (the engine may stop earlier once converged)
     magnetised: bool = False  # six components with the geomagnetic field
+    taper_r_cells: int = 0  # columns before the far-end absorber where the geomagnetic field fades out
+
+    @property
+    def range_columns(self) -> int:
+        """Output columns along the ground: every Ez column but the axis, the field's fade-out and the
+        far-end absorber."""
+        return self.nr - self.pml_r_cells - self.taper_r_cells - 1
 
     @property
     def cells(self) -> int:
@@ -170,6 +177,7 @@ def plan_grid(
     courant_safety: float = COURANT_SAFETY,
     stencil_order: int = 4,
     dz_max_m: float | None = None,
+    taper_m: float = 0.0,
 ) -> GridPlan:
     """Size the grid and the time step for one solve.
 
@@ -183,6 +191,8 @@ def plan_grid(
     dr_m, dz_m : user override of the cells; default from :func:`default_cells`.
     dz_max_m : a further cap on the default vertical cell (not below :data:`MIN_DZ_M`); with the
         geomagnetic field, the whistler-mode rule of :func:`cavity.fdtd.engine.make_plan`.
+    taper_m : length beyond the margin and before the far-end absorber over which the engine fades
+        the geomagnetic field out (0 without a field); no output lies there.
     """
     dr_auto, dz_auto = default_cells(frequency_max_hz, beta_max_per_m, cells_per_wavelength)
     dr = float(dr_m) if dr_m else dr_auto
@@ -190,7 +200,8 @@ def plan_grid(
         dz_auto = min(dz_auto, max(float(dz_max_m), MIN_DZ_M))
     dz = float(dz_m) if dz_m else (min(dz_auto, dr) if not dr_m else min(dr, dz_auto))
     margin = 10  # cells between the farthest output and the absorber
-    nr = int(math.ceil(max_range_m / dr)) + margin + pml_cells + 1
+    taper = int(math.ceil(taper_m / dr)) if taper_m > 0 else 0
+    nr = int(math.ceil(max_range_m / dr)) + margin + taper + pml_cells + 1
     pml_z = 0 if ceiling else pml_cells
     nz = int(round(top_m / dz)) + pml_z
     if ceiling and abs(nz * dz - top_m) > 1e-6 * top_m:
@@ -208,6 +219,7 @@ def plan_grid(
         max_range_m=float(max_range_m),
         top_m=float(top_m),
         n_steps=n_steps,
+        taper_r_cells=taper,
     )
 
 

@@ -147,7 +147,7 @@ def check_combine_memory(times, freqs, points, variants) -> None:
     except CavityError:
         return
     n_t = len(times) if times is not None else 1
-    n_range = plan.nr - plan.pml_r_cells - 1
+    n_range = plan.range_columns
     need = combined_memory_bytes(n_t, len(freqs), len(paths), n_range)
     available = gridmod.available_memory_bytes()
     if need > COMBINE_MEMORY_SHARE * available:

@@ -610,7 +610,7 @@ def check_memory(scenario: Scenario, settings: CoverageSettings, variants: dict)
         raise ResourceError(f"one bearing's {exc} (or a shorter --range-km)") from None
     lat0, lon0 = _check_scenario(scenario)
     lat, lon = map_grid(lat0, lon0, settings.range_km, settings.grid_deg)
-    n_range = plan.nr - plan.pml_r_cells - 1
+    n_range = plan.range_columns
     need = map_memory_bytes(len(scenario.transmitter.frequencies_hz), lat.size, lon.size, len(variants), n_range)
     if need > MAP_MEMORY_SHARE * available:
         raise ResourceError(
