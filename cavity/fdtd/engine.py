@@ -580,7 +580,7 @@ class Simulation:
         # whose waves travel backward along the stretched axis (Becache, Fauqueux and Joly 2003,
         # J. Comput. Phys. 188(2) 399). An abrupt change to it reflected the night guide's modes at
         # about -27 dB; the field fades out as sin^2 over the taper's columns instead, a change slow
-        # on the scale of a wavelength, which reflects below -50 dB (docs/physics.md, far end)
+        # on the scale of a wavelength, which reflects below -50 dB (docs/physics.md section 4)
         w[self.ir0 :] = 0.0
         nt = p.taper_r_cells
         if nt:
