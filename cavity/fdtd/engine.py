@@ -584,7 +584,7 @@ class Simulation:
         w[self.ir0 :] = 0.0
         nt = p.taper_r_cells
         if nt:
-            x = (self.ir0 - np.arange(self.ir0 - nt, self.ir0)) / nt  # 1 at the taper's start -> 1/nt
+            x = np.arange(nt, 0, -1) / nt  # 1 at the taper's start, 1/nt at its last column
             w[self.ir0 - nt : self.ir0] *= (np.sin(0.5 * np.pi * x) ** 2)[:, None]
         if n_pl == 0:
             self.mag_coef = np.zeros((1, 21, 0), f32)
