@@ -206,7 +206,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         ez_unc = unc.grid_convergence_index_db(res.range_m, res.ez, companion.range_m, companion.ez)
         rx_unc = np.stack([np.interp(rx_r, res.range_m, ez_unc[k]) for k in range(f.size)], axis=1)
         if unc.extrapolation_applies(medium, plan, coarse):
-            # the second-order scheme's field, Richardson-extrapolated (cavity.uncertainty)
+            # a second-order scheme's field, Richardson-extrapolated (cavity.uncertainty)
             res = unc.extrapolated_result(res, companion)
             extrapolated = True
     ez = res.ez * scale

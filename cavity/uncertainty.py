@@ -39,11 +39,12 @@ The coverage of the stated value (|solver - reference| <= uncertainty) is measur
 independent references in ``tests/test_uncertainty.py`` and reported in the README.
 
 The same two solutions also improve the field itself where the scheme is second order throughout
-(the six-component scheme of the geomagnetic field) and the companion differs from the solve in
-range only: Richardson's extrapolation (Richardson 1911, Phil. Trans. R. Soc. A 210, 307; Roache
+(the six-component scheme of the geomagnetic field run with ``stencil_order = 2``; by default its
+range differences are fourth order, as the isotropic scheme's) and the companion differs from the
+solve in range only: Richardson's extrapolation (Richardson 1911, Phil. Trans. R. Soc. A 210, 307; Roache
 1998, ch. 5) f1 + (f1 - f2) / (r^p - 1), applied to the complex phasors so that each mode's phase
 error is removed before the modes interfere (:func:`richardson_extrapolate`). It is not applied
-to the fourth-order isotropic runs: their error does not fall as h^2, and extrapolating with p = 2
+to fourth-order runs: their error does not fall as h^2, and extrapolating with p = 2
 would add about 2.25 times their error instead of removing it. The stated uncertainty stays the
 fine solution's GCI: a conservative bound for the extrapolated value.
 """
@@ -183,13 +184,15 @@ def extrapolation_applies(medium, plan, coarse) -> bool:
     Richardson-extrapolated field.
 
     Only where the scheme is second order throughout (the six-component scheme of the geomagnetic
-    field), the companion differs in range only (the whistler rule set the vertical cell; a
-    coarser vertical cell is an error of another kind) and the companion still has
-    :data:`RICHARDSON_MIN_COMPANION_CELLS` per wavelength along range.
+    field with ``stencil_order = 2``; by default its range differences are fourth order, and
+    extrapolating with p = 2 would add error), the companion differs in range only (the whistler
+    rule set the vertical cell; a coarser vertical cell is an error of another kind) and the
+    companion still has :data:`RICHARDSON_MIN_COMPANION_CELLS` per wavelength along range.
     """
     from cavity.constants import C0
+    from cavity.fdtd import engine as eng
 
-    if medium.magnetic_field_t is None or coarse.dz_m != plan.dz_m:
+    if medium.magnetic_field_t is None or coarse.dz_m != plan.dz_m or eng.stencil_order(medium, coarse) != 2:
         return False
     wavelength_m = C0 / float(np.max(coarse.frequencies_hz))
     return wavelength_m / coarse.dr_m >= RICHARDSON_MIN_COMPANION_CELLS

@@ -23,14 +23,26 @@ F32 = np.float32
 # ---------------------------------------------------------------------------------------------
 
 
+def np_radial(coef, f, first):
+    """sum_k coef[:, k] f[i + first - k] over the four columns of a radial stencil table, with a
+    column beyond the last read as zero and one before the axis as column 0 (the kernels' clamp;
+    the tables give it a zero coefficient)."""
+    nr = f.shape[0]
+    out = np.zeros(f.shape, np.float64)
+    for k in range(4):
+        idx = np.arange(nr) + first - k
+        col = np.where(idx >= nr, 0.0, f[np.clip(idx, 0, nr - 1)].astype(np.float64).T).T
+        out += coef[:, k : k + 1].astype(np.float64) * col
+    return out
+
+
 def np_step_h_te(
     hr,
     hz,
     ephi,
     inv_dz,
     ch,
-    qp,
-    qm,
+    te_h,
     ha,
     hb,
     sib_q,
@@ -61,8 +73,7 @@ def np_step_h_te(
     d = dz_e[:, jz0:]
     psi_hr[:] = b_zh * psi_hr + c_zh * d
     hr[:, jz0:] += ch * (kd_zh * d + psi_hr)
-    e_pad = np.vstack([ephi, np.zeros((1, nz + 1), ephi.dtype)])  # Ephi = 0 beyond the last column
-    rad = -(qp[:, None] * e_pad[1:] - qm[:, None] * e_pad[:-1])
+    rad = -np_radial(te_h, ephi, 2)  # Ephi at i+2, i+1, i, i-1; zero beyond the last column
     hz[:, 1:nz] += ch * rad[:, 1:nz]
     d = rad[ir0:, 1:nz]
     psi_hz[:, 1:nz] = b_rh[:, None] * psi_hz[:, 1:nz] + c_rh[:, None] * d
@@ -78,9 +89,8 @@ def np_step_e_mag(
     hp,
     hr,
     hz,
-    rp,
-    rm,
-    inv_dr,
+    er_coef,
+    te_e,
     inv_dz,
     cez,
     cer,
@@ -118,8 +128,7 @@ def np_step_e_mag(
         psi[:] = b * psi + c * d
         return d + kd * d + psi
 
-    hm = np.vstack([hp[:1], hp[:-1]])
-    cz = rp[:, None] * hp - rm[:, None] * hm
+    cz = np_radial(er_coef, hp, 1)  # H_phi at i+1, i, i-1, i-2
     cz[ir0:] = stretch(cz[ir0:], b_re[:, None], c_re[:, None], kd_re[:, None], psi_re)
     cr = np.zeros_like(er)
     cr[:, 1:nz] = -(hp[:, 1:] - hp[:, :-1]) * inv_dz
@@ -128,7 +137,7 @@ def np_step_e_mag(
     c1[:, 1:nz] = (hr[:, 1:] - hr[:, :-1]) * inv_dz
     c1[:, jz0:nz] = stretch(c1[:, jz0:nz], b_ze, c_ze, kd_ze, psi_pz)
     c2 = np.zeros_like(ephi)
-    c2[1:, 1:nz] = -(hz[1:, 1:nz] - hz[:-1, 1:nz]) * inv_dr
+    c2[1:, 1:nz] = -np_radial(te_e, hz, 1)[1:, 1:nz]
     c2[ir0:, 1:nz] = stretch(c2[ir0:, 1:nz], b_re[:, None], c_re[:, None], kd_re[:, None], psi_pr[:, 1:nz])
     cp = c1 + c2
     cp[0] = 0.0
@@ -221,8 +230,7 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
     h = dict(
         inv_dz=F32(1.7),
         ch=F32(0.3),
-        qp=pos(nr),
-        qm=pos(nr),
+        te_h=r(nr, 4) * F32(10),
         ha=pos(nr),
         hb=pos(nr) * F32(0.3),
         sib_q=RNG.uniform(0.1, 0.99, nk),
@@ -244,12 +252,9 @@ def _mag_state(nr=20, nz=16, jp0=5, jz0=11, ir0=15, nk=3, nf=2, ntab=4):
         sin_h=RNG.standard_normal(nf),
     )
     h["psi_hz"][:, 0] = h["psi_hz"][:, -1] = 0
-    rp, rm = pos(nr), pos(nr)
-    rm[0] = 0
     e = dict(
-        rp=rp,
-        rm=rm,
-        inv_dr=F32(1.3),
+        er_coef=r(nr, 4) * F32(10),
+        te_e=r(nr, 4) * F32(10),
         inv_dz=F32(1.7),
         cez=pos(nz) * F32(0.3),
         cer=pos(nz + 1) * F32(0.3),
@@ -313,12 +318,12 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
     no_coef = np.zeros((0, 0), F32)
     te = K.FieldsTE(f_["ephi"], f_["hr"], f_["hz"], f_["up"])
     six = K.Fields(f_["ez"], f_["er"], f_["hp"], f_["uz"], f_["ur"])
-    curl_te = K.HCurlTE(h_["inv_dz"], h_["ch"], h_["qp"], h_["qm"], h_["ha"], h_["hb"])
+    curl_te = K.HCurlTE(h_["inv_dz"], h_["ch"], h_["te_h"], h_["ha"], h_["hb"])
     ground = K.GroundMemory(h_["sib_q"], h_["sib_w"], h_["sib_psi"])
     top_h = K.Absorber(h_["jz0"], h_["b_zh"], h_["c_zh"], h_["kd_zh"], h_["psi_hr"], no_coef)
     far_h = K.Absorber(h_["ir0"], h_["b_rh"], h_["c_rh"], h_["kd_rh"], h_["psi_hz"], no_coef)
     dft_h = K.Dft(h_["acc_re"], h_["acc_im"], h_["cos_h"], h_["sin_h"])
-    curl_e = K.ECurlMag(e_["rp"], e_["rm"], e_["inv_dr"], e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"])
+    curl_e = K.ECurlMag(e_["er_coef"], e_["te_e"], e_["inv_dz"], e_["cez"], e_["cer"], e_["jp0"])
     top_r = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], no_coef)
     top_p = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_pz"], no_coef)
     far_z = K.Absorber(e_["ir0"], e_["b_re"], e_["c_re"], e_["kd_re"], e_["psi_re"], no_coef)
@@ -339,9 +344,8 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
             fn["hp"],
             fn["hr"],
             fn["hz"],
-            en["rp"],
-            en["rm"],
-            en["inv_dr"],
+            en["er_coef"],
+            en["te_e"],
             en["inv_dz"],
             en["cez"],
             en["cer"],
@@ -485,7 +489,7 @@ def test_steady_current_is_the_cold_plasma_conductivity():
 # ---------------------------------------------------------------------------------------------
 
 
-def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, permittivity=70.0):
+def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, permittivity=70.0, order=4):
     import profiles
     from cavity.fdtd import engine as eng
 
@@ -498,19 +502,29 @@ def _night_medium(field_t=None, cell=1000.0, range_m=300e3, conductivity=5.0, pe
         profiles.collision_frequency(z),
         magnetic_field_t=field_t,
     )
-    # the six-component kernels are second-order Yee: compare with the isotropic engine at that order
-    settings = eng.Settings(frequencies_hz=(20e3,), max_range_m=range_m, dr_m=cell, dz_m=cell, stencil_order=2)
+    # the six-component kernels difference in height with the Yee rule: isotropic runs compared with
+    # them take the same vertical order
+    settings = eng.Settings(
+        frequencies_hz=(20e3,),
+        max_range_m=range_m,
+        dr_m=cell,
+        dz_m=cell,
+        stencil_order=order,
+        vertical_stencil_order=2,
+    )
     return medium, settings
 
 
-def test_zero_field_six_components_equal_the_isotropic_engine():
+@pytest.mark.parametrize("order", [2, 4])
+def test_zero_field_six_components_equal_the_isotropic_engine(order):
     # B0 = 0 reduces the magnetised current to the isotropic one exactly (physics); the TE set is
-    # then never excited (the vertical source radiates TM only), so it stays exactly zero.
+    # then never excited (the vertical source radiates TM only), so it stays exactly zero. Order 2:
+    # the Yee scheme; 4: the (2,4) radial stencil the six-component scheme uses by default.
     from cavity.fdtd import engine as eng
 
-    medium, settings = _night_medium(None, range_m=200e3)
+    medium, settings = _night_medium(None, range_m=200e3, order=order)
     iso = eng.run(medium, settings)
-    medium0, _ = _night_medium([0.0, 0.0, 0.0], range_m=200e3)
+    medium0, _ = _night_medium([0.0, 0.0, 0.0], range_m=200e3, order=order)
     sim = eng.Simulation(medium0, settings)
     six = sim.run()
     assert six.steps == iso.steps
@@ -671,16 +685,21 @@ cell_m = {cell_m}
 """)
 
 
-def test_result_file_names_the_extrapolated_paths():
-    # With the field and automatic cells the reported field is the Richardson extrapolation of the
-    # solve and its companion (cavity.uncertainty); the file says so, and says "none" otherwise.
+def test_result_file_names_the_extrapolated_paths(monkeypatch):
+    # The six-component scheme is fourth order in range by default, so the reported field is the
+    # solve's own (a p = 2 extrapolation would add error) and the file says "none"; where the rule
+    # of cavity.uncertainty.extrapolation_applies holds (second-order range differences, only from
+    # the Python API), the file names the extrapolated paths.
+    from cavity import uncertainty as unc
     from cavity.solve import simulate
 
     with_field = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m='"auto"'))
-    assert with_field.attrs["solver_extrapolation"].startswith("Richardson")
+    assert with_field.attrs["solver_extrapolation"] == "none"
     assert np.isfinite(with_field["receiver_ez_amplitude"].values).all()
-    fixed_cells = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m=1000.0))  # companion coarser in height
-    assert fixed_cells.attrs["solver_extrapolation"] == "none"
+    monkeypatch.setattr(unc, "extrapolation_applies", lambda *args: True)
+    forced = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m='"auto"'))
+    assert forced.attrs["solver_extrapolation"].startswith("Richardson")
+    assert np.isfinite(forced["receiver_ez_amplitude"].values).all()
 
 
 @pytest.mark.slow
@@ -782,10 +801,11 @@ def test_field_runs_resolve_the_whistler_wavelength_and_isotropic_runs_keep_thei
 
 
 def test_field_is_extrapolated_only_where_the_scheme_is_second_order_and_the_companion_in_range_only():
-    # Richardson's extrapolation with p = 2 (cavity.uncertainty): the six-component (second-order)
-    # scheme with a companion coarser in range only, resolved enough along range; never the
-    # isotropic fourth-order scheme (extrapolating it with p = 2 would add error), a companion
-    # coarser in height (it would reflect the whistler-mode wave) or a too coarse companion.
+    # Richardson's extrapolation with p = 2 (cavity.uncertainty): the six-component scheme with
+    # second-order range differences and a companion coarser in range only, resolved enough along
+    # range; never a fourth-order scheme (the isotropic one, or the six-component one by default:
+    # extrapolating with p = 2 would add error), a companion coarser in height (it would reflect the
+    # whistler-mode wave) or a too coarse companion.
     from cavity import uncertainty as unc
     from cavity.fdtd import engine as eng
 
@@ -797,11 +817,13 @@ def test_field_is_extrapolated_only_where_the_scheme_is_second_order_and_the_com
         plan = eng.make_plan(medium, settings).grid
         return unc.extrapolation_applies(medium, plan, unc.companion_settings(medium, settings, plan))
 
-    assert applies(_night_guide(b))
+    assert applies(_night_guide(b), stencil_order=2)
+    assert not applies(_night_guide(b))  # fourth order in range by default
     assert not applies(_night_guide(None))
-    assert not applies(_night_guide(b), dz_m=200.0)  # the user's vertical cell: companion coarser in height
-    assert not applies(_night_guide(b), whistler_cells=0.0)
-    assert not applies(_night_guide(b), cells_per_wavelength=10.0)  # companion at 6.7 cells per wavelength
+    assert not applies(_night_guide(None), stencil_order=2)
+    assert not applies(_night_guide(b), stencil_order=2, dz_m=200.0)  # the user's vertical cell: coarser in height
+    assert not applies(_night_guide(b), stencil_order=2, whistler_cells=0.0)
+    assert not applies(_night_guide(b), stencil_order=2, cells_per_wavelength=10.0)  # companion at 6.7 cells
 
 
 def test_columns_under_the_same_medium_share_one_coefficient_table():

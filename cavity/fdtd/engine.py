@@ -114,6 +114,8 @@ class Settings:
     max_duration_s: float | None = None
     dispersion_correction: bool = True
     stencil_order: int = 4  # 4: (2,4) scheme in the interior; 2: Yee with the grazing correction
+    # order of the vertical differences; None: second with the geomagnetic field, else stencil_order
+    vertical_stencil_order: int | None = None
     # with the geomagnetic field: cells per vertical wavelength of the whistler-mode wave in the densest
     # plasma (see _whistler_dz_m); 0 leaves the vertical cell to the isotropic rules
     whistler_cells: float = 4.0
@@ -310,10 +312,18 @@ def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float 
 
 
 def stencil_order(medium: Medium, settings: Settings) -> int:
-    """Order of the interior stencil a solve uses: the six-component kernels (geomagnetic field)
-    are second-order Yee whatever ``settings.stencil_order`` asks, and the time step follows that
-    stencil's stability limit (the fourth-order limit is 14-16 % lower on the flat cells of such
-    runs, :func:`cavity.fdtd.grid.stability_factor`)."""
+    """Order of the radial differences of a solve's interior: ``settings.stencil_order``."""
+    return int(settings.stencil_order)
+
+
+def vertical_order(medium: Medium, settings: Settings) -> int:
+    """Order of the vertical differences of a solve's interior: second with the geomagnetic field
+    (the six-component kernels difference Ephi, Hr and Er in height with the Yee rule; the
+    whistler rule makes the vertical cell 2-6 times finer than the range cell, so the range
+    differences carry the error), else ``settings.stencil_order``; ``settings.vertical_stencil_order``
+    overrides both."""
+    if settings.vertical_stencil_order is not None:
+        return int(settings.vertical_stencil_order)
     return 2 if medium.magnetic_field_t is not None else int(settings.stencil_order)
 
 
@@ -349,6 +359,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         cells_per_wavelength=s.cells_per_wavelength,
         courant_safety=s.courant_safety,
         stencil_order=stencil_order(medium, s),
+        vertical_order=vertical_order(medium, s),
         dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
         taper_m=s.field_taper_wavelengths * C0 / float(f.min()) if _has_field(medium) else 0.0,
     )
@@ -402,18 +413,18 @@ class Simulation:
         self.cez = (dt / eps_ez).astype(f32)
         self.cer = (dt / eps_er).astype(f32)
         self.ch = f32(dt / MU0)
-        # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in
-        # the six-component kernels (geomagnetic field) are second-order Yee: the whole run uses it
-        order = stencil_order(m, s)
+        # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in;
+        # with the geomagnetic field the vertical differences are second order (vertical_order)
+        order, v_order = stencil_order(m, s), vertical_order(m, s)
         if not s.dispersion_correction:
             self.gamma = 1.0
         elif order == 2:
             self.gamma = radial_dispersion_factor(self.frequencies_hz, dr, dt)
         else:
-            self.gamma = stencil.dispersion_factor(self.frequencies_hz, dr, dz, dt, order)
+            self.gamma = stencil.dispersion_factor(self.frequencies_hz, dr, dz, dt, order, vertical_order=v_order)
         edge = None
         if order == 4 and s.dispersion_correction:
-            edge = stencil.edge_factor(self.frequencies_hz, dr, dz, dt, self.gamma)
+            edge = stencil.edge_factor(self.frequencies_hz, dr, dz, dt, self.gamma, vertical_order=v_order)
         self.stencil = stencil.build(
             nr,
             nz,
@@ -425,6 +436,7 @@ class Simulation:
             jz0=nz - p.pml_z_cells,
             radial_gamma_only=(order == 2),
             edge_gamma=edge,
+            vertical_order=v_order,
         )
         st = self.stencil
         # second-order factors of the ground row and the absorbers (equal to the tables there)
@@ -543,17 +555,7 @@ class Simulation:
         self.hz = np.zeros((nr, nz + 1), f32)
         n_pl = nz - self.jp0
         self.jphi = np.zeros((nr, n_pl), f32)
-        # (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr): the difference part carries the dispersion factor
-        # second-order (Yee) radial operator of Ez, as the isotropic kernels had it before the (2,4) stencil
-        rp = np.empty(nr)
-        rm = np.empty(nr)
-        rp[0], rm[0] = 4.0 * self.gamma / dr, 0.0
-        rp[1:] = self.gamma / dr + 0.5 / self.r_ez[1:]
-        rm[1:] = self.gamma / dr - 0.5 / self.r_ez[1:]
-        self.rp, self.rm = rp.astype(f32), rm.astype(f32)
-        self.inv_dr = f32(self.gamma / dr)
-        self.qp = (self.gamma / dr + 0.5 / self.r_h).astype(f32)
-        self.qm = (self.gamma / dr - 0.5 / self.r_h).astype(f32)
+        # the radial operators of Ez, Ephi and Hz are the stencil's tables (er_coef, te_e, te_h)
         self.sib_psi_r = np.zeros_like(self.sib_w)
         # square roots of the cylindrical volume weights (r; dr/8 for the axis Ez cell, whose disc of
         # radius dr/2 has the area 2 pi (dr/8) dr); Ephi is absent on the axis (weight 1, unused)
@@ -699,11 +701,11 @@ class Simulation:
             # the six-component kernels' groups (kernels.FieldsTE ...); the triples' pairing alternates
             no_coef = np.zeros((0, 0), np.float32)
             te = K.FieldsTE(self.ephi, self.hr, self.hz, self.jphi)
-            curl_te = K.HCurlTE(self.inv_dz, self.ch, self.qp, self.qm, self.ha, self.hb)
+            curl_te = K.HCurlTE(self.inv_dz, self.ch, st.te_h, self.ha, self.hb)
             ground_te = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi_r)
             top_hr = K.Absorber(self.jz0, *self.pz_h, self.psi_hr, no_coef)
             far_hz = K.Absorber(self.ir0, *self.pr_h, self.psi_hz, no_coef)
-            curl_mag = K.ECurlMag(self.rp, self.rm, self.inv_dr, self.inv_dz, self.cez, self.cer, self.jp0)
+            curl_mag = K.ECurlMag(st.er_coef, st.te_e, self.inv_dz, self.cez, self.cer, self.jp0)
             pairing = {
                 1: K.Magnetoplasma(self.mag_coef, self.tab_p, 1, self.wsq),
                 -1: K.Magnetoplasma(self.mag_coef, self.tab_m, -1, self.wsq),

@@ -57,7 +57,9 @@ CONVERGENCE_TAIL_SHARE = 0.4
 
 
 @functools.lru_cache(maxsize=64)
-def stability_factor(aspect: float, size: int = 48, iterations: int = 2000, order: int = 4) -> float:
+def stability_factor(
+    aspect: float, size: int = 48, iterations: int = 2000, order: int = 4, vertical_order: int | None = None
+) -> float:
     """Largest stable ``c dt / dz`` for the axisymmetric scheme with ``dr = aspect * dz``.
 
     Power iteration on K = -curlH(curlE(.)) (fields in units with c = 1, dz = 1) gives its largest
@@ -71,7 +73,9 @@ def stability_factor(aspect: float, size: int = 48, iterations: int = 2000, orde
     dr, dz = float(aspect), 1.0
     nr, nz = size, size
     band = 8
-    st = stencil.build(nr, nz, dr, dz, order=order, gamma=1.0, ir0=nr - band, jz0=nz - band)
+    st = stencil.build(
+        nr, nz, dr, dz, order=order, gamma=1.0, ir0=nr - band, jz0=nz - band, vertical_order=vertical_order
+    )
     rng = np.random.default_rng(1)
     ez = rng.standard_normal((nr, nz))
     er = rng.standard_normal((nr, nz + 1))
@@ -176,6 +180,7 @@ def plan_grid(
     cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
     courant_safety: float = COURANT_SAFETY,
     stencil_order: int = 4,
+    vertical_order: int | None = None,
     dz_max_m: float | None = None,
     taper_m: float = 0.0,
 ) -> GridPlan:
@@ -189,6 +194,8 @@ def plan_grid(
         bottom of the top absorber.
     duration_s : simulated time the run needs.
     dr_m, dz_m : user override of the cells; default from :func:`default_cells`.
+    stencil_order, vertical_order : orders of the radial and the vertical differences (the latter
+        as the former when not given); they set the stability limit of the time step.
     dz_max_m : a further cap on the default vertical cell (not below :data:`MIN_DZ_M`); with the
         geomagnetic field, the whistler-mode rule of :func:`cavity.fdtd.engine.make_plan`.
     taper_m : length beyond the margin and before the far-end absorber over which the engine fades
@@ -206,7 +213,12 @@ def plan_grid(
     nz = int(round(top_m / dz)) + pml_z
     if ceiling and abs(nz * dz - top_m) > 1e-6 * top_m:
         dz = top_m / nz  # the ceiling must sit exactly on an Er row
-    dt = courant_safety * stability_factor(round(dr / dz, 4), order=int(stencil_order)) * dz / C0
+    dt = (
+        courant_safety
+        * stability_factor(round(dr / dz, 4), order=int(stencil_order), vertical_order=vertical_order)
+        * dz
+        / C0
+    )
     n_steps = int(math.ceil(duration_s / dt))
     return GridPlan(
         dr_m=dr,

@@ -137,25 +137,25 @@ class FieldsTE(NamedTuple):
 
 
 class HCurlTE(NamedTuple):
-    """Faraday's-law coefficients of the TE set: 1/dz, dt/mu0, the radial operator of r Ephi per
-    column, (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr) = qp[i] E_{i+1} - qm[i] E_i, and the ground
-    row's (ha, hb) per column."""
+    """Faraday's-law coefficients of the TE set: 1/dz, dt/mu0, the stencil table of the radial
+    operator (1/r) d(r Ephi)/dr at Hz column i (``te_h``: coefficients of Ephi at columns i+2, i+1,
+    i, i-1; :mod:`cavity.fdtd.stencil`), and the ground row's (ha, hb) per column."""
 
     inv_dz: np.float32
     ch: np.float32
-    qp: np.ndarray  # (nr,)
-    qm: np.ndarray  # (nr,)
+    te_h: np.ndarray  # (nr, 4)
     ha: np.ndarray  # (nr,)
     hb: np.ndarray  # (nr,)
 
 
 class ECurlMag(NamedTuple):
-    """Ampere's-law coefficients of the six-component scheme (second-order Yee): (1/r) d(r H_phi)/dr
-    at column i = rp[i] H[i] - rm[i] H[i-1], 1/dr and 1/dz, dt/eps per row, first plasma row."""
+    """Ampere's-law coefficients of the six-component scheme: the stencil tables of (1/r) d(r H_phi)/dr
+    at Ez column i (``er_coef``: H_phi at columns i+1, i, i-1, i-2) and of dHz/dr at Ephi column i
+    (``te_e``: Hz at columns i+1, i, i-1, i-2), 1/dz (vertical differences are second order), dt/eps
+    per row, first plasma row."""
 
-    rp: np.ndarray  # (nr,)
-    rm: np.ndarray  # (nr,)
-    inv_dr: np.float32
+    er_coef: np.ndarray  # (nr, 4)
+    te_e: np.ndarray  # (nr, 4)
     inv_dz: np.float32
     cez: np.ndarray  # (nz,)
     cer: np.ndarray  # (nz + 1,)
@@ -567,13 +567,13 @@ def step_h_te(te, curl, ground, top, far, dft, n_cols):
     Ground row of Hr (z = dz/2) with the impedance ground: Ephi(0) = +Zs Hr (Leontovich,
     E_t = Zs n x H with n up), realised as in :func:`step_h` with the same ``ha``, ``hb`` and
     recursive poles (``sib_psi`` the TE set's own memory). Hz rows 1..nz-1 only (row 0 is never
-    read: Ephi at the ground is not stepped). ``qp``/``qm`` per column:
-    (r_{i+1} E_{i+1} - r_i E_i)/(r_{i+1/2} dr) = qp[i] E_{i+1} - qm[i] E_i. CPML as in
+    read: Ephi at the ground is not stepped). The radial operator of Hz is the stencil's ``te_h``
+    (fourth order in the interior, Ephi_(-1) = -Ephi_1 folded in). CPML as in
     :func:`step_h`: the top layer on dEphi/dz (Hr rows >= jz0), the far-end layer on the radial
     operator of Hz (columns >= ir0). DFT of Hr at the ground row.
     """
     hr, hz, ephi = te.hr, te.hz, te.ephi
-    inv_dz, ch, qp, qm, ha, hb = curl.inv_dz, curl.ch, curl.qp, curl.qm, curl.ha, curl.hb
+    inv_dz, ch, te_h, ha, hb = curl.inv_dz, curl.ch, curl.te_h, curl.ha, curl.hb
     sib_q, sib_w, sib_psi = ground.q, ground.w, ground.psi
     jz0, b_zh, c_zh, kd_zh, psi_hr = top.start, top.b, top.c, top.kd, top.psi
     ir0, b_rh, c_rh, kd_rh, psi_hz = far.start, far.b, far.c, far.kd, far.psi
@@ -602,22 +602,24 @@ def step_h_te(te, curl, ground, top, far, dft, n_cols):
             p = b_zh[k] * psi_hr[i, k] + c_zh[k] * d
             psi_hr[i, k] = p
             h[j] += ch * (kd_zh[k] * d + p)
-        a = qp[i]
-        b = qm[i]
+        # Ephi at columns i+2, i+1, i, i-1 (beyond the last column zero; at i = 0 the i-1 term is
+        # folded into i+1, its coefficient zero); a missing column is read through a zero coefficient
+        c0, c1, c2, c3 = te_h[i, 0], te_h[i, 1], te_h[i, 2], te_h[i, 3]
+        e2 = ephi[min(i + 2, nr - 1)]
+        e1 = ephi[min(i + 1, nr - 1)]
+        em = ephi[max(i - 1, 0)]
+        if i + 2 >= nr:
+            c0 = np.float32(0.0)
+        if not has_next:
+            c1 = np.float32(0.0)
         g = hz[i]
-        if has_next:
-            en = ephi[i + 1]
-            for j in range(1, nz):
-                v = g[j] - ch * (a * en[j] - b * e[j])
-                g[j] = v if abs(v) > TINY else np.float32(0.0)
-        else:
-            for j in range(1, nz):
-                g[j] += ch * b * e[j]
+        for j in range(1, nz):
+            v = g[j] - ch * (c0 * e2[j] + c1 * e1[j] + c2 * e[j] + c3 * em[j])
+            g[j] = v if abs(v) > TINY else np.float32(0.0)
         if i >= ir0:
             kk = i - ir0
             for j in range(1, nz):
-                en_j = ephi[i + 1, j] if has_next else np.float32(0.0)
-                d = -(a * en_j - b * e[j])
+                d = -(c0 * e2[j] + c1 * e1[j] + c2 * e[j] + c3 * em[j])
                 p = b_rh[kk] * psi_hz[kk, j] + c_rh[kk] * d
                 psi_hz[kk, j] = p
                 g[j] += ch * (kd_rh[kk] * d + p)
@@ -696,7 +698,7 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
     """
     ez, er, hp, uz, ur = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
     ephi, hr, hz, up = te.ephi, te.hr, te.hz, te.jphi
-    rp, rm, inv_dr, inv_dz, cez, cer, jp0 = curl.rp, curl.rm, curl.inv_dr, curl.inv_dz, curl.cez, curl.cer, curl.jp0
+    ec, te_e, inv_dz, cez, cer, jp0 = curl.er_coef, curl.te_e, curl.inv_dz, curl.cez, curl.cer, curl.jp0
     coef, tab, shift, wsq = plasma.coef, plasma.tab, plasma.shift, plasma.wsq
     jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz = top_r.start, top_r.b, top_r.c, top_r.kd, top_r.psi, top_p.psi
     ir0, b_re, c_re, kd_re, psi_re, psi_pr = far_z.start, far_z.b, far_z.c, far_z.kd, far_z.psi, far_p.psi
@@ -713,11 +715,19 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
         curls = np.empty((3, nz), np.float32)
         for i in range(blk * MAG_CHUNK, min(n_cols, (blk + 1) * MAG_CHUNK)):
             ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
-            a = rp[i]
-            b = rm[i]
-            im = i - 1 if i > 0 else 0
+            # radial stencils read columns i+1 .. i-2; a column outside the grid has a zero coefficient
+            ip1 = min(i + 1, nr - 1)
+            im1 = max(i - 1, 0)
+            im2 = max(i - 2, 0)
+            a0, a1, a2, a3 = ec[i, 0], ec[i, 1], ec[i, 2], ec[i, 3]
+            t0, t1, t2, t3 = te_e[i, 0], te_e[i, 1], te_e[i, 2], te_e[i, 3]
+            if i + 1 >= nr:
+                a0 = zero
+                t0 = zero
+            h1 = hp[ip1]
             h = hp[i]
-            hm = hp[im]
+            hm = hp[im1]
+            hm2 = hp[im2]
             far = i >= ir0
             kk = i - ir0
             # curls of every row (vacuum and plasma), stretched in the absorbers
@@ -725,7 +735,7 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
             cp = curls[1]
             cr = curls[2]
             for j in range(nz):
-                cz[j] = a * h[j] - b * hm[j]
+                cz[j] = a0 * h1[j] + a1 * h[j] + a2 * hm[j] + a3 * hm2[j]
                 cp[j] = zero
                 cr[j] = zero
             if far:
@@ -735,10 +745,12 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                     cz[j] = cz[j] + kd_re[kk] * cz[j] + p
             if i > 0:
                 g_r = hr[i]
+                g_z1 = hz[ip1]
                 g_z = hz[i]
-                g_zm = hz[i - 1]
+                g_zm = hz[im1]
+                g_zm2 = hz[im2]
                 for j in range(1, nz):
-                    cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (g_z[j] - g_zm[j]) * inv_dr
+                    cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (t0 * g_z1[j] + t1 * g_z[j] + t2 * g_zm[j] + t3 * g_zm2[j])
                 for k in range(n_top):
                     j = jz0 + k
                     d = (g_r[j] - g_r[j - 1]) * inv_dz
@@ -747,7 +759,7 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                     cp[j] += kd_ze[k] * d + p
                 if far:
                     for j in range(1, nz):
-                        d = -(g_z[j] - g_zm[j]) * inv_dr
+                        d = -(t0 * g_z1[j] + t1 * g_z[j] + t2 * g_zm[j] + t3 * g_zm2[j])
                         p = b_re[kk] * psi_pr[kk, j] + c_re[kk] * d
                         psi_pr[kk, j] = p
                         cp[j] += kd_re[kk] * d + p

@@ -58,6 +58,9 @@ class Stencil:
     ke1: np.ndarray
     ke2: np.ndarray
     axis_area_m2: float  # area of the axis cell that carries the source current
+    te_e: np.ndarray  # (nr, 4): dHz/dr at r_i from Hz_(i+1), Hz_i, Hz_(i-1), Hz_(i-2) (TE set, Ephi update)
+    te_h: np.ndarray  # (nr, 4): (1/r) d(r Ephi)/dr at r_(i+1/2) from Ephi_(i+2), Ephi_(i+1), Ephi_i, Ephi_(i-1)
+    vertical_order: int = 0  # order of the vertical differences (0: as ``order``)
 
     @property
     def reach_columns(self) -> int:
@@ -76,26 +79,33 @@ def spatial_symbol(k: np.ndarray | float, d: float, order: int) -> np.ndarray:
 
 
 def numerical_wavenumber(
-    f_hz: float, angle_deg, dr: float, dz: float, dt: float, order: int, gamma: float = 1.0, c: float = 299_792_458.0
+    f_hz: float,
+    angle_deg,
+    dr: float,
+    dz: float,
+    dt: float,
+    order: int,
+    gamma: float = 1.0,
+    c: float = 299_792_458.0,
+    vertical_order: int | None = None,
 ) -> np.ndarray:
     """Wavenumber k of a plane wave at ``angle_deg`` from grazing that the interior scheme propagates.
 
     Discrete dispersion relation of leapfrog in time with the spatial symbols S (Taflove and Hagness
     2005, ch. 4): sin^2(w dt/2)/(c dt)^2 = gamma^2 [S_r(k cos a)^2 + S_z(k sin a)^2], solved for k by
-    Newton's method from the exact k = w/c.
+    Newton's method from the exact k = w/c. ``order`` is the radial order, ``vertical_order`` (default
+    the same) the vertical one.
     """
+    vo = order if vertical_order is None else vertical_order
     w = 2 * math.pi * f_hz
     lhs = (math.sin(w * dt / 2) / (c * dt)) ** 2
     a = np.radians(np.asarray(angle_deg, float))
     ca, sa = np.cos(a), np.sin(a)
     k = np.full(a.shape, w / c)
     for _ in range(30):
-        g = gamma**2 * (spatial_symbol(k * ca, dr, order) ** 2 + spatial_symbol(k * sa, dz, order) ** 2) - lhs
+        g = gamma**2 * (spatial_symbol(k * ca, dr, order) ** 2 + spatial_symbol(k * sa, dz, vo) ** 2) - lhs
         h = 1e-7 * k
-        gp = (
-            gamma**2 * (spatial_symbol((k + h) * ca, dr, order) ** 2 + spatial_symbol((k + h) * sa, dz, order) ** 2)
-            - lhs
-        )
+        gp = gamma**2 * (spatial_symbol((k + h) * ca, dr, order) ** 2 + spatial_symbol((k + h) * sa, dz, vo) ** 2) - lhs
         k = k - g * h / (gp - g)
     return k
 
@@ -106,7 +116,14 @@ def phase_velocity_error(f_hz, angle_deg, dr, dz, dt, order, gamma=1.0, c=299_79
 
 
 def dispersion_factor(
-    frequencies_hz, dr: float, dz: float, dt: float, order: int, c: float = 299_792_458.0, angles_deg=DESIGN_ANGLES_DEG
+    frequencies_hz,
+    dr: float,
+    dz: float,
+    dt: float,
+    order: int,
+    c: float = 299_792_458.0,
+    angles_deg=DESIGN_ANGLES_DEG,
+    vertical_order: int | None = None,
 ) -> float:
     """Factor gamma on every spatial difference that balances the phase error over a band of angles.
 
@@ -118,17 +135,27 @@ def dispersion_factor(
     Hagness 2005, ch. 4; Shlager and Schneider 2003, IEEE TAP 51(3) 642). For the fourth-order
     stencil the spatial error is nearly isotropic and small, and gamma mainly removes the time
     step's own (isotropic) lag; for the Yee stencil the error depends strongly on the angle.
+    ``order`` is the radial order, ``vertical_order`` (default the same) the vertical one.
     """
+    vo = order if vertical_order is None else vertical_order
     f = float(np.sqrt(np.mean(np.square(np.asarray(frequencies_hz, float)))))
     w = 2 * math.pi * f
     k = w / c
     a = np.radians(np.linspace(angles_deg[0], angles_deg[1], 13))
     lhs = (math.sin(w * dt / 2) / (c * dt)) ** 2
-    rhs = spatial_symbol(k * np.cos(a), dr, order) ** 2 + spatial_symbol(k * np.sin(a), dz, order) ** 2
+    rhs = spatial_symbol(k * np.cos(a), dr, order) ** 2 + spatial_symbol(k * np.sin(a), dz, vo) ** 2
     return float(math.sqrt(np.mean(lhs / rhs)))
 
 
-def edge_factor(frequencies_hz, dr: float, dz: float, dt: float, gamma: float, c: float = 299_792_458.0) -> float:
+def edge_factor(
+    frequencies_hz,
+    dr: float,
+    dz: float,
+    dt: float,
+    gamma: float,
+    c: float = 299_792_458.0,
+    vertical_order: int = 4,
+) -> float:
     """Factor on the second-order radial differences of the far end that matches the interior.
 
     Where the fourth-order rows fall back to second order (the cell before the far absorber and the
@@ -143,7 +170,7 @@ def edge_factor(frequencies_hz, dr: float, dz: float, dt: float, gamma: float, c
     """
     f = float(np.sqrt(np.mean(np.square(np.asarray(frequencies_hz, float)))))
     w = 2 * math.pi * f
-    k4 = float(numerical_wavenumber(f, 0.0, dr, dz, dt, 4, gamma, c))
+    k4 = float(numerical_wavenumber(f, 0.0, dr, dz, dt, 4, gamma, c, vertical_order))
     lhs = (math.sin(w * dt / 2) / (c * dt)) ** 2
     return float(math.sqrt(lhs) / spatial_symbol(k4, dr, 2))
 
@@ -160,6 +187,7 @@ def build(
     jz0: int,
     radial_gamma_only: bool = False,
     edge_gamma: float | None = None,
+    vertical_order: int | None = None,
 ) -> Stencil:
     """Coefficient tables of one grid: ``nr`` Ez columns (axis first), ``nz`` H rows, the far-end
     absorber from column ``ir0`` and the top absorber (or a conducting ceiling, ``jz0 = nz``) from
@@ -168,10 +196,18 @@ def build(
     ``radial_gamma_only`` applies gamma to the radial differences only (the Yee scheme's
     former grazing correction); used for comparisons. ``edge_gamma`` (order 4 only) replaces gamma
     in the second-order radial differences from the cell before the far absorber on
-    (:func:`edge_factor`).
+    (:func:`edge_factor`). ``order`` is the radial order; ``vertical_order`` (default the same) the
+    vertical one: the six-component scheme of the geomagnetic field is fourth order in range and
+    second order in height (its vertical cell, set by the whistler-mode wave, is already several
+    times finer than the range cell).
+
+    The tables of the TE set (``te_e``, ``te_h``) are built like those of the TM set with the roles
+    of E and H exchanged: Ephi sits where Ez does and Hz where H_phi does, but Hz is even in r and
+    Ephi odd (r Ephi even), so the axis folds take the other signs.
     """
-    if order not in (2, 4):
-        raise ValueError(f"stencil order = {order!r}: must be 2 or 4")
+    vo = order if vertical_order is None else int(vertical_order)
+    if order not in (2, 4) or vo not in (2, 4):
+        raise ValueError(f"stencil order = ({order!r}, {vo!r}): each must be 2 or 4")
     gr = gamma
     gz = 1.0 if radial_gamma_only else gamma
     r_ez = np.arange(nr) * dr
@@ -192,6 +228,14 @@ def build(
     ke1 = np.full(nz + 1, gz / dz)
     ke1[0] = ke1[nz] = 0.0  # Er rows 0 (ground) and nz (wall) are not stepped
     ke2 = np.zeros(nz + 1)
+    r_h = (np.arange(nr) + 0.5) * dr
+    # TE set, second order everywhere first: dHz/dr at r_i = (Hz_i - Hz_(i-1)) gr/dr (row 0 unused,
+    # Ephi is zero on the axis); (1/r) d(r E)/dr at r_(i+1/2) = (E_(i+1) - E_i) gr/dr + (E_(i+1) + E_i)/(2 r)
+    te_e = np.zeros((nr, 4))
+    te_e[1:, 1], te_e[1:, 2] = gr / dr, -gr / dr
+    te_h = np.zeros((nr, 4))
+    te_h[:, 1] = gr / dr + 0.5 / r_h
+    te_h[:, 2] = -(gr / dr - 0.5 / r_h)
     if order == 4:
         # H columns 0 .. ir0-2 read Ez up to i+2 <= ir0 (the absorber and the cell before it are second order)
         hi = max(0, ir0 - 1)
@@ -201,6 +245,9 @@ def build(
             edge = np.arange(max(1, hi), nr)
             ec[edge, 1] = ge / dr + 0.5 * inv_r[edge]
             ec[edge, 2] = -(ge / dr - 0.5 * inv_r[edge])
+            te_e[edge, 1], te_e[edge, 2] = ge / dr, -ge / dr
+            te_h[hi:, 1] = ge / dr + 0.5 / r_h[hi:]
+            te_h[hi:, 2] = -(ge / dr - 0.5 / r_h[hi:])
         ar1[:hi] = C1 * gr / dr
         ar2[:hi] = -C2 * gr / dr
         # Ez columns 1 .. ir0-2: (1/r) d(rH)/dr = D4 H + I4 H / r, I4 the fourth-order midpoint value
@@ -215,9 +262,25 @@ def build(
             # H_(-1) = -H_0 (H_phi is odd in r): fold the H_(i-2) coefficient of column 1 into H_0
             ec[1, 2] -= ec[1, 3]
             ec[1, 3] = 0.0
+        # TE: Ephi columns 1 .. ir0-2 (dHz/dr, fourth order; Hz_(-1) = +Hz_0, Hz being even in r)
+        te_e[i, 0], te_e[i, 1], te_e[i, 2], te_e[i, 3] = -d2, d1, -d1, d2
+        if i.size and i[0] == 1:
+            te_e[1, 2] += te_e[1, 3]
+            te_e[1, 3] = 0.0
+        # Hz columns 0 .. ir0-2, reading Ephi up to i+2 <= ir0: (1/r) d(rE)/dr = D4 E + I4 E / r;
+        # Ephi_(-1) = -Ephi_1 (odd in r): column 0's Ephi_(i-1) coefficient folds into Ephi_1
+        k = np.arange(0, hi)
+        te_h[k, 0] = -d2 - w2 / r_h[k]  # E_(i+2)
+        te_h[k, 1] = d1 + w1 / r_h[k]  # E_(i+1)
+        te_h[k, 2] = -d1 + w1 / r_h[k]  # E_i
+        te_h[k, 3] = d2 - w2 / r_h[k]  # E_(i-1)
+        if k.size:
+            te_h[0, 1] -= te_h[0, 3]
+            te_h[0, 3] = 0.0
         # axis: the Yee disc rule stays (ec[0] above). Its adjoint partner, (6 H_0 - (2/3) H_1)/dr on
         # a cell of weight 3 dr^2/32, would lower the stability limit from 0.594 to 0.547 dz/c
         # (dr = dz, power iteration): the axis cell, not the interior, sets the limit.
+    if vo == 4:
         # vertical: H rows 2 .. jz0-1 with Er_(j+2) <= nz; Er rows 2 .. min(jz0-1, nz-2)
         j = np.arange(2, min(jz0, nz - 1))
         kz1[j], kz2[j] = C1 * gz / dz, -C2 * gz / dz
@@ -235,6 +298,9 @@ def build(
         ke1.astype(f32),
         ke2.astype(f32),
         axis_area,
+        np.ascontiguousarray(te_e, dtype=f32),
+        np.ascontiguousarray(te_h, dtype=f32),
+        vo,
     )
 
 
