@@ -18,6 +18,7 @@ import numpy as np
 
 from cavity.constants import C0, MU0
 from cavity.fdtd import engine as eng
+from cavity.fdtd import grid as gridmod
 
 #: Frequency of most checks, Hz (the middle of the VLF navigation band).
 F_CHECK = 20e3
@@ -356,11 +357,11 @@ def check_magnetised(
     max_range_m,
     tolerance_db,
     strength_t=50e-6,
-    cells_per_wavelength=24.0,
+    cells_per_wavelength=gridmod.DEFAULT_CELLS_PER_WAVELENGTH,
 ) -> CheckResult:
-    """The field as the tool reports it with a uniform geomagnetic field (the solve and its
-    uncertainty companion, Richardson-extrapolated: cavity.uncertainty) against the magnetised
-    mode reference, 300 km on; the solve's own error is shown beside it."""
+    """The field as the tool reports it with a uniform geomagnetic field (the solve, with its
+    uncertainty companion: cavity.uncertainty.run_with_companion) against the magnetised mode
+    reference, 300 km on; the solve's own error is shown beside it."""
     from cavity import uncertainty as unc
     from cavity.reference import magnetised as mg
 
