@@ -190,9 +190,8 @@ def extrapolation_applies(medium, plan, coarse) -> bool:
     companion still has :data:`RICHARDSON_MIN_COMPANION_CELLS` per wavelength along range.
     """
     from cavity.constants import C0
-    from cavity.fdtd import engine as eng
 
-    if medium.magnetic_field_t is None or coarse.dz_m != plan.dz_m or eng.stencil_order(medium, coarse) != 2:
+    if medium.magnetic_field_t is None or coarse.dz_m != plan.dz_m or coarse.stencil_order != 2:
         return False
     wavelength_m = C0 / float(np.max(coarse.frequencies_hz))
     return wavelength_m / coarse.dr_m >= RICHARDSON_MIN_COMPANION_CELLS

@@ -315,11 +315,6 @@ def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float 
     return dz_m < make_plan(medium, dataclasses.replace(settings, whistler_cells=0.0)).grid.dz_m
 
 
-def stencil_order(medium: Medium, settings: Settings) -> int:
-    """Order of the radial differences of a solve's interior: ``settings.stencil_order``."""
-    return int(settings.stencil_order)
-
-
 def vertical_order(medium: Medium, settings: Settings) -> int:
     """Order of the vertical differences of a solve's interior: second with the geomagnetic field
     (the six-component kernels difference Ephi, Hr and Er in height with the Yee rule; the
@@ -362,7 +357,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         pml_cells=s.pml_cells,
         cells_per_wavelength=s.cells_per_wavelength,
         courant_safety=s.courant_safety,
-        stencil_order=stencil_order(medium, s),
+        stencil_order=int(s.stencil_order),
         vertical_order=vertical_order(medium, s),
         dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
         taper_m=s.field_taper_wavelengths * C0 / float(f.min()) if _has_field(medium) else 0.0,
@@ -419,7 +414,7 @@ class Simulation:
         self.ch = f32(dt / MU0)
         # spatial stencil (cavity.fdtd.stencil): coefficient tables with the dispersion factor folded in;
         # with the geomagnetic field the vertical differences are second order (vertical_order)
-        order, v_order = stencil_order(m, s), vertical_order(m, s)
+        order, v_order = int(s.stencil_order), vertical_order(m, s)
         if not s.dispersion_correction:
             self.gamma = 1.0
         elif order == 2:

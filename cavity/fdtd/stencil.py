@@ -60,7 +60,6 @@ class Stencil:
     axis_area_m2: float  # area of the axis cell that carries the source current
     te_e: np.ndarray  # (nr, 4): dHz/dr at r_i from Hz_(i+1), Hz_i, Hz_(i-1), Hz_(i-2) (TE set, Ephi update)
     te_h: np.ndarray  # (nr, 4): (1/r) d(r Ephi)/dr at r_(i+1/2) from Ephi_(i+2), Ephi_(i+1), Ephi_i, Ephi_(i-1)
-    vertical_order: int = 0  # order of the vertical differences (0: as ``order``)
 
     @property
     def reach_columns(self) -> int:
@@ -300,7 +299,6 @@ def build(
         axis_area,
         np.ascontiguousarray(te_e, dtype=f32),
         np.ascontiguousarray(te_h, dtype=f32),
-        vo,
     )
 
 
