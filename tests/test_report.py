@@ -567,6 +567,16 @@ def test_golden_table_text_is_unchanged(golden, name, fmt):
     assert receiver_table(golden[name], fmt, **kwargs) == expected
 
 
+def test_table_says_what_the_uncertainty_leaves_out_with_the_field(golden):
+    # With the field the companion is coarser in range only (cavity.uncertainty.companion_settings),
+    # so the note names the vertical cell's error as outside +-; an isotropic file has no such note.
+    ds = golden["day"]
+    assert "geomagnetic_field_r" in ds and "receiver_ez_uncertainty" in ds
+    assert "leaves out the error of the vertical cell" in receiver_table(ds, "markdown")
+    isotropic = ds.drop_vars(["geomagnetic_field_r", "geomagnetic_field_phi", "geomagnetic_field_z"])
+    assert "leaves out the error of the vertical cell" not in receiver_table(isotropic, "markdown")
+
+
 def test_golden_dawn_classifies_day_and_transition(golden):
     # Geometric solar zenith angles of the dawn file at its receivers (cavity.geo, Michalsky 1988):
     # two posts just below the horizon (transition), the southernmost in daylight.
