@@ -33,7 +33,7 @@ Applied here to the field in dB along each path:
   is not in the estimate; it was measured against the reference (README, "The magnetised
   reference"). By night it matters: with fourth-order range differences the stated value covered
   only 74-76 % of the ranges of two night paths at dip 60 (300-3,000 km), and a vertical cell
-  1.5 times finer halved the median error of one of them (README, "Numerical uncertainty").
+  1.5 times finer nearly halved the errors of both (README, "Numerical uncertainty").
 - A floor of ``FLOOR_DB`` covers what no grid refinement reveals (the recursive ground-impedance fit,
   the absorbers), of order a few hundredths of a dB in the checks of ``cavity verify``.
 
