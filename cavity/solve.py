@@ -58,6 +58,8 @@ class PathSolution:
     receiver_b_radial: np.ndarray | None = None
     receiver_ephi: np.ndarray | None = None
     extrapolated: bool = False  # the field is Richardson-extrapolated from the solve and its companion
+    # the companion kept the solve's vertical cell (the whistler rule set it): +- is the range cell's alone
+    range_only_companion: bool = False
 
 
 @dataclass(frozen=True)
@@ -200,8 +202,9 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         scale = scale * media.spherical_spreading_correction(res.range_m)[None, :]
     rx_r = np.asarray(path.receiver_ranges_m, float)
     ez_unc = rx_unc = None
-    extrapolated = False
+    extrapolated = range_only_companion = False
     if companion is not None:
+        range_only_companion = coarse is not None and coarse.dz_m == plan.dz_m
         # both transfer functions per unit moment, flat: the calibration cancels in the dB difference
         ez_unc = unc.grid_convergence_index_db(res.range_m, res.ez, companion.range_m, companion.ez)
         rx_unc = np.stack([np.interp(rx_r, res.range_m, ez_unc[k]) for k in range(f.size)], axis=1)
@@ -234,6 +237,7 @@ def solve_path(scenario, path, *, progress=None, waveform=None, drive: Excitatio
         ez_unc,
         rx_unc,
         extrapolated=extrapolated,
+        range_only_companion=range_only_companion,
     )
     if res.hr is not None:
         sol.b_radial = MU0 * res.hr * scale
@@ -556,4 +560,6 @@ def to_dataset(scenario, solutions):
     ds.attrs["solver_extrapolation"] = (
         f"{unc.EXTRAPOLATION_METHOD} on paths: " + ", ".join(extrapolated) if extrapolated else "none"
     )
+    range_only = [s.path.label for s in solutions if s.range_only_companion]
+    ds.attrs["solver_range_only_companion"] = ", ".join(range_only) if range_only else "none"
     return ds

@@ -759,6 +759,8 @@ def test_result_file_names_the_extrapolated_paths(monkeypatch):
 
     with_field = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m='"auto"'))
     assert with_field.attrs["solver_extrapolation"] == "none"
+    # the whistler rule set the vertical cell, so the companion kept it (cavity.uncertainty)
+    assert with_field.attrs["solver_range_only_companion"] == str(with_field["path_label"].values[0])
     assert np.isfinite(with_field["receiver_ez_amplitude"].values).all()
     monkeypatch.setattr(unc, "extrapolation_applies", lambda *args: True)
     forced = simulate(_uniform_scenario(60.0, 60.0, 90.0, cell_m='"auto"'))

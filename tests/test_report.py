@@ -568,13 +568,15 @@ def test_golden_table_text_is_unchanged(golden, name, fmt):
 
 
 def test_table_says_what_the_uncertainty_leaves_out_with_the_field(golden):
-    # With the field the companion is coarser in range only (cavity.uncertainty.companion_settings),
-    # so the note names the vertical cell's error as outside +-; an isotropic file has no such note.
-    ds = golden["day"]
-    assert "geomagnetic_field_r" in ds and "receiver_ez_uncertainty" in ds
+    # Where the whistler rule set the vertical cell the companion is coarser in range only
+    # (cavity.uncertainty.companion_settings) and the file names those paths; the note then says
+    # that +- leaves out the vertical cell's error. A file without such paths has no such note.
+    ds = golden["day"].copy()
+    assert "receiver_ez_uncertainty" in ds
+    ds.attrs["solver_range_only_companion"] = "none"
+    assert "leaves out the error of the vertical cell" not in receiver_table(ds, "markdown")
+    ds.attrs["solver_range_only_companion"] = str(ds["path_label"].values[0])
     assert "leaves out the error of the vertical cell" in receiver_table(ds, "markdown")
-    isotropic = ds.drop_vars(["geomagnetic_field_r", "geomagnetic_field_phi", "geomagnetic_field_z"])
-    assert "leaves out the error of the vertical cell" not in receiver_table(isotropic, "markdown")
 
 
 def test_golden_dawn_classifies_day_and_transition(golden):

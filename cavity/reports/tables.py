@@ -355,9 +355,9 @@ def table_notes(
             "1.5 times coarser grid); empty when it was not computed. It does not cover the "
             "uncertainty of the ionosphere and ground given."
         )
-        if any("geomagnetic_field_r" in ds and "receiver_ez_uncertainty" in ds for ds in datasets):
+        if any(attr_text(ds.attrs.get("solver_range_only_companion", "none")) != "none" for ds in datasets):
             notes.append(
-                "With the geomagnetic field the companion is coarser in range only (its vertical cell must "
+                "With the geomagnetic field the companion was coarser in range only (its vertical cell must "
                 "still carry the whistler-mode wave), so +- leaves out the error of the vertical cell; by "
                 'night that error can exceed +- (README, "Numerical uncertainty").'
             )
