@@ -341,6 +341,9 @@ def test_combined_file_follows_the_contract_with_a_cf_time(swept, tmp_path):
     assert all(name in back.variables for name in REQUIRED_VARIABLES)
     assert all(name in back.attrs for name in REQUIRED_ATTRIBUTES)
     assert back.attrs["Conventions"] == "CF-1.10" and back.attrs["sweep_points"] == 4
+    # which points' companions kept the vertical cell (their +- leaves out its error), as in a result file
+    per_point = back.attrs["solver_range_only_companion"]
+    assert per_point == "none" or per_point.startswith("some or all paths of ")
     np.testing.assert_array_equal(back["time"].values, ds["time"].values)
     np.testing.assert_array_equal(back["receiver_ez_amplitude"].values, ds["receiver_ez_amplitude"].values)
     assert cavity.load_scenario(back.attrs["scenario"]).title.startswith("Invented tiny sweep")
@@ -714,3 +717,11 @@ def test_cli_killed_sweep_resumes(tmp_path):
     assert again.returncode == 0, again.stderr
     assert f"{done} already solved" in again.stderr and f"{13 - done} to solve" in again.stderr
     assert open_result(out).sizes["time"] == 13
+
+
+def test_sweep_names_how_many_points_have_a_range_only_companion():
+    from cavity.sweeps.combine import _range_only_text
+
+    assert _range_only_text(["none", "none"]) == "none"
+    text = _range_only_text(["none", "night-path", "a, b"])
+    assert text.startswith("some or all paths of 2 of 3 points") and "vertical cell" in text

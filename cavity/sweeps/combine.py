@@ -247,6 +247,9 @@ def combine(scenario: Scenario, times, freqs, points, results: dict, variants: d
         "solver_converged": "yes" if converged else "no",
         "solver_impedance_fit_error": fit,
         "solver_extrapolation": _extrapolation_text([attrs[p].get("solver_extrapolation", "none") for p in done]),
+        "solver_range_only_companion": _range_only_text(
+            [attrs[p].get("solver_range_only_companion", "none") for p in done]
+        ),
         "sweep_description": (
             "each point is the scenario above with ionosphere utc = time (when there is a time axis) "
             "and transmitter frequency_khz = frequency, solved on its own; the solver_* attributes "
@@ -311,3 +314,15 @@ def _extrapolation_text(values) -> str:
     if not done:
         return "none"
     return f"{EXTRAPOLATION_METHOD} on some or all paths of {len(done)} of {len(values)} points"
+
+
+def _range_only_text(values) -> str:
+    """The points' ``solver_range_only_companion`` attributes summarised for the sweep file: where a
+    point's companion kept the vertical cell, its +- leaves out the vertical cell's error."""
+    kept = [v for v in values if v != "none"]
+    if not kept:
+        return "none"
+    return (
+        f"some or all paths of {len(kept)} of {len(values)} points "
+        "(their uncertainty companion is coarser in range only; +- leaves out the vertical cell's error)"
+    )
