@@ -369,9 +369,7 @@ def test_six_component_kernels_match_their_numpy_twins(steps):
     top_h = K.Absorber(h_["jz0"], h_["b_zh"], h_["c_zh"], h_["kd_zh"], h_["psi_hr"], no_coef)
     far_h = K.Absorber(h_["ir0"], h_["b_rh"], h_["c_rh"], h_["kd_rh"], h_["psi_hz"], no_coef)
     dft_h = K.Dft(h_["acc_re"], h_["acc_im"], h_["cos_h"], h_["sin_h"])
-    curl_e = K.ECurlMag(
-        e_["er_coef"], e_["te_e"], e_["inv_dz"], e_["ke1"], e_["ke2"], e_["cez"], e_["cer"], e_["jp0"]
-    )
+    curl_e = K.ECurlMag(e_["er_coef"], e_["te_e"], e_["inv_dz"], e_["ke1"], e_["ke2"], e_["cez"], e_["cer"], e_["jp0"])
     top_r = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_ze"], no_coef)
     top_p = K.Absorber(e_["jz0"], e_["b_ze"], e_["c_ze"], e_["kd_ze"], e_["psi_pz"], no_coef)
     far_z = K.Absorber(e_["ir0"], e_["b_re"], e_["c_re"], e_["kd_re"], e_["psi_re"], no_coef)
@@ -716,7 +714,9 @@ def test_axis_closure_stays_stable_in_a_weakly_collisional_magnetised_slab(monke
 
     assert _axis_energy_growth(20000) < 2.0
     monkeypatch.setattr(eng, "ISOTROPIC_CLOSURE_COLUMNS", 0)
-    assert _axis_energy_growth(20000) > 100.0
+    # with the triples paired below and above in turn the growth starts later: 4.6-fold after
+    # 20,000 steps, 3,600-fold after 40,000
+    assert _axis_energy_growth(40000) > 100.0
 
 
 @pytest.mark.slow
@@ -1044,9 +1044,11 @@ def test_columns_under_the_same_medium_share_one_coefficient_table():
     six = eng.Simulation(path, settings)
     assert six.plan.nr > 200  # 1 km columns
     # per sample: the triple with its Er to the right and to the left, plus the axis and the far end;
-    # and one per column where the field fades out ahead of the far-end absorber
+    # and one per column where the field fades out ahead of the far-end absorber. The held plasma
+    # follows each sample's field too, and an Er node half a column along may take the next
+    # sample's, so each sample boundary adds a few tables: far from one per column (291 columns)
     assert six.plan.taper_r_cells > 0
-    assert six.mag_coef.shape[0] <= 2 * n + 2 + 2 * six.plan.taper_r_cells
+    assert six.mag_coef.shape[0] <= 4 * n + 2 + 2 * six.plan.taper_r_cells
     # each column takes the nearest sample's field
     near = six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 52e3)]]
     assert np.array_equal(near, six.mag_coef[six.tab_p[np.searchsorted(six.r_ez, 48e3)]])

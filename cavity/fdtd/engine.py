@@ -41,6 +41,11 @@ ISOTROPIC_CLOSURE_COLUMNS = 4
 #: range): the level of the field on the scale of the modal interference, not of one null. The deep
 #: nulls of the 3,000 km night path at 20 kHz recur every 850 km; +-400 km spans one such period.
 SETTLING_HALF_WIDTH_M = 400e3
+#: Smallest whistler-mode index at which holding the plasma leaves the field at the ground unchanged:
+#: held where the index reaches 4.1, 6.5 or 10.5 the magnetised reference's field moved by at most
+#: 0.01, 0.002 or 0.001 dB over 300-3,000 km (night, sea, dip 20, westward); held at 2.7, by 1.1 dB.
+#: A run whose vertical cell carries less gets a note.
+WHISTLER_INDEX_FLOOR = 4.0
 #: With the geomagnetic field and the plasma held (Simulation._plasma): height below the top absorber
 #: over which the collision frequency rises to :data:`SPONGE_COLLISION_FREQUENCY` (s^-1), far above
 #: the gyrofrequency (about 9e6 rad/s), so that the top absorber lies in a lossy, nearly isotropic plasma
@@ -129,13 +134,16 @@ class Settings:
     # plasma (see _whistler_dz_m); 0 leaves the vertical cell to the isotropic rules
     whistler_cells: float = 4.0
     # with the geomagnetic field: the plasma is held above the height where the whistler-mode index
-    # reaches what the vertical cell carries (Simulation._build), and the vertical cell carries at
+    # reaches what the vertical cell carries (Simulation._plasma), and the vertical cell carries at
     # least this index (or the densest plasma's, if lower); inf never holds the plasma, so the
-    # vertical cell must carry the densest plasma's index (4-6 times finer than without the field)
+    # vertical cell must carry the densest plasma's index (the former whistler rule, 2-6 times finer
+    # than the range cell) and the scheme keeps the Yee rule in height
     whistler_cap_index: float = 6.0
     # with the geomagnetic field (and the plasma held): vertical cells per profile scale 1/beta, where
-    # the isotropic runs take 3 (gridmod.CELLS_PER_PROFILE_SCALE); the magnetised current couples
-    # components half a cell apart in height, an error that grows with beta dz
+    # the isotropic runs take 3 (gridmod.CELLS_PER_PROFILE_SCALE). With the field the vertical error
+    # is larger: night, sea, 3,000 km, dip 20 and 60, westward, 1.22 and 0.27 dB worst at 6 (265 m),
+    # 3.34 and 1.05 dB at 3 (500 m), against the magnetised reference (README, "The magnetised
+    # reference")
     field_cells_per_scale: float = 6.0
     # with the geomagnetic field: wavelengths (at the lowest frequency) beyond the farthest output over
     # which the field fades out before the isotropic far-end absorber (see Simulation); 0 switches to
@@ -346,11 +354,12 @@ def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float 
 
 
 def vertical_order(medium: Medium, settings: Settings) -> int:
-    """Order of the vertical differences of a solve's interior: second with the geomagnetic field
-    (the six-component kernels difference Ephi, Hr and Er in height with the Yee rule; the
-    whistler rule makes the vertical cell 2-6 times finer than the range cell, so the range
-    differences carry the error), else ``settings.stencil_order``; ``settings.vertical_stencil_order``
-    overrides both."""
+    """Order of the vertical differences of a solve's interior: ``settings.stencil_order``, with or
+    without the geomagnetic field; second with the field when the plasma is never held
+    (``whistler_cap_index`` inf: the former whistler rule's vertical cell, 2-6 times finer than the
+    range cell, with the Yee rule in height and no collision sponge, whose fourth-order closure
+    below the top absorber would sit in a weakly collisional gyrotropic plasma);
+    ``settings.vertical_stencil_order`` overrides both."""
     if settings.vertical_stencil_order is not None:
         return int(settings.vertical_stencil_order)
     if medium.magnetic_field_t is not None and not math.isfinite(settings.whistler_cap_index):
@@ -924,6 +933,13 @@ class Simulation:
             zs = np.stack([media.leontovich_impedance(2 * math.pi * fk, sig, epr) for fk in self.frequencies_hz])
             ephi = zs * hr  # Leontovich: Ephi = +Zs Hr at the ground
         notes = []
+        capacity = whistler_capacity_index(s, float(self.frequencies_hz.max()), p.dz_m)
+        if self.magnetised and _has_field(self.medium) and capacity < WHISTLER_INDEX_FLOOR:
+            notes.append(
+                f"vertical cells of {p.dz_m:.0f} m carry the whistler-mode wave only to index {capacity:.1f}: "
+                f"the plasma is held from there up, below {WHISTLER_INDEX_FLOOR:g}, where holding it changes "
+                "the field at the ground (choose a finer cell_m)"
+            )
         if not converged:
             notes.append(
                 f"DFTs still changing by more than {s.convergence_db} dB at the time cap ({self.t_max * 1e3:.1f} ms)"

@@ -870,8 +870,24 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                     k = n - 1
                     j = jp0 + k
                     ez_new, _, _, uz_new, _, _ = _triple(
-                        coef, t, k, ez[i, j], zero, zero, cz[j], zero, zero, uz[i, k], zero, zero,
-                        cez[j], cer[j], cer[j], sz, np.float32(1.0), np.float32(1.0),
+                        coef,
+                        t,
+                        k,
+                        ez[i, j],
+                        zero,
+                        zero,
+                        cz[j],
+                        zero,
+                        zero,
+                        uz[i, k],
+                        zero,
+                        zero,
+                        cez[j],
+                        cer[j],
+                        cer[j],
+                        sz,
+                        np.float32(1.0),
+                        np.float32(1.0),
                     )
                     ez[i, j] = _flush(ez_new)
                     uz[i, k] = _flush(uz_new)
