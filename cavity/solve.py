@@ -58,7 +58,8 @@ class PathSolution:
     receiver_b_radial: np.ndarray | None = None
     receiver_ephi: np.ndarray | None = None
     extrapolated: bool = False  # the field is Richardson-extrapolated from the solve and its companion
-    # the companion kept the solve's vertical cell (the whistler rule set it): +- is the range cell's alone
+    # the companion kept the solve's vertical cell (the whistler rule set it, with the plasma never
+    # held: Settings.whistler_cap_index inf): +- is the range cell's alone
     range_only_companion: bool = False
 
 

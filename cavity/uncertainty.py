@@ -20,20 +20,17 @@ Applied here to the field in dB along each path:
   through zero where the true error need not. Wider windows (10, 25 km) gave the same coverage in
   the checks and up to three times larger values between plates; none (0 km) left 1-4 % of the
   ranges uncovered.
-- With the geomagnetic field the vertical cell is usually set by the whistler rule
-  (:func:`cavity.fdtd.engine.whistler_sets_vertical_cell`): four cells per vertical wavelength of the
-  whistler-mode wave, so that it leaves through the top. A companion 1.5 times coarser in height
-  would fall below the Yee scheme's cut-off (pi cells per wavelength) and reflect that wave, and its
-  difference from the solve would measure the companion's own failure (2.0 dB median on a night
-  path, where the solve's true error was 0.5 dB: 5.4 dB stated). The companion then keeps the
-  vertical cell and is 1.5 times coarser in range only. The vertical cell is then 2-6 times finer
-  than the range cell, and the time step follows it, so the range cell carries the error, and the
-  estimate keeps r = 1.5. Measured against the magnetised reference, coarsening the height too
-  changed nothing by day (0.53 against 0.54 dB median difference). The whistler's own treatment
-  is not in the estimate; it was measured against the reference (README, "The magnetised
-  reference"). By night it matters: with fourth-order range differences the stated value covered
-  only 74-76 % of the ranges of two night paths at dip 60 (300-3,000 km), and a vertical cell
-  1.5 times finer nearly halved the errors of both (README, "Numerical uncertainty").
+- With the geomagnetic field the engine holds the plasma above the height where the whistler-mode
+  index reaches what the vertical cell carries (:func:`cavity.fdtd.engine.whistler_capacity_index`),
+  so a companion 1.5 times coarser in height simply holds it lower, where its own cells carry the
+  wave, and the estimate includes the vertical cell's error. Before (the plasma never held, as with
+  ``whistler_cap_index`` = inf), the whistler rule set the vertical cell to four cells per vertical
+  wavelength of that wave in the densest plasma; a companion 1.5 times coarser in height would fall
+  below the Yee scheme's cut-off (pi cells per wavelength) and reflect the wave (2.0 dB median on a
+  night path whose true error was 0.5 dB: 5.4 dB stated), so the companion kept the vertical cell
+  (:func:`cavity.fdtd.engine.whistler_sets_vertical_cell`) and the estimate left out that cell's
+  error: it covered only 74-76 % of the ranges of two night paths at dip 60 (README, "Numerical
+  uncertainty").
 - A floor of ``FLOOR_DB`` covers what no grid refinement reveals (the recursive ground-impedance fit,
   the absorbers), of order a few hundredths of a dB in the checks of ``cavity verify``.
 

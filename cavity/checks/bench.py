@@ -112,11 +112,11 @@ REFERENCE_MACHINE = "a 2-core machine like the development one, idle"
 
 
 #: Cost of a run with the geomagnetic field in isotropic cell updates of its own (finer) grid: on the
-#: 3,000 km night path at 20 kHz (276 m cells from the whistler rule) a cell update costs 1.9 times an
-#: isotropic one and the DFTs take 1.31 times the planned steps to settle (23,034 against 17,608): 174.7 s
-#: of processor time for 27.9 G planned updates, against 25.4 s for 9.6 G isotropic (idle machine,
-#: interleaved).
-MAGNETISED_COST_FACTOR = 2.4
+#: 3,000 km night path at 20 kHz (dip 60, eastward; 265 m cells, 1/(6 beta)) the run took 214.2 and
+#: 241.7 s of processor time for 30.5 G expected updates, against 26.4 and 25.5 s for 9.6 G isotropic
+#: (``cavity bench --field --whole``, idle 2-core machine, two threads, interleaved): 2.77 times per
+#: update, the vector current and three more components, and 24,650 steps against 18,285 planned.
+MAGNETISED_COST_FACTOR = 2.8
 
 
 def estimate_seconds(grids, rates=REFERENCE_ENGINE_RATES) -> tuple[float, float]:

@@ -41,6 +41,16 @@ ISOTROPIC_CLOSURE_COLUMNS = 4
 #: range): the level of the field on the scale of the modal interference, not of one null. The deep
 #: nulls of the 3,000 km night path at 20 kHz recur every 850 km; +-400 km spans one such period.
 SETTLING_HALF_WIDTH_M = 400e3
+#: Smallest whistler-mode index at which holding the plasma leaves the field at the ground unchanged:
+#: held where the index reaches 4.1, 6.5 or 10.5 the magnetised reference's field moved by at most
+#: 0.01, 0.002 or 0.001 dB over 300-3,000 km (night, sea, dip 20, westward); held at 2.7, by 1.1 dB.
+#: A run whose vertical cell carries less gets a note.
+WHISTLER_INDEX_FLOOR = 4.0
+#: With the geomagnetic field and the plasma held (Simulation._plasma): height below the top absorber
+#: over which the collision frequency rises to :data:`SPONGE_COLLISION_FREQUENCY` (s^-1), far above
+#: the gyrofrequency (about 9e6 rad/s), so that the top absorber lies in a lossy, nearly isotropic plasma
+SPONGE_M = 10e3
+SPONGE_COLLISION_FREQUENCY = 1e9
 #: Smallest window of the settling test, output columns either side (the former local envelope).
 SETTLING_HALF_WIDTH_CELLS = 25
 
@@ -123,6 +133,18 @@ class Settings:
     # with the geomagnetic field: cells per vertical wavelength of the whistler-mode wave in the densest
     # plasma (see _whistler_dz_m); 0 leaves the vertical cell to the isotropic rules
     whistler_cells: float = 4.0
+    # with the geomagnetic field: the plasma is held above the height where the whistler-mode index
+    # reaches what the vertical cell carries (Simulation._plasma), and the vertical cell carries at
+    # least this index (or the densest plasma's, if lower); inf never holds the plasma, so the
+    # vertical cell must carry the densest plasma's index (the former whistler rule, 2-6 times finer
+    # than the range cell) and the scheme keeps the Yee rule in height
+    whistler_cap_index: float = 6.0
+    # with the geomagnetic field (and the plasma held): vertical cells per profile scale 1/beta, where
+    # the isotropic runs take 3 (gridmod.CELLS_PER_PROFILE_SCALE). With the field the vertical error
+    # is larger: night, sea, 3,000 km, dip 20 and 60, westward, 1.22 and 0.27 dB worst at 6 (265 m),
+    # 3.34 and 1.05 dB at 3 (500 m), against the magnetised reference (README, "The magnetised
+    # reference")
+    field_cells_per_scale: float = 6.0
     # with the geomagnetic field: wavelengths (at the lowest frequency) beyond the farthest output over
     # which the field fades out before the isotropic far-end absorber (see Simulation); 0 switches to
     # an abrupt change at the absorber
@@ -277,8 +299,10 @@ class RunPlan:
 
 def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, top_m: float) -> float | None:
     """Largest vertical cell that carries the whistler-mode wave leaking up through the magnetised
-    plasma: ``settings.whistler_cells`` cells per vertical wavelength lambda0 / n in the densest plasma
-    below the top absorber's far side (:func:`cavity.fdtd.media.whistler_vertical_index`).
+    plasma: ``settings.whistler_cells`` cells per vertical wavelength lambda0 / n, n the index of the
+    densest plasma below the top absorber's far side (:func:`cavity.fdtd.media.whistler_vertical_index`)
+    or ``settings.whistler_cap_index``, whichever is lower (above the height where a column reaches
+    the index its cells carry, the plasma is held: :func:`whistler_capacity_index`).
 
     At night the wave that leaks through the D region is the whistler mode; above 95 km its vertical
     index reaches 13-22 at 20 kHz (50,000 nT, dip 20-90 deg, density held above 100 km), a wavelength
@@ -299,16 +323,30 @@ def _whistler_dz_m(medium: Medium, settings: Settings, frequency_max_hz: float, 
     n = media.whistler_vertical_index(
         WP2_PER_NE * float(np.max(ne)), medium.magnetic_field_t, frequency_max_hz, flattening
     )
+    n = min(n, float(settings.whistler_cap_index))
     return C0 / frequency_max_hz / (settings.whistler_cells * n)
 
 
+def whistler_capacity_index(settings: Settings, frequency_max_hz: float, dz_m: float) -> float:
+    """Whistler-mode index that a vertical cell ``dz_m`` carries: lambda0 / (``whistler_cells`` dz),
+    lambda0 at the highest frequency (at lower frequencies the whistler-mode wavelength in the same
+    plasma is longer); inf when the plasma is never held (``whistler_cap_index`` inf, or
+    ``whistler_cells`` 0)."""
+    if not settings.whistler_cells > 0 or not math.isfinite(settings.whistler_cap_index):
+        return math.inf
+    return C0 / frequency_max_hz / (settings.whistler_cells * dz_m)
+
+
 def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float | None = None) -> bool:
-    """Whether the whistler rule (:func:`_whistler_dz_m`), not the isotropic rules, sets the solve's
-    vertical cell (``dz_m``, the solve's plan's; planned here when not given): then a grid 1.5 times
-    coarser in height no longer carries the whistler-mode wave (it falls below the Yee scheme's
-    cut-off of pi cells per wavelength), and an uncertainty companion keeps the vertical cell
-    (:func:`cavity.solve.solve_path`)."""
+    """Whether an uncertainty companion must keep the solve's vertical cell (``dz_m``, the solve's
+    plan's; planned here when not given): when the plasma is never held (``whistler_cap_index``
+    inf) and the whistler rule (:func:`_whistler_dz_m`), not the isotropic rules, set the cell, a grid
+    1.5 times coarser in height no longer carries the whistler-mode wave (it falls below the Yee
+    scheme's cut-off of pi cells per wavelength) and reflects it. With the plasma held, a coarser
+    companion holds it lower, where its own cells carry the index (:func:`whistler_capacity_index`)."""
     if medium.magnetic_field_t is None or not settings.whistler_cells > 0 or settings.dz_m:
+        return False
+    if math.isfinite(settings.whistler_cap_index):
         return False
     if dz_m is None:
         dz_m = make_plan(medium, settings).grid.dz_m
@@ -316,14 +354,27 @@ def whistler_sets_vertical_cell(medium: Medium, settings: Settings, dz_m: float 
 
 
 def vertical_order(medium: Medium, settings: Settings) -> int:
-    """Order of the vertical differences of a solve's interior: second with the geomagnetic field
-    (the six-component kernels difference Ephi, Hr and Er in height with the Yee rule; the
-    whistler rule makes the vertical cell 2-6 times finer than the range cell, so the range
-    differences carry the error), else ``settings.stencil_order``; ``settings.vertical_stencil_order``
-    overrides both."""
+    """Order of the vertical differences of a solve's interior: ``settings.stencil_order``, with or
+    without the geomagnetic field; second with the field when the plasma is never held
+    (``whistler_cap_index`` inf: the former whistler rule's vertical cell, 2-6 times finer than the
+    range cell, with the Yee rule in height and no collision sponge, whose fourth-order closure
+    below the top absorber would sit in a weakly collisional gyrotropic plasma);
+    ``settings.vertical_stencil_order`` overrides both."""
     if settings.vertical_stencil_order is not None:
         return int(settings.vertical_stencil_order)
-    return 2 if medium.magnetic_field_t is not None else int(settings.stencil_order)
+    if medium.magnetic_field_t is not None and not math.isfinite(settings.whistler_cap_index):
+        return 2
+    return int(settings.stencil_order)
+
+
+def _cells_per_scale(medium: Medium, settings: Settings) -> float:
+    """Vertical cells per profile scale 1/beta: ``settings.field_cells_per_scale`` with the
+    geomagnetic field and the plasma held (:func:`whistler_capacity_index`), else the isotropic
+    runs' :data:`cavity.fdtd.grid.CELLS_PER_PROFILE_SCALE` (with the plasma never held the whistler
+    rule sets a finer cell anyway)."""
+    if _has_field(medium) and math.isfinite(settings.whistler_cap_index):
+        return float(settings.field_cells_per_scale)
+    return gridmod.CELLS_PER_PROFILE_SCALE
 
 
 def _has_field(medium: Medium) -> bool:
@@ -361,6 +412,7 @@ def make_plan(medium: Medium, settings: Settings) -> RunPlan:
         vertical_order=vertical_order(medium, s),
         dz_max_m=_whistler_dz_m(medium, s, float(f.max()), top),
         taper_m=s.field_taper_wavelengths * C0 / float(f.min()) if _has_field(medium) else 0.0,
+        cells_per_scale=_cells_per_scale(medium, s),
     )
     if medium.magnetic_field_t is not None:
         grid = dataclasses.replace(grid, magnetised=True)
@@ -390,6 +442,40 @@ class Simulation:
     def _coefficient(values, nr, n):
         """A contiguous float32 (nr, n) coefficient table (contiguous rows let the kernels vectorise)."""
         return np.ascontiguousarray(np.broadcast_to(np.asarray(values, dtype=np.float32), (nr, n)))
+
+    def _plasma(self, r_nodes, z_nodes):
+        """(omega_p^2, nu) at grid nodes (:func:`_on_grid`); with the geomagnetic field, omega_p^2 is
+        held in each column above the height where the whistler-mode index reaches what the
+        vertical cell carries (:func:`whistler_capacity_index`, :func:`cavity.fdtd.media.whistler_cap_omega_p2`),
+        with the column's nearest range sample's field."""
+        wp2, nu = _on_grid(self.medium, r_nodes, z_nodes)
+        b = self.medium.magnetic_field_t
+        if wp2 is None or b is None or not _has_field(self.medium):
+            return wp2, nu
+        f_max = float(self.frequencies_hz.max())
+        index = whistler_capacity_index(self.settings, f_max, self.plan.dz_m)
+        if not math.isfinite(index):
+            return wp2, nu
+        flattening = float(media.flattening_factor(self.plan.top_m, self.settings.earth_curvature))
+        cap = media.whistler_cap_omega_p2(np.asarray(b, float).reshape(-1, 3), f_max, index, flattening)
+        cap_cols = cap[_nearest_sample(self.medium, r_nodes)]
+        wp2 = np.minimum(wp2, cap_cols[:, None])
+        if self.plan.pml_z_cells == 0:  # under a conducting ceiling nothing leaves through the top
+            return wp2, nu
+        # the collision frequency rises to SPONGE_COLLISION_FREQUENCY over the physical domain's top
+        # SPONGE_M (as the square of the depth into it, in log), and stays there in the top absorber: a
+        # CPML in a weakly collisional gyrotropic plasma can amplify waves that travel backward along
+        # its stretched axis (Becache, Fauqueux and Joly 2003, J. Comput. Phys. 188(2) 399), as the
+        # whistler-mode wave does under a low dip (measured: a 150 km night guide, dip 20, 500 m
+        # cells, grew without bound in the top absorber at 16.6 ms; with the plasma fading to vacuum
+        # instead, at the far-end absorber's top). With nu far above the gyrofrequency the plasma is
+        # lossy and nearly isotropic there; the wave that reaches it has left the guide, and the
+        # reference with the same held plasma and sponge differs from the plain one by at most
+        # 0.16 dB (docs/physics.md 11)
+        x = np.clip((self.plan.top_m - np.asarray(z_nodes, float)) / SPONGE_M, 0.0, 1.0)
+        depth = (1.0 - x)[None, :] ** 2
+        log_nu = np.log(np.maximum(nu, 1e-30))
+        return wp2, np.exp(log_nu + depth * np.maximum(math.log(SPONGE_COLLISION_FREQUENCY) - log_nu, 0.0))
 
     def _build(self) -> None:
         p, s, m = self.plan, self.settings, self.medium
@@ -442,8 +528,8 @@ class Simulation:
         self.inv_dr, self.inv_dz = f32(st.ar1[-1]), f32(st.kz1[-1])
 
         # plasma
-        wp2_z, nu_z = _on_grid(m, self.r_ez, self.z_ez)
-        wp2_r, nu_r = _on_grid(m, self.r_h, self.z_er[:nz])
+        wp2_z, nu_z = self._plasma(self.r_ez, self.z_ez)
+        wp2_r, nu_r = self._plasma(self.r_h, self.z_er[:nz])
         self.jp0 = nz
         if wp2_z is not None:
             # rows whose loss tangent omega_p^2/(omega max(nu, omega)) stays below PLASMA_THRESHOLD
@@ -453,7 +539,12 @@ class Simulation:
             weight_r = wp2_r / (w_min * np.maximum(nu_r, w_min))
             rows = np.nonzero((weight_z.max(axis=0) > PLASMA_THRESHOLD) | (weight_r.max(axis=0) > PLASMA_THRESHOLD))[0]
             if rows.size:
-                self.jp0 = max(int(rows[0]), 1)
+                # with the field one more row: on alternate steps the triples pair each Ez node with
+                # the Er and Ephi nodes above it, and the first plasma row's Er and Ephi, then without
+                # a partner, are stepped as vacuum (kernels.step_e_mag); that row's plasma is below
+                # PLASMA_THRESHOLD
+                below = 1 if m.magnetic_field_t is not None else 0
+                self.jp0 = max(int(rows[0]) - below, 1)
         n_pl = nz - self.jp0
         sl = slice(self.jp0, nz)
         if n_pl > 0:
@@ -603,18 +694,26 @@ class Simulation:
             self.t_left = 0
             return
         sl = slice(self.jp0, nz)
-        wp2_p, nu_p = _on_grid(m, self.r_ez, self.z_er[:nz])
+        up = slice(self.jp0 + 1, nz + 1)  # the Er and Ephi rows above the Ez rows (row nz: the top wall)
+        # Er and Ephi nodes on every row up to the wall; H_phi-column plasma for Er, Ez-column for Ephi
+        wp2_re, nu_re = self._plasma(self.r_h, self.z_er)
+        wp2_p, nu_p = self._plasma(self.r_ez, self.z_er)
         _, prof_z = _distinct_rows(np.ascontiguousarray(wp2_z[:, sl]))
-        _, prof_r = _distinct_rows(np.ascontiguousarray(wp2_r[:, sl]))
-        _, prof_p = _distinct_rows(np.ascontiguousarray(wp2_p[:, sl]))
+        _, prof_r = _distinct_rows(np.ascontiguousarray(wp2_re[:, self.jp0 :]))
+        _, prof_p = _distinct_rows(np.ascontiguousarray(wp2_p[:, self.jp0 :]))
         _, field_idx = _distinct_rows(w)
         cols = np.arange(nr)
-        # triple keys (Ez profile, Er profile, Ephi profile, field, presence of r, phi, z)
-        keys_p = np.stack([prof_z, prof_r, prof_p, field_idx, np.ones(nr), (cols > 0), np.ones(nr)], axis=1)
+        # triple keys (Ez profile, Er profile, Ephi profile, field, presence of r, phi, z, vertical
+        # offset of the Er and Ephi partners: 0 the row of the Ez node's lower face, 1 its upper face)
+        keys_p = np.stack(
+            [prof_z, prof_r, prof_p, field_idx, np.ones(nr), (cols > 0), np.ones(nr), np.zeros(nr)], axis=1
+        )
+        # the other pairing: the Er column before each Ez column and the rows above (kernels.step_e_mag)
         keys_m = keys_p.copy()
         keys_m[1:, 1] = prof_r[:-1]
         keys_m[0, 1], keys_m[0, 4] = -1, 0
-        left = np.array([[-1, prof_r[-1], -1, field_idx[-1], 1, 0, 0]])
+        keys_m[:, 7] = 1
+        left = np.array([[-1, prof_r[-1], -1, field_idx[-1], 1, 0, 0, 0]])
         keys, index = np.unique(np.vstack([keys_p, keys_m, left]).astype(np.int64), axis=0, return_inverse=True)
         index = index.reshape(-1)
         self.tab_p = np.ascontiguousarray(index[:nr], dtype=np.int32)
@@ -631,19 +730,20 @@ class Simulation:
         for key_row, row in first.items():
             rep[key_row] = (ez_col[row], max(er_col[row], 0), ez_col[row])
         nk = len(keys)
+        lifted = keys[:, 7] == 1
         eps = np.empty((nk, n_pl, 3))
         wp2 = np.empty((nk, n_pl, 3))
         nu = np.empty((nk, n_pl, 3))
-        eps[:, :, 0] = eps_er[None, sl]
-        eps[:, :, 1] = eps_er[None, sl]
+        eps[:, :, 0] = np.where(lifted[:, None], eps_er[None, up], eps_er[None, sl])
+        eps[:, :, 1] = eps[:, :, 0]
         eps[:, :, 2] = eps_ez[None, sl]
-        wp2[:, :, 0] = wp2_r[rep[:, 1], sl]
-        wp2[:, :, 1] = wp2_p[rep[:, 2], sl]
+        for c, (table_wp2, table_nu, col) in enumerate(((wp2_re, nu_re, rep[:, 1]), (wp2_p, nu_p, rep[:, 2]))):
+            wp2[:, :, c] = np.where(lifted[:, None], table_wp2[col][:, up], table_wp2[col][:, sl])
+            nu[:, :, c] = np.where(lifted[:, None], table_nu[col][:, up], table_nu[col][:, sl])
         wp2[:, :, 2] = wp2_z[rep[:, 0], sl]
-        nu[:, :, 0] = nu_r[rep[:, 1], sl]
-        nu[:, :, 1] = nu_p[rep[:, 2], sl]
         nu[:, :, 2] = nu_z[rep[:, 0], sl]
-        present = np.broadcast_to(keys[:, None, 4:7].astype(bool), (nk, n_pl, 3))
+        present = np.broadcast_to(keys[:, None, 4:7].astype(bool), (nk, n_pl, 3)).copy()
+        present[lifted, -1, :2] = False  # the top Ez row's upper face is the wall: Ez alone
         gyro = np.broadcast_to(w[rep[:, 0]][:, None, :], (nk, n_pl, 3)).copy()
         # (key, coefficient, plasma row): each coefficient contiguous along the rows (kernels.step_e_mag)
         self.mag_coef = np.ascontiguousarray(
@@ -710,11 +810,11 @@ class Simulation:
             # the six-component kernels' groups (kernels.FieldsTE ...); the triples' pairing alternates
             no_coef = np.zeros((0, 0), np.float32)
             te = K.FieldsTE(self.ephi, self.hr, self.hz, self.jphi)
-            curl_te = K.HCurlTE(self.inv_dz, self.ch, st.te_h, self.ha, self.hb)
+            curl_te = K.HCurlTE(self.inv_dz, st.kz1, st.kz2, self.ch, st.te_h, self.ha, self.hb)
             ground_te = K.GroundMemory(self.sib_q, self.sib_w, self.sib_psi_r)
             top_hr = K.Absorber(self.jz0, *self.pz_h, self.psi_hr, no_coef)
             far_hz = K.Absorber(self.ir0, *self.pr_h, self.psi_hz, no_coef)
-            curl_mag = K.ECurlMag(st.er_coef, st.te_e, self.inv_dz, self.cez, self.cer, self.jp0)
+            curl_mag = K.ECurlMag(st.er_coef, st.te_e, self.inv_dz, st.ke1, st.ke2, self.cez, self.cer, self.jp0)
             pairing = {
                 1: K.Magnetoplasma(self.mag_coef, self.tab_p, 1, self.wsq),
                 -1: K.Magnetoplasma(self.mag_coef, self.tab_m, -1, self.wsq),
@@ -833,6 +933,13 @@ class Simulation:
             zs = np.stack([media.leontovich_impedance(2 * math.pi * fk, sig, epr) for fk in self.frequencies_hz])
             ephi = zs * hr  # Leontovich: Ephi = +Zs Hr at the ground
         notes = []
+        capacity = whistler_capacity_index(s, float(self.frequencies_hz.max()), p.dz_m)
+        if self.magnetised and _has_field(self.medium) and capacity < WHISTLER_INDEX_FLOOR:
+            notes.append(
+                f"vertical cells of {p.dz_m:.0f} m carry the whistler-mode wave only to index {capacity:.1f}: "
+                f"the plasma is held from there up, below {WHISTLER_INDEX_FLOOR:g}, where holding it changes "
+                "the field at the ground (choose a finer cell_m)"
+            )
         if not converged:
             notes.append(
                 f"DFTs still changing by more than {s.convergence_db} dB at the time cap ({self.t_max * 1e3:.1f} ms)"

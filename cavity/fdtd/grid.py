@@ -29,6 +29,9 @@ from cavity.errors import ResourceError, SolverError
 DEFAULT_CELLS_PER_WAVELENGTH = 16.0
 #: Largest vertical cell: resolves the profile scale 1/beta (docs/physics.md 2).
 MAX_DZ_M = 500.0
+#: Vertical cells per profile scale 1/beta (the steepest d ln(omega_p^2/nu)/dz) of the isotropic runs
+#: (docs/physics.md 2); runs with the geomagnetic field use their own (Settings.field_cells_per_scale).
+CELLS_PER_PROFILE_SCALE = 3.0
 #: Smallest vertical cell any automatic rule chooses (a user's ``dz_m`` may go below it).
 MIN_DZ_M = 100.0
 #: Fraction of the stability limit used for the time step.
@@ -155,14 +158,16 @@ def default_cells(
     frequency_max_hz: float,
     beta_max_per_m: float | None = None,
     cells_per_wavelength: float = DEFAULT_CELLS_PER_WAVELENGTH,
+    cells_per_scale: float = CELLS_PER_PROFILE_SCALE,
 ) -> tuple[float, float]:
-    """Default (dr, dz) in m: range resolves the shortest wavelength, height also the profile scale."""
+    """Default (dr, dz) in m: range resolves the shortest wavelength, height also the profile scale
+    (``cells_per_scale`` cells per 1/beta, not below 100 m)."""
     if not frequency_max_hz > 0:
         raise SolverError(f"frequency = {frequency_max_hz!r} Hz: must be > 0")
     dr = C0 / frequency_max_hz / cells_per_wavelength
     dz = min(dr, MAX_DZ_M)
     if beta_max_per_m:
-        dz = min(dz, max(1.0 / (3.0 * beta_max_per_m), 100.0))
+        dz = min(dz, max(1.0 / (cells_per_scale * beta_max_per_m), MIN_DZ_M))
     return dr, dz
 
 
@@ -183,6 +188,7 @@ def plan_grid(
     vertical_order: int | None = None,
     dz_max_m: float | None = None,
     taper_m: float = 0.0,
+    cells_per_scale: float = CELLS_PER_PROFILE_SCALE,
 ) -> GridPlan:
     """Size the grid and the time step for one solve.
 
@@ -200,8 +206,9 @@ def plan_grid(
         geomagnetic field, the whistler-mode rule of :func:`cavity.fdtd.engine.make_plan`.
     taper_m : length beyond the margin and before the far-end absorber over which the engine fades
         the geomagnetic field out (0 without a field); no output lies there.
+    cells_per_scale : vertical cells per profile scale 1/beta (:func:`default_cells`).
     """
-    dr_auto, dz_auto = default_cells(frequency_max_hz, beta_max_per_m, cells_per_wavelength)
+    dr_auto, dz_auto = default_cells(frequency_max_hz, beta_max_per_m, cells_per_wavelength, cells_per_scale)
     dr = float(dr_m) if dr_m else dr_auto
     if dz_max_m:
         dz_auto = min(dz_auto, max(float(dz_max_m), MIN_DZ_M))

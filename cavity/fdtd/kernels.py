@@ -137,11 +137,15 @@ class FieldsTE(NamedTuple):
 
 
 class HCurlTE(NamedTuple):
-    """Faraday's-law coefficients of the TE set: 1/dz, dt/mu0, the stencil table of the radial
-    operator (1/r) d(r Ephi)/dr at Hz column i (``te_h``: coefficients of Ephi at columns i+2, i+1,
-    i, i-1; :mod:`cavity.fdtd.stencil`), and the ground row's (ha, hb) per column."""
+    """Faraday's-law coefficients of the TE set: 1/dz (the ground row and the top absorber), the
+    vertical stencil tables of the TM set's H (``kz1``, ``kz2``: Hr sits in H_phi's rows and Ephi in
+    Er's), dt/mu0, the stencil table of the radial operator (1/r) d(r Ephi)/dr at Hz column i
+    (``te_h``: coefficients of Ephi at columns i+2, i+1, i, i-1; :mod:`cavity.fdtd.stencil`), and
+    the ground row's (ha, hb) per column."""
 
     inv_dz: np.float32
+    kz1: np.ndarray  # (nz,) dEphi/dz = kz1 (Ephi[j+1] - Ephi[j]) + kz2 (Ephi[j+2] - Ephi[j-1])
+    kz2: np.ndarray  # (nz,)
     ch: np.float32
     te_h: np.ndarray  # (nr, 4)
     ha: np.ndarray  # (nr,)
@@ -151,12 +155,14 @@ class HCurlTE(NamedTuple):
 class ECurlMag(NamedTuple):
     """Ampere's-law coefficients of the six-component scheme: the stencil tables of (1/r) d(r H_phi)/dr
     at Ez column i (``er_coef``: H_phi at columns i+1, i, i-1, i-2) and of dHz/dr at Ephi column i
-    (``te_e``: Hz at columns i+1, i, i-1, i-2), 1/dz (vertical differences are second order), dt/eps
-    per row, first plasma row."""
+    (``te_e``: Hz at columns i+1, i, i-1, i-2), 1/dz (the top absorber's corrections), the vertical
+    stencil tables of Er (``ke1``, ``ke2``, also those of Ephi), dt/eps per row, first plasma row."""
 
     er_coef: np.ndarray  # (nr, 4)
     te_e: np.ndarray  # (nr, 4)
     inv_dz: np.float32
+    ke1: np.ndarray  # (nz + 1,) dH/dz at Er row j = ke1 (H[j] - H[j-1]) + ke2 (H[j+1] - H[j-2])
+    ke2: np.ndarray  # (nz + 1,)
     cez: np.ndarray  # (nz,)
     cer: np.ndarray  # (nz + 1,)
     jp0: int
@@ -573,7 +579,7 @@ def step_h_te(te, curl, ground, top, far, dft, n_cols):
     operator of Hz (columns >= ir0). DFT of Hr at the ground row.
     """
     hr, hz, ephi = te.hr, te.hz, te.ephi
-    inv_dz, ch, te_h, ha, hb = curl.inv_dz, curl.ch, curl.te_h, curl.ha, curl.hb
+    inv_dz, kz1, kz2, ch, te_h, ha, hb = curl.inv_dz, curl.kz1, curl.kz2, curl.ch, curl.te_h, curl.ha, curl.hb
     sib_q, sib_w, sib_psi = ground.q, ground.w, ground.psi
     jz0, b_zh, c_zh, kd_zh, psi_hr = top.start, top.b, top.c, top.kd, top.psi
     ir0, b_rh, c_rh, kd_rh, psi_hz = far.start, far.b, far.c, far.kd, far.psi
@@ -593,9 +599,13 @@ def step_h_te(te, curl, ground, top, far, dft, n_cols):
             sib_psi[i, k] = p
             psi_sum += p
         h[0] = ha[i] * h_old + hb[i] * (e[1] * inv_dz + psi_sum * inv_dz)
-        for j in range(1, nz):
-            v = h[j] + ch * (e[j + 1] - e[j]) * inv_dz
+        # kz2 = 0 in rows 1 and from the top absorber on (the stencil's closures)
+        for j in range(1, nz - 1):
+            v = h[j] + ch * (kz1[j] * (e[j + 1] - e[j]) + kz2[j] * (e[j + 2] - e[j - 1]))
             h[j] = v if abs(v) > TINY else np.float32(0.0)
+        j = nz - 1
+        v = h[j] + ch * kz1[j] * (e[j + 1] - e[j])
+        h[j] = v if abs(v) > TINY else np.float32(0.0)
         for k in range(n_top):
             j = jz0 + k
             d = (e[j + 1] - e[j]) * inv_dz
@@ -674,9 +684,15 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
     with the E-J collocated trapezoidal update of magnetised cold plasma (Yu and Simpson 2010,
     IEEE TAP 58(2) 469), which is stable for any omega_p dt, nu dt and omega_b dt. The three E
     components sit at different Yee positions, so each step groups them in disjoint triples: the
-    Ez node (i, j+1/2), the Ephi node (i, j) below it and the Er node (i + shift/2, j) beside it
-    (``shift`` = +1 or -1, alternated from step to step by the engine so that the coupling is
-    centred in range on average). Each triple is one local implicit update (:func:`_triple`);
+    Ez node (i, j+1/2) with the Ephi node (i, j) below it and the Er node (i + 1/2, j) beside that
+    (``shift`` = +1), or with the Ephi node (i, j+1) above it and the Er node (i - 1/2, j+1)
+    (``shift`` = -1). The engine alternates the two from step to step, so that the coupling is
+    centred in range and in height on average: pairing always below left an error of first order
+    in the vertical cell, largest under a low dip where the horizontal field couples Jz to Jr and
+    Jphi (night, sea, dip 20, westward, 3,000 km: 3.05 dB at 276 m, 6.76 dB at 500 m). With the
+    partners above, the top Ez row (whose upper face is the wall) is updated alone, and the first
+    plasma row's Er and Ephi, without a partner, as vacuum (its plasma is below the engine's
+    threshold). Each triple is one local implicit update (:func:`_triple`);
     every E node belongs to exactly one triple, so the step is passive and the columns stay
     independent. The currents are stored scaled, u = J / sqrt(eps omega_p^2), at their own E
     nodes (``uz``, ``ur``, ``up``); ``coef[tab[i]]`` (21, plasma rows) holds the coefficients of
@@ -699,6 +715,7 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
     ez, er, hp, uz, ur = fields.ez, fields.er, fields.hp, fields.jz, fields.jr
     ephi, hr, hz, up = te.ephi, te.hr, te.hz, te.jphi
     ec, te_e, inv_dz, cez, cer, jp0 = curl.er_coef, curl.te_e, curl.inv_dz, curl.cez, curl.cer, curl.jp0
+    ke1, ke2 = curl.ke1, curl.ke2
     coef, tab, shift, wsq = plasma.coef, plasma.tab, plasma.shift, plasma.wsq
     jz0, b_ze, c_ze, kd_ze, psi_ze, psi_pz = top_r.start, top_r.b, top_r.c, top_r.kd, top_r.psi, top_p.psi
     ir0, b_re, c_re, kd_re, psi_re, psi_pr = far_z.start, far_z.b, far_z.c, far_z.kd, far_z.psi, far_p.psi
@@ -715,6 +732,7 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
         curls = np.empty((3, nz), np.float32)
         for i in range(blk * MAG_CHUNK, min(n_cols, (blk + 1) * MAG_CHUNK)):
             ie = np.int64(i) - (np.int64(1) if shift < 0 else np.int64(0))  # Er column of the triples (-1: none)
+            lift = 1 if shift < 0 else 0  # the partners' rows: 0 the Ez node's lower face, 1 its upper face
             # radial stencils read columns i+1 .. i-2; a column outside the grid has a zero coefficient
             ip1 = min(i + 1, nr - 1)
             im1 = max(i - 1, 0)
@@ -750,7 +768,12 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                 g_zm = hz[im1]
                 g_zm2 = hz[im2]
                 for j in range(1, nz):
-                    cp[j] = (g_r[j] - g_r[j - 1]) * inv_dz - (t0 * g_z1[j] + t1 * g_z[j] + t2 * g_zm[j] + t3 * g_zm2[j])
+                    cp[j] = -(t0 * g_z1[j] + t1 * g_z[j] + t2 * g_zm[j] + t3 * g_zm2[j])
+                # dHr/dz: ke2 = 0 in rows 1 and from the top absorber on (the stencil's closures)
+                cp[1] += ke1[1] * (g_r[1] - g_r[0])
+                for j in range(2, nz - 1):
+                    cp[j] += ke1[j] * (g_r[j] - g_r[j - 1]) + ke2[j] * (g_r[j + 1] - g_r[j - 2])
+                cp[nz - 1] += ke1[nz - 1] * (g_r[nz - 1] - g_r[nz - 2])
                 for k in range(n_top):
                     j = jz0 + k
                     d = (g_r[j] - g_r[j - 1]) * inv_dz
@@ -765,25 +788,28 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                         cp[j] += kd_re[kk] * d + p
             if ie >= 0:
                 he = hp[ie]
-                for j in range(1, nz):
-                    cr[j] = -(he[j] - he[j - 1]) * inv_dz
+                cr[1] = -ke1[1] * (he[1] - he[0])
+                for j in range(2, nz - 1):
+                    cr[j] = -(ke1[j] * (he[j] - he[j - 1]) + ke2[j] * (he[j + 1] - he[j - 2]))
+                cr[nz - 1] = -ke1[nz - 1] * (he[nz - 1] - he[nz - 2])
                 for k in range(n_top):
                     j = jz0 + k
                     d = cr[j]
                     p = b_ze[k] * psi_ze[ie, k] + c_ze[k] * d
                     psi_ze[ie, k] = p
                     cr[j] += kd_ze[k] * d + p
-            # vacuum rows
+            # vacuum rows (with the partners above, the first plasma row's Er and Ephi too: the
+            # engine keeps that row's plasma below its threshold)
             e_z = ez[i]
             for j in range(jp0):
                 e_z[j] += cez[j] * cz[j]
             if i > 0:
                 e_p = ephi[i]
-                for j in range(1, jp0):
+                for j in range(1, jp0 + lift):
                     e_p[j] += cer[j] * cp[j]
             if ie >= 0:
                 e_r = er[ie]
-                for j in range(1, jp0):
+                for j in range(1, jp0 + lift):
                     e_r[j] += cer[j] * cr[j]
             # plasma rows: one triple per row
             t = tab[i]
@@ -791,18 +817,21 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
             if i > 0 and ie >= 0:
                 sz, sr, sp = wsq[0, i], wsq[1, ie], wsq[2, i]
                 iz, ir_, ip = np.float32(1.0) / sz, np.float32(1.0) / sr, np.float32(1.0) / sp
-                xz_ = ez[i, jp0:]
-                xr_ = er[ie, jp0:]
-                xp_ = ephi[i, jp0:]
-                wz = uz[i]
-                wr = ur[ie]
-                wp = up[i]
-                ccz = cz[jp0:]
-                ccr = cr[jp0:]
-                ccp = cp[jp0:]
-                ez_c = cez[jp0:]
-                er_c = cer[jp0:]
-                for k in range(n):
+                # whole triples: Ez rows jp0 .. jp0+m-1 with the Er and Ephi rows ``lift`` above their
+                # lower faces
+                m = max(n - lift, 0)
+                xz_ = ez[i, jp0 : jp0 + m]
+                xr_ = er[ie, jp0 + lift : jp0 + lift + m]
+                xp_ = ephi[i, jp0 + lift : jp0 + lift + m]
+                wz = uz[i, :m]
+                wr = ur[ie, lift : lift + m]
+                wp = up[i, lift : lift + m]
+                ccz = cz[jp0 : jp0 + m]
+                ccr = cr[jp0 + lift : jp0 + lift + m]
+                ccp = cp[jp0 + lift : jp0 + lift + m]
+                ez_c = cez[jp0 : jp0 + m]
+                er_c = cer[jp0 + lift : jp0 + lift + m]
+                for k in range(m):
                     e_zo = xz_[k]
                     e_ro = xr_[k]
                     e_po = xp_[k]
@@ -836,47 +865,86 @@ def step_e_mag(fields, te, curl, plasma, top_r, top_p, far_z, far_p, src, dft, n
                     wr[k] = nr_ if abs(nr_) > TINY else zero
                     wp[k] = np_ if abs(np_) > TINY else zero
                     wz[k] = nz_ if abs(nz_) > TINY else zero
+                if lift and n > 0:
+                    # the top Ez row: its upper face is the wall, so it is updated alone
+                    k = n - 1
+                    j = jp0 + k
+                    ez_new, _, _, uz_new, _, _ = _triple(
+                        coef,
+                        t,
+                        k,
+                        ez[i, j],
+                        zero,
+                        zero,
+                        cz[j],
+                        zero,
+                        zero,
+                        uz[i, k],
+                        zero,
+                        zero,
+                        cez[j],
+                        cer[j],
+                        cer[j],
+                        sz,
+                        np.float32(1.0),
+                        np.float32(1.0),
+                    )
+                    ez[i, j] = _flush(ez_new)
+                    uz[i, k] = _flush(uz_new)
             else:
                 # the axis column and the column without an Er partner: absent components are zero
                 one = np.float32(1.0)
                 for k in range(n):
                     j = jp0 + k
+                    jj = j + lift  # the partners' row (nz: the wall, no partner)
+                    kk = k + lift
+                    inside = jj < nz
                     er_old = zero
                     ur_old = zero
+                    ep_old = zero
+                    up_old = zero
+                    c_r = zero
+                    c_p = zero
                     sr = one
-                    if ie >= 0:
-                        er_old = er[ie, j]
-                        ur_old = ur[ie, k]
+                    if ie >= 0 and inside:
+                        er_old = er[ie, jj]
+                        ur_old = ur[ie, kk]
+                        c_r = cr[jj]
                         sr = wsq[1, ie]
+                    if i > 0 and inside:
+                        ep_old = ephi[i, jj]
+                        up_old = up[i, kk]
+                        c_p = cp[jj]
                     sp = wsq[2, i] if i > 0 else one
+                    e_c = cer[jj] if inside else cer[j]
                     ez_new, er_new, ep_new, uz_new, ur_new, up_new = _triple(
                         coef,
                         t,
                         k,
                         ez[i, j],
                         er_old,
-                        ephi[i, j],
+                        ep_old,
                         cz[j],
-                        cr[j],
-                        cp[j],
+                        c_r,
+                        c_p,
                         uz[i, k],
                         ur_old,
-                        up[i, k],
+                        up_old,
                         cez[j],
-                        cer[j],
-                        cer[j],
+                        e_c,
+                        e_c,
                         wsq[0, i],
                         sr,
                         sp,
                     )
                     ez[i, j] = _flush(ez_new)
                     uz[i, k] = _flush(uz_new)
-                    if i > 0:
-                        ephi[i, j] = _flush(ep_new)
-                        up[i, k] = _flush(up_new)
-                    if ie >= 0:
-                        er[ie, j] = _flush(er_new)
-                        ur[ie, k] = _flush(ur_new)
+                    if i > 0 and inside:
+                        ephi[i, jj] = _flush(ep_new)
+                        up[i, kk] = _flush(up_new)
+                    if ie >= 0 and inside:
+                        er[ie, jj] = _flush(er_new)
+                        ur[ie, kk] = _flush(ur_new)
             if i == 0:
                 for j in range(src.shape[0]):
                     ez[0, j] -= src[j]
@@ -892,14 +960,16 @@ def step_er_alone(fields, curl, plasma, t, top_r, col):
     update with its radial current alone (``plasma.coef[t]`` built with Ez and Ephi absent). Groups
     as in :func:`step_e_mag`."""
     er, hp, ur = fields.er, fields.hp, fields.jr
-    inv_dz, cer, jp0 = curl.inv_dz, curl.cer, curl.jp0
+    cer, jp0, ke1, ke2 = curl.cer, curl.jp0, curl.ke1, curl.ke2
     coef, wsq = plasma.coef, plasma.wsq
     jz0, b_ze, c_ze, kd_ze, psi_ze = top_r.start, top_r.b, top_r.c, top_r.kd, top_r.psi
     nz = er.shape[1] - 1
     zero = np.float32(0.0)
     h = hp[col]
     for j in range(1, nz):
-        c = -(h[j] - h[j - 1]) * inv_dz
+        c = -ke1[j] * (h[j] - h[j - 1])
+        if 2 <= j < nz - 1:
+            c -= ke2[j] * (h[j + 1] - h[j - 2])
         if j >= jz0:
             kt = j - jz0
             p = b_ze[kt] * psi_ze[col, kt] + c_ze[kt] * c

@@ -257,6 +257,34 @@ def magnetised_coefficients(eps_eff, omega_p2, nu, omega_b, present, dt):
 MIN_VERTICAL_FIELD_SHARE = 0.1
 
 
+def whistler_cap_omega_p2(b_t, frequency_hz: float, index: float, flattening: float = 1.0) -> np.ndarray:
+    """omega_p^2 (rad^2/s^2) at which the vertical whistler-mode index of
+    :func:`whistler_vertical_index` reaches ``index``, per field row (T, shape (3,) or (n, 3) in
+    (r, phi, z)): X = (index^2 / flattening - 1)(Y |cos theta| - 1). ``inf`` where no whistler-mode
+    wave travels vertically (no field, or Y |cos theta| <= 1) or ``index`` is infinite.
+
+    The engine holds the plasma at this value above the height where a column reaches it
+    (:class:`cavity.fdtd.engine.Simulation`): what the wave meets above that height only carries the
+    whistler-mode wave up and away, so how much denser the plasma gets there hardly changes the
+    field at the ground (docs/physics.md 11), and the vertical cell then needs to carry the index
+    ``index``, not that of the densest plasma.
+    """
+    b = np.asarray(b_t, dtype=float).reshape(-1, 3)
+    omega = 2.0 * math.pi * float(frequency_hz)
+    out = np.full(b.shape[0], np.inf)
+    if not math.isfinite(index):
+        return out
+    strength = np.linalg.norm(b, axis=1)
+    ok = strength > 0
+    share = np.ones_like(strength)
+    share[ok] = np.maximum(np.abs(b[ok, 2]) / strength[ok], MIN_VERTICAL_FIELD_SHARE)
+    y_l = ELECTRON_CHARGE * strength / (ELECTRON_MASS * omega) * share
+    ok &= y_l > 1.0
+    x = max(index**2 / flattening - 1.0, 0.0) * (y_l[ok] - 1.0)
+    out[ok] = x * omega**2
+    return out
+
+
 def whistler_vertical_index(omega_p2_max: float, b_t, frequency_hz: float, flattening: float = 1.0) -> float:
     """Refractive index of the whistler-mode wave travelling vertically in the densest plasma.
 

@@ -196,9 +196,9 @@ def build(
     former grazing correction); used for comparisons. ``edge_gamma`` (order 4 only) replaces gamma
     in the second-order radial differences from the cell before the far absorber on
     (:func:`edge_factor`). ``order`` is the radial order; ``vertical_order`` (default the same) the
-    vertical one: the six-component scheme of the geomagnetic field is fourth order in range and
-    second order in height (its vertical cell, set by the whistler-mode wave, is already several
-    times finer than the range cell).
+    vertical one (fourth order in both by default, with or without the geomagnetic field; second
+    order in height when the six-component scheme keeps the former whistler rule,
+    ``whistler_cap_index`` = inf).
 
     The tables of the TE set (``te_e``, ``te_h``) are built like those of the TM set with the roles
     of E and H exchanged: Ephi sits where Ez does and Hz where H_phi does, but Hz is even in r and
