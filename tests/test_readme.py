@@ -94,5 +94,5 @@ def test_demo_time_is_stated_the_same_everywhere():
     demo_section = text.split("### The demo")[1].split("###")[0]
     help_text = CliRunner().invoke(main, ["demo", "--help"]).output
     for where in (quick_start, demo_section, help_text):
-        assert "about 15 min" in where
+        assert "about 7 min" in where
     assert "a few minutes" not in help_text and "about a minute" not in quick_start

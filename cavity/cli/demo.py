@@ -75,8 +75,8 @@ def command(folder, overwrite, quiet):
       plot_day.png, plot_night.png amplitude and phase against range
       map.png                     transmitter, receivers and the path by ground class
 
-    Takes about 15 min on two cores with the geomagnetic field (measured 13 min 31 s on an idle
-    2-core machine, 23 min 49 s of processor time: two solves of about 8 x 10^10 cell updates each
+    Takes about 7 min on two cores with the geomagnetic field (measured 6 min 20 s on an idle
+    2-core machine, 11 min 5 s of processor time: two solves of 1.8 and 4.5 x 10^10 cell updates
     with six field components, plus their uncertainty companions; cavity inspect estimates a run).
     Existing files are replaced only with --overwrite; nothing is written if the run fails.
 
