@@ -529,7 +529,11 @@ class Simulation:
 
         # plasma
         wp2_z, nu_z = self._plasma(self.r_ez, self.z_ez)
-        wp2_r, nu_r = self._plasma(self.r_h, self.z_er[:nz])
+        # Er nodes on every row up to the top wall (the six-component tables read row nz too)
+        wp2_re, nu_re = self._plasma(self.r_h, self.z_er)
+        wp2_r, nu_r = wp2_re, nu_re
+        if wp2_re is not None:
+            wp2_r, nu_r = wp2_re[:, :nz], nu_re[:, :nz]
         self.jp0 = nz
         if wp2_z is not None:
             # rows whose loss tangent omega_p^2/(omega max(nu, omega)) stays below PLASMA_THRESHOLD
@@ -632,9 +636,9 @@ class Simulation:
 
         self.magnetised = m.magnetic_field_t is not None
         if self.magnetised:
-            self._build_te(eps_ez, eps_er, wp2_z, nu_z, wp2_r, nu_r, sig, epr)
+            self._build_te(eps_ez, eps_er, wp2_z, nu_z, wp2_re, nu_re, sig, epr)
 
-    def _build_te(self, eps_ez, eps_er, wp2_z, nu_z, wp2_r, nu_r, sig, epr):
+    def _build_te(self, eps_ez, eps_er, wp2_z, nu_z, wp2_re, nu_re, sig, epr):
         """Arrays and coefficients of the TE set and the magnetised current (kernels.step_e_mag)."""
         p, m = self.plan, self.medium
         nr, nz = p.nr, p.nz
@@ -695,8 +699,8 @@ class Simulation:
             return
         sl = slice(self.jp0, nz)
         up = slice(self.jp0 + 1, nz + 1)  # the Er and Ephi rows above the Ez rows (row nz: the top wall)
-        # Er and Ephi nodes on every row up to the wall; H_phi-column plasma for Er, Ez-column for Ephi
-        wp2_re, nu_re = self._plasma(self.r_h, self.z_er)
+        # Er (wp2_re, from _build) and Ephi nodes on every row up to the wall; H_phi-column plasma for
+        # Er, Ez-column for Ephi
         wp2_p, nu_p = self._plasma(self.r_ez, self.z_er)
         _, prof_z = _distinct_rows(np.ascontiguousarray(wp2_z[:, sl]))
         _, prof_r = _distinct_rows(np.ascontiguousarray(wp2_re[:, self.jp0 :]))
