@@ -308,21 +308,23 @@ def write_sweep(ds: xr.Dataset, path, *, overwrite: bool = False) -> Path:
     return write_result(encode_time(ds), path, overwrite=overwrite)
 
 
+def _points_text(values, text: str) -> str:
+    """Per-point attribute values summarised for the sweep file: "none" when every point says
+    "none", else ``text`` with ``{n}`` and ``{of}`` the points that do not and all points."""
+    n = sum(v != "none" for v in values)
+    return text.format(n=n, of=len(values)) if n else "none"
+
+
 def _extrapolation_text(values) -> str:
     """The points' ``solver_extrapolation`` attributes summarised for the sweep file."""
-    done = [v for v in values if v != "none"]
-    if not done:
-        return "none"
-    return f"{EXTRAPOLATION_METHOD} on some or all paths of {len(done)} of {len(values)} points"
+    return _points_text(values, f"{EXTRAPOLATION_METHOD} on some or all paths of {{n}} of {{of}} points")
 
 
 def _range_only_text(values) -> str:
     """The points' ``solver_range_only_companion`` attributes summarised for the sweep file: where a
     point's companion kept the vertical cell, its +- leaves out the vertical cell's error."""
-    kept = [v for v in values if v != "none"]
-    if not kept:
-        return "none"
-    return (
-        f"some or all paths of {len(kept)} of {len(values)} points "
-        "(their uncertainty companion is coarser in range only; +- leaves out the vertical cell's error)"
+    return _points_text(
+        values,
+        "some or all paths of {n} of {of} points "
+        "(their uncertainty companion is coarser in range only; +- leaves out the vertical cell's error)",
     )
